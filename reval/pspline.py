@@ -1,0 +1,42 @@
+"""P-spline building blocks: a cubic B-spline basis on equally spaced knots and a difference penalty.
+
+Equal knot spacing with a generous number of basis functions and a difference penalty on
+adjacent coefficients is the P-spline recipe of Eilers & Marx (1996, Statistical Science 11(2)).
+We prefer it to knots at quantiles because the penalty then has a constant meaning along the
+axis (a second difference of coefficients approximates a second derivative only when the knots
+are equally spaced), and smoothness comes from the penalty, not from where the knots sit.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy.interpolate import BSpline
+
+
+def equal_knots(lo: float, hi: float, n_basis: int, degree: int = 3) -> np.ndarray:
+    """Full knot vector for `n_basis` B-splines of `degree` with equally spaced knots on [lo, hi]."""
+    if n_basis < degree + 1:
+        raise ValueError(f"n_basis must be at least degree + 1 = {degree + 1}, got {n_basis}")
+    if not hi > lo:
+        raise ValueError(f"the range must have hi > lo, got [{lo}, {hi}]")
+    step = (hi - lo) / (n_basis - degree)
+    return lo + step * np.arange(-degree, n_basis + 1, dtype=float)
+
+
+def bspline_basis(x: np.ndarray, lo: float, hi: float, n_basis: int, degree: int = 3) -> np.ndarray:
+    """Dense (n, n_basis) B-spline design matrix on equally spaced knots over [lo, hi].
+
+    Values outside [lo, hi] are clamped to the range first, so a parcel beyond the training
+    range gets the boundary value of the curve instead of a polynomial extrapolation.
+    """
+    knots = equal_knots(lo, hi, n_basis, degree)
+    xc = np.clip(np.asarray(x, dtype=float), lo, hi)
+    return BSpline.design_matrix(xc, knots, degree, extrapolate=False).toarray()
+
+
+def difference_penalty(n_basis: int, order: int = 2) -> np.ndarray:
+    """Penalty D'D where D takes `order`-th differences of adjacent coefficients."""
+    if order >= n_basis:
+        raise ValueError(f"difference order {order} needs more than {order} coefficients, got {n_basis}")
+    d = np.diff(np.eye(n_basis), n=order, axis=0)
+    return d.T @ d
