@@ -1,0 +1,113 @@
+"""Checks of the performance-standard limits and the verdicts judged against them.
+
+Limits: IAAO Standard on Ratio Studies (2013), Section 9 performance standards, recalled from memory
+(level 0.90-1.10; COD 10 newer/homogeneous residential, 15 older/heterogeneous residential,
+20 income-producing in smaller jurisdictions, 25 vacant land; PRD 0.98-1.03; PRB -0.05 to 0.05).
+"""
+from __future__ import annotations
+
+import math
+import tomllib
+
+import numpy as np
+import pytest
+
+from reval.ratio_stats import RatioStudy
+from reval.standards import STANDARDS_TOML_COMMENTED, Standards, Verdict, judge, passes
+
+
+def _study(n: int = 50, median: float = 1.0, cod: float = 10.0, prd: float = 1.0, prb: float = 0.0) -> RatioStudy:
+    nan2 = (math.nan, math.nan)
+    return RatioStudy(n=n, n_trimmed=0, median_ratio=median, median_ratio_ci=nan2, mean_ratio=median,
+                      weighted_mean_ratio=median, cod=cod, cod_ci=nan2, prd=prd, prd_ci=nan2, prb=prb,
+                      prb_ci=nan2, decile_median_ratios=(math.nan,) * 10, trimmed=np.zeros(n, dtype=bool))
+
+
+def test_defaults_match_the_iaao_standard():
+    s = Standards()
+    assert s.median_ratio == (0.90, 1.10)          # IAAO level standard (from memory)
+    assert s.prd == (0.98, 1.03)                   # IAAO PRD standard (from memory)
+    assert s.prb == (-0.05, 0.05)                  # IAAO PRB standard, Section 9.2.7 (from memory)
+    assert s.cod_max["newer_residential"] == 10.0  # IAAO: newer or homogeneous residential (from memory)
+    assert s.cod_max["single_family"] == 15.0      # IAAO: older or heterogeneous residential (from memory)
+    assert s.cod_max["income"] == 20.0             # IAAO: income-producing, smaller areas (from memory)
+    assert s.cod_max["vacant_land"] == 25.0        # IAAO: vacant land (from memory)
+    assert s.cod_max["townhouse"] == 15.0          # common practice: judged as residential
+    assert s.cod_max_default == 15.0 and s.min_sales == 10  # common practice
+
+
+def test_commented_toml_block_is_valid_and_holds_the_defaults():
+    # Reference: Python's tomllib parses the block; it must rebuild exactly the default standards.
+    table = tomllib.loads(STANDARDS_TOML_COMMENTED)["standards"]
+    assert Standards.from_mapping(table) == Standards()
+    body = [ln for ln in STANDARDS_TOML_COMMENTED.splitlines() if "=" in ln and not ln.startswith("#")]
+    assert body and all("# IAAO" in ln or "# common practice" in ln for ln in body)
+    assert "may differ" in STANDARDS_TOML_COMMENTED
+
+
+def test_from_mapping_validates_and_merges_cod_limits():
+    s = Standards.from_mapping({"median_ratio": [0.95, 1.05], "min_sales": 5, "cod_max": {"farm": 30}})
+    assert s.median_ratio == (0.95, 1.05) and s.min_sales == 5
+    assert s.cod_limit("farm") == 30.0 and s.cod_limit("vacant_land") == 25.0  # given class added, defaults kept
+    with pytest.raises(ValueError, match="unknown key 'cod'"):
+        Standards.from_mapping({"cod": 15})
+    with pytest.raises(ValueError, match="prd must be .*low <= high"):
+        Standards.from_mapping({"prd": [1.03, 0.98]})
+    with pytest.raises(ValueError, match="prb must be"):
+        Standards.from_mapping({"prb": 0.05})
+    with pytest.raises(ValueError, match="min_sales"):
+        Standards.from_mapping({"min_sales": 2.5})
+    with pytest.raises(ValueError, match="cod_max.income"):
+        Standards.from_mapping({"cod_max": {"income": -1}})
+    with pytest.raises(ValueError, match="cod_max_default"):
+        Standards.from_mapping({"cod_max_default": True})
+    assert hash(s) == hash(Standards.from_mapping({"median_ratio": [0.95, 1.05], "min_sales": 5,
+                                                   "cod_max": {"farm": 30.0}}))
+
+
+def test_boundaries_are_inclusive():
+    # IAAO ranges (from memory) read as inclusive: a value exactly on a limit passes.
+    s = Standards()
+    on_edge = judge(_study(median=1.10, cod=15.0, prd=0.98, prb=-0.05), s, "single_family")
+    assert {k: v.status for k, v in on_edge.items()} == dict.fromkeys(on_edge, "pass")
+    assert judge(_study(median=0.90, prd=1.03, prb=0.05), s, None)["median_ratio"].status == "pass"
+    assert passes(on_edge)
+    outside = judge(_study(median=1.1000001, cod=15.0001, prd=1.0301, prb=0.0501), s, "single_family")
+    assert {k: v.status for k, v in outside.items()} == dict.fromkeys(outside, "fail")
+    assert judge(_study(median=0.8999), s, None)["median_ratio"].status == "fail"
+    assert judge(_study(prd=0.9799, prb=-0.0501), s, None)["prd"].status == "fail"
+    assert not passes(outside)
+
+
+def test_class_specific_cod_limit():
+    s = Standards()
+    study = _study(cod=12.0)
+    assert judge(study, s, "single_family")["cod"] == Verdict("pass", "<= 15", 12.0)     # IAAO 15 (from memory)
+    assert judge(study, s, "newer_residential")["cod"] == Verdict("fail", "<= 10", 12.0)  # IAAO 10 (from memory)
+    assert judge(_study(cod=22.0), s, "vacant_land")["cod"].status == "pass"            # IAAO 25 (from memory)
+    assert judge(_study(cod=22.0), s, "income")["cod"].status == "fail"                 # IAAO 20 (from memory)
+    assert judge(_study(cod=16.0), s, "no_such_class")["cod"] == Verdict("fail", "<= 15", 16.0)
+    custom = Standards(cod_max={"farm": 27.5}, cod_max_default=12.0)
+    assert judge(_study(cod=16.0), custom, None)["cod"] == Verdict("fail", "<= 12", 16.0)
+    assert judge(_study(cod=16.0), custom, "farm")["cod"] == Verdict("pass", "<= 27.5", 16.0)
+
+
+def test_too_few_sales_and_limit_strings():
+    s = Standards()
+    few = judge(_study(n=9), s, None)  # min_sales 10 is common practice
+    assert {k: v.status for k, v in few.items()} == dict.fromkeys(few, "too_few_sales")
+    assert not passes(few)
+    enough = judge(_study(n=10), s, None)
+    assert passes(enough)
+    assert {k: v.limit for k, v in enough.items()} == {
+        "median_ratio": "0.90-1.10", "cod": "<= 15", "prd": "0.98-1.03", "prb": "-0.05 to 0.05"}
+    assert enough["median_ratio"].value == 1.0 and enough["prb"].value == 0.0
+    odd = judge(_study(), Standards(median_ratio=(0.955, 1.05)), None)
+    assert odd["median_ratio"].limit == "0.955-1.05"
+
+
+def test_uncomputable_statistic_fails():
+    # A NaN statistic (e.g. PRB with every value proxy equal) cannot show the standard is met.
+    verdicts = judge(_study(prb=math.nan), Standards(), None)
+    assert verdicts["prb"].status == "fail" and verdicts["cod"].status == "pass"
+    assert not passes(verdicts)
