@@ -1,0 +1,1 @@
+"""reval: municipal assessment revaluation over an embedded DuckDB database (core library, no UI)."""

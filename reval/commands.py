@@ -1,0 +1,60 @@
+"""The service API shared by the command line and the terminal app: one function per user-level step."""
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+from typing import Any, Callable
+
+from .config import CONFIG_NAME, Config, load_config
+from .errors import UserError
+from .importer import ImportResult, run_import
+from .starter import starter_config
+from .store import open_store
+
+Progress = Callable[[str, int, int], None]
+DEMO_SOURCE = Path(__file__).resolve().parent.parent / "data_samples" / "demo"
+DEMO_FILES = ("reval.toml", "parcels.csv", "sales.csv", "land_schedule.csv")
+
+
+def init_project(folder: Path, name: str) -> Path:
+    """Create a project folder with a commented starter reval.toml; never overwrite one."""
+    path = folder / CONFIG_NAME
+    if path.exists():
+        raise UserError(f"{path} already exists; reval init never overwrites a config")
+    folder.mkdir(parents=True, exist_ok=True)
+    path.write_text(starter_config(name), encoding="utf-8")
+    return path
+
+
+def import_project(folder: Path, progress: Progress | None = None) -> ImportResult:
+    """Load the project's input files (all or nothing)."""
+    return run_import(load_config(folder), progress)
+
+
+def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = None) -> dict[str, Any]:
+    """Build the demo municipality's project folder and run every step of the job."""
+    folder.mkdir(parents=True, exist_ok=True)
+    if n_parcels is None:
+        for name in DEMO_FILES:
+            shutil.copyfile(DEMO_SOURCE / name, folder / name)
+    else:
+        from data_samples.demo_town import write_project
+
+        write_project(folder, n_parcels=n_parcels)
+    config = load_config(folder)
+    result = run_import(config, progress)
+    steps = ["import" + ("" if result.changed else " (unchanged)")]
+    return _summary(config, result, steps)
+
+
+def _summary(config: Config, result: ImportResult, steps: list[str]) -> dict[str, Any]:
+    return {"jurisdiction": config.jurisdiction, "folder": str(config.folder), "parcels": result.parcels,
+            "sales": result.sales, "segments": result.segments, "market_areas": result.market_areas,
+            "steps": steps}
+
+
+def segment_overview(folder: Path) -> list[dict[str, Any]]:
+    """One row per segment with its parcel and sale counts (read-only)."""
+    config = load_config(folder)
+    with open_store(config.database, read_only=True) as store:
+        return store.frame("segment_counts").to_dict("records")

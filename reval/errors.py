@@ -1,0 +1,50 @@
+"""User-facing errors: each carries a plain message the CLI prints without a traceback (exit code 1)."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+
+class UserError(Exception):
+    """An error in the user's data, config or request; the message says what to fix."""
+
+
+class ConfigError(UserError):
+    """A problem in reval.toml, naming the file and the key (and the column when one is involved)."""
+
+    def __init__(self, file: Path | str, key: str, problem: str) -> None:
+        self.file, self.key, self.problem = str(file), key, problem
+        super().__init__(f"{file}: key '{key}': {problem}")
+
+
+@dataclass(frozen=True)
+class DataProblem:
+    """One bad cell or row of an input file."""
+
+    file: str
+    line: int
+    column: str
+    value: str | None
+    reason: str
+
+    def __str__(self) -> str:
+        shown = "" if self.value is None else f" (value {self.value!r})"
+        return f"{self.file}, line {self.line}, column '{self.column}': {self.reason}{shown}"
+
+
+class DataErrors(UserError):
+    """Every problem found in the input files at once; `report` is the CSV written beside the database."""
+
+    SHOWN = 20
+
+    def __init__(self, problems: list[DataProblem], report: Path | None) -> None:
+        self.problems, self.report = problems, report
+        lines = [str(p) for p in problems[: self.SHOWN]]
+        more = len(problems) - len(lines)
+        if more > 0:
+            lines.append(f"... and {more} more")
+        where = f" Full list: {report}." if report else ""
+        super().__init__(
+            f"Import refused: {len(problems)} problem(s) in the input files; the database is unchanged.{where}\n"
+            + "\n".join(lines)
+        )

@@ -1,0 +1,109 @@
+"""The project's embedded DuckDB database: the one place that opens connections and loads SQL files.
+
+SQL lives in `sql/`: `schema.sql` (version 1), `migrations/NNN_name.sql` (forward migrations, applied in
+order) and `queries/NAME.sql` (named queries, always run with bound parameters).
+"""
+from __future__ import annotations
+
+import functools
+import re
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any, Iterator, Sequence
+
+import duckdb
+import pandas as pd
+
+from .errors import UserError
+
+SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
+_MIGRATION = re.compile(r"^(\d{3})_[a-z0-9_]+\.sql$")
+
+
+@functools.cache
+def sql_text(name: str) -> str:
+    """The text of `sql/queries/NAME.sql` (or `sql/NAME.sql` for schema files)."""
+    path = SQL_DIR / "queries" / f"{name}.sql"
+    if not path.exists():
+        path = SQL_DIR / f"{name}.sql"
+    return path.read_text(encoding="utf-8")
+
+
+def migrations() -> list[tuple[int, Path]]:
+    """Forward migrations as (version, file), in version order."""
+    found = [(int(m.group(1)), p) for p in (SQL_DIR / "migrations").glob("*.sql") if (m := _MIGRATION.match(p.name))]
+    return sorted(found)
+
+
+def latest_version() -> int:
+    return max([1, *(v for v, _ in migrations())])
+
+
+class Store:
+    """An open project database. Use `transaction()` around every step that writes."""
+
+    def __init__(self, path: Path | str, read_only: bool = False) -> None:
+        self.path = Path(path)
+        self.con = duckdb.connect(str(self.path), read_only=read_only)
+        if not read_only:
+            self.upgrade()
+
+    def close(self) -> None:
+        self.con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @contextmanager
+    def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
+        """All or nothing: commit when the block ends normally, roll back on any exception."""
+        self.con.begin()
+        try:
+            yield self.con
+        except BaseException:
+            self.con.rollback()
+            raise
+        self.con.commit()
+
+    def version(self) -> int:
+        exists = self.con.execute(
+            "SELECT count(*) FROM information_schema.tables WHERE table_name = 'schema_version'"
+        ).fetchone()
+        if not exists or exists[0] == 0:
+            return 0
+        row = self.con.execute("SELECT max(version) FROM schema_version").fetchone()
+        return int(row[0]) if row and row[0] is not None else 0
+
+    def upgrade(self) -> None:
+        """Create the schema on a new database and apply any forward migrations, each in one transaction."""
+        current = self.version()
+        if current == 0:
+            with self.transaction() as con:
+                con.execute(sql_text("schema"))
+            current = 1
+        for version, path in migrations():
+            if version > current:
+                with self.transaction() as con:
+                    con.execute(path.read_text(encoding="utf-8"))
+                    con.execute("INSERT INTO schema_version (version) VALUES (?)", [version])
+
+    def run(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> duckdb.DuckDBPyConnection:
+        """Execute the named query with bound parameters."""
+        return self.con.execute(sql_text(name), params or [])
+
+    def frame(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> pd.DataFrame:
+        """The named query's result as a pandas DataFrame."""
+        return self.run(name, params).df()
+
+    def rows(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> list[tuple[Any, ...]]:
+        return self.run(name, params).fetchall()
+
+
+def open_store(database: Path, read_only: bool = False) -> Store:
+    """Open (creating and upgrading if needed) the database at `database`."""
+    if read_only and not database.exists():
+        raise UserError(f"{database}: no database yet; run `reval import` first")
+    return Store(database, read_only=read_only)

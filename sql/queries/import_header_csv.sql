@@ -1,0 +1,2 @@
+-- Column names of a CSV file, in file order. $1: path.
+SELECT column_name FROM (DESCRIBE SELECT * FROM read_csv($1, all_varchar = true, header = true));

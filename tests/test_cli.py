@@ -1,0 +1,57 @@
+"""The `reval` command as a user runs it: real subprocesses, exit codes, messages, JSON."""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+from conftest import SMALL_PARCELS
+
+
+def reval(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
+    return subprocess.run([sys.executable, "-m", "reval.cli", *args], capture_output=True, text=True, cwd=cwd,
+                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home())} | _pythonpath())
+
+
+def _pythonpath() -> dict[str, str]:
+    return {"PYTHONPATH": str(Path(__file__).resolve().parent.parent)}
+
+
+def test_import_json_and_exit_code(small_project: Path) -> None:
+    done = reval("import", "--project", str(small_project), "--json")
+    assert done.returncode == 0, done.stderr
+    assert json.loads(done.stdout)["parcels"] == 5
+
+
+def test_bad_data_exits_1_with_line_and_column_and_no_traceback(small_project: Path) -> None:
+    (small_project / "parcels.csv").write_text(SMALL_PARCELS.replace("1800,good", "1800,superb"))
+    done = reval("import", "--project", str(small_project))
+    assert done.returncode == 1
+    assert "line 3, column 'quality'" in done.stderr and "unknown level" in done.stderr
+    assert "Traceback" not in done.stderr
+    assert (small_project / "import_errors.csv").exists()
+
+
+def test_config_error_exits_1_naming_key(small_project: Path) -> None:
+    config = small_project / "reval.toml"
+    config.write_text(config.read_text().replace("[columns]", "[columns]\nowner = \"x\""))
+    done = reval("import", "--project", str(small_project))
+    assert done.returncode == 1 and "columns.owner" in done.stderr and "Traceback" not in done.stderr
+
+
+def test_usage_error_exits_2() -> None:
+    assert reval("import", "--no-such-flag").returncode == 2
+    assert reval("frobnicate").returncode == 2
+
+
+def test_every_subcommand_has_help() -> None:
+    for command in ("init", "import", "demo", "tui"):
+        done = reval(command, "--help")
+        assert done.returncode == 0 and "usage: reval" in done.stdout
+
+
+def test_init_then_missing_files_is_a_user_error(tmp_path: Path) -> None:
+    assert reval("init", str(tmp_path / "p")).returncode == 0
+    done = reval("import", "--project", str(tmp_path / "p"))
+    assert done.returncode == 1 and "files.parcels" in done.stderr
