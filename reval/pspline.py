@@ -19,8 +19,10 @@ def equal_knots(lo: float, hi: float, n_basis: int, degree: int = 3) -> np.ndarr
         raise ValueError(f"n_basis must be at least degree + 1 = {degree + 1}, got {n_basis}")
     if not hi > lo:
         raise ValueError(f"the range must have hi > lo, got [{lo}, {hi}]")
-    step = (hi - lo) / (n_basis - degree)
-    return lo + step * np.arange(-degree, n_basis + 1, dtype=float)
+    inner = np.linspace(lo, hi, n_basis - degree + 1)  # exact end points, so clamped values stay inside
+    step = inner[1] - inner[0]
+    outer = step * np.arange(1, degree + 1, dtype=float)
+    return np.concatenate([lo - outer[::-1], inner, hi + outer])
 
 
 def bspline_basis(x: np.ndarray, lo: float, hi: float, n_basis: int, degree: int = 3) -> np.ndarray:
