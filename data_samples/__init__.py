@@ -1,0 +1,1 @@
+"""Sample data shipped with reval: the fictional municipality of Vellmarsh."""

@@ -1,0 +1,684 @@
+"""Vellmarsh: a seeded, fictional municipality for demos, tests and benchmarks.
+
+Every name is invented; the coordinates lie in an empty stretch of the South Pacific so that
+no real place is implied. The same seed always gives the same town, at any size.
+
+The town has 22 neighbourhoods in 4 market areas and three property classes (single_family,
+townhouse, condominium; condominiums are "apartment" style with lot_size 0). At the default
+20,000 parcels it has about 4,100 sales dated 2023-01-01 .. 2025-12-31 plus about 30 dated 2022
+(outside the 36-month window). Three neighbourhoods are thin on purpose: Torvel Hollow has no
+qualified sale (two non-arm's-length ones), Lyskeld Point 5 and Gaulden Terrace 15; the others
+have 60-400. Counts scale in proportion to `n_parcels`.
+
+Market value follows a known TRUE function of the features in log space, so a fitted model can be
+scored on how well it recovers it:
+
+    log value = market-area intercept + neighbourhood shift
+                + size_slope[neighbourhood] * area(living_area) + age(year_built) + lot(lot_size)
+                + quality + condition + bathrooms + garage_spaces + style + waterfront
+                + 0.05 * ln(living_area / 1600) * (quality index - 2)
+                + 0.0008 * (age - 50) * (condition index - 2)
+                + 0.10 * waterfront * ln(1 + lot_size / 3000)
+
+where the quality index runs 0 (low) .. 5 (excellent) and the condition index 0 (poor) .. 4
+(very_good). `true_curve` returns each main-effect shape centred so that its mean over the
+parcels of the default demo (`generate()`, i.e. data_samples/demo/parcels.csv) is 0. The
+living-area shape is that of a neighbourhood with size_slope 1, and every shape holds at the
+reference point of its interaction partner, where the interaction term vanishes: quality
+"average" for living_area, 1,600 sq ft for quality, condition "average" for year_built, age 50
+for condition, no waterfront for lot_size and lot_size 0 for waterfront.
+
+A valid sale's price is exp(true log value + true_log_index(sale date) + N(0, noise_sd)); a
+non-arm's-length sale is priced at 60-85% of that. A multi-parcel sale lists each parcel under
+one sale id with the package price (the parcels' summed value times one noise draw). Eight
+data-entry errors that pass the declared ranges are planted on valid single-parcel sales and
+listed in `DemoTown.planted_errors`; the true value of a planted parcel is the one computed from
+its correct, not its recorded, features.
+
+The prior value is an older roll: about 0.9 of market value, regressive (slope < 1 on log value
+around 350,000), with neighbourhood-specific level, slope and scatter so that some neighbourhoods
+pass a ratio study on it and some fail.
+
+Land schedule (land_schedule.csv, one or two rows per neighbourhood): for a parcel with
+lot_size > 0, land value = base_land_value * (lot_size / base_lot_size) ** size_exponent using the
+neighbourhood's row with base_lot_size > 0 (size_exponent 0.3-0.6). The row with base_lot_size 0
+(size_exponent 0) gives every parcel with lot_size 0 (condominium units) the flat
+base_land_value.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+VALUATION_DATE = np.datetime64("2026-01-01", "D")
+VALUATION_YEAR = 2026.0
+WINDOW_START = np.datetime64("2023-01-01", "D")
+EARLY_START = np.datetime64("2022-01-01", "D")
+DEFAULT_PARCELS = 20_000
+DEFAULT_SEED = 2026
+MIN_PARCELS = 2_000
+NOISE_SD = 0.10
+CONFIG_PATH = Path(__file__).with_name("demo") / "reval.toml"
+
+PROPERTY_CLASSES = ("single_family", "townhouse", "condominium")
+QUALITY_LEVELS = ("low", "fair", "average", "good", "very_good", "excellent")
+CONDITION_LEVELS = ("poor", "fair", "average", "good", "very_good")
+STYLE_LEVELS = ("one_storey", "two_storey", "split_level", "apartment")
+VALIDITY_CODES = ("valid", "related_parties", "forced_sale", "partial_interest", "not_open_market")
+INVALID_SHARES = (0.35, 0.25, 0.15, 0.25)
+TRUE_INTERACTIONS: tuple[tuple[str, str], ...] = (
+    ("living_area", "quality"),
+    ("year_built", "condition"),
+    ("lot_size", "waterfront"),
+)
+
+# Log-value intercept of each market area at the reference features (1,600 sq ft, no lot, ...).
+MARKET_AREA_INTERCEPTS = {"centre": 12.60, "orrimead": 12.55, "ymberwater": 12.70, "falvenby": 12.40}
+QUALITY_EFFECTS = np.array([-0.30, -0.15, 0.0, 0.12, 0.25, 0.40])
+CONDITION_EFFECTS = np.array([-0.20, -0.09, 0.0, 0.05, 0.10])
+STYLE_EFFECTS = np.array([0.0, 0.03, -0.04, -0.10])
+WATERFRONT_PREMIUM = 0.22
+PRIOR_PIVOT = np.log(350_000.0)
+
+# Market trend: steady growth with a dip centred on mid-2024 (years relative to the valuation date).
+INDEX_GROWTH = 0.06
+INDEX_DIP = 0.045
+INDEX_DIP_CENTRE = -1.5
+INDEX_DIP_WIDTH = 0.35
+
+# Extra sales at the default size: multi-parcel packages and 2022 sales outside the window.
+MULTI_PARCEL_SALES = 6
+EARLY_SALES = 30
+
+
+@dataclass(frozen=True)
+class Neighbourhood:
+    """One neighbourhood's recipe; counts are at the default 20,000 parcels."""
+
+    id: str
+    name: str
+    market_area: str
+    parcels: int
+    valid_sales: int
+    invalid_sales: int
+    class_mix: tuple[float, float, float]  # single_family, townhouse, condominium
+    area_median: float  # single-family living area, sq ft
+    lot_median: float  # single-family lot size, sq ft
+    built: tuple[float, float]  # mean and sd of year built
+    quality: float  # mean latent quality index, 0 = low .. 5 = excellent
+    waterfront: float  # share of parcels on the water
+    shift: float  # log-value deviation from the market area
+    size_slope: float  # multiplier on the living-area curve
+    prior: tuple[float, float, float]  # old roll: level, slope on log value, log scatter
+    land_exponent: float
+    centre: tuple[float, float]  # latitude, longitude
+
+
+N = Neighbourhood
+NEIGHBOURHOODS: tuple[Neighbourhood, ...] = (
+    N("TAML", "Tamlin Yard", "centre", 1400, 230, 35, (0.0, 0.0, 1.0), 1700, 5000, (1995, 15), 2.6,
+      0.0, 0.05, 1.0, (0.93, 0.90, 0.07), 0.50, (-41.195, -137.455)),
+    N("CORV", "Corvel Square", "centre", 900, 140, 22, (0.7, 0.3, 0.0), 1900, 4000, (1905, 15), 2.6,
+      0.0, 0.08, 0.75, (0.80, 0.88, 0.08), 0.55, (-41.205, -137.445)),
+    N("HESK", "Heskett Lanes", "centre", 1300, 240, 38, (0.9, 0.05, 0.05), 1300, 5500, (1952, 6), 1.7,
+      0.0, -0.08, 1.0, (0.91, 0.88, 0.20), 0.50, (-41.212, -137.470)),
+    N("MIRB", "Mirrenby", "centre", 1100, 190, 30, (0.6, 0.2, 0.2), 1600, 5000, (1970, 20), 2.2,
+      0.0, 0.0, 1.0, (0.93, 0.90, 0.07), 0.50, (-41.188, -137.430)),
+    N("GAUL", "Gaulden Terrace", "centre", 160, 15, 2, (0.5, 0.5, 0.0), 2100, 3500, (1890, 12), 3.0,
+      0.0, 0.10, 1.0, (0.92, 0.90, 0.08), 0.55, (-41.200, -137.420)),
+    N("PELL", "Pellow Mews", "centre", 700, 120, 18, (0.1, 0.9, 0.0), 1500, 2500, (2005, 8), 2.4,
+      0.0, 0.0, 1.0, (0.95, 0.92, 0.06), 0.55, (-41.218, -137.440)),
+    N("ASKR", "Askerholt", "orrimead", 1200, 220, 34, (0.95, 0.05, 0.0), 1700, 7000, (1978, 10), 2.1,
+      0.0, -0.02, 1.0, (0.94, 0.90, 0.07), 0.45, (-41.130, -137.480)),
+    N("BRIN", "Brindlecote", "orrimead", 1500, 300, 46, (0.9, 0.1, 0.0), 1800, 7500, (1988, 10), 2.3,
+      0.0, 0.0, 1.0, (0.93, 0.40, 0.08), 0.45, (-41.140, -137.455)),
+    N("DUNW", "Dunwarrow", "orrimead", 900, 150, 24, (1.0, 0.0, 0.0), 1500, 8000, (1962, 10), 1.9,
+      0.0, -0.05, 1.0, (0.92, 0.90, 0.07), 0.45, (-41.120, -137.430)),
+    N("FENL", "Fenlowe Park", "orrimead", 1300, 250, 38, (0.85, 0.15, 0.0), 1900, 6500, (1998, 8), 2.5,
+      0.0, 0.03, 1.0, (0.94, 0.90, 0.06), 0.45, (-41.150, -137.420)),
+    N("ISTR", "Istrell Heights", "orrimead", 800, 130, 20, (1.0, 0.0, 0.0), 2800, 15000, (1985, 15), 3.6,
+      0.0, 0.12, 1.3, (0.90, 0.88, 0.08), 0.40, (-41.110, -137.470)),
+    N("QUOR", "Quorrin Fields", "orrimead", 1700, 400, 62, (0.75, 0.2, 0.05), 2100, 6000, (2014, 7), 2.6,
+      0.0, 0.02, 1.0, (0.92, 0.90, 0.06), 0.45, (-41.125, -137.400)),
+    N("LYSK", "Lyskeld Point", "ymberwater", 90, 5, 1, (1.0, 0.0, 0.0), 3000, 20000, (1975, 25), 3.8,
+      0.6, 0.20, 1.0, (0.90, 0.88, 0.09), 0.35, (-41.175, -137.315)),
+    N("MARW", "Marrowfen Shore", "ymberwater", 600, 95, 15, (0.9, 0.0, 0.1), 2200, 10000, (1968, 18), 2.8,
+      0.3, 0.06, 1.2, (0.91, 0.88, 0.08), 0.40, (-41.190, -137.325)),
+    N("NESH", "Neshby Cove", "ymberwater", 1000, 180, 28, (0.7, 0.1, 0.2), 1700, 6000, (1985, 15), 2.4,
+      0.08, 0.0, 1.0, (0.93, 0.90, 0.07), 0.45, (-41.205, -137.335)),
+    N("OSSL", "Osslemere Bank", "ymberwater", 850, 140, 22, (0.85, 0.15, 0.0), 1800, 7000, (1935, 20), 2.3,
+      0.05, -0.03, 1.0, (0.92, 0.90, 0.08), 0.45, (-41.220, -137.340)),
+    N("SALL", "Sallowick", "ymberwater", 700, 110, 17, (0.8, 0.0, 0.2), 1600, 6500, (1958, 12), 2.0,
+      0.02, -0.06, 1.0, (1.12, 0.90, 0.07), 0.45, (-41.235, -137.330)),
+    N("TORV", "Torvel Hollow", "falvenby", 70, 0, 2, (1.0, 0.0, 0.0), 2000, 60000, (1950, 35), 2.2,
+      0.0, -0.05, 1.0, (0.90, 0.88, 0.10), 0.30, (-41.285, -137.580)),
+    N("UDDE", "Uddenshaw", "falvenby", 1000, 170, 26, (1.0, 0.0, 0.0), 1500, 9000, (1965, 15), 1.8,
+      0.0, -0.08, 1.0, (0.93, 0.90, 0.07), 0.40, (-41.260, -137.540)),
+    N("VARL", "Varlow Common", "falvenby", 1100, 190, 30, (0.85, 0.15, 0.0), 1600, 8000, (1992, 12), 2.1,
+      0.0, -0.04, 1.0, (0.94, 0.90, 0.06), 0.40, (-41.270, -137.520)),
+    N("WHIN", "Whinsey Downs", "falvenby", 450, 60, 10, (1.0, 0.0, 0.0), 2600, 45000, (1982, 20), 3.0,
+      0.0, 0.05, 0.85, (0.90, 0.88, 0.09), 0.30, (-41.290, -137.560)),
+    N("YARR", "Yarrowdene", "falvenby", 1180, 200, 30, (0.9, 0.1, 0.0), 1400, 7000, (1948, 18), 1.8,
+      0.0, -0.10, 1.0, (0.93, 0.90, 0.07), 0.40, (-41.255, -137.505)),
+)
+del N
+
+NEIGHBOURHOOD_IDS = tuple(n.id for n in NEIGHBOURHOODS)
+MARKET_AREAS = tuple(MARKET_AREA_INTERCEPTS)
+
+
+def _column(field: str) -> np.ndarray:
+    """One numeric field of the neighbourhood table, indexed by neighbourhood number."""
+    return np.array([getattr(n, field) for n in NEIGHBOURHOODS], dtype=float)
+
+
+_NB_MARKET_AREA = np.array([MARKET_AREAS.index(n.market_area) for n in NEIGHBOURHOODS])
+_NB_BASE = np.array([MARKET_AREA_INTERCEPTS[n.market_area] + n.shift for n in NEIGHBOURHOODS])
+_NB_SIZE_SLOPE = _column("size_slope")
+# Neighbourhoods with enough sales to host multi-parcel sales, 2022 sales and planted errors.
+_NB_BUSY = np.array([n.valid_sales >= 60 for n in NEIGHBOURHOODS])
+
+
+@dataclass(frozen=True)
+class DemoTown:
+    """A generated town: parcels, sales, land schedule and the planted data-entry errors."""
+
+    parcels: pd.DataFrame
+    sales: pd.DataFrame
+    land_schedule: pd.DataFrame
+    planted_errors: pd.DataFrame
+
+
+# ---- the true value function ---------------------------------------------------------------
+
+
+def _log_area(living_area: np.ndarray) -> np.ndarray:
+    return np.log(np.asarray(living_area, dtype=float) / 1600.0)
+
+
+def _log_lot(lot_size: np.ndarray) -> np.ndarray:
+    return np.log1p(np.asarray(lot_size, dtype=float) / 3000.0)
+
+
+def _area_curve(living_area: np.ndarray) -> np.ndarray:
+    u = _log_area(living_area)
+    return 0.55 * u - 0.08 * u * u
+
+
+def _age_curve(year_built: np.ndarray) -> np.ndarray:
+    age = VALUATION_YEAR - np.asarray(year_built, dtype=float)
+    return -0.32 * (1.0 - np.exp(-age / 35.0)) + 0.18 / (1.0 + np.exp(-(age - 95.0) / 12.0))
+
+
+def _lot_curve(lot_size: np.ndarray) -> np.ndarray:
+    return 0.09 * _log_lot(lot_size)
+
+
+def _bathroom_curve(bathrooms: np.ndarray) -> np.ndarray:
+    return 0.035 * np.asarray(bathrooms, dtype=float)
+
+
+def _garage_curve(garage_spaces: np.ndarray) -> np.ndarray:
+    g = np.asarray(garage_spaces, dtype=float)
+    return 0.05 * np.minimum(g, 2.0) + 0.015 * np.maximum(g - 2.0, 0.0)
+
+
+def _codes(values: object, levels: tuple[str, ...], name: str) -> np.ndarray:
+    """Integer codes of labels (strings or categoricals); unknown labels are an error."""
+    codes = np.asarray(pd.Categorical(values, categories=list(levels)).codes, dtype=np.intp)
+    if (codes < 0).any():
+        raise ValueError(f"{name}: labels outside {levels}")
+    return codes
+
+
+_MAIN_EFFECTS = {
+    "living_area": _area_curve,
+    "lot_size": _lot_curve,
+    "year_built": _age_curve,
+    "quality": lambda x: QUALITY_EFFECTS[_codes(x, QUALITY_LEVELS, "quality")],
+    "condition": lambda x: CONDITION_EFFECTS[_codes(x, CONDITION_LEVELS, "condition")],
+    "bathrooms": _bathroom_curve,
+    "garage_spaces": _garage_curve,
+    "style": lambda x: STYLE_EFFECTS[_codes(x, STYLE_LEVELS, "style")],
+    "waterfront": lambda x: WATERFRONT_PREMIUM * np.asarray(x, dtype=float),
+}
+
+
+def _log_value(
+    nb: np.ndarray,
+    living_area: np.ndarray,
+    lot_size: np.ndarray,
+    year_built: np.ndarray,
+    quality: np.ndarray,
+    condition: np.ndarray,
+    bathrooms: np.ndarray,
+    garage_spaces: np.ndarray,
+    style: np.ndarray,
+    waterfront: np.ndarray,
+) -> np.ndarray:
+    """True log market value from neighbourhood index, numeric features and level codes."""
+    return (
+        _NB_BASE[nb]
+        + _NB_SIZE_SLOPE[nb] * _area_curve(living_area)
+        + _age_curve(year_built)
+        + _lot_curve(lot_size)
+        + QUALITY_EFFECTS[quality]
+        + CONDITION_EFFECTS[condition]
+        + _bathroom_curve(bathrooms)
+        + _garage_curve(garage_spaces)
+        + STYLE_EFFECTS[style]
+        + WATERFRONT_PREMIUM * waterfront
+        + 0.05 * _log_area(living_area) * (quality - 2)
+        + 0.0008 * (VALUATION_YEAR - year_built - 50.0) * (condition - 2)
+        + 0.10 * waterfront * _log_lot(lot_size)
+    )
+
+
+def true_log_value(parcels: pd.DataFrame) -> np.ndarray:
+    """True log market value at the valuation date of each parcel, from its recorded features."""
+    return _log_value(
+        _codes(parcels["neighbourhood"], NEIGHBOURHOOD_IDS, "neighbourhood"),
+        parcels["living_area"].to_numpy(dtype=float),
+        parcels["lot_size"].to_numpy(dtype=float),
+        parcels["year_built"].to_numpy(dtype=float),
+        _codes(parcels["quality"], QUALITY_LEVELS, "quality"),
+        _codes(parcels["condition"], CONDITION_LEVELS, "condition"),
+        parcels["bathrooms"].to_numpy(dtype=float),
+        parcels["garage_spaces"].to_numpy(dtype=float),
+        _codes(parcels["style"], STYLE_LEVELS, "style"),
+        parcels["waterfront"].to_numpy(dtype=float),
+    )
+
+
+@lru_cache(maxsize=1)
+def _curve_offsets() -> dict[str, float]:
+    """Mean of each raw main effect over the default demo's parcels (generated once)."""
+    parcels = generate().parcels
+    return {f: float(np.mean(curve(parcels[f]))) for f, curve in _MAIN_EFFECTS.items()}
+
+
+def true_curve(feature: str, x: np.ndarray) -> np.ndarray:
+    """Main-effect shape of a feature in log-value units, mean 0 over the default demo's parcels.
+
+    `x` holds feature values (labels for quality, condition and style; 0/1 for waterfront).
+    """
+    if feature not in _MAIN_EFFECTS:
+        raise ValueError(f"unknown feature {feature!r}; expected one of {sorted(_MAIN_EFFECTS)}")
+    return _MAIN_EFFECTS[feature](x) - _curve_offsets()[feature]
+
+
+def true_log_index(dates: object) -> np.ndarray:
+    """Log market level at each date relative to the valuation date (0 on 2026-01-01)."""
+    days = np.asarray(dates, dtype="datetime64[D]") - VALUATION_DATE
+    t = days.astype(np.float64) / 365.25
+
+    def dip(s: np.ndarray | float) -> np.ndarray:
+        return np.exp(-(((np.asarray(s) - INDEX_DIP_CENTRE) / INDEX_DIP_WIDTH) ** 2))
+
+    return INDEX_GROWTH * t - INDEX_DIP * (dip(t) - dip(0.0))
+
+
+# ---- parcels -------------------------------------------------------------------------------
+
+
+def _allocate(weights: np.ndarray, total: int) -> np.ndarray:
+    """Split `total` into integers proportional to `weights` (largest remainder)."""
+    exact = weights / weights.sum() * total
+    counts = np.floor(exact).astype(np.int64)
+    short = total - counts.sum()
+    counts[np.argsort(counts - exact, kind="stable")[:short]] += 1
+    return counts
+
+
+def _parcel_ids(rng: np.random.Generator, n: int) -> np.ndarray:
+    """Increasing numeric ids with random gaps, as text of at least 7 digits."""
+    ids = np.cumsum(rng.integers(1, 9, n))
+    width = max(7, len(str(ids[-1])))
+    return np.char.zfill(ids.astype(f"U{width}"), width)
+
+
+def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]:
+    """Draw property class and features; level features come back as integer codes."""
+    n = nb.size
+    mix = np.array([x.class_mix for x in NEIGHBOURHOODS])[nb]
+    u = rng.random(n)
+    cls = (u >= mix[:, 0]).astype(np.intp) + (u >= mix[:, 0] + mix[:, 1])
+    sf, th = cls == 0, cls == 1
+    condo = ~(sf | th)
+
+    built = np.array([x.built for x in NEIGHBOURHOODS])[nb]
+    year = np.clip(np.rint(rng.normal(built[:, 0], built[:, 1])), 1850, 2025)
+
+    area_median = np.select([sf, th], [_column("area_median")[nb], 1450.0], 850.0)
+    area_sd = np.select([sf, th], [0.28, 0.18], 0.30)
+    area = np.clip(np.rint(area_median * np.exp(area_sd * rng.standard_normal(n))), 350, 9000)
+
+    lot_z = rng.standard_normal(n)
+    sf_lot = np.clip(_column("lot_median")[nb] * np.exp(0.35 * lot_z), 1500, 200_000)
+    lot = np.select([sf, th], [sf_lot, 2200.0 * np.exp(0.25 * lot_z)], 0.0)
+    lot = np.rint(lot / 10.0) * 10.0
+
+    quality_latent = _column("quality")[nb] + np.log(area / area_median) + 0.75 * rng.standard_normal(n)
+    quality = np.clip(np.rint(quality_latent), 0, 5).astype(np.intp)
+    age = VALUATION_YEAR - year
+    condition = np.clip(np.rint(3.2 - 0.012 * age + 0.7 * rng.standard_normal(n)), 0, 4).astype(np.intp)
+
+    baths = np.rint(2.0 * (1.0 + (area - 700.0) / 850.0 + 0.35 * rng.standard_normal(n))) / 2.0
+    baths = np.clip(baths, 1.0, np.where(condo, 3.0, 8.0))
+
+    era = 1.8 / (1.0 + np.exp(-(year - 1955.0) / 12.0))
+    garage_sf = 0.2 + era + (area > 4000) + 0.6 * rng.standard_normal(n)
+    r = rng.random(n)
+    garage = np.select([sf, th], [np.clip(np.rint(garage_sf), 0, 5), r < 0.5], r < 0.1).astype(np.int64)
+
+    r = rng.random(n)
+    split_share = np.where((year >= 1955) & (year <= 1990), 0.25, 0.03)
+    style_sf = np.where(r < split_share, 2, np.where(r < split_share + (1.0 - split_share) / 2.0, 0, 1))
+    style = np.select([sf, th], [style_sf, np.where(r < 0.2, 2, 1)], 3).astype(np.intp)
+
+    waterfront_share = _column("waterfront")[nb] * np.where(th, 0.5, 1.0)
+    waterfront = (rng.random(n) < waterfront_share).astype(np.int64)
+
+    centre = np.array([x.centre for x in NEIGHBOURHOODS])[nb]
+    location = np.round(centre + 0.006 * rng.standard_normal((n, 2)), 6)
+    return {
+        "property_class": cls,
+        "latitude": location[:, 0],
+        "longitude": location[:, 1],
+        "living_area": area,
+        "lot_size": lot,
+        "year_built": year,
+        "quality": quality,
+        "condition": condition,
+        "bathrooms": baths,
+        "garage_spaces": garage,
+        "style": style,
+        "waterfront": waterfront,
+    }
+
+
+def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray) -> np.ndarray:
+    """Older roll: a regressive, neighbourhood-drifted fraction of market value, to the 100."""
+    level, slope, scatter = np.array([x.prior for x in NEIGHBOURHOODS])[nb].T
+    noise = scatter * rng.standard_normal(nb.size)
+    log_prior = np.log(level) + PRIOR_PIVOT + slope * (log_value - PRIOR_PIVOT) + noise
+    return (np.rint(np.exp(log_prior) / 100.0) * 100.0).astype(np.int64)
+
+
+# ---- sales ---------------------------------------------------------------------------------
+
+# Kinds of sold parcel, in the column order of the sale quota; 0 is a valid single-parcel sale.
+_INVALID, _EARLY, _MULTI = 1, 2, 3
+
+
+def _scaled(counts: np.ndarray, scale: float) -> np.ndarray:
+    return np.rint(counts * scale).astype(np.int64)
+
+
+def _sale_quota(
+    rng: np.random.Generator, counts: np.ndarray, scale: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Sales per neighbourhood and kind, plus each multi-parcel sale's neighbourhood and size."""
+    k = len(NEIGHBOURHOODS)
+    busy = np.flatnonzero(_NB_BUSY)
+    share = counts[busy] / counts[busy].sum()
+    early_nb = rng.choice(busy, int(round(EARLY_SALES * scale)), p=share)
+    group_nb = rng.choice(busy, max(1, int(round(MULTI_PARCEL_SALES * scale))), p=share)
+    group_size = rng.integers(2, 4, group_nb.size)
+    quota = np.stack(
+        [
+            _scaled(_column("valid_sales"), scale),
+            _scaled(_column("invalid_sales"), scale),
+            np.bincount(early_nb, minlength=k),
+            np.bincount(group_nb, weights=group_size, minlength=k).astype(np.int64),
+        ],
+        axis=1,
+    )
+    if (quota.sum(axis=1) > counts).any():
+        raise ValueError("more sales than parcels in a neighbourhood")
+    order = np.argsort(group_nb, kind="stable")
+    return quota, group_nb[order], group_size[order]
+
+
+def _sales(
+    rng: np.random.Generator,
+    nb: np.ndarray,
+    counts: np.ndarray,
+    log_value: np.ndarray,
+    scale: float,
+    noise_sd: float,
+) -> dict[str, np.ndarray]:
+    """Choose sold parcels, dates and prices; one row per (sale, parcel), ordered by sale id."""
+    quota, group_nb, group_size = _sale_quota(rng, counts, scale)
+    n = nb.size
+    # Rank parcels at random within their neighbourhood (parcels are grouped by neighbourhood).
+    order = np.lexsort((rng.random(n), nb))
+    rank = np.empty(n, dtype=np.int64)
+    rank[order] = np.arange(n) - np.repeat(np.cumsum(counts) - counts, counts)
+    kind = (rank[:, None] >= np.cumsum(quota, axis=1)[nb]).sum(axis=1)
+
+    single = np.flatnonzero(kind < _MULTI)
+    multi = np.flatnonzero(kind == _MULTI)
+    multi = multi[np.lexsort((rank[multi], nb[multi]))]
+    group_of = np.repeat(np.arange(group_nb.size), group_size)
+
+    window_days = int((VALUATION_DATE - WINDOW_START).astype(np.int64))
+    single_kind = kind[single]
+    offset = np.where(
+        single_kind == _EARLY,
+        rng.integers(0, int((WINDOW_START - EARLY_START).astype(np.int64)), single.size),
+        rng.integers(0, window_days, single.size),
+    )
+    single_date = np.where(single_kind == _EARLY, EARLY_START, WINDOW_START) + offset
+    group_date = WINDOW_START + rng.integers(0, window_days, group_nb.size)
+
+    noise = noise_sd * rng.standard_normal(single.size)
+    discount = np.where(single_kind == _INVALID, rng.uniform(0.60, 0.85, single.size), 1.0)
+    single_price = np.exp(log_value[single] + true_log_index(single_date) + noise) * discount
+    member_value = np.exp(log_value[multi] + true_log_index(group_date[group_of]))
+    group_noise = np.exp(noise_sd * rng.standard_normal(group_nb.size))
+    group_price = np.bincount(group_of, weights=member_value) * group_noise
+
+    invalid_code = 1 + rng.choice(len(INVALID_SHARES), single.size, p=INVALID_SHARES)
+    validity = np.where(single_kind == _INVALID, invalid_code, 0)
+
+    parcel = np.concatenate([single, multi])
+    date = np.concatenate([single_date, group_date[group_of]])
+    price = np.concatenate([single_price, group_price[group_of]])
+    key = np.concatenate([np.arange(single.size), single.size + group_of])
+    rows = np.lexsort((parcel, key, date))
+    key = key[rows]
+    sale_number = np.cumsum(np.r_[True, key[1:] != key[:-1]])
+    return {
+        "sale_number": sale_number,
+        "parcel": parcel[rows],
+        "date": date[rows],
+        "price": (np.rint(price[rows] / 100.0) * 100.0).astype(np.int64),
+        "validity": np.concatenate([validity, np.zeros(multi.size, dtype=np.intp)])[rows],
+        "multi": np.concatenate([np.zeros(single.size, bool), np.ones(multi.size, bool)])[rows],
+    }
+
+
+# ---- planted data-entry errors -------------------------------------------------------------
+
+
+def _swap_leading_digits(price: np.ndarray) -> np.ndarray:
+    """Swap the first two digits of six-digit prices (416,500 -> 146,500)."""
+    first, second = price // 100_000, (price // 10_000) % 10
+    return price + (second - first) * 90_000
+
+
+def _plant_errors(
+    rng: np.random.Generator, nb: np.ndarray, f: dict[str, np.ndarray], s: dict[str, np.ndarray]
+) -> list[tuple[str, int, str, object, object]]:
+    """Apply eight plausible keying errors in place.
+
+    Returns (kind, sale row, column, recorded value, correct value) for each.
+    """
+    p = s["parcel"]
+    price = s["price"]
+    first, second = price // 100_000, (price // 10_000) % 10
+    sf, condo = f["property_class"][p] == 0, f["property_class"][p] == 2
+    area, lot, year = f["living_area"][p], f["lot_size"][p], f["year_built"][p]
+    plans = (
+        ("living_area_tenth", "living_area", sf & (area >= 2500), lambda v: np.rint(v / 10.0)),
+        ("living_area_extra_zero", "living_area", condo & (area <= 900), lambda v: v * 10.0),
+        ("lot_size_extra_zero", "lot_size", sf & (lot >= 5000) & (lot <= 20_000), lambda v: v * 10.0),
+        ("quality_swapped", "quality", f["quality"][p] <= 1, lambda v: 5 - v),
+        ("year_built_transposed", "year_built", (year >= 1980) & (year <= 1989), lambda v: v - 90.0),
+        ("price_missing_zero", "sale_price", price >= 250_000, lambda v: v // 10),
+        ("price_extra_zero", "sale_price", price >= 150_000, lambda v: v * 10),
+        (
+            "price_transposed_digits",
+            "sale_price",
+            (price >= 100_000) & (price < 1_000_000) & (np.abs(first - second) >= 3) & (second > 0),
+            _swap_leading_digits,
+        ),
+    )
+    eligible = (s["validity"] == 0) & ~s["multi"] & (s["date"] >= WINDOW_START) & _NB_BUSY[nb[p]]
+    order = rng.permutation(p.size)
+    used = np.zeros(p.size, dtype=bool)
+    planted = []
+    for kind, column, mask, keyed in plans:
+        candidates = order[(eligible & mask & ~used)[order]]
+        if candidates.size == 0:
+            raise ValueError(f"no sale fits the planted error {kind}; generate more parcels")
+        row = candidates[0]
+        used[row] = True
+        target, at = (s["price"], row) if column == "sale_price" else (f[column], p[row])
+        correct = target[at]
+        target[at] = keyed(correct)
+        planted.append((kind, row, column, target[at], correct))
+    return planted
+
+
+# ---- land schedule -------------------------------------------------------------------------
+
+
+def _land_schedule(nb: np.ndarray, f: dict[str, np.ndarray], log_value: np.ndarray) -> pd.DataFrame:
+    """Per neighbourhood: a lot-size rule from typical lots and values, and a flat row for units."""
+    frame = pd.DataFrame(
+        {"nb": nb, "has_lot": f["lot_size"] > 0, "lot": f["lot_size"], "value": np.exp(log_value)}
+    )
+    typical = frame.groupby(["nb", "has_lot"]).median().reset_index()
+    with_lot = typical["has_lot"].to_numpy()
+    exponent = _column("land_exponent")[typical["nb"].to_numpy()]
+    schedule = pd.DataFrame(
+        {
+            "neighbourhood": np.asarray(NEIGHBOURHOOD_IDS)[typical["nb"].to_numpy()],
+            "base_lot_size": np.where(with_lot, np.rint(typical["lot"] / 100.0) * 100.0, 0).astype(np.int64),
+            "base_land_value": np.where(
+                with_lot,
+                np.rint(0.30 * typical["value"] / 1000.0) * 1000.0,
+                np.rint(0.12 * typical["value"] / 500.0) * 500.0,
+            ).astype(np.int64),
+            "size_exponent": np.where(with_lot, exponent, 0.0),
+        }
+    )
+    return schedule.sort_values(["neighbourhood", "base_lot_size"], ignore_index=True)
+
+
+# ---- public API ----------------------------------------------------------------------------
+
+
+def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_sd: float = NOISE_SD) -> DemoTown:
+    """Generate Vellmarsh with `n_parcels` parcels; the same arguments give the same town."""
+    if n_parcels < MIN_PARCELS:
+        raise ValueError(f"n_parcels must be at least {MIN_PARCELS}")
+    rng = np.random.default_rng(seed)
+    scale = n_parcels / DEFAULT_PARCELS
+    counts = _allocate(_column("parcels"), n_parcels)
+    nb = np.repeat(np.arange(len(NEIGHBOURHOODS)), counts)
+    parcel_ids = _parcel_ids(rng, n_parcels)
+    f = _features(rng, nb)
+    log_value = _log_value(
+        nb, *(f[c] for c in ("living_area", "lot_size", "year_built", "quality", "condition",
+                             "bathrooms", "garage_spaces", "style", "waterfront"))
+    )
+    prior = _prior_values(rng, nb, log_value)
+    s = _sales(rng, nb, counts, log_value, scale, noise_sd)
+    land = _land_schedule(nb, f, log_value)
+    sale_ids = np.char.add("S", np.char.zfill(s["sale_number"].astype("U7"), 7))
+    planted = _plant_errors(rng, nb, f, s)
+
+    parcels = pd.DataFrame(
+        {
+            "parcel_id": parcel_ids,
+            "neighbourhood": pd.Categorical.from_codes(nb, NEIGHBOURHOOD_IDS),
+            "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
+            "property_class": pd.Categorical.from_codes(f["property_class"], PROPERTY_CLASSES),
+            "prior_value": prior,
+            "latitude": f["latitude"],
+            "longitude": f["longitude"],
+            "living_area": f["living_area"].astype(np.int64),
+            "lot_size": f["lot_size"].astype(np.int64),
+            "year_built": f["year_built"].astype(np.int64),
+            "quality": pd.Categorical.from_codes(f["quality"], QUALITY_LEVELS, ordered=True),
+            "condition": pd.Categorical.from_codes(f["condition"], CONDITION_LEVELS, ordered=True),
+            "bathrooms": f["bathrooms"],
+            "garage_spaces": f["garage_spaces"],
+            "style": pd.Categorical.from_codes(f["style"], STYLE_LEVELS),
+            "waterfront": f["waterfront"],
+        }
+    )
+    sales = pd.DataFrame(
+        {
+            "sale_id": sale_ids,
+            "parcel_id": parcel_ids[s["parcel"]],
+            "sale_date": s["date"].astype("datetime64[s]"),
+            "sale_price": s["price"],
+            "validity": pd.Categorical.from_codes(s["validity"], VALIDITY_CODES),
+        }
+    )
+    labels = {"quality": QUALITY_LEVELS}
+    planted_errors = pd.DataFrame(
+        [
+            {
+                "kind": kind,
+                "sale_id": sale_ids[row],
+                "parcel_id": parcel_ids[s["parcel"][row]],
+                "column": column,
+                "recorded": labels[column][recorded] if column in labels else int(recorded),
+                "correct": labels[column][correct] if column in labels else int(correct),
+            }
+            for kind, row, column, recorded, correct in planted
+        ]
+    )
+    return DemoTown(parcels=parcels, sales=sales, land_schedule=land, planted_errors=planted_errors)
+
+
+def write_project(folder: Path, n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED) -> None:
+    """Write parcels.csv, sales.csv and land_schedule.csv of a generated town, plus reval.toml."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    town = generate(n_parcels=n_parcels, seed=seed)
+    town.parcels.to_csv(folder / "parcels.csv", index=False)
+    town.sales.to_csv(folder / "sales.csv", index=False, date_format="%Y-%m-%d")
+    town.land_schedule.to_csv(folder / "land_schedule.csv", index=False)
+    config = folder / CONFIG_PATH.name
+    if not (config.exists() and config.samefile(CONFIG_PATH)):
+        shutil.copyfile(CONFIG_PATH, config)
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Command line: write a Vellmarsh project folder of any size."""
+    parser = argparse.ArgumentParser(prog="python -m data_samples.demo_town", description=main.__doc__)
+    parser.add_argument("--parcels", type=int, default=DEFAULT_PARCELS, help="number of parcels")
+    parser.add_argument("--out", type=Path, required=True, help="project folder to write")
+    parser.add_argument("--seed", type=int, default=DEFAULT_SEED, help="random seed")
+    args = parser.parse_args(argv)
+    try:
+        write_project(args.out, n_parcels=args.parcels, seed=args.seed)
+    except ValueError as error:
+        parser.error(str(error))
+
+
+if __name__ == "__main__":
+    main()
