@@ -101,6 +101,52 @@ def _render_summary(summary: dict[str, Any], console: Console) -> None:
     console.print(CAUTION)
 
 
+def cmd_sales(args: argparse.Namespace) -> None:
+    if args.report:
+        result = commands.sales_report(Path(args.project))
+    else:
+        with progress_bar(args) as progress:
+            result = commands.prepare_sales_step(Path(args.project), progress)
+    emit(args, result, _render_sales)
+
+
+def _render_sales(result: dict[str, Any], console: Console) -> None:
+    console.print(f"{result['qualified']:,} qualified sales; {result['excluded']:,} excluded:")
+    for reason, n in sorted(result["excluded_by_reason"].items(), key=lambda kv: -kv[1]):
+        console.print(f"  {n:>6,}  {reason}")
+    _print_table("Sales per segment", [{"segment": s["segment"], "qualified": s["qualified"],
+                                        "excluded": s["excluded"]} for s in result["segments"]], console)
+
+
+def cmd_study(args: argparse.Namespace) -> None:
+    result = commands.study_step(Path(args.project), args.values, args.by, in_sample=args.in_sample)
+    if args.segment:
+        result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
+        if not result["groups"]:
+            raise UserError(f"No group named '{args.segment}' in the study by {args.by}.")
+    emit(args, result, _render_study)
+
+
+MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
+
+
+def _render_study(result: dict[str, Any], console: Console) -> None:
+    console.print(f"Ratio study of {result['values']}, by {result['by']}")
+    if "warning" in result:
+        console.print(f"[bold]Warning:[/bold] {result['warning']}")
+
+    def cell(g: dict[str, Any], stat: str, fmt: str) -> str:
+        value, verdict = g[stat], g["verdicts"][stat]
+        shown = "-" if value is None else format(value, fmt)
+        return f"{shown} {MARKS[verdict['status']]}"
+
+    rows = [{"group": g["group"], "n": g["n"], "trimmed": g["n_trimmed"],
+             "median": cell(g, "median_ratio", ".3f"), "COD": cell(g, "cod", ".1f"),
+             "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
+    _print_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
+    console.print(CAUTION)
+
+
 def cmd_tui(args: argparse.Namespace) -> None:
     _launch_app(Path(args.project))
 
@@ -135,6 +181,18 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--parcels", type=int, default=None, help="generate this many parcels instead of the shipped sample")
     p.add_argument("--headless", action="store_true", help="print a summary instead of opening the app")
     p.set_defaults(func=cmd_demo)
+
+    p = sub.add_parser("sales", parents=[common], help="qualify sales and time-adjust them to the valuation date")
+    p.add_argument("--report", action="store_true", help="show the stored counts without recomputing")
+    p.set_defaults(func=cmd_sales)
+
+    p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
+    p.add_argument("--segment", help="show only this group")
+    p.add_argument("--by", choices=["segment", "market_area", "class", "all"], default="segment")
+    p.add_argument("--values", choices=["prior", "model"], default="prior",
+                   help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
+    p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
+    p.set_defaults(func=cmd_study)
 
     p = sub.add_parser("tui", parents=[common], help="open the terminal app on a project")
     p.set_defaults(func=cmd_tui)

@@ -8,8 +8,10 @@ from typing import Any, Callable
 from .config import CONFIG_NAME, Config, load_config
 from .errors import UserError
 from .importer import ImportResult, run_import
+from .sales import SalesSummary, prepare_sales
 from .starter import starter_config
 from .store import open_store
+from .study import run_study
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parent.parent / "data_samples" / "demo"
@@ -44,6 +46,13 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     config = load_config(folder)
     result = run_import(config, progress)
     steps = ["import" + ("" if result.changed else " (unchanged)")]
+    with open_store(config.database) as store:
+        sales = prepare_sales(store, config, progress).as_dict()
+        steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
+        for by in ("segment", "market_area", "class", "all"):
+            study = run_study(store, config, "prior", by)  # type: ignore[arg-type]
+            failing = sum(any(v["status"] == "fail" for v in g["verdicts"].values()) for g in study["groups"])
+            steps.append(f"ratio study of prior values by {by}: {len(study['groups'])} groups, {failing} failing")
     return _summary(config, result, steps)
 
 
@@ -58,3 +67,26 @@ def segment_overview(folder: Path) -> list[dict[str, Any]]:
     config = load_config(folder)
     with open_store(config.database, read_only=True) as store:
         return store.frame("segment_counts").to_dict("records")
+
+
+def prepare_sales_step(folder: Path, progress: Progress | None = None) -> dict[str, Any]:
+    """Qualify sales and time-adjust them to the valuation date."""
+    config = load_config(folder)
+    with open_store(config.database) as store:
+        return prepare_sales(store, config, progress).as_dict()
+
+
+def sales_report(folder: Path) -> dict[str, Any]:
+    """The stored qualification counts (read-only)."""
+    config = load_config(folder)
+    with open_store(config.database, read_only=True) as store:
+        return SalesSummary(store.frame("sales_counts")).as_dict()
+
+
+def study_step(folder: Path, values: str = "prior", by: str = "segment", run_id: str | None = None,
+               in_sample: bool = False) -> dict[str, Any]:
+    """Run and store a ratio study; model values are out-of-fold unless in_sample is asked for."""
+    config = load_config(folder)
+    source = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    with open_store(config.database) as store:
+        return run_study(store, config, source, by, run_id)  # type: ignore[arg-type]

@@ -29,6 +29,10 @@ def sql_text(name: str) -> str:
     return path.read_text(encoding="utf-8")
 
 
+def _statements(con: duckdb.DuckDBPyConnection, name: str) -> list[Any]:
+    return con.extract_statements(sql_text(name))
+
+
 def migrations() -> list[tuple[int, Path]]:
     """Forward migrations as (version, file), in version order."""
     found = [(int(m.group(1)), p) for p in (SQL_DIR / "migrations").glob("*.sql") if (m := _MIGRATION.match(p.name))]
@@ -91,8 +95,13 @@ class Store:
                     con.execute("INSERT INTO schema_version (version) VALUES (?)", [version])
 
     def run(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> duckdb.DuckDBPyConnection:
-        """Execute the named query with bound parameters."""
-        return self.con.execute(sql_text(name), params or [])
+        """Execute the named query file with bound parameters; a file may hold several statements, each
+        given the parameters it uses (DuckDB binds parameters only for single statements)."""
+        statements = _statements(self.con, name)
+        for statement in statements[:-1]:
+            self.con.execute(statement, params if statement.named_parameters else None)
+        last = statements[-1]
+        return self.con.execute(last, params if last.named_parameters else None)
 
     def frame(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> pd.DataFrame:
         """The named query's result as a pandas DataFrame."""

@@ -75,3 +75,21 @@ def write_project(folder: Path, config: str = SMALL_CONFIG, parcels: str = SMALL
 @pytest.fixture
 def small_project(tmp_path: Path) -> Path:
     return write_project(tmp_path / "proj")
+
+
+@pytest.fixture(scope="session")
+def demo_project(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The shipped demo municipality, imported, sales prepared and prior-value studies stored (built once;
+    tests that change it must copy it first with `copy_project`)."""
+    from reval.commands import build_demo
+
+    folder = tmp_path_factory.mktemp("demo")
+    build_demo(folder, None)
+    return folder
+
+
+def copy_project(source: Path, target: Path) -> Path:
+    import shutil
+
+    shutil.copytree(source, target)
+    return target

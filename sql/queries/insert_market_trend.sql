@@ -1,0 +1,1 @@
+INSERT INTO market_trend SELECT * FROM trend_frame;

@@ -1,0 +1,1 @@
+INSERT INTO study_groups SELECT * FROM groups_frame;

@@ -1,0 +1,1 @@
+INSERT INTO study_trimmed SELECT * FROM trimmed_frame;

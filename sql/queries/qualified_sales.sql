@@ -1,0 +1,8 @@
+-- Qualified sales with what the trend and the models need, in a fixed order.
+SELECT s.sale_id, s.parcel_id, s.sale_date, s.sale_price, p.segment, p.market_area, p.property_class,
+       p.prior_value
+FROM sale_qualification q
+JOIN sales s USING (sale_id, parcel_id)
+JOIN parcels p USING (parcel_id)
+WHERE q.qualified
+ORDER BY s.sale_id, s.parcel_id;

@@ -1,0 +1,21 @@
+-- Qualify every sale by the [sales] rules; the first failing rule is the reason.
+-- $1 window start, $2 valuation date, $3 kept validity codes (NULL = all), $4 exclude multi-parcel,
+-- $5 property classes kept (NULL = all), $6 price min (NULL = none), $7 price max (NULL = none).
+INSERT INTO sale_qualification
+WITH multi AS (SELECT sale_id FROM sales GROUP BY sale_id HAVING count(*) > 1)
+SELECT s.sale_id, s.parcel_id, reason IS NULL, reason
+FROM (
+    SELECT s.sale_id, s.parcel_id,
+           CASE
+               WHEN s.sale_date < $1 THEN 'before the sale window'
+               WHEN s.sale_date > $2 THEN 'after the valuation date'
+               WHEN $3 IS NOT NULL AND (s.validity IS NULL OR NOT list_contains($3, s.validity))
+                   THEN 'validity code ' || coalesce(s.validity, '(none)') || ' not kept'
+               WHEN $4 AND s.sale_id IN (SELECT sale_id FROM multi) THEN 'multi-parcel sale'
+               WHEN $5 IS NOT NULL AND NOT list_contains($5, p.property_class)
+                   THEN 'property class ' || p.property_class || ' not included'
+               WHEN $6 IS NOT NULL AND s.sale_price < $6 THEN 'price below the minimum'
+               WHEN $7 IS NOT NULL AND s.sale_price > $7 THEN 'price above the maximum'
+           END AS reason
+    FROM sales s JOIN parcels p USING (parcel_id)
+) s;

@@ -1,0 +1,1 @@
+SELECT * FROM studies WHERE study_id = $1;

@@ -1,0 +1,8 @@
+-- Qualified, time-adjusted sales with a run's in-sample and out-of-fold model values. $1 run id.
+SELECT a.sale_id, a.parcel_id, a.adjusted_price AS price,
+       exp(m.oof_log) AS oof_value, exp(m.insample_log) AS insample_value,
+       p.segment, p.market_area, p.property_class
+FROM adjusted_sales a
+JOIN sale_predictions m ON m.sale_id = a.sale_id AND m.parcel_id = a.parcel_id AND m.run_id = $1
+JOIN parcels p ON p.parcel_id = a.parcel_id
+ORDER BY a.sale_id, a.parcel_id;

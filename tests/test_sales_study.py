@@ -1,0 +1,109 @@
+"""Sales qualification, time adjustment wiring and stored ratio studies, on real databases."""
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pytest
+
+from conftest import copy_project
+from reval.commands import prepare_sales_step, study_step
+from reval.config import load_config
+from reval.ratio_stats import ratio_study
+from reval.store import open_store
+from reval.study import load_study
+
+REQUIRED_KEYS = {"group", "n", "median_ratio", "median_ratio_ci", "mean_ratio", "weighted_mean_ratio", "cod",
+                 "cod_ci", "prd", "prd_ci", "prb", "prb_ci", "verdicts", "values_source"}
+
+
+def _con(folder: Path) -> duckdb.DuckDBPyConnection:
+    return duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+
+
+def test_every_excluded_sale_keeps_its_reason(demo_project: Path) -> None:
+    con = _con(demo_project)
+    total = con.execute("SELECT count(*) FROM sales").fetchone()[0]
+    rows = con.execute("SELECT qualified, reason FROM sale_qualification").fetchall()
+    assert len(rows) == total
+    assert all((q and r is None) or (not q and r) for q, r in rows)
+    # Rules from data_samples/demo/reval.toml: only code 'valid' kept, multi-parcel sales excluded.
+    bad = con.execute("""SELECT count(*) FROM sale_qualification q JOIN sales s USING (sale_id, parcel_id)
+                         WHERE q.qualified AND (s.validity <> 'valid'
+                            OR s.sale_id IN (SELECT sale_id FROM sales GROUP BY 1 HAVING count(*) > 1)
+                            OR s.sale_date < DATE '2023-01-01')""").fetchone()[0]
+    assert bad == 0
+    reasons = dict(con.execute("SELECT reason, count(*) FROM sale_qualification WHERE NOT qualified GROUP BY 1").fetchall())
+    assert reasons["multi-parcel sale"] > 0 and reasons["before the sale window"] > 0
+    con.close()
+
+
+def test_adjusted_prices_use_the_stored_index(demo_project: Path) -> None:
+    con = _con(demo_project)
+    rows = con.execute("""SELECT a.factor, a.adjusted_price, s.sale_price, t.log_index
+                          FROM adjusted_sales a JOIN sales s USING (sale_id, parcel_id)
+                          JOIN market_trend t ON t.area = a.trend_area AND t.month_offset = a.month_offset""").fetchall()
+    con.close()
+    factor, adjusted, price, log_index = map(np.array, zip(*rows))
+    np.testing.assert_allclose(factor, np.exp(-log_index), rtol=1e-12)
+    np.testing.assert_allclose(adjusted, price * factor, rtol=1e-12)
+
+
+def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project: Path) -> None:
+    result = study_step(demo_project, "prior", "segment")
+    assert result["values_source"] == "prior" and result["by"] == "segment"
+    assert len(result["groups"]) >= 20
+    for group in result["groups"]:
+        assert REQUIRED_KEYS <= set(group)
+        assert set(group["verdicts"]) == {"median_ratio", "cod", "prd", "prb"}
+    json.dumps(result, allow_nan=False)  # strict JSON: missing values are null, never NaN
+    # The stored numbers are ratio_stats' numbers on the same sales (one implementation, no drift).
+    con = _con(demo_project)
+    name = result["groups"][0]["group"]
+    value, price = map(np.array, zip(*con.execute(
+        """SELECT p.prior_value, a.adjusted_price FROM adjusted_sales a JOIN parcels p USING (parcel_id)
+           WHERE p.segment = ? AND p.prior_value > 0""", [name]).fetchall()))
+    con.close()
+    config = load_config(demo_project)
+    direct = ratio_study(value, price, confidence=config.study.confidence, n_boot=config.study.bootstrap,
+                         seed=config.study.seed, trim_iqr_k=config.study.trim_iqr_k)
+    g = result["groups"][0]
+    assert g["n"] == direct.n and g["cod"] == pytest.approx(direct.cod, abs=1e-12)
+    assert g["prb_ci"] == pytest.approx(list(direct.prb_ci), abs=1e-12)
+    assert g["cod_ci"] == pytest.approx(list(direct.cod_ci), abs=1e-12)
+
+
+def test_stored_study_reads_back_without_recomputing(demo_project: Path) -> None:
+    computed = study_step(demo_project, "prior", "market_area")
+    config = load_config(demo_project)
+    with open_store(config.database, read_only=True) as store:
+        assert load_study(store, "prior", "market_area") == computed
+
+
+def test_trimmed_sales_are_listed_not_dropped(demo_project: Path) -> None:
+    result = study_step(demo_project, "prior", "all")
+    group = result["groups"][0]
+    assert group["n_trimmed"] == len(group["trimmed"])
+    con = _con(demo_project)
+    n_all = con.execute("SELECT count(*) FROM adjusted_sales a JOIN parcels p USING (parcel_id) "
+                        "WHERE p.prior_value > 0").fetchone()[0]
+    con.close()
+    assert group["n"] + group["n_trimmed"] == n_all
+
+
+def test_failed_sales_step_changes_nothing(demo_project: Path, tmp_path: Path) -> None:
+    folder = copy_project(demo_project, tmp_path / "copy")
+    from db_content import database_content
+
+    before = database_content(folder / "reval.duckdb")
+    config = folder / "reval.toml"
+    config.write_text(config.read_text().replace('validity_codes_kept = ["valid"]',
+                                                 'validity_codes_kept = ["no_such_code"]'))
+    from reval.errors import UserError
+
+    with pytest.raises(UserError, match="No sale qualifies"):
+        prepare_sales_step(folder)
+    assert database_content(folder / "reval.duckdb") == before
