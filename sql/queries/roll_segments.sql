@@ -1,0 +1,2 @@
+-- Every imported segment.
+SELECT segment FROM segments ORDER BY segment;

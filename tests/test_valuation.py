@@ -1,0 +1,130 @@
+"""Values for every parcel: rounding, assessment level, caps, land and improvement, on the real demo project.
+
+Expected values are computed here independently with numpy/pandas from the demo's own files: the land
+formula is the one documented in data_samples/demo_town.py (its module docstring), not reval's SQL.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pandas as pd
+import pytest
+
+from reval.cli_roll import value_step
+from reval.errors import DataErrors, UserError
+from run_fixture import roll_project
+
+CAPPED = '[[assessment.caps]]\nproperty_classes = ["condominium"]\nmax_increase = 0.05\n'
+
+
+def _values(folder: Path) -> pd.DataFrame:
+    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+    try:
+        return con.execute("""SELECT v.*, b.segment, e.market_value AS estimate
+                              FROM roll_values v JOIN batches b USING (batch_id)
+                              JOIN parcel_estimates e ON e.parcel_id = v.parcel_id AND e.run_id = b.run_id
+                              WHERE b.state = 'staged' ORDER BY v.parcel_id""").df()
+    finally:
+        con.close()
+
+
+def _round_half_up(x: np.ndarray, unit: float) -> np.ndarray:
+    return np.floor(x / unit + 0.5) * unit  # nearest multiple, halves up (values here are positive)
+
+
+def test_every_parcel_is_valued_by_the_documented_rules(demo_project: Path, tmp_path: Path) -> None:
+    folder = roll_project(demo_project, tmp_path / "p", "level = 0.95\nrounding = 100.0\n" + CAPPED)
+    result = value_step(folder)
+    assert result["run_id"] == "run-a" and len(result["staged"]) == 22
+    v = _values(folder)
+    parcels = pd.read_csv(folder / "parcels.csv", dtype={"parcel_id": str}).set_index("parcel_id")
+    assert len(v) == len(parcels) and set(v["parcel_id"]) == set(parcels.index)  # every parcel, once
+    p = parcels.loc[v["parcel_id"]]
+
+    market = _round_half_up(v["estimate"].to_numpy(), 100)
+    np.testing.assert_allclose(v["market_value"], market, rtol=0, atol=1e-6)
+
+    # Land: demo_town docstring — lot > 0: base_land_value * (lot / base_lot_size) ** exponent from the row with
+    # base_lot_size > 0; lot 0: the flat base_land_value of the row with base_lot_size 0.
+    schedule = pd.read_csv(folder / "land_schedule.csv")
+    sized = schedule[schedule["base_lot_size"] > 0].set_index("neighbourhood")
+    flat = schedule[schedule["base_lot_size"] == 0].set_index("neighbourhood")
+    lot = p["lot_size"].to_numpy(float)
+    nb = p["neighbourhood"].to_numpy()
+    with np.errstate(invalid="ignore"):
+        sized_land = sized["base_land_value"].reindex(nb).to_numpy() * (
+            lot / sized["base_lot_size"].reindex(nb).to_numpy()) ** sized["size_exponent"].reindex(nb).to_numpy()
+    raw_land = _round_half_up(np.where(lot > 0, sized_land, flat["base_land_value"].reindex(nb).to_numpy()), 100)
+    has_row = np.isfinite(raw_land)
+    land = np.minimum(raw_land, market)
+    np.testing.assert_allclose(v["land_value"].to_numpy(float)[has_row], land[has_row], rtol=0, atol=1e-6)
+    assert v["land_value"][~has_row].isna().all()
+    improvement = v["improvement_value"].to_numpy(float)[has_row]
+    assert (improvement >= 0).all()
+    np.testing.assert_allclose(land[has_row] + improvement, market[has_row], rtol=0, atol=1e-6)
+
+    # Assessed = market x level, rounded; condominiums capped at prior x 1.05 rounded down.
+    prior = v["prior_value"].to_numpy(float)
+    uncapped = _round_half_up(market * 0.95, 100)
+    capped = (v["property_class"].to_numpy() == "condominium") & (uncapped > prior * 1.05)
+    expected = np.where(capped, np.floor(prior * 1.05 / 100 + 1e-9) * 100, uncapped)
+    np.testing.assert_allclose(v["assessed_value"], expected, rtol=0, atol=1e-6)
+    assert capped.sum() > 10 and (v["assessed_value"][capped] <= prior[capped] * 1.10).all()
+
+    flags = v["flags"].map(set)
+    assert (flags.map(lambda f: "cap:max_increase_5%" in f).to_numpy() == capped).all()
+    exceeds = has_row & (raw_land > market)
+    assert (flags.map(lambda f: "land_exceeds_total" in f).to_numpy() == exceeds).all()
+    assert (flags.map(lambda f: "land:no_schedule_row" in f).to_numpy() == ~has_row).all()
+    assert result["flags"]["cap:max_increase_5%"] == capped.sum()
+
+
+def test_without_a_schedule_the_split_is_not_allocated(demo_project: Path, tmp_path: Path) -> None:
+    folder = roll_project(demo_project, tmp_path / "p", None)
+    result = value_step(folder)
+    v = _values(folder)
+    assert result["land_schedule"] is None
+    assert v["land_value"].isna().all() and v["improvement_value"].isna().all()
+    assert v["flags"].map(lambda f: list(f) == ["land:not_allocated"]).all()
+    # Defaults (config.py): level 1.0, rounding 100, no caps.
+    np.testing.assert_allclose(v["assessed_value"], v["market_value"], rtol=0, atol=0)
+    np.testing.assert_allclose(v["market_value"], _round_half_up(v["estimate"].to_numpy(), 100), atol=1e-6)
+
+
+def test_schedule_problems_are_listed_with_file_line_and_column(demo_project: Path, tmp_path: Path) -> None:
+    folder = roll_project(demo_project, tmp_path / "p")
+    (folder / "land_schedule.csv").write_text(
+        "neighbourhood,base_lot_size,base_land_value,size_exponent\n"
+        "ASKR,6900,92000,0.45\n"
+        "BRIN,7200,lots,0.45\n"
+        "NOWHERE,100,100,0.5\n"
+        "CORV,-5,104000,0.55\n"
+        "ASKR,7000,90000,0.45\n", encoding="utf-8")
+    with pytest.raises(DataErrors) as caught:
+        value_step(folder)
+    text = str(caught.value)
+    schedule = folder / "land_schedule.csv"
+    assert f"{schedule}, line 3, column 'base_land_value': not a number (value 'lots')" in text
+    assert f"{schedule}, line 4, column 'segment': no imported parcel has this segment" in text
+    assert f"{schedule}, line 5, column 'base_lot_size': cannot be negative" in text
+    assert f"{schedule}, line 6, column 'segment': a second row of the same kind" in text
+    (folder / "land_schedule.csv").write_text("neighbourhood,base_frontage,base_land_value,size_exponent\n"
+                                              "ASKR,6900,92000,0.45\n", encoding="utf-8")
+    with pytest.raises(DataErrors, match=r"line 1, column 'base_frontage': 'frontage' is not a continuous feature"):
+        value_step(folder)
+    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+    assert con.execute("SELECT count(*) FROM batches").fetchone()[0] == 0  # nothing staged
+    con.close()
+
+
+def test_a_run_that_misses_a_parcel_is_refused(demo_project: Path, tmp_path: Path) -> None:
+    folder = roll_project(demo_project, tmp_path / "p")
+    con = duckdb.connect(str(folder / "reval.duckdb"))
+    con.execute("DELETE FROM parcel_estimates WHERE parcel_id = '0000007'")
+    con.close()
+    with pytest.raises(UserError, match=r"no value for 1 imported parcel\(s\) \(e\.g\. 0000007\)"):
+        value_step(folder)
+    with pytest.raises(UserError, match="No run 'nope'"):
+        value_step(folder, "nope")
