@@ -102,20 +102,34 @@ class DesignSpec:
     deviation: bool
 
     @classmethod
-    def learn(cls, X: np.ndarray, features: Sequence[Feature], n_basis: int, *, deviation: bool = False) -> DesignSpec:
+    def learn(
+        cls,
+        X: np.ndarray,
+        features: Sequence[Feature],
+        n_basis: int,
+        *,
+        deviation: bool = False,
+        scale_from: DesignSpec | None = None,
+    ) -> DesignSpec:
         """Learn imputation, transforms, ranges, standardisation and constraints from training rows X.
 
-        Missing values are imputed with the training median (continuous, ordinal) or the most
+        Missing values are imputed with the training median (continuous; for ordinal the lower median,
+        so it is a level) or the most
         frequent value (categorical, binary). A log feature uses log(max(x, f)) where f is the
         smallest positive training value, so zeros (e.g. no lot for a condominium) map to the
-        bottom of the observed range instead of minus infinity.
+        bottom of the observed range instead of minus infinity. `scale_from` (the parent's spec)
+        supplies the log floor and the standardisation, so a deviation's products and curves are on
+        the parent's scale and interaction coefficients add up along the hierarchy.
         """
         X = np.asarray(X, dtype=float)
         if X.ndim != 2 or X.shape[1] != len(features):
             raise ValueError(f"X must have one column per feature ({len(features)}), got shape {X.shape}")
         if X.shape[0] == 0:
             raise ValueError("cannot learn a design from zero rows")
-        return cls(tuple(_learn_one(X[:, j], f, n_basis) for j, f in enumerate(features)), n_basis, deviation)
+        like = scale_from.transforms if scale_from is not None else (None,) * len(features)
+        return cls(
+            tuple(_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)), n_basis, deviation
+        )
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -207,14 +221,16 @@ class DesignSpec:
         return np.arange(t.n_levels, dtype=float)
 
 
-def _learn_one(x: np.ndarray, f: Feature, n_basis: int) -> FeatureTransform:
+def _learn_one(x: np.ndarray, f: Feature, n_basis: int, like: FeatureTransform | None) -> FeatureTransform:
     if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
         raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
     seen = x[~np.isnan(x)]
     if seen.size == 0:
         seen = np.zeros(1)
-    if f.kind in ("continuous", "ordinal"):
+    if f.kind == "continuous":
         impute = float(np.median(seen))
+    elif f.kind == "ordinal":
+        impute = float(np.quantile(seen, 0.5, method="lower"))  # the lower median is always a level
     else:
         vals, counts = np.unique(seen, return_counts=True)
         impute = float(vals[np.argmax(counts)])
@@ -222,12 +238,15 @@ def _learn_one(x: np.ndarray, f: Feature, n_basis: int) -> FeatureTransform:
     positive = filled[filled > 0]
     log = bool(f.log) and f.kind == "continuous"
     log_floor = float(positive.min()) if positive.size else 1.0
+    if like is not None:
+        log_floor = like.log_floor
     t = np.log(np.maximum(filled, log_floor)) if log else filled
     n_levels = len(f.levels) if f.kind in ("ordinal", "categorical") else (2 if f.kind == "binary" else 0)
     sd = float(t.std())
+    mean, scale = (like.mean, like.sd) if like is not None else (float(t.mean()), sd if sd > 0 else 1.0)
     partial = FeatureTransform(
         f.name, f.kind, log, n_levels, impute, log_floor, float(filled.min()), float(filled.max()),
-        float(t.min()), float(t.max()), float(t.mean()), sd if sd > 0 else 1.0, np.zeros((0, 0)),
+        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)),
     )
     if sd == 0:
         width = n_basis if f.kind == "continuous" else max(n_levels, 1)

@@ -19,7 +19,9 @@ from sklearn.model_selection import KFold
 from .design import Feature, Pair
 from .penalised import PenalisedLS
 
-LASSO_ALPHAS = 40  # length of the Lasso path searched by cross-validation
+LASSO_ALPHAS = 30  # length of the Lasso path searched by cross-validation
+LASSO_EPS = 0.05  # path ends at 5% of the smallest all-zero penalty: pairs kept (a few) enter near its top, and
+# below that dozens of near-collinear residualised products are active and coordinate descent fails to converge
 MIN_RESIDUAL_SD = 1e-8  # candidates the smoother explains completely carry no information
 
 
@@ -90,14 +92,22 @@ def _lasso_strength(ry: np.ndarray, rz: np.ndarray, folds: int, seed: int) -> np
     """|standardised coefficient| at the cross-validated Lasso penalty (minimum-error rule); 0 = not selected."""
     folds = min(folds, ry.shape[0])
     cv = KFold(n_splits=folds, shuffle=True, random_state=seed)
-    lasso = LassoCV(alphas=LASSO_ALPHAS, cv=cv, max_iter=5000, tol=1e-4).fit(rz, ry)
+    lasso = LassoCV(alphas=LASSO_ALPHAS, eps=LASSO_EPS, cv=cv, precompute=False, max_iter=10_000, tol=1e-4).fit(rz, ry)
     return np.abs(lasso.coef_)
 
 
 def _significance_strength(ry: np.ndarray, rz: np.ndarray, alpha: float) -> np.ndarray:
-    """Backward elimination by OLS p-value at level alpha; strength = |t| for survivors, 0 otherwise."""
-    alive = list(range(rz.shape[1]))
-    strength = np.zeros(rz.shape[1])
+    """Backward elimination by OLS p-value at level alpha; strength = |t| for survivors, 0 otherwise.
+
+    Elimination needs a full-rank start with residual degrees of freedom to spare: when candidates
+    are many for the sales, the third of n most correlated with the target are kept (sure independence
+    screening, Fan & Lv 2008, JRSS B 70(5)), and a candidate linearly dependent on stronger ones is dropped.
+    """
+    n, m = rz.shape
+    order = np.argsort(-np.abs(rz.T @ ry), kind="stable")[: max(1, (n - 1) // 3)]
+    r_diag = np.abs(np.diag(np.linalg.qr(rz[:, order], mode="r")))
+    alive = sorted(order[r_diag > 1e-8 * r_diag.max()].tolist())
+    strength = np.zeros(m)
     while alive:
         fit = sm.OLS(ry, sm.add_constant(rz[:, alive], has_constant="add")).fit()
         p = np.asarray(fit.pvalues)[1:]

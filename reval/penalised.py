@@ -19,7 +19,7 @@ from scipy.linalg import cho_factor, cho_solve
 from .design import Block
 
 LOG10_GRID = np.linspace(-4.0, 6.0, 21)  # global multiplier of the normalised penalties
-COORDINATE_STEPS = np.array([-2.0, -1.0, -0.5, 0.5, 1.0, 2.0])  # log10 moves tried per penalty
+LINE_STEP = 1.0  # log10 step of the per-penalty line search
 LOG10_BOUNDS = (-6.0, 8.0)
 JITTER = 1e-9  # relative ridge keeping X'X + S positive definite when a column is empty (e.g. an unsold level)
 TIE = 1e-9  # a smaller penalty must beat the current GCV by this relative margin, so ties favour smoothing
@@ -50,9 +50,11 @@ def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[P
 class PenalisedLS:
     """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV picks them."""
 
-    def __init__(self, *, lambdas: Sequence[float] | None = None, coordinate_passes: int = 1) -> None:
+    def __init__(self, *, lambdas: Sequence[float] | None = None, coordinate_passes: int = 1,
+                 gamma: float = 1.0) -> None:
         self.lambdas = lambdas
         self.coordinate_passes = coordinate_passes
+        self.gamma = gamma
 
     def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None) -> PenalisedLS:
         """Fit to y - offset; store coefficients, covariance, edf, GCV and the Cholesky factor."""
@@ -66,7 +68,7 @@ class PenalisedLS:
         xty = X.T @ target
         scale = np.array([_penalty_scale(gram, pen) for pen in penalties])
         jitter = JITTER * max(float(np.trace(gram)) / p, 1e-12) * np.eye(p)
-        problem = _Problem(gram, xty, float(target @ target), n, penalties, jitter)
+        problem = _Problem(gram, xty, float(target @ target), n, penalties, jitter, self.gamma)
         if self.lambdas is None:
             lambdas = scale * 10.0 ** _search(problem, scale, self.coordinate_passes)
         else:
@@ -91,7 +93,8 @@ class PenalisedLS:
         self.edf_terms_ = {term: float(edf_cols[s].sum()) for term, s in slices.items()}
         self.rss_ = rss
         self.sigma2_ = rss / dof if dof > 0 else float("nan")
-        self.gcv_ = n * rss / dof**2 if dof > 0 else float("inf")
+        gdof = n - self.gamma * edf
+        self.gcv_ = n * rss / gdof**2 if gdof > 0 else float("inf")
         self.cov_ = self.sigma2_ * cho_solve(chol, np.eye(p))
         self.n_ = n
         return self
@@ -115,20 +118,20 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
     return g / s if g > 0 and s > 0 else 1.0
 
 
-@dataclass
 class _Problem:
-    gram: np.ndarray
-    xty: np.ndarray
-    yty: float
-    n: int
-    penalties: list[Penalty]
-    jitter: np.ndarray
+    """The p x p quantities GCV needs, with each penalty embedded in a p x p slab so one product sums them."""
+
+    def __init__(self, gram: np.ndarray, xty: np.ndarray, yty: float, n: int, penalties: list[Penalty],
+                 jitter: np.ndarray, gamma: float) -> None:
+        self.gram, self.xty, self.yty, self.n, self.gamma = gram, xty, yty, n, gamma
+        self.base = gram + jitter
+        p = gram.shape[0]
+        self.slabs = np.zeros((len(penalties), p, p))
+        for i, pen in enumerate(penalties):
+            self.slabs[i, pen.cols, pen.cols] = pen.matrix
 
     def system(self, lambdas: np.ndarray) -> np.ndarray:
-        a = self.gram + self.jitter
-        for lam, pen in zip(lambdas, self.penalties):
-            a[pen.cols, pen.cols] += lam * pen.matrix
-        return a
+        return self.base + np.tensordot(lambdas, self.slabs, axes=1)
 
     def gcv(self, lambdas: np.ndarray) -> float:
         try:
@@ -138,13 +141,17 @@ class _Problem:
         coef = cho_solve(chol, self.xty, check_finite=False)
         rss = max(self.yty - 2 * coef @ self.xty + coef @ self.gram @ coef, 0.0)
         edf = float(np.trace(cho_solve(chol, self.gram, check_finite=False)))
-        dof = self.n - edf
+        dof = self.n - self.gamma * edf
         return self.n * rss / dof**2 if dof > 1e-8 else float("inf")
 
 
 def _search(problem: _Problem, scale: np.ndarray, passes: int) -> np.ndarray:
-    """log10 multipliers of the normalised penalties: a global grid, then coordinate moves per penalty."""
-    k = len(problem.penalties)
+    """log10 multipliers of the normalised penalties: a global grid, then a line search per penalty.
+
+    The line search steps one decade up, or else down, from the current value and keeps going
+    while GCV improves; a smaller penalty must win by a margin, so ties favour smoothing.
+    """
+    k = problem.slabs.shape[0]
     if k == 0:
         return np.zeros(0)
     score = lambda rho: problem.gcv(scale * 10.0**rho)  # noqa: E731
@@ -155,10 +162,15 @@ def _search(problem: _Problem, scale: np.ndarray, passes: int) -> np.ndarray:
             best_rho, best = np.full(k, g), value
     for _ in range(passes if k > 1 else 0):
         for j in range(k):
-            for step in COORDINATE_STEPS[::-1]:
-                trial = best_rho.copy()
-                trial[j] = np.clip(trial[j] + step, *LOG10_BOUNDS)
-                value = score(trial)
-                if value < best * (1 - TIE):
-                    best_rho, best = trial, value
+            for step in (LINE_STEP, -LINE_STEP):
+                moved = False
+                while LOG10_BOUNDS[0] < best_rho[j] + step < LOG10_BOUNDS[1]:
+                    trial = best_rho.copy()
+                    trial[j] += step
+                    value = score(trial)
+                    if not value < best * (1 - TIE):
+                        break
+                    best_rho, best, moved = trial, value, True
+                if moved:
+                    break
     return best_rho
