@@ -17,6 +17,7 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
 from . import commands
+from .cli_roll import add_roll_commands
 from .errors import UserError
 
 CAUTION = ("Values are estimates for review by a qualified assessor. Assessment level, caps, exemptions, "
@@ -119,7 +120,7 @@ def _render_sales(result: dict[str, Any], console: Console) -> None:
 
 
 def cmd_study(args: argparse.Namespace) -> None:
-    result = commands.study_step(Path(args.project), args.values, args.by, in_sample=args.in_sample)
+    result = commands.study_step(Path(args.project), args.values, args.by, args.run, args.in_sample)
     if args.segment:
         result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
         if not result["groups"]:
@@ -145,6 +146,35 @@ def _render_study(result: dict[str, Any], console: Console) -> None:
              "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
     _print_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
     console.print(CAUTION)
+
+
+def cmd_fit(args: argparse.Namespace) -> None:
+    with progress_bar(args) as progress:
+        result = commands.fit_step(Path(args.project), progress, args.jobs)
+    emit(args, result, _render_fit)
+
+
+def _render_fit(result: dict[str, Any], console: Console) -> None:
+    console.print(f"Run {result['run_id']}: {result['sales']:,} sales, {result['segments']} segments, "
+                  f"{result['parcels']:,} parcels valued")
+    console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
+    _print_table("Out-of-fold accuracy, whole jurisdiction (same folds for every model)", result["accuracy"], console)
+    console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)
+
+
+def cmd_compare(args: argparse.Namespace) -> None:
+    result = commands.compare_report(Path(args.project), args.run)
+    emit(args, result, _render_compare)
+
+
+def _render_compare(result: dict[str, Any], console: Console) -> None:
+    rows = result["rows"]
+    for segment in dict.fromkeys(r["segment"] for r in rows):
+        _print_table(f"{segment}: out-of-fold accuracy by model (run {result['run_id']})",
+                     [{k: v for k, v in r.items() if k != "segment"} for r in rows if r["segment"] == segment],
+                     console)
+    _print_table("What the gradient-boosting reference relies on (permutation importance)",
+                 result["gradient_boosting_importance"], console)
 
 
 def cmd_tui(args: argparse.Namespace) -> None:
@@ -192,7 +222,18 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
+    p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
     p.set_defaults(func=cmd_study)
+
+    p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
+    p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
+    p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser("compare", parents=[common], help="reference models' accuracy beside ours, on the same folds")
+    p.add_argument("--run", default=None, help="run id (default: the latest)")
+    p.set_defaults(func=cmd_compare)
+
+    add_roll_commands(sub, common)
 
     p = sub.add_parser("tui", parents=[common], help="open the terminal app on a project")
     p.set_defaults(func=cmd_tui)

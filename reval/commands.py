@@ -12,6 +12,9 @@ from .sales import SalesSummary, prepare_sales
 from .starter import starter_config
 from .store import open_store
 from .study import run_study
+from .valuation import resolve_run
+from .fitting import fit_run
+from .cli_roll import value_step
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parent.parent / "data_samples" / "demo"
@@ -50,10 +53,20 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
         sales = prepare_sales(store, config, progress).as_dict()
         steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
         for by in ("segment", "market_area", "class", "all"):
-            study = run_study(store, config, "prior", by)  # type: ignore[arg-type]
-            failing = sum(any(v["status"] == "fail" for v in g["verdicts"].values()) for g in study["groups"])
-            steps.append(f"ratio study of prior values by {by}: {len(study['groups'])} groups, {failing} failing")
+            run_study(store, config, "prior", by)  # type: ignore[arg-type]
+        steps.append(_failing("ratio study of prior values", run_study(store, config, "prior", "segment")))
+        run = fit_run(store, config, progress)
+        steps.append(f"fit: run {run['run_id']}, {run['segments']} segments, {run['parcels']:,} parcels valued")
+        steps.append(_failing("out-of-fold ratio study of model values",
+                              run_study(store, config, "model_out_of_fold", "segment", run["run_id"])))
+    staged = value_step(folder)
+    steps.append(f"values staged for review: {len(staged['staged'])} neighbourhood batches")
     return _summary(config, result, steps)
+
+
+def _failing(what: str, study: dict[str, Any]) -> str:
+    failing = [g["group"] for g in study["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
+    return f"{what}: {len(study['groups'])} neighbourhoods, {len(failing)} failing a standard"
 
 
 def _summary(config: Config, result: ImportResult, steps: list[str]) -> dict[str, Any]:
@@ -85,8 +98,29 @@ def sales_report(folder: Path) -> dict[str, Any]:
 
 def study_step(folder: Path, values: str = "prior", by: str = "segment", run_id: str | None = None,
                in_sample: bool = False) -> dict[str, Any]:
-    """Run and store a ratio study; model values are out-of-fold unless in_sample is asked for."""
+    """Run and store a ratio study; model values (the latest run unless named) are out-of-fold unless
+    in_sample is asked for."""
     config = load_config(folder)
     source = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
     with open_store(config.database) as store:
-        return run_study(store, config, source, by, run_id)  # type: ignore[arg-type]
+        run = None if source == "prior" else resolve_run(store, run_id)
+        return run_study(store, config, source, by, run)  # type: ignore[arg-type]
+
+
+def fit_step(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> dict[str, Any]:
+    """Fit every segment's model, validate out of fold, compare with the reference models, store a run."""
+    config = load_config(folder)
+    with open_store(config.database) as store:
+        return fit_run(store, config, progress, jobs)
+
+
+def compare_report(folder: Path, run_id: str | None = None) -> dict[str, Any]:
+    """The reference models' accuracy beside ours, per segment and overall, for a run (read-only)."""
+    config = load_config(folder)
+    with open_store(config.database, read_only=True) as store:
+        run = resolve_run(store, run_id)
+        table = store.frame("reference_accuracy_rows", [run])
+        importance = store.frame("feature_importance_rows", [run])
+    rows = table.astype(object).where(table.notna(), None).to_dict("records")
+    return {"run_id": run, "models": sorted(set(table["model"])), "rows": rows,
+            "gradient_boosting_importance": importance.to_dict("records")}

@@ -41,3 +41,10 @@ def qualified_sales(store: Store) -> SalesData:
     frame = store.frame("qualified_sales")
     values = store.run("qualified_sales_features").fetchnumpy()["value"]
     return SalesData(frame, dense_matrix(values, len(features)), features)
+
+
+def all_parcels(store: Store, features: tuple[FeatureSpec, ...]) -> tuple[pd.DataFrame, np.ndarray]:
+    """Every parcel (id, segment, market area) and its dense feature matrix, in parcel id order."""
+    frame = store.frame("all_parcels")
+    values = store.run("all_parcel_features").fetchnumpy()["value"]
+    return frame, dense_matrix(values, len(features))

@@ -9,6 +9,7 @@ by side with the additive model. Segment intercepts are fitted by within-segment
 from __future__ import annotations
 
 import time
+import warnings
 from dataclasses import dataclass
 from typing import Callable, Mapping, Protocol, Sequence
 
@@ -16,6 +17,7 @@ import numpy as np
 import pandas as pd
 import statsmodels.api as sm
 from scipy import sparse
+from statsmodels.tools.sm_exceptions import SingularMatrixWarning
 from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.inspection import permutation_importance as sklearn_permutation_importance
 
@@ -185,7 +187,11 @@ def fit_group_ols(M: np.ndarray, y: np.ndarray, group: np.ndarray, n_groups: int
     design = np.column_stack([M[:, columns], y])
     means = _group_means(design, group, n_groups)
     within = design - means[group]
-    slopes = sm.OLS(within[:, -1], within[:, :-1]).fit().params if len(columns) else np.empty(0)
+    with warnings.catch_warnings():
+        # A rank-deficient design (e.g. a feature constant in one class) is expected here: statsmodels'
+        # pseudo-inverse gives the minimum-norm slopes, which predict the same fitted values.
+        warnings.simplefilter("ignore", SingularMatrixWarning)
+        slopes = sm.OLS(within[:, -1], within[:, :-1]).fit().params if len(columns) else np.empty(0)
     intercepts = means[:, -1] - means[:, :-1] @ slopes
     return GroupOLS(columns, np.asarray(slopes), intercepts, np.bincount(group, minlength=n_groups))
 
@@ -207,10 +213,23 @@ def _check_inputs(X: np.ndarray, segment: np.ndarray, n_features: int, y: np.nda
         raise ValueError("y (log time-adjusted price) must be finite")
 
 
+MAX_CONDITION = 1e6  # common practice: beyond this, OLS slopes of a segment are too unstable to trust
+
+
+def _well_conditioned(D: np.ndarray) -> bool:
+    """Whether the standardised segment design is far enough from collinear for its own OLS."""
+    if D.shape[1] == 0:
+        return True
+    centred = D - D.mean(axis=0)
+    scale = centred.std(axis=0)
+    return bool(np.all(scale > 0) and np.linalg.cond(centred / scale) < MAX_CONDITION)
+
+
 class HedonicOLS:
     """Log-linear hedonic regression per segment (OLS); thin segments share one pooled OLS.
 
-    A segment gets its own fit when n_sales >= n_parameters + 10; otherwise (and for segments
+    A segment gets its own fit when n_sales >= n_parameters + 10 and its design is not near-collinear
+    (condition number below MAX_CONDITION); otherwise (and for segments
     unseen in training) values come from one jurisdiction-wide OLS with segment intercepts.
     `quadratic=True` adds squares and pairwise products of the numeric terms.
     """
@@ -227,13 +246,16 @@ class HedonicOLS:
         M = design_matrix(X, self.design_)
         names, inverse, rows = _segment_groups(segment)
         self.pooled_ = fit_group_ols(M, y, inverse, len(names))
+        self.pooled_range_ = (M.min(axis=0), M.max(axis=0))
         self.segment_fits_: dict[str, GroupOLS] = {}
+        self.segment_ranges_: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         info = []
         for name, idx in zip(names, rows):
             fit = fit_group_ols(M[idx], y[idx], np.zeros(len(idx), dtype=int), 1)
-            own = len(idx) >= fit.n_parameters + EXTRA_SALES
+            own = len(idx) >= fit.n_parameters + EXTRA_SALES and _well_conditioned(M[idx][:, fit.columns])
             if own:
                 self.segment_fits_[name] = fit
+                self.segment_ranges_[name] = (M[idx].min(axis=0), M[idx].max(axis=0))
             info.append((name, len(idx), fit.n_parameters, "own" if own else "pooled"))
         self.segment_names_ = names
         self.fit_info_ = pd.DataFrame(info, columns=["segment", "n_sales", "n_parameters", "fit"])
@@ -259,7 +281,8 @@ class HedonicOLS:
         return pooled, float(pooled.intercepts @ pooled.counts / pooled.counts.sum())
 
     def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
-        """Predicted log price; a segment unseen in training gets the sales-weighted mean intercept."""
+        """Predicted log price, each design column clamped to its fit's training range; a segment
+        unseen in training gets the sales-weighted mean intercept."""
         if not hasattr(self, "pooled_"):
             raise RuntimeError("HedonicOLS is not fitted; call fit first")
         X = np.asarray(X, dtype=float)
@@ -268,7 +291,11 @@ class HedonicOLS:
         names, _, rows = _segment_groups(segment)
         for name, idx in zip(names, rows):
             fit, intercept = self._fit_for(name)
-            out[idx] = intercept + design_matrix(X[idx], self.design_)[:, fit.columns] @ fit.slopes
+            # Clamp each column to the range its fit was trained on: a polynomial extrapolates wildly
+            # (seen on Ames: one quadratic per-segment prediction 900 log units off).
+            lo, hi = self.segment_ranges_.get(name, self.pooled_range_)
+            design = np.clip(design_matrix(X[idx], self.design_), lo, hi)
+            out[idx] = intercept + design[:, fit.columns] @ fit.slopes
         return out
 
 
@@ -290,8 +317,8 @@ class GradientBoosting:
     by mean log price) is used as a numeric feature instead; `segment_as_categorical_` says which.
     """
 
-    def __init__(self, specs: Sequence[FeatureLike], *, seed: int = 0, learning_rate: float = 0.05,
-                 max_iter: int = 500, max_leaf_nodes: int = 31, min_samples_leaf: int = 20,
+    def __init__(self, specs: Sequence[FeatureLike], *, seed: int = 0, learning_rate: float = 0.1,
+                 max_iter: int = 200, max_leaf_nodes: int = 31, min_samples_leaf: int = 20,
                  l2_regularization: float = 1.0) -> None:
         self.specs = specs
         self.seed = seed

@@ -80,11 +80,5 @@ def _time_adjust(store: Store, config: Config, data: Any) -> None:
     adjusted_frame = pd.DataFrame({"sale_id": frame["sale_id"], "parcel_id": frame["parcel_id"],
                                    "month_offset": months.astype(int), "trend_area": trend_area,
                                    "factor": factor, "adjusted_price": frame["sale_price"].to_numpy() * factor})
-    for name, table in (("trend_frame", trend_frame), ("adjusted_frame", adjusted_frame)):
-        store.con.register(name, table)
-    try:
-        store.run("insert_market_trend")
-        store.run("insert_adjusted_sales")
-    finally:
-        for name in ("trend_frame", "adjusted_frame"):
-            store.con.unregister(name)
+    store.insert("insert_market_trend", trend_frame)
+    store.insert("insert_adjusted_sales", adjusted_frame)

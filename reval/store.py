@@ -103,6 +103,16 @@ class Store:
         last = statements[-1]
         return self.con.execute(last, params if last.named_parameters else None)
 
+    def insert(self, name: str, frame: pd.DataFrame) -> None:
+        """Run an insert query that reads the DataFrame as `staged_frame` (columns matched by name)."""
+        if frame.empty:
+            return
+        self.con.register("staged_frame", frame)
+        try:
+            self.run(name)
+        finally:
+            self.con.unregister("staged_frame")
+
     def frame(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> pd.DataFrame:
         """The named query's result as a pandas DataFrame."""
         return self.run(name, params).df()

@@ -92,15 +92,8 @@ def run_study(store: Store, config: Config, values_source: str = "prior", groupi
         store.run("delete_study", [sid])
         store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
                                    opts.confidence, opts.bootstrap, opts.seed, config.sha256])
-        store.con.register("groups_frame", groups_frame)
-        store.con.register("trimmed_frame", trimmed_frame)
-        try:
-            store.run("insert_study_groups")
-            if len(trimmed_frame):
-                store.run("insert_study_trimmed")
-        finally:
-            store.con.unregister("groups_frame")
-            store.con.unregister("trimmed_frame")
+        store.insert("insert_study_groups", groups_frame)
+        store.insert("insert_study_trimmed", trimmed_frame)
     return load_study(store, values_source, grouping, run_id)
 
 

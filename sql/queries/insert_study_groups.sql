@@ -1,1 +1,2 @@
-INSERT INTO study_groups SELECT * FROM groups_frame;
+-- Insert the staged frame's rows (columns matched by name).
+INSERT INTO study_groups BY NAME SELECT * FROM staged_frame;

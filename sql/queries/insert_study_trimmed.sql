@@ -1,1 +1,2 @@
-INSERT INTO study_trimmed SELECT * FROM trimmed_frame;
+-- Insert the staged frame's rows (columns matched by name).
+INSERT INTO study_trimmed BY NAME SELECT * FROM staged_frame;

