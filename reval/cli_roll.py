@@ -23,6 +23,7 @@ def _project(folder: Path, write: bool) -> Iterator[tuple[Config, Store]]:
     with open_store(config.database, read_only=not write) as store:
         if not write and store.version() < latest_version():
             raise UserError("The database needs upgrading first: run `reval value`.")
+        store.run("roll_quiet")
         yield config, store
 
 
@@ -119,15 +120,11 @@ def _render_review(r: dict[str, Any], console: Console) -> None:
     rows = []
     for s in r["segments"]:
         q = s["change_ratio_quantiles"] or {}
-        chase = s["sales_chasing"]
-        rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}",
-                     _money(s["totals"]["prior"]), _money(s["totals"]["market"]), _pct(s["total_change"]),
+        rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}", _pct(s["total_change"]),
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
-                     f"{s['n_beyond_threshold']:,}", chase["status"].replace("_", " ")])
-    _table(f"Value review (change = new market value / prior value; beyond = more than "
-           f"+/-{100 * r['threshold']:.0f}%)",
-           ["segment", "batch", "parcels", "prior total", "new total", "change", "ratio p25/med/p75", "beyond",
-            "sales chasing"], rows, console)
+                     f"{s['n_beyond_threshold']:,}", s["sales_chasing"]["status"].replace("_", " ")])
+    _table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%",
+           ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "sales chasing"], rows, console)
     for s in r["segments"]:
         chase = s["sales_chasing"]
         if chase["flagged"]:

@@ -77,6 +77,8 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False)
     path = Path(path).resolve()
     if not path.parent.is_dir():
         raise UserError(f"{path.parent}: no such folder")
+    if path.is_dir():
+        raise UserError(f"{path} is a folder; give the roll's file name, e.g. {path / 'roll.csv'}")
     certified, missing, pending = _plan(store, partial)
     ids = [int(b["batch_id"]) for b in certified]
     _remove_stale_partials(path)

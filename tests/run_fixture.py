@@ -18,7 +18,12 @@ import pandas as pd
 
 from data_samples.demo_town import true_log_value
 
-RUN_START = dt.datetime(2026, 1, 5, 9, 0, 0)
+
+
+def _created(order: int) -> dt.datetime:
+    """A creation time after any run already in the project (e.g. one the demo build fitted), `order` minutes on,
+    so the fixture run is the newest and `reval value` picks it by default."""
+    return dt.datetime.now() + dt.timedelta(minutes=1 + order)
 
 
 def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, oof_sd: float = 0.04,
@@ -47,7 +52,7 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
                                     "oof_log": insample + rng.normal(0.0, oof_sd, len(sales))})
         con.begin()
         con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', ?, 5, '{}', ?, '{}')",
-                    [run_id, RUN_START + dt.timedelta(minutes=order), seed,
+                    [run_id, _created(order), seed,
                      json.dumps({"numpy": np.__version__, "source": "tests/run_fixture.py"})])
         con.register("estimates_frame", estimates)
         con.register("predictions_frame", predictions)
@@ -71,7 +76,7 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
     try:
         con.begin()
         con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', 0, 5, '{}', '{}', '{}')",
-                    [run_id, RUN_START + dt.timedelta(minutes=order)])
+                    [run_id, _created(order)])
         con.execute("""INSERT INTO parcel_estimates
                        SELECT ?, parcel_id, segment, ln(coalesce(prior_value, ?) * ?), coalesce(prior_value, ?) * ?
                        FROM parcels""", [run_id, missing_prior, factor, missing_prior, factor])

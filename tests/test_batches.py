@@ -6,6 +6,7 @@ case itself with numpy, from the textbook definitions, before asking the gate.
 """
 from __future__ import annotations
 
+import itertools
 import json
 from pathlib import Path
 
@@ -147,7 +148,7 @@ def test_every_transition_is_an_event(staged: Path, tmp_path: Path) -> None:
         mine = [(e, d) for e, d in zip(events.itertuples(), details) if d["batch_id"] == batch_id]
         chain = [(d["from"], d["to"]) for _, d in mine]
         assert chain[0][0] is None and chain[0][1] == "staged"              # born staged
-        assert all(a[1] == b[0] for a, b in zip(chain, chain[1:])), chain   # each move starts where the last ended
+        assert all(a[1] == b[0] for a, b in itertools.pairwise(chain)), chain   # each move starts where the last ended
         assert chain[-1][1] == batch["state"]                                # and ends in the stored state
         assert all(e.run_id == batch["run_id"] and e.segment == batch["segment"] for e, _ in mine)
     for kind in ("batch_approved", "batch_held", "batch_revoked"):
@@ -155,3 +156,28 @@ def test_every_transition_is_an_event(staged: Path, tmp_path: Path) -> None:
         assert chosen and all("verdicts" in d["statistics"] for d in chosen)
     assert set(events["kind"]) == {"batch_staged", "batch_approved", "batch_held", "batch_revoked",
                                    "batch_exported", "batch_replaced"}
+
+
+def test_the_command_line_reports_json_and_refuses_plainly(staged: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    from reval.cli import main
+
+    def run(*argv: str) -> tuple[int, str, str]:
+        code = main([*argv, "--project", str(staged)])
+        out, err = capsys.readouterr()
+        return code, out, err
+
+    code, out, _ = run("approve", PASSING, "--json")
+    assert code == 0 and json.loads(out)["state"] == "approved"
+    code, out, err = run("hold", FAILING, "--reason", " ")
+    assert code == 1 and out == "" and "give a reason" in err and "Traceback" not in err
+    code, out, _ = run("review", "--segment", FAILING, "--json")
+    assert code == 0 and json.loads(out)["segments"][0]["segment"] == FAILING
+    code, out, _ = run("log", "--segment", PASSING, "--json")
+    assert code == 0 and [e["kind"] for e in json.loads(out)["events"]][-1] == "batch_approved"
+    code, out, _ = run("batches", "--json")
+    states = {s["segment"]: s for s in json.loads(out)["segments"]}
+    assert states[PASSING]["certified"]["state"] == "approved" and states[FAILING]["open"]["state"] == "staged"
+    code, out, err = run("export", str(tmp_path / "roll.csv"))
+    assert code == 1 and "not approved" in err and not (tmp_path / "roll.csv").exists()
+    code, out, _ = run("export", str(tmp_path / "roll.csv"), "--partial", "--json")
+    assert code == 0 and json.loads(out)["rows"] == states[PASSING]["certified"]["n_parcels"]

@@ -1,0 +1,2 @@
+-- No terminal progress bar from DuckDB on long statements: it would mix into --json output and the app.
+SET enable_progress_bar = false;
