@@ -64,10 +64,18 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     return run_id
 
 
-def use_land_schedule(folder: Path, extra: str = "") -> None:
-    """Point the project's config at the demo's land schedule (plus any further [assessment] lines)."""
-    with (folder / "reval.toml").open("a", encoding="utf-8") as handle:
-        handle.write(f'\n[assessment]\nland_schedule = "land_schedule.csv"\n{extra}')
+def set_assessment(folder: Path, lines: str) -> None:
+    """Replace the config's [assessment] section (and its [[assessment.caps]]) with `lines`, so a test states
+    every assessment rule it relies on, whatever the shipped demo config holds."""
+    path = folder / "reval.toml"
+    kept, inside = [], False
+    for line in path.read_text(encoding="utf-8").splitlines():
+        header = line.strip().startswith("[")
+        if header:
+            inside = line.strip() in ("[assessment]", "[[assessment.caps]]")
+        if not inside:
+            kept.append(line)
+    path.write_text("\n".join(kept) + f"\n\n[assessment]\n{lines}", encoding="utf-8")
 
 
 def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0, missing_prior: float = 100_000.0) -> str:
@@ -90,12 +98,11 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
 
 
 def roll_project(demo_project: Path, target: Path, assessment: str | None = "", **run: object) -> Path:
-    """A copy of the demo project with one fixture run 'run-a' (seed 1); `assessment` holds extra
-    [assessment] lines after the land schedule, None leaves the config without an [assessment] section."""
+    """A copy of the demo project with one fixture run 'run-a' (seed 1). The [assessment] section uses the
+    demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults)."""
     import shutil
 
     shutil.copytree(demo_project, target)
-    if assessment is not None:
-        use_land_schedule(target, assessment)
+    set_assessment(target, "" if assessment is None else f'land_schedule = "land_schedule.csv"\n{assessment}')
     insert_run(target, "run-a", 1, **run)  # type: ignore[arg-type]
     return target
