@@ -113,9 +113,9 @@ class DesignSpec:
     ) -> DesignSpec:
         """Learn imputation, transforms, ranges, standardisation and constraints from training rows X.
 
-        Missing values are imputed with the training median (continuous; for ordinal the lower median,
-        so it is a level) or the most
-        frequent value (categorical, binary). A log feature uses log(max(x, f)) where f is the
+        Missing values are imputed with the training median (continuous; the lower median for ordinal,
+        so it is a level) or the most frequent value (categorical, binary). A log feature uses
+        log(max(x, f)) where f is the
         smallest positive training value, so zeros (e.g. no lot for a condominium) map to the
         bottom of the observed range instead of minus infinity. `scale_from` (the parent's spec)
         supplies the log floor and the standardisation, so a deviation's products and curves are on

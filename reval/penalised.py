@@ -3,8 +3,9 @@
 Minimises ||y - offset - X b||^2 + sum_j lam_j b' S_j b. Every quantity the search needs
 (coefficients, residual sum of squares, effective degrees of freedom) is computed from the
 p x p Gram matrix X'X and X'(y - offset), so one GCV evaluation costs a p x p Cholesky
-factorisation whatever the number of sales. GCV = n RSS / (n - edf)^2 (Craven & Wahba 1979;
-Wood 2017, section 6.2.3). The posterior covariance sigma^2 (X'X + S)^-1 is the Bayesian one
+factorisation whatever the number of sales. GCV = n RSS / (n - gamma edf)^2 (Craven & Wahba 1979;
+Wood 2017, section 6.2.3); gamma > 1 (Kim & Gu 2004 suggest 1.4) counters GCV's undersmoothing
+in small samples. The posterior covariance sigma^2 (X'X + S)^-1 is the Bayesian one
 of Wood (2017, section 6.10), which gives curve bands with good frequentist coverage.
 """
 
@@ -48,7 +49,8 @@ def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[P
 
 
 class PenalisedLS:
-    """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV picks them."""
+    """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV
+    (with edf inflated by `gamma`) picks them."""
 
     def __init__(self, *, lambdas: Sequence[float] | None = None, coordinate_passes: int = 1,
                  gamma: float = 1.0) -> None:

@@ -137,6 +137,14 @@ def test_same_seed_same_predictions() -> None:
     np.testing.assert_array_equal(first, second)
 
 
+def test_parallel_segments_give_the_same_model() -> None:
+    # Segments are fitted by a pure function, so mapping them over two worker processes changes nothing.
+    X, y, seg, ma = simulate({"s1a": 150, "s2a": 80, "s3b": 120}, seed=28, interaction=0.04)
+    one = fit_hierarchy(X, y, seg, ma, FEATURES, FAST)
+    two = fit_hierarchy(X, y, seg, ma, FEATURES, dataclasses.replace(FAST, jobs=2))
+    np.testing.assert_array_equal(one.predict(X, seg, ma), two.predict(X, seg, ma))
+
+
 def test_fold_ids_spread_every_segment_evenly() -> None:
     seg = np.repeat(["a", "b", "c", "d"], [103, 37, 3, 1])
     folds = fold_ids(len(seg), seg, seed=5, k=10)
@@ -188,7 +196,7 @@ def test_demo_curves_match_the_true_shapes(demo: SimpleNamespace) -> None:
     # demo_town.true_curve gives each main effect's true shape (at the reference level of its interaction
     # partners). Features without a partner are compared over the 5-95% range of a size-slope-1
     # neighbourhood with many sales (Quorrin Fields, 400 sales); tolerance 0.02 in log value (2%).
-    for feature in ("bathrooms", "garage_spaces", "year_built"):
+    for feature in ("bathrooms", "garage_spaces", "year_built", "lot_size"):
         curve = demo.model.curves("QUOR", feature, n_points=60)
         x = demo.X[demo.seg == "QUOR", demo.model.spec.index(feature)]
         lo, hi = np.percentile(x, [5, 95])

@@ -53,13 +53,15 @@ def test_unpenalised_fit_is_ols() -> None:
     assert ours.edf_ == pytest.approx(4.0, abs=1e-6)
 
 
-def test_gcv_edf_and_covariance_match_the_explicit_hat_matrix() -> None:
+@pytest.mark.parametrize("gamma", [1.0, 1.4])
+def test_gcv_edf_and_covariance_match_the_explicit_hat_matrix(gamma: float) -> None:
     # Definitions (Wood 2017, sections 6.1-6.2): H = X (X'X + S)^-1 X', edf = tr H,
-    # GCV = n RSS / (n - tr H)^2, Bayesian covariance sigma^2 (X'X + S)^-1 with sigma^2 = RSS / (n - tr H).
+    # GCV = n RSS / (n - gamma tr H)^2 (gamma = 1 is plain GCV; Kim & Gu 2004 for gamma > 1),
+    # Bayesian covariance sigma^2 (X'X + S)^-1 with sigma^2 = RSS / (n - tr H).
     x, y = smooth_data(300, seed=5)
     spec = DesignSpec.learn(x[:, None], [feature("x")], n_basis=15)
     blocks = spec.blocks(x[:, None])
-    model = PenalisedLS().fit(blocks, y)
+    model = PenalisedLS(gamma=gamma).fit(blocks, y)
     X, _, _ = stack(blocks)
     S = np.zeros((X.shape[1], X.shape[1]))
     S[1:, 1:] = model.lambdas_[0] * blocks[1].penalties[0]
@@ -68,7 +70,7 @@ def test_gcv_edf_and_covariance_match_the_explicit_hat_matrix() -> None:
     rss = float(np.sum((y - H @ y) ** 2))
     n = len(y)
     assert model.edf_ == pytest.approx(np.trace(H), rel=1e-6)
-    assert model.gcv_ == pytest.approx(n * rss / (n - np.trace(H)) ** 2, rel=1e-6)
+    assert model.gcv_ == pytest.approx(n * rss / (n - gamma * np.trace(H)) ** 2, rel=1e-6)
     np.testing.assert_allclose(model.cov_, rss / (n - np.trace(H)) * np.linalg.inv(A), rtol=1e-5, atol=1e-12)
 
 
@@ -133,3 +135,69 @@ def test_offset_is_subtracted_before_fitting() -> None:
     b = PenalisedLS(lambdas=[2.0]).fit(blocks, y - offset)
     np.testing.assert_allclose(a.coef_, b.coef_, atol=1e-12)
     np.testing.assert_allclose(a.predict(blocks, offset), b.predict(blocks) + offset, atol=1e-12)
+
+
+# ---------------------------------------------------------------- design blocks
+
+
+def design_data(n: int = 500, seed: int = 10) -> tuple[np.ndarray, list[SimpleNamespace]]:
+    rng = np.random.default_rng(seed)
+    X = np.column_stack([rng.lognormal(7.0, 0.4, n), rng.integers(0, 4, n), rng.integers(0, 3, n), rng.integers(0, 2, n)])
+    X[:5, 0] = 0.0  # e.g. no lot: handled by the log floor
+    X[5:20, 1] = np.nan
+    feats = [feature("area", log=True), feature("grade", "ordinal", levels=("a", "b", "c", "d")),
+             feature("kind", "categorical", levels=("p", "q", "r")), feature("pool", "binary")]
+    return X.astype(float), feats
+
+
+def test_every_term_averages_zero_over_the_training_rows() -> None:
+    # Sum-to-zero identifiability constraint (Wood 2017, section 5.4.1): each block's columns have
+    # mean zero over the training rows, so the intercept is the mean fitted value.
+    X, feats = design_data()
+    spec = DesignSpec.learn(X, feats, n_basis=10)
+    blocks = spec.blocks(X)
+    assert [b.term for b in blocks] == ["(intercept)", "area", "grade", "kind", "pool"]
+    for b in blocks[1:]:
+        np.testing.assert_allclose(b.columns.mean(axis=0), 0.0, atol=1e-12)
+    widths = {b.term: b.columns.shape[1] for b in blocks}
+    assert widths == {"(intercept)": 1, "area": 9, "grade": 3, "kind": 2, "pool": 1}
+    assert blocks[0].penalties == () and blocks[4].penalties == ()  # intercept and binary unpenalised
+
+
+def test_imputation_log_floor_and_clamping_follow_the_training_rows() -> None:
+    X, feats = design_data()
+    spec = DesignSpec.learn(X, feats, n_basis=10)
+    area, grade, kind, pool = spec.transforms
+    assert area.impute == np.median(X[:, 0])  # training median (no missing areas here)
+    assert grade.impute in (0.0, 1.0, 2.0, 3.0)  # an ordinal is imputed with a level
+    assert kind.impute == np.bincount(X[:, 2].astype(int)).argmax()  # most frequent level
+    positive = X[X[:, 0] > 0, 0]
+    assert area.log_floor == positive.min()
+    T = spec.transformed(X)
+    np.testing.assert_allclose(T[:5, 0], np.log(positive.min()))
+    assert not np.isnan(T).any()
+    beyond = spec.term_columns("area", np.array([X[:, 0].max() * 10, X[:, 0].max()]))
+    np.testing.assert_array_equal(beyond[0], beyond[1])  # clamped to the training range
+
+
+def test_products_are_capped_and_categorical_refused() -> None:
+    # MODEL-NOTES point 4: standardised values are capped at +/-2.5 before forming products.
+    X, feats = design_data()
+    spec = DesignSpec.learn(X, feats, n_basis=10)
+    Z = spec.standardised(X)
+    assert Z.max() <= 2.5 and Z.min() >= -2.5
+    extreme = X[:1].copy()
+    extreme[0, 0] = 1e9
+    np.testing.assert_allclose(spec.products(extreme, [("area", "pool")]), 2.5 * spec.standardised(extreme)[:, 3:4])
+    with pytest.raises(ValueError, match="categorical"):
+        spec.products(X, [("area", "kind")])
+
+
+def test_a_deviation_design_is_penalised_in_every_direction() -> None:
+    # A deviation shrinks toward zero: the summed penalties must be positive definite (Marra & Wood
+    # 2011 double penalty for curves; ridge on intercept and binary columns).
+    X, feats = design_data()
+    spec = DesignSpec.learn(X, feats, n_basis=8, deviation=True)
+    for b in spec.blocks(X, [("area", "pool")]):
+        total = sum(b.penalties)
+        assert np.linalg.eigvalsh(total).min() > 1e-8, b.term
