@@ -1,51 +1,196 @@
-"""The reval terminal app."""
+"""The reval terminal app: screens over reval's service API, every read and write in a thread worker."""
 from __future__ import annotations
 
+import threading
+from functools import partial
 from pathlib import Path
+from typing import Any, Callable
 
-from textual.app import App, ComposeResult
-from textual.binding import Binding
-from textual.widgets import DataTable, Footer, Header, Static
+from textual import work
+from textual.app import App
+from textual.reactive import reactive
+from textual.screen import Screen
+from textual.worker import Worker, WorkerState, get_current_worker
 
-from reval import commands
+from reval import app_service
+from reval.errors import UserError
 
-CAUTION = ("Values are estimates for review by a qualified assessor; assessment level, caps, exemptions, "
-           "notices and appeals follow local law.")
+from . import keys
+from .jobs import JobCancelled, JobFinished, JobProgressed, Loaded, LoadFailed, Status
+from .screens.base import DataScreen
+from .screens.help import HelpScreen
+from .screens.overview import OverviewScreen
+from .screens.parcel import ParcelScreen
+from .screens.prompt import ExportScreen, PromptScreen
+from .screens.segment import SegmentScreen
+from .steps import (DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values,
+                    roll_service)
+
+
+def error_text(error: BaseException) -> str:
+    """A person-readable line for a failure: the core's own message, else the exception's type and text."""
+    if isinstance(error, (UserError, JobCancelled)):
+        return str(error)
+    return f"{type(error).__name__}: {error}"
 
 
 class RevalApp(App[None]):
-    """Segments overview of one project folder."""
+    """Review one project folder: segments, their models and equity, parcels, decisions and the export."""
 
     TITLE = "reval"
-    BINDINGS = [
-        Binding("q", "quit", "Quit", id="quit"),
-        Binding("j", "cursor_down", "Down", show=False, id="down"),
-        Binding("k", "cursor_up", "Up", show=False, id="up"),
-    ]
+    CSS_PATH = "app.tcss"
+    BINDINGS = keys.bindings("app")
+
+    status: reactive[Status] = reactive(Status())
 
     def __init__(self, folder: Path) -> None:
         super().__init__()
-        self.folder = folder
-
-    def compose(self) -> ComposeResult:
-        yield Header()
-        yield Static(CAUTION, id="caution")
-        yield DataTable(id="segments", cursor_type="row", zebra_stripes=True)
-        yield Footer()
+        self.folder = Path(folder).resolve()
+        self.db_lock = threading.Lock()          # one DuckDB connection at a time in this process
+        self.messages: list[tuple[str, str]] = []  # (severity, text), oldest first
+        self._reads: dict[Worker[Any], tuple[Screen[Any], str]] = {}
 
     def on_mount(self) -> None:
-        table = self.query_one(DataTable)
-        table.add_columns("Segment", "Market area", "Parcels", "Sales")
-        for row in commands.segment_overview(self.folder):
-            table.add_row(row["segment"], row["market_area"], f"{row['n_parcels']:,}", f"{row['n_sales']:,}",
-                          key=row["segment"])
-        table.focus()
+        self.push_screen(OverviewScreen())
 
-    def action_cursor_down(self) -> None:
-        self.query_one(DataTable).action_cursor_down()
+    # ---- reading ---------------------------------------------------------------------------------------
 
-    def action_cursor_up(self) -> None:
-        self.query_one(DataTable).action_cursor_up()
+    def fetch(self, screen: Screen[Any], tag: str, fn: Callable[..., Any], *args: Any) -> None:
+        """Run a read-only service call in a thread; post Loaded (or LoadFailed) to the screen."""
+        worker = self.run_worker(partial(self._read, screen, tag, fn, args), thread=True, exclusive=True,
+                                 group=f"read-{id(screen)}-{tag}", exit_on_error=False, name=f"read {tag}")
+        self._reads[worker] = (screen, tag)
+
+    def _read(self, screen: Screen[Any], tag: str, fn: Callable[..., Any], args: tuple[Any, ...]) -> None:
+        with self.db_lock:
+            data = fn(*args)
+        if not get_current_worker().is_cancelled:
+            screen.post_message(Loaded(tag, data))
+
+    def overview_data(self) -> dict[str, Any]:
+        return app_service.overview(self.folder)
+
+    # ---- long jobs and quick actions -------------------------------------------------------------------
+
+    @property
+    def job_running(self) -> bool:
+        return any(w.group == "job" and w.is_running for w in self.workers)
+
+    def start_job(self, kind: str, label: str, fn: Callable[..., Any], *args: Any, describe: Describe,
+                  progress: bool = False, **kwargs: Any) -> None:
+        """Run a step that writes (fit, value, approve, ...) in the one job thread, with progress if asked."""
+        if self.job_running:
+            self.report("Another job is running: wait for it to finish or cancel it (Ctrl+K).", "warning")
+            return
+        self.status = Status(f"{label}…", running=True)
+        self._job(kind, fn, args, kwargs, describe, progress)
+
+    @work(thread=True, exclusive=True, group="job", exit_on_error=False, name="job")
+    def _job(self, kind: str, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
+             describe: Describe, with_progress: bool) -> None:
+        worker = get_current_worker()
+
+        def progress(step: str, done: int, total: int) -> None:
+            if worker.is_cancelled:
+                raise JobCancelled(f"{kind} cancelled; the step was rolled back and nothing changed")
+            self.post_message(JobProgressed(kind, step, done, total))
+
+        with self.db_lock:
+            result = fn(*args, progress=progress, **kwargs) if with_progress else fn(*args, **kwargs)
+        self.post_message(JobFinished(kind, describe(result), result))
+
+    def on_job_progressed(self, message: JobProgressed) -> None:
+        self.status = Status(f"{message.kind}: {message.step} {message.done}/{message.total}", running=True,
+                             done=message.done, total=message.total)
+
+    def on_job_finished(self, message: JobFinished) -> None:
+        self.report(message.summary)
+        for screen in self.screen_stack:
+            if isinstance(screen, DataScreen):
+                screen.reload()
+
+    def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
+        """The one place a worker's failure becomes a message in the app (never a traceback)."""
+        if event.state not in (WorkerState.SUCCESS, WorkerState.CANCELLED, WorkerState.ERROR):
+            return
+        read = self._reads.pop(event.worker, None)
+        if event.state != WorkerState.ERROR or event.worker.error is None:
+            return
+        text = error_text(event.worker.error)
+        if read is not None:
+            read[0].post_message(LoadFailed(read[1], text))
+        else:
+            self.report(text, "error")
+
+    def action_cancel_job(self) -> None:
+        jobs = [w for w in self.workers if w.group == "job" and w.is_running]
+        for worker in jobs:
+            worker.cancel()
+        self.report("Cancelling: the job stops at its next step." if jobs else "No job is running.", "warning")
+
+    def report(self, text: str, severity: str = "information") -> None:
+        """Show an outcome in the status bar (and as a notification), and keep it in the message log."""
+        self.messages.append((severity, text))
+        self.status = Status(text, severity)
+        if severity != "information":
+            self.notify(text, severity=severity, markup=False)  # type: ignore[arg-type]
+
+    # ---- navigation ------------------------------------------------------------------------------------
+
+    def open_segment(self, segment: str) -> None:
+        self.push_screen(SegmentScreen(segment))
+
+    def open_parcel(self, parcel_id: str) -> None:
+        self.push_screen(ParcelScreen(parcel_id))
+
+    def action_help(self) -> None:
+        if not isinstance(self.screen, HelpScreen):
+            self.push_screen(HelpScreen())
+
+    def action_find_parcel(self) -> None:
+        def chosen(parcel_id: str | None) -> None:
+            if parcel_id:
+                self.open_parcel(parcel_id)
+
+        self.push_screen(PromptScreen("Open a parcel", "parcel id", required=True), chosen)
+
+    # ---- decisions and steps that write ------------------------------------------------------------------
+
+    def decide(self, kind: str, segment: str, detail: str = "") -> None:
+        """Ask for the note or reason, then approve, hold or revoke the segment's batch (the core enforces
+        the approval gate and says why it refuses)."""
+        title, asked, required = DECISIONS[kind]
+        fn = getattr(roll_service(), kind)
+
+        def answered(text: str | None) -> None:
+            if text is None:
+                self.report(f"{kind.capitalize()} of {segment} cancelled.", "warning")
+                return
+            self.start_job(kind, f"{kind.capitalize()} {segment}", fn, self.folder, segment, text or None,
+                           describe=describe_decision)
+
+        self.push_screen(PromptScreen(title.format(segment=segment), asked, required=required, detail=detail),
+                         answered)
+
+    def action_fit(self) -> None:
+        from reval import commands  # the model libraries load only when a fit is asked for (fast start-up)
+
+        self.start_job("fit", "Fitting every segment", commands.fit_step, self.folder, jobs=1, progress=True,
+                       describe=describe_fit)
+
+    def action_value(self) -> None:
+        self.start_job("value", "Staging values from the latest run", roll_service().value_step, self.folder,
+                       describe=describe_values)
+
+    def action_export(self) -> None:
+        def chosen(answer: tuple[Path, bool] | None) -> None:
+            if answer is not None:
+                path, partial = answer
+                target = path if path.is_absolute() else self.folder / path
+                self.start_job("export", f"Exporting the value roll to {target}", roll_service().export_roll,
+                               self.folder, target, partial=partial, describe=describe_export)
+
+        self.push_screen(ExportScreen(self.folder / "value_roll.csv"), chosen)
 
 
 def run_app(folder: Path) -> None:

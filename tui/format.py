@@ -1,0 +1,78 @@
+"""How numbers and verdicts read on screen: never colour alone, always a symbol or word too."""
+from __future__ import annotations
+
+from typing import Any
+
+MARKS = {"pass": "✓", "fail": "✗ FAIL", "too_few_sales": "~ few"}
+SHORT_MARKS = {"pass": "✓", "fail": "✗", "too_few_sales": "~"}
+STAT_FORMATS = {"median_ratio": ".3f", "cod": ".1f", "prd": ".3f", "prb": "+.3f"}
+STAT_NAMES = {"median_ratio": "Median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
+VERDICT_STYLES = {"pass": "$success", "fail": "$error", "too_few_sales": "$warning"}
+CAUTION = ("Values are estimates for review by a qualified assessor; assessment level, caps, exemptions, "
+           "notices and appeals follow local law.")
+LEGEND = "✓ meets the standard · ✗ FAIL: does not · ~ too few sales to judge"
+
+
+def stat_cell(cell: dict[str, Any], stat: str, short: bool = False) -> str:
+    """'0.982 ✓', '1.046 ✗ FAIL' (short: '1.046 ✗') or '–' when there is no value."""
+    value = cell.get("value")
+    if value is None:
+        return "–"
+    mark = (SHORT_MARKS if short else MARKS).get(cell.get("status") or "", "")
+    return f"{format(value, STAT_FORMATS[stat])} {mark}".rstrip()
+
+
+def ci_text(cell: dict[str, Any], stat: str) -> str:
+    ci = cell.get("ci") or [None, None]
+    if ci[0] is None or ci[1] is None:
+        return "–"
+    return f"{format(ci[0], STAT_FORMATS[stat])} … {format(ci[1], STAT_FORMATS[stat])}"
+
+
+def model_cell(row: dict[str, Any]) -> str:
+    """How the segment's model was made: own, pooled (with the share borrowed from its parent), or parent."""
+    kind = row.get("kind")
+    if kind is None:
+        return "–"
+    if kind == "parent_only":
+        return "parent"
+    share = row.get("borrowed_share")
+    return kind if share is None else f"{kind} ({share:.0%})"
+
+
+def money(value: float | None) -> str:
+    return "–" if value is None else f"{value:,.0f}"
+
+
+def signed_money(value: float | None) -> str:
+    return "–" if value is None else f"{value:+,.0f}"
+
+
+def percent(value: float | None, digits: int = 1) -> str:
+    return "–" if value is None else f"{value:+.{digits}%}"
+
+
+def short_money(value: float) -> str:
+    """12k, 1.2M: for axis labels."""
+    size = abs(value)
+    if size >= 1e6:
+        return f"{value / 1e6:.1f}M"
+    if size >= 1e3:
+        return f"{value / 1e3:.0f}k"
+    return f"{value:.0f}"
+
+
+def number(value: float | None, fmt: str = ".3g") -> str:
+    return "–" if value is None else format(value, fmt)
+
+
+def gate_detail(stats: dict[str, dict[str, Any]], model_values: bool) -> str:
+    """What the approval gate will say, as far as the screen knows it (the core decides)."""
+    if not model_values:
+        return ("No out-of-fold statistics are shown for this segment yet; the core checks those of the "
+                "batch's run and refuses approval without a note when they fail.")
+    marks = " · ".join(f"{STAT_NAMES[k]} {stat_cell(stats[k], k)}" for k in STAT_FORMATS)
+    failing = any(stats[k].get("status") != "pass" for k in STAT_FORMATS)
+    verdict = ("Not all pass: the core refuses approval without a note; with a note it approves over them "
+               "and stores the note." if failing else "All pass: a note is optional.")
+    return f"Out-of-fold statistics: {marks}. {verdict}"

@@ -1,0 +1,124 @@
+"""The one registry of key bindings: it builds every screen's BINDINGS, the footer and the help screen.
+
+Each action has a stable id (usable in a keymap to remap it), the keys that trigger it, where it applies
+and a description. Nothing else in the app declares a binding.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from textual.binding import Binding
+
+SCOPES = {
+    "app": "Everywhere",
+    "overview": "Segments overview",
+    "segment": "Segment drill-in",
+    "parcel": "Parcel view",
+    "help": "Help",
+}
+
+
+@dataclass(frozen=True)
+class KeyAction:
+    """One bindable action: id, keys (comma-separated), Textual action, scope, footer label, description."""
+
+    id: str
+    keys: str
+    action: str
+    scope: str
+    label: str
+    description: str
+    show: bool = True
+    key_display: str | None = None
+    priority: bool = False
+
+
+REGISTRY: tuple[KeyAction, ...] = (
+    # everywhere
+    KeyAction("app.help", "question_mark,f1", "app.help", "app", "Help", "Show every key and what it does",
+              key_display="?"),
+    KeyAction("app.quit", "q", "app.quit", "app", "Quit", "Leave the app"),
+    KeyAction("app.parcel", "o", "app.find_parcel", "app", "Parcel", "Open a parcel by its id"),
+    KeyAction("app.fit", "f", "app.fit", "app", "Fit", "Fit the models of every segment (a new run)"),
+    KeyAction("app.value", "v", "app.value", "app", "Value", "Stage values of every segment from the latest run",
+              show=False),
+    KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
+    KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
+              "Cancel the fit or valuation that is running", show=False),
+    KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
+              show=False),
+    # overview
+    KeyAction("overview.down", "j,down", "cursor_down", "overview", "Down", "Next segment", show=False),
+    KeyAction("overview.up", "k,up", "cursor_up", "overview", "Up", "Previous segment", show=False),
+    KeyAction("overview.top", "g,home", "cursor_top", "overview", "Top", "First segment", show=False),
+    KeyAction("overview.bottom", "G,end", "cursor_bottom", "overview", "Bottom", "Last segment", show=False),
+    KeyAction("overview.open", "enter,l", "open_segment", "overview", "Open", "Open the segment's drill-in",
+              key_display="⏎"),
+    KeyAction("overview.sort_next", "s", "sort_next", "overview", "Sort", "Sort by the next column"),
+    KeyAction("overview.sort_prev", "S", "sort_previous", "overview", "Sort back", "Sort by the previous column",
+              show=False),
+    KeyAction("overview.sort_reverse", "r", "sort_reverse", "overview", "Reverse", "Reverse the sort order",
+              show=False),
+    KeyAction("overview.failing", "F", "toggle_failing", "overview", "Failing",
+              "Show only segments failing a standard (again: all)"),
+    KeyAction("overview.area", "m", "cycle_area", "overview", "Area", "Filter by market area (cycles)",
+              show=False),
+    KeyAction("overview.state", "t", "cycle_state", "overview", "State", "Filter by batch state (cycles)",
+              show=False),
+    KeyAction("overview.search", "slash", "search", "overview", "Search", "Search segments by name as you type",
+              key_display="/"),
+    KeyAction("overview.clear", "c", "clear_filters", "overview", "Clear", "Clear the search and every filter",
+              show=False),
+    KeyAction("overview.approve", "a", "approve", "overview", "Approve", "Approve the segment's batch (with a note)"),
+    KeyAction("overview.hold", "h", "hold", "overview", "Hold", "Hold the segment's batch (with a reason)"),
+    KeyAction("overview.revoke", "R", "revoke", "overview", "Revoke",
+              "Revoke the segment's approval before export (with a note)", show=False),
+    KeyAction("overview.refresh", "ctrl+r", "refresh", "overview", "Refresh", "Read the database again",
+              show=False),
+    # segment drill-in
+    KeyAction("segment.back", "escape,backspace", "back", "segment", "Back", "Back to the overview"),
+    KeyAction("segment.next", "right_square_bracket,n", "page(1)", "segment", "Next",
+              "Next curve, or next page of sales", key_display="]"),
+    KeyAction("segment.prev", "left_square_bracket,p", "page(-1)", "segment", "Prev",
+              "Previous curve, or previous page of sales", key_display="["),
+    *(KeyAction(f"segment.tab{i + 1}", str(i + 1), f"tab({i})", "segment", name, f"Show the {name.lower()} tab",
+                show=False) for i, name in enumerate(("Curves", "Interactions and effects", "Equity",
+                                                       "Value change", "Sales", "Reference models"))),
+    KeyAction("segment.approve", "a", "approve", "segment", "Approve", "Approve this segment's batch"),
+    KeyAction("segment.hold", "h", "hold", "segment", "Hold", "Hold this segment's batch"),
+    KeyAction("segment.revoke", "R", "revoke", "segment", "Revoke", "Revoke this segment's approval",
+              show=False),
+    KeyAction("segment.parcel", "enter", "open_sale_parcel", "segment", "Parcel",
+              "On the sales tab: open the parcel of the highlighted sale", show=False),
+    # parcel
+    KeyAction("parcel.back", "escape,backspace", "back", "parcel", "Back", "Back"),
+    KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
+    # help
+    KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
+)
+
+BY_ID = {k.id: k for k in REGISTRY}
+
+
+def bindings(scope: str) -> list[Binding]:
+    """The Textual bindings of one scope."""
+    out = []
+    for k in REGISTRY:
+        if k.scope != scope:
+            continue
+        out.append(Binding(k.keys, k.action, k.label, show=k.show, key_display=k.key_display,
+                           priority=k.priority, id=k.id, tooltip=k.description))
+    return out
+
+
+def display_keys(k: KeyAction) -> str:
+    """The keys of an action as a person types them."""
+    names = {"question_mark": "?", "slash": "/", "right_square_bracket": "]", "left_square_bracket": "[",
+             "escape": "Esc", "enter": "Enter", "backspace": "Backspace", "down": "↓", "up": "↑",
+             "home": "Home", "end": "End", "tab": "Tab", "f1": "F1"}
+    return " ".join(names.get(key, key.replace("ctrl+", "Ctrl+")) for key in k.keys.split(","))
+
+
+def help_rows() -> list[tuple[str, str, str, str]]:
+    """(scope title, keys, description, id) for every action, in registry order."""
+    return [(SCOPES[k.scope], display_keys(k), k.description, k.id) for k in REGISTRY]

@@ -1,0 +1,252 @@
+"""The segments overview: one row per segment, sortable, filterable and searchable, keyboard first."""
+from __future__ import annotations
+
+from typing import Any
+
+from rich.style import Style
+from rich.text import Text
+from textual import on
+from textual.app import ComposeResult
+from textual.reactive import reactive
+from textual.widgets import DataTable, Header, Input, Static
+
+from reval import app_service
+
+from .. import keys
+from ..format import CAUTION, LEGEND, gate_detail, model_cell, percent, stat_cell
+from ..jobs import Loaded, StatusBar
+from .base import DataScreen, footer
+
+# (sort key, header label); the table shows them in this order (the most used first, for 80 columns).
+COLUMNS = (("segment", "Segment"), ("model", "Model (borrowed)"), ("median_ratio", "Median"), ("cod", "COD"),
+           ("prd", "PRD"), ("prb", "PRB"), ("value_change", "Change"), ("state", "State"),
+           ("sales", "Sales"), ("parcels", "Parcels"), ("market_area", "Market area"))
+SORT_ORDER = tuple(key for key, _ in COLUMNS)
+VERDICT_COLOURS = {"pass": "success", "fail": "error", "too_few_sales": "warning"}
+
+
+class OverviewScreen(DataScreen):
+    """Every segment with its model, ratio statistics (pass/fail marked), value change and batch state."""
+
+    CSS_PATH = "overview.tcss"
+    BINDINGS = keys.bindings("overview")
+
+    sort_key: reactive[str] = reactive("segment")
+    descending: reactive[bool] = reactive(False)
+    failing_only: reactive[bool] = reactive(False)
+    area: reactive[str | None] = reactive(None)
+    state: reactive[str | None] = reactive(None)
+    search_text: reactive[str] = reactive("")
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.data: dict[str, Any] | None = None
+        self.shown: list[dict[str, Any]] = []
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        yield Static("Reading the project…", id="stats-header")
+        yield Static("", id="filters")
+        yield Static(LEGEND, id="legend")
+        yield DataTable(id="segments", cursor_type="row", zebra_stripes=True)
+        yield Input(placeholder="segment name (Enter keeps it, Esc clears it)", id="search")
+        yield Static(CAUTION, id="caution")
+        yield StatusBar()
+        yield footer()
+
+    def on_mount(self) -> None:
+        table = self.query_one(DataTable)
+        for key, label in COLUMNS:
+            table.add_column(label, key=key)
+        table.focus()
+        self.app.theme_changed_signal.subscribe(self, lambda _: self.refresh_table())
+        self.reload()
+
+    def reload(self) -> None:
+        self.fetch("overview", self.reval.overview_data)
+
+    @on(Loaded)
+    def show_data(self, message: Loaded) -> None:
+        if message.tag != "overview":
+            return
+        self.data = message.data
+        self.app.title = self.data["jurisdiction"]
+        self.app.sub_title = f"valuation date {self.data['valuation_date']}"
+        run = self.data["run_id"]
+        hint = "" if run else " · no model run yet — press f to fit"
+        self.query_one("#stats-header", Static).update(self.data["stats_header"] + hint)
+        self.refresh_table()
+
+    # ---- the table ---------------------------------------------------------------------------------------
+
+    def current_segment(self) -> str | None:
+        table = self.query_one(DataTable)
+        if not self.shown or table.cursor_row >= len(self.shown):
+            return None
+        return str(self.shown[table.cursor_row]["segment"])
+
+    def refresh_table(self) -> None:
+        if self.data is None:
+            return
+        keep = self.current_segment()
+        rows = app_service.filter_segments(self.data["segments"], failing_only=self.failing_only,
+                                           market_area=self.area, state=self.state, text=self.search_text)
+        self.shown = app_service.sort_segments(rows, self.sort_key, self.descending)
+        table = self.query_one(DataTable)
+        table.clear()
+        colours = self.app.theme_variables
+        for row in self.shown:
+            table.add_row(*self._cells(row, colours), key=row["segment"])
+        self._label_columns(table)
+        if keep is not None and any(r["segment"] == keep for r in self.shown):
+            table.move_cursor(row=table.get_row_index(keep))
+        self._show_filters()
+
+    def _cells(self, row: dict[str, Any], colours: dict[str, str]) -> list[Any]:
+        def verdict(stat: str) -> Text:
+            status = row[stat]["status"]
+            colour = colours.get(VERDICT_COLOURS.get(status or "", ""), None)
+            return Text(stat_cell(row[stat], stat, short=True), style=Style(color=colour) if colour else "")
+
+        return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
+                verdict("prb"), percent(row["value_change"]), row["state"] or "–", f"{row['sales']:,}",
+                f"{row['parcels']:,}", row["market_area"]]
+
+    def _label_columns(self, table: DataTable[Any]) -> None:
+        labels = dict(COLUMNS)
+        arrow = " ▼" if self.descending else " ▲"
+        for key, column in table.columns.items():
+            name = str(key.value)
+            column.label = Text(labels[name] + (arrow if name == self.sort_key else ""))
+        table.refresh()
+
+    def _show_filters(self) -> None:
+        assert self.data is not None
+        parts = [f"{len(self.shown)} of {len(self.data['segments'])} segments",
+                 f"sorted by {dict(COLUMNS)[self.sort_key]} {'descending' if self.descending else 'ascending'}"]
+        active = [name for name, on_ in (("failing only", self.failing_only),
+                                         (f"market area {self.area}", self.area is not None),
+                                         (f"state {self.state}", self.state is not None),
+                                         (f"name contains '{self.search_text}'", bool(self.search_text))) if on_]
+        parts.append("filters: " + (", ".join(active) if active else "none"))
+        self.query_one("#filters", Static).update(" · ".join(parts))
+
+    def watch_sort_key(self) -> None:
+        self.refresh_table()
+
+    def watch_descending(self) -> None:
+        self.refresh_table()
+
+    def watch_failing_only(self) -> None:
+        self.refresh_table()
+
+    def watch_area(self) -> None:
+        self.refresh_table()
+
+    def watch_state(self) -> None:
+        self.refresh_table()
+
+    def watch_search_text(self) -> None:
+        self.refresh_table()
+
+    # ---- actions -----------------------------------------------------------------------------------------
+
+    def action_cursor_down(self) -> None:
+        self.query_one(DataTable).action_cursor_down()
+
+    def action_cursor_up(self) -> None:
+        self.query_one(DataTable).action_cursor_up()
+
+    def action_cursor_top(self) -> None:
+        self.query_one(DataTable).move_cursor(row=0)
+
+    def action_cursor_bottom(self) -> None:
+        self.query_one(DataTable).move_cursor(row=max(len(self.shown) - 1, 0))
+
+    def action_open_segment(self) -> None:
+        segment = self.current_segment()
+        if segment is not None:
+            self.reval.open_segment(segment)
+
+    @on(DataTable.RowSelected)
+    def row_chosen(self) -> None:
+        self.action_open_segment()
+
+    @on(DataTable.HeaderSelected)
+    def header_chosen(self, event: DataTable.HeaderSelected) -> None:
+        key = str(event.column_key.value)
+        if key == self.sort_key:
+            self.descending = not self.descending
+        else:
+            self.sort_key = key
+
+    def action_sort_next(self) -> None:
+        self.sort_key = SORT_ORDER[(SORT_ORDER.index(self.sort_key) + 1) % len(SORT_ORDER)]
+
+    def action_sort_previous(self) -> None:
+        self.sort_key = SORT_ORDER[(SORT_ORDER.index(self.sort_key) - 1) % len(SORT_ORDER)]
+
+    def action_sort_reverse(self) -> None:
+        self.descending = not self.descending
+
+    def action_toggle_failing(self) -> None:
+        self.failing_only = not self.failing_only
+
+    def _cycle(self, current: str | None, options: list[str]) -> str | None:
+        choices: list[str | None] = [None, *options]
+        return choices[(choices.index(current) + 1) % len(choices)] if current in choices else None
+
+    def action_cycle_area(self) -> None:
+        if self.data:
+            self.area = self._cycle(self.area, self.data["market_areas"])
+
+    def action_cycle_state(self) -> None:
+        if self.data:
+            self.state = self._cycle(self.state, [*self.data["states"], "none"])
+
+    def action_search(self) -> None:
+        search = self.query_one("#search", Input)
+        search.add_class("-open")
+        search.focus()
+
+    @on(Input.Changed, "#search")
+    def search_typed(self, event: Input.Changed) -> None:
+        self.search_text = event.value
+
+    @on(Input.Submitted, "#search")
+    def search_done(self) -> None:
+        self.query_one(DataTable).focus()
+
+    def key_escape(self) -> None:
+        search = self.query_one("#search", Input)
+        if search.has_focus:
+            search.value = ""
+            search.remove_class("-open")
+            self.query_one(DataTable).focus()
+
+    def action_clear_filters(self) -> None:
+        search = self.query_one("#search", Input)
+        search.value = ""
+        search.remove_class("-open")
+        self.failing_only, self.area, self.state, self.search_text = False, None, None, ""
+
+    def action_approve(self) -> None:
+        self._decide("approve")
+
+    def action_hold(self) -> None:
+        self._decide("hold")
+
+    def action_revoke(self) -> None:
+        self._decide("revoke")
+
+    def _decide(self, kind: str) -> None:
+        segment = self.current_segment()
+        if segment is None or self.data is None:
+            return
+        row = next(r for r in self.shown if r["segment"] == segment)
+        model = self.data["stats_source"] == "model_out_of_fold"
+        stats = {k: row[k] for k in ("median_ratio", "cod", "prd", "prb")}
+        self.reval.decide(kind, segment, gate_detail(stats, model) if kind == "approve" else "")
+
+    def action_refresh(self) -> None:
+        self.reload()

@@ -1,0 +1,133 @@
+"""One parcel: its value split into feature contributions that add up exactly, prior value, sales, flags."""
+from __future__ import annotations
+
+from typing import Any
+
+from textual import on
+from textual.app import ComposeResult
+from textual.containers import Horizontal, VerticalScroll
+from textual.widgets import DataTable, Header, Static
+
+from reval import app_service
+
+from .. import keys
+from ..format import CAUTION, money, number, percent, signed_money
+from ..jobs import Loaded, StatusBar
+from .base import DataScreen, footer
+
+
+def feature_text(f: dict[str, Any]) -> str:
+    if f["value"] is None:
+        return "missing"
+    return f["label"] if f["label"] is not None else f"{f['value']:.6g}"
+
+
+class ParcelScreen(DataScreen):
+    """Find a parcel by id and show why it has its value."""
+
+    CSS_PATH = "parcel.tcss"
+    BINDINGS = keys.bindings("parcel")
+
+    def __init__(self, parcel_id: str) -> None:
+        super().__init__()
+        self.parcel_id = parcel_id
+        self.data: dict[str, Any] | None = None
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        yield Static(f"Parcel {self.parcel_id}: reading…", id="parcel-title", markup=False)
+        with VerticalScroll(id="parcel-body"):
+            with Horizontal(id="parcel-top"):
+                yield DataTable(id="parcel-value", cursor_type="none", show_cursor=False)
+                yield DataTable(id="parcel-features", cursor_type="none", show_cursor=False)
+            yield Static("Contributions", classes="section")
+            yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
+            yield Static("", id="parcel-parts-note", markup=False)
+            yield Static("Sales", classes="section")
+            yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
+            yield Static("Flags", classes="section")
+            yield Static("", id="parcel-flags", markup=False)
+        yield Static(CAUTION, id="caution")
+        yield StatusBar()
+        yield footer()
+
+    def on_mount(self) -> None:
+        self.query_one("#parcel-body").focus()
+        self.reload()
+
+    def reload(self) -> None:
+        self.fetch("parcel", app_service.parcel_detail, self.reval.folder, self.parcel_id)
+
+    def on_load_failed(self, message: Any) -> None:
+        self.query_one("#parcel-title", Static).update(f"✗ {message.error}")
+        super().on_load_failed(message)
+
+    @on(Loaded)
+    def show_parcel(self, message: Loaded) -> None:
+        d = self.data = message.data
+        self.query_one("#parcel-title", Static).update(
+            f"Parcel {d['parcel_id']} · segment {d['segment']} · market area {d['market_area']} · "
+            f"{d['property_class']}")
+        self._value_panel(d)
+        features = self.query_one("#parcel-features", DataTable)
+        features.clear(columns=True)
+        features.add_columns("Feature", "Value")
+        for f in d["features"]:
+            features.add_row(f["name"], feature_text(f))
+        self._parts(d)
+        self._sales(d)
+        flags = d["flags"]
+        self.query_one("#parcel-flags", Static).update(
+            "\n".join(f"! {f}" for f in flags) if flags else "none")
+
+    def _value_panel(self, d: dict[str, Any]) -> None:
+        table = self.query_one("#parcel-value", DataTable)
+        table.clear(columns=True)
+        table.add_columns("Value", "Amount")
+        estimate = d["estimate"]
+        table.add_row("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)")
+        table.add_row("Prior value", money(d["prior_value"]))
+        table.add_row("Change", percent(d["value_change"]))
+        if estimate:
+            table.add_row("Model", f"{estimate['kind']}, run {d['run_id']}")
+        for r in d["roll"][:1]:
+            table.add_row(f"Roll: batch {r['batch_id']}", r["state"])
+            for name in ("market", "land", "improvement", "assessed"):
+                table.add_row(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"]))
+
+    def _parts(self, d: dict[str, Any]) -> None:
+        table = self.query_one("#parcel-parts", DataTable)
+        table.clear(columns=True)
+        note = self.query_one("#parcel-parts-note", Static)
+        split = d["split"]
+        if split is None:
+            note.update("No contributions yet: they come with a model run (press f to fit).")
+            return
+        table.add_columns("Part", "Log value", "Value", "% of value")
+        table.add_row("base (the segment's average parcel)", number(split["base_log"], ".4f"),
+                      money(split["base"]), "")
+        for p in split["parts"]:
+            table.add_row(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
+                          percent(p["currency"] / split["value"]))
+        total = split["base"] + sum(p["currency"] for p in split["parts"])
+        table.add_row("= value", number(d["estimate"]["log_value"], ".4f"), money(total), "")
+        note.update(f"The parts add up to the value exactly ({money(total)}). The log parts add up to the "
+                    "log value; the value beyond the base is shared in proportion to them.")
+
+    def _sales(self, d: dict[str, Any]) -> None:
+        table = self.query_one("#parcel-sales", DataTable)
+        table.clear(columns=True)
+        table.add_columns("Sale", "Date", "Price", "Adjusted", "Qualified", "Ratio (out-of-fold)")
+        for s in d["sales"]:
+            table.add_row(s["sale_id"], s["sale_date"], money(s["sale_price"]), money(s["adjusted_price"]),
+                          "yes" if s["qualified"] else f"no: {s['reason'] or 'not checked yet'}",
+                          number(s["oof_ratio"], ".3f"))
+        if not d["sales"]:
+            table.add_row("no recorded sale", "", "", "", "", "")
+
+    def action_back(self) -> None:
+        self.dismiss()
+
+    def action_open_segment(self) -> None:
+        if self.data is not None:
+            self.reval.open_segment(self.data["segment"])

@@ -1,0 +1,76 @@
+"""Modal prompts: one line of text (a note, a reason, a parcel id) and the export form."""
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Checkbox, Input, Label, Static
+
+
+class PromptScreen(ModalScreen[str | None]):
+    """Ask for one line; Enter returns it (refused when empty and required), Esc returns None."""
+
+    CSS_PATH = "prompt.tcss"
+    BINDINGS = [Binding("escape", "cancel", "Cancel", id="prompt.cancel")]
+
+    def __init__(self, title: str, placeholder: str, *, required: bool = False, detail: str = "",
+                 value: str = "") -> None:
+        super().__init__()
+        self.title_text, self.placeholder, self.required = title, placeholder, required
+        self.detail, self.value = detail, value
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="dialog"):
+            yield Label(self.title_text, id="prompt-title")
+            if self.detail:
+                yield Static(self.detail, id="prompt-detail", markup=False)
+            yield Input(self.value, placeholder=self.placeholder, id="prompt-input")
+            yield Static("Enter to confirm · Esc to cancel" + (" · required" if self.required else ""),
+                         id="prompt-hint")
+
+    @on(Input.Submitted, "#prompt-input")
+    def submitted(self, event: Input.Submitted) -> None:
+        text = event.value.strip()
+        if self.required and not text:
+            self.query_one("#prompt-hint", Static).update(f"✗ A {self.placeholder} is required (Esc to cancel).")
+            return
+        self.dismiss(text)
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+class ExportScreen(ModalScreen[tuple[Path, bool] | None]):
+    """Ask where to write the value roll and whether a partial roll (approved segments only) is meant."""
+
+    CSS_PATH = "prompt.tcss"
+    BINDINGS = [Binding("escape", "cancel", "Cancel", id="export.cancel")]
+
+    def __init__(self, default_path: Path) -> None:
+        super().__init__()
+        self.default_path = default_path
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="dialog"):
+            yield Label("Export the value roll", id="prompt-title")
+            yield Static("Only approved segments are written. A full export needs every segment approved; "
+                         "a partial one says so in its manifest.", id="prompt-detail")
+            yield Input(str(self.default_path), placeholder="file path (.csv)", id="prompt-input")
+            yield Checkbox("Partial export (only the approved segments)", id="partial")
+            yield Static("Enter to export · Tab to the checkbox, Space to tick it · Esc to cancel",
+                         id="prompt-hint")
+
+    @on(Input.Submitted, "#prompt-input")
+    def submitted(self, event: Input.Submitted) -> None:
+        text = event.value.strip()
+        if not text:
+            self.query_one("#prompt-hint", Static).update("✗ A file path is required (Esc to cancel).")
+            return
+        self.dismiss((Path(text).expanduser(), self.query_one(Checkbox).value))
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)

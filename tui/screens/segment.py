@@ -1,0 +1,333 @@
+"""One segment in depth: curves, interactions and effects, equity, value change, sales, reference models."""
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from textual import on
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
+
+from reval import app_service
+
+from .. import keys
+from ..format import STAT_NAMES, ci_text, gate_detail, money, number, percent, short_money, signed_money, stat_cell
+from ..jobs import Loaded, StatusBar
+from ..plot import Bars, BarsData, Chart, ChartData, Layer, LevelBar, LevelBars, percent_axis
+from .base import DataScreen, footer
+
+TABS = ("curves", "effects", "equity", "change", "sales", "reference")
+NO_RUN = "No model run yet — press f to fit."
+SALES_PAGE = 50
+
+
+def axis_number(v: float) -> str:
+    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
+
+
+def model_line(d: dict[str, Any]) -> str:
+    m = d["model"]
+    if m is None:
+        return "Model: none yet (press f to fit)"
+    kinds = {"own": "its own deviation from its parent", "pooled": "pooled toward its parent",
+             "parent_only": "its parent's model"}
+    text = f"Model: {kinds.get(m['kind'], m['kind'])}"
+    if m["borrowed_share"] is not None and m["kind"] != "parent_only":
+        text += f", {m['borrowed_share']:.0%} borrowed from the parent"
+    if m["reason"]:
+        text += f" ({m['reason']})"
+    return text
+
+
+def curve_chart(c: dict[str, Any]) -> ChartData:
+    x = c["x"]
+    layers = (Layer("band", x, c["lo"], c["hi"], style="band", label="95% band"),
+              Layer("line", x, c["parent_effect"], style="parent", label="market area"),
+              Layer("line", x, c["effect"], style="line", label="segment"),
+              Layer("hline", y=(0.0,), style="reference"))
+    return ChartData(layers, x_format=axis_number, y_format=percent_axis, strip=tuple(c["data_bins"]),
+                     strip_label="data")
+
+
+def level_bars(c: dict[str, Any]) -> list[LevelBar]:
+    pct = lambda v: None if v is None else 100 * math.expm1(v)  # noqa: E731
+    labels = c["levels"] or [axis_number(v) for v in c["x"]]
+    counts = c["data_bins"]
+    out = []
+    for x, e, lo, hi, p in zip(c["x"], c["effect"], c["lo"], c["hi"], c["parent_effect"]):
+        i = int(x)
+        name = labels[i] if i < len(labels) else axis_number(x)
+        n = counts[i] if i < len(counts) else 0
+        out.append(LevelBar(f"{name} (n={n:,})", pct(e) or 0.0, pct(lo), pct(hi), pct(p)))
+    return out
+
+
+class SegmentScreen(DataScreen):
+    """The drill-in of one segment, one tab per question an assessor asks of its model."""
+
+    CSS_PATH = "segment.tcss"
+    BINDINGS = keys.bindings("segment")
+
+    def __init__(self, segment: str) -> None:
+        super().__init__()
+        self.segment = segment
+        self.data: dict[str, Any] | None = None
+        self.curve_index = 0
+        self.sales_page = 0
+        self.sales: dict[str, Any] | None = None
+
+    def compose(self) -> ComposeResult:
+        yield Header()
+        yield Static(f"Segment {self.segment}: reading…", id="segment-title", markup=False)
+        yield Static("", id="segment-model", markup=False)
+        with TabbedContent(id="tabs"):
+            with TabPane("1 Curves", id="curves"):
+                yield Static("", id="curve-title", markup=False)
+                yield Chart(id="curve-chart")
+                yield LevelBars(id="curve-levels")
+            with TabPane("2 Effects", id="effects"):
+                with VerticalScroll():
+                    yield Static("Selected interactions", classes="section")
+                    yield DataTable(id="interactions", cursor_type="row")
+                    yield Static("", id="interaction-readings", markup=False)
+                    yield Static("Marginal effects at the segment's typical parcel", classes="section")
+                    yield DataTable(id="marginal", cursor_type="row")
+            with TabPane("3 Equity", id="equity"):
+                with VerticalScroll():
+                    yield Static("", id="equity-title", markup=False)
+                    yield DataTable(id="equity-table", cursor_type="row")
+                    with Horizontal(id="equity-plots"):
+                        with Vertical():
+                            yield Static("Ratio by sale price", classes="plot-title")
+                            yield Chart(id="ratio-scatter")
+                        with Vertical():
+                            yield Static("Median ratio by price decile", classes="plot-title")
+                            yield Chart(id="decile-chart")
+            with TabPane("4 Value change", id="change"):
+                yield Static("", id="change-summary", markup=False)
+                yield Bars(id="change-bars")
+            with TabPane("5 Sales", id="sales"):
+                yield Static("", id="sales-title", markup=False)
+                yield DataTable(id="sales-table", cursor_type="row", zebra_stripes=True)
+            with TabPane("6 Reference models", id="reference"):
+                yield Static("", id="reference-title", markup=False)
+                yield DataTable(id="reference-table", cursor_type="row")
+        yield StatusBar()
+        yield footer()
+
+    def on_mount(self) -> None:
+        self.reload()
+
+    def reload(self) -> None:
+        self.fetch("segment", app_service.segment_detail, self.reval.folder, self.segment)
+        self.fetch("sales", app_service.segment_sales, self.reval.folder, self.segment, self.sales_page,
+                   SALES_PAGE)
+
+    @on(Loaded)
+    def loaded(self, message: Loaded) -> None:
+        if message.tag == "segment":
+            self.data = message.data
+            self.show_segment(message.data)
+        elif message.tag == "sales":
+            self.sales = message.data
+            self.show_sales(message.data)
+
+    def on_load_failed(self, message: Any) -> None:
+        self.query_one("#segment-title", Static).update(f"✗ {message.error}")
+        super().on_load_failed(message)
+
+    def show_segment(self, d: dict[str, Any]) -> None:
+        state = f" · batch {d['state']}" if d.get("state") else ""
+        self.query_one("#segment-title", Static).update(
+            f"Segment {d['segment']} · market area {d['market_area']} · {d['parcels']:,} parcels · "
+            f"{d['sales']:,} qualified sales{state}")
+        self.query_one("#segment-model", Static).update(model_line(d))
+        self.show_curve()
+        self.show_effects(d)
+        self.show_equity(d)
+        self.show_change(d)
+        self.show_reference(d)
+
+    # ---- curves ------------------------------------------------------------------------------------------
+
+    def show_curve(self) -> None:
+        assert self.data is not None
+        curves = self.data["curves"]
+        title = self.query_one("#curve-title", Static)
+        chart, levels = self.query_one("#curve-chart", Chart), self.query_one("#curve-levels", LevelBars)
+        if not curves:
+            title.update(NO_RUN)
+            chart.display, levels.display = False, False
+            return
+        self.curve_index %= len(curves)
+        c = curves[self.curve_index]
+        continuous = c["kind"] == "continuous"
+        title.update(f"{c['feature']} ({self.curve_index + 1} of {len(curves)}, ] next, [ previous) · "
+                     f"effect on value, % · {c['kind']}")
+        chart.display, levels.display = continuous, not continuous
+        if continuous:
+            chart.show(curve_chart(c))
+        else:
+            levels.show(level_bars(c))
+
+    def action_page(self, step: int) -> None:
+        active = self.query_one(TabbedContent).active
+        if active == "curves" and self.data is not None:
+            self.curve_index += step
+            self.show_curve()
+        elif active == "sales" and self.sales is not None:
+            page = min(max(self.sales_page + step, 0), self.sales["pages"] - 1)
+            if page != self.sales_page:
+                self.sales_page = page
+                self.fetch("sales", app_service.segment_sales, self.reval.folder, self.segment, page, SALES_PAGE)
+
+    def action_tab(self, index: int) -> None:
+        self.query_one(TabbedContent).active = TABS[index]
+
+    @on(TabbedContent.TabActivated)
+    def tab_shown(self, event: TabbedContent.TabActivated) -> None:
+        """Put the keys on the tab's table, so arrows and Enter act on its rows."""
+        tables = event.pane.query(DataTable)
+        if tables:
+            tables.first().focus()
+
+    # ---- interactions and marginal effects ---------------------------------------------------------------
+
+    def show_effects(self, d: dict[str, Any]) -> None:
+        table = self.query_one("#interactions", DataTable)
+        table.clear(columns=True)
+        readings = self.query_one("#interaction-readings", Static)
+        if d["run_id"] is None:
+            readings.update(NO_RUN)
+        else:
+            table.add_columns("Term", "Coefficient", "SE", "p", "Both +1 SD")
+            for r in d["interactions"]:
+                table.add_row(r["term"], number(r["coef"], "+.4f"), number(r["se"], ".4f"),
+                              number(r["p_value"], ".3g"), percent(math.expm1(r["coef"])))
+            readings.update("\n".join(f"• {r['term']}: {r['reading']}" for r in d["interactions"])
+                            or "No interaction was selected for this segment: its features act additively.")
+        marginal = self.query_one("#marginal", DataTable)
+        marginal.clear(columns=True)
+        if d["marginal_effects"]:
+            marginal.add_columns("Feature", "Value per unit", "Elasticity")
+            for r in d["marginal_effects"]:
+                marginal.add_row(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f"))
+
+    # ---- equity ------------------------------------------------------------------------------------------
+
+    def show_equity(self, d: dict[str, Any]) -> None:
+        e = d["equity"]
+        confidence = f"{e['confidence']:.0%} " if e["confidence"] else ""
+        self.query_one("#equity-title", Static).update(
+            f"Ratios of {d['stats_short']}: {e['n']:,} sales, {e['n_trimmed']:,} trimmed (✂ on the sales tab)")
+        table = self.query_one("#equity-table", DataTable)
+        table.clear(columns=True)
+        table.add_columns("Statistic", "Value and verdict", f"{confidence}interval", "Standard")
+        for stat in ("median_ratio", "cod", "prd", "prb"):
+            cell = e["stats"][stat]
+            table.add_row(STAT_NAMES[stat], stat_cell(cell, stat), ci_text(cell, stat), cell["limit"] or "–")
+        scatter = self.query_one("#ratio-scatter", Chart)
+        if e["price"]:
+            logs = [math.log10(p) for p in e["price"]]
+            ratios = e["ratio"]
+            y_range = (max(0.3, min(ratios) - 0.05), min(2.5, max(ratios) + 0.05))
+            scatter.show(ChartData((Layer("hline", y=(1.0,), style="reference", label="ratio 1.0"),
+                                    Layer("points", logs, ratios, style="points", label="sale")),
+                                   y_range=y_range, x_format=lambda v: short_money(10 ** v),
+                                   y_format=lambda v: f"{v:.2f}"))
+        else:
+            scatter.show(None)
+        deciles = [v for v in e["decile_median_ratios"] if v is not None]
+        chart = self.query_one("#decile-chart", Chart)
+        if deciles:
+            xs = list(range(1, len(deciles) + 1))
+            chart.show(ChartData((Layer("hline", y=(1.0,), style="reference", label="1.0"),
+                                  Layer("line", xs, deciles, style="line", label="median"),
+                                  Layer("points", xs, deciles, style="alt")),
+                                 x_range=(0.5, len(deciles) + 0.5),
+                                 x_format=lambda v: "low prices" if v < 1 else "high prices" if v > 10 else "",
+                                 y_format=lambda v: f"{v:.2f}"))
+        else:
+            chart.show(None)
+
+    # ---- value change ------------------------------------------------------------------------------------
+
+    def show_change(self, d: dict[str, Any]) -> None:
+        summary, bars = self.query_one("#change-summary", Static), self.query_one("#change-bars", Bars)
+        v = d["value_change"]
+        if v is None or v["lo"] is None:
+            summary.update(NO_RUN if d["run_id"] is None else "No values to compare with prior values.")
+            bars.show(None)
+            return
+        gap = (v["median_sold"] - v["median_unsold"]) if None not in (v["median_sold"], v["median_unsold"]) else None
+        summary.update(
+            f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
+            f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
+            f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}. Sold parcels changing much more "
+            "than unsold ones would point to sales chasing.")
+        bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
+                           v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
+
+    # ---- sales -------------------------------------------------------------------------------------------
+
+    def show_sales(self, s: dict[str, Any]) -> None:
+        self.sales_page = s["page"]
+        self.query_one("#sales-title", Static).update(
+            f"{s['total']:,} sales, ratios of {s['values']}, farthest from 1 first · page {s['page'] + 1}/"
+            f"{s['pages']} (] [) · ✂ trimmed · Enter: parcel")
+        table = self.query_one("#sales-table", DataTable)
+        table.clear(columns=True)
+        table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂")
+        for r in s["rows"]:
+            table.add_row(r["sale_id"], r["parcel_id"], r["sale_date"], money(r["sale_price"]),
+                          money(r["adjusted_price"]), money(r["value"]), number(r["ratio"], ".3f"),
+                          "✂" if r["trimmed"] else "", key=f"{r['sale_id']}/{r['parcel_id']}")
+
+    @on(DataTable.RowSelected, "#sales-table")
+    def sale_chosen(self) -> None:
+        self.action_open_sale_parcel()
+
+    def action_open_sale_parcel(self) -> None:
+        table = self.query_one("#sales-table", DataTable)
+        if self.sales and self.sales["rows"] and self.query_one(TabbedContent).active == "sales":
+            self.reval.open_parcel(self.sales["rows"][table.cursor_row]["parcel_id"])
+
+    # ---- reference models --------------------------------------------------------------------------------
+
+    def show_reference(self, d: dict[str, Any]) -> None:
+        title = self.query_one("#reference-title", Static)
+        table = self.query_one("#reference-table", DataTable)
+        table.clear(columns=True)
+        if not d["reference_accuracy"]:
+            title.update(NO_RUN if d["run_id"] is None else "No reference models were scored in this run.")
+            return
+        title.update("Out-of-fold accuracy on the same folds: what the interpretable model costs or gains. "
+                     "RMSE is of log value (lower is better).")
+        table.add_columns("Model", "Scope", "n", "RMSE log", "Median", "COD", "PRD", "PRB")
+        e, own = d["equity"]["stats"], d["oof_accuracy"] or {}
+        label = "this model" if d["equity"]["model_values"] else "prior values"
+        table.add_row(label, self.segment, f"{d['equity']['n']:,}", number(own.get("rmse_log"), ".3f"),
+                      number(e["median_ratio"]["value"], ".3f"),
+                      number(e["cod"]["value"], ".1f"), number(e["prd"]["value"], ".3f"),
+                      number(e["prb"]["value"], "+.3f"))
+        for r in d["reference_accuracy"]:
+            table.add_row(r["model"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
+                          number(r["median_ratio"], ".3f"), number(r["cod"], ".1f"), number(r["prd"], ".3f"),
+                          number(r["prb"], "+.3f"))
+
+    # ---- decisions ---------------------------------------------------------------------------------------
+
+    def action_back(self) -> None:
+        self.dismiss()
+
+    def action_approve(self) -> None:
+        e = self.data["equity"] if self.data else None
+        detail = gate_detail(e["stats"], e["model_values"]) if e else ""
+        self.reval.decide("approve", self.segment, detail)
+
+    def action_hold(self) -> None:
+        self.reval.decide("hold", self.segment)
+
+    def action_revoke(self) -> None:
+        self.reval.decide("revoke", self.segment)
