@@ -1,0 +1,508 @@
+"""The terminal app driven by real key presses (Textual's headless pilot) on a demo project.
+
+The database is then checked through reval's own functions (read-only) and the files on disk: the app
+must change exactly what the keys asked for. No sleeps: every test awaits the app's workers. Each test
+runs its scenario with asyncio.run (no async test plugin is needed).
+"""
+from __future__ import annotations
+
+import asyncio
+import json
+import math
+import shutil
+from pathlib import Path
+from typing import Any
+
+import duckdb
+import numpy as np
+import pytest
+from textual.pilot import Pilot
+from textual.widgets import DataTable, Static
+
+from reval import app_service, cli_roll, commands
+from reval.config import load_config
+from reval.store import open_store
+from reval.study import load_study
+from tui import keys
+from tui.app import RevalApp
+from tui.jobs import JobProgressed
+from tui.plot import braille
+from tui.screens.help import HelpScreen, keys_table
+from tui.screens.overview import OverviewScreen
+from tui.screens.parcel import ParcelScreen
+from tui.screens.segment import SegmentScreen
+
+SIZE = (100, 32)
+DEMO_PARCELS = 2000      # the demo generator's smallest municipality: a full fit takes seconds, not minutes
+PINNED_RUN = "run-demo"
+_BUILT: dict[str, Path] = {}
+
+
+def pin_run_id(database: Path, run_id: str) -> None:
+    """Give the demo's one run a fixed id everywhere it is stored, so screens (and snapshots) do not
+    show the fit's clock."""
+    con = duckdb.connect(str(database))
+    try:
+        (old,), = con.execute("SELECT run_id FROM runs").fetchall()
+        columns = con.execute("SELECT table_name, column_name FROM information_schema.columns "
+                              "WHERE column_name IN ('run_id', 'study_id') AND table_schema = 'main'").fetchall()
+        con.begin()
+        for table, column in columns:
+            con.execute(f'UPDATE "{table}" SET "{column}" = replace("{column}", ?, ?)', [old, run_id])
+        con.commit()
+    finally:
+        con.close()
+
+
+def fitted_demo_folder(factory: pytest.TempPathFactory) -> Path:
+    """The demo municipality built with every step (import, sales, fit, values staged), once per session."""
+    if "demo" not in _BUILT:
+        folder = factory.mktemp("tui-demo")
+        commands.build_demo(folder, DEMO_PARCELS)
+        pin_run_id(folder / "reval.duckdb", PINNED_RUN)
+        _BUILT["demo"] = folder
+    return _BUILT["demo"]
+
+
+@pytest.fixture(scope="session")
+def fitted_demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return fitted_demo_folder(tmp_path_factory)
+
+
+@pytest.fixture
+def demo_copy(fitted_demo: Path, tmp_path: Path) -> Path:
+    """A private copy for a test that writes."""
+    return Path(shutil.copytree(fitted_demo, tmp_path / "demo"))
+
+
+async def settle(pilot: Pilot[Any]) -> None:
+    """Wait until every worker has finished and the messages they posted are handled."""
+    app = pilot.app
+    for _ in range(20):
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        if not any(w.is_running for w in app.workers):
+            return
+    raise AssertionError("workers kept running")
+
+
+async def type_text(pilot: Pilot[Any], text: str) -> None:
+    await pilot.press(*("space" if ch == " " else ch for ch in text))
+
+
+def table_rows(table: DataTable[Any]) -> list[list[str]]:
+    return [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
+
+
+def oof_study(folder: Path) -> dict[str, Any]:
+    config = load_config(folder)
+    with open_store(config.database, read_only=True) as store:
+        return load_study(store, "model_out_of_fold", "segment", PINNED_RUN)
+
+
+def failing_and_passing(folder: Path) -> tuple[str, str]:
+    groups = oof_study(folder)["groups"]
+    fail = next(g["group"] for g in groups if any(v["status"] == "fail" for v in g["verdicts"].values()))
+    ok = next(g["group"] for g in groups if all(v["status"] == "pass" for v in g["verdicts"].values()))
+    return fail, ok
+
+
+def states(folder: Path) -> dict[str, dict[str, Any]]:
+    return {s["segment"]: s for s in cli_roll.batch_states(folder)["segments"]}
+
+
+async def go_to(pilot: Pilot[Any], segment: str) -> None:
+    """Find a segment with the incremental search, as a person would, and leave the cursor on it."""
+    await pilot.press("slash")
+    await type_text(pilot, segment)
+    await pilot.press("enter")
+    screen = pilot.app.screen
+    assert isinstance(screen, OverviewScreen) and screen.current_segment() == segment
+
+
+# ---- the overview ----------------------------------------------------------------------------------------------
+
+def test_overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) -> None:
+    asyncio.run(_overview_rows_and_marks_follow_the_stored_study(fitted_demo))
+
+
+async def _overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) -> None:
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        table = app.screen.query_one("#segments", DataTable)
+        rows = {r[0]: r for r in table_rows(table)}
+        # every segment of the roll, one row each (the core's own list)
+        assert sorted(rows) == sorted(s["segment"] for s in commands.segment_overview(fitted_demo))
+        header = str(app.screen.query_one("#stats-header", Static).render())
+        assert "out-of-fold" in header and PINNED_RUN in header
+        # the marks are the core's verdicts: ✗ exactly where a statistic fails, never colour alone
+        for g in oof_study(fitted_demo)["groups"]:
+            cells = dict(zip(("median_ratio", "cod", "prd", "prb"), rows[g["group"]][2:6]))
+            for stat, verdict in g["verdicts"].items():
+                assert cells[stat].endswith({"pass": "✓", "fail": "✗", "too_few_sales": "~"}[verdict["status"]])
+        states_now = states(fitted_demo)
+        assert all(rows[s][7] == (e["open"] or e["certified"])["state"] for s, e in states_now.items()
+                   if e["open"] or e["certified"])
+
+
+def test_keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
+    asyncio.run(_keys_move_sort_filter_and_search(fitted_demo))
+
+
+async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, OverviewScreen)
+        table = screen.query_one("#segments", DataTable)
+        n = table.row_count
+        await pilot.press("j", "j", "down")
+        assert table.cursor_row == 3
+        await pilot.press("k")
+        assert table.cursor_row == 2
+        await pilot.press("G")
+        assert table.cursor_row == n - 1
+        await pilot.press("g")
+        assert table.cursor_row == 0
+        # s steps the sort column: segment -> model -> median -> COD; r reverses it
+        await pilot.press("s", "s", "s")
+        assert screen.sort_key == "cod"
+        cod = {g["group"]: g["cod"] for g in oof_study(fitted_demo)["groups"]}
+        shown = [r[0] for r in table_rows(table) if r[0] in cod and cod[r[0]] is not None]
+        assert [cod[s] for s in shown] == sorted(cod[s] for s in shown)
+        await pilot.press("r")
+        shown = [r[0] for r in table_rows(table) if r[0] in cod and cod[r[0]] is not None]
+        assert [cod[s] for s in shown] == sorted((cod[s] for s in shown), reverse=True)
+        # F: failing segments only, as the core's verdicts say
+        failing = {g["group"] for g in oof_study(fitted_demo)["groups"]
+                   if any(v["status"] == "fail" for v in g["verdicts"].values())}
+        await pilot.press("F")
+        assert {r[0] for r in table_rows(table)} == failing
+        await pilot.press("F")
+        assert table.row_count == n
+        # m cycles market areas
+        await pilot.press("m")
+        area = screen.area
+        assert area is not None and all(r[-1] == area for r in table_rows(table))
+        await pilot.press("c")
+        # incremental search narrows as each letter is typed; Esc clears it
+        name = table_rows(table)[0][0]
+        await pilot.press("slash", name[0].lower())
+        assert all(name[0].lower() in r[0].lower() for r in table_rows(table))
+        await type_text(pilot, name[1:].lower())
+        assert [r[0] for r in table_rows(table)] == [name]
+        await pilot.press("escape")
+        assert table.row_count == n and screen.search_text == ""
+
+
+# ---- the drill-in --------------------------------------------------------------------------------------------
+
+def test_drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path) -> None:
+    asyncio.run(_drill_in_pages_through_the_curves_in_feature_order(fitted_demo))
+
+
+async def _drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path) -> None:
+    config = load_config(fitted_demo)
+    names = [f.name for f in config.features]
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        segment = app.screen.current_segment()
+        await pilot.press("enter")
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, SegmentScreen) and screen.segment == segment
+        title = screen.query_one("#curve-title", Static)
+        assert str(title.render()).startswith(f"{names[0]} (1 of {len(names)}")
+        await pilot.press("right_square_bracket")
+        assert str(title.render()).startswith(f"{names[1]} (2 of")
+        await pilot.press("n")
+        assert str(title.render()).startswith(f"{names[2]} (3 of")
+        await pilot.press("left_square_bracket", "p", "p")
+        assert str(title.render()).startswith(f"{names[-1]} ({len(names)} of")
+        # the sales tab pages in SQL: page 2 lists different sales than page 1
+        await pilot.press("5")
+        await settle(pilot)
+        first = {r[0] for r in table_rows(screen.query_one("#sales-table", DataTable))}
+        await pilot.press("right_square_bracket")
+        await settle(pilot)
+        if screen.sales and screen.sales["pages"] > 1:
+            assert first.isdisjoint({r[0] for r in table_rows(screen.query_one("#sales-table", DataTable))})
+        await pilot.press("escape")
+        assert isinstance(app.screen, OverviewScreen)
+
+
+# ---- decisions ---------------------------------------------------------------------------------------------------
+
+def test_hold_with_a_reason_is_stored_with_its_event(demo_copy: Path) -> None:
+    asyncio.run(_hold_with_a_reason_is_stored_with_its_event(demo_copy))
+
+
+async def _hold_with_a_reason_is_stored_with_its_event(demo_copy: Path) -> None:
+    _, segment = failing_and_passing(demo_copy)
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, segment)
+        await pilot.press("h")
+        await pilot.press("enter")                 # an empty reason is refused in the prompt itself
+        assert app.screen.__class__.__name__ == "PromptScreen"
+        await type_text(pilot, "recheck lot sizes")
+        await pilot.press("enter")
+        await settle(pilot)
+        row = next(r for r in table_rows(app.screen.query_one("#segments", DataTable)) if r[0] == segment)
+        assert row[7] == "held"
+    held = states(demo_copy)[segment]["open"]
+    assert held["state"] == "held" and held["note"] == "recheck lot sizes"
+    events = cli_roll.event_log(demo_copy, segment)["events"]
+    assert events[-1]["kind"] == "batch_held" and events[-1]["detail"]["note"] == "recheck lot sizes"
+
+
+def test_approval_gate_refuses_failing_statistics_without_a_note(demo_copy: Path) -> None:
+    asyncio.run(_approval_gate_refuses_failing_statistics_without_a_note(demo_copy))
+
+
+async def _approval_gate_refuses_failing_statistics_without_a_note(demo_copy: Path) -> None:
+    failing, passing = failing_and_passing(demo_copy)
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, passing)                # passes the standards: no note needed
+        await pilot.press("a", "enter")
+        await settle(pilot)
+        await pilot.press("c")
+        await go_to(pilot, failing)                # fails: refused, and the app says why
+        await pilot.press("a", "enter")
+        await settle(pilot)
+        severity, text = app.messages[-1]
+        assert severity == "error" and text.startswith(f"Cannot approve {failing}") and "standard" in text
+        assert states(demo_copy)[failing]["open"]["state"] == "staged"
+        await pilot.press("a")                     # with a note the core approves over the failure
+        await type_text(pilot, "thin segment accepted")
+        await pilot.press("enter")
+        await settle(pilot)
+    after = states(demo_copy)
+    assert after[passing]["certified"]["state"] == "approved"
+    assert after[failing]["certified"]["state"] == "approved"
+    approved = [e for e in cli_roll.event_log(demo_copy, failing)["events"] if e["kind"] == "batch_approved"]
+    assert approved[-1]["detail"]["override"] is True
+    assert approved[-1]["detail"]["note"] == "thin segment accepted"
+
+
+def test_revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> None:
+    asyncio.run(_revoke_then_partial_export_names_its_manifest(demo_copy))
+
+
+async def _revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> None:
+    _, passing = failing_and_passing(demo_copy)
+    parcels = {s["segment"]: s["n_parcels"] for s in commands.segment_overview(demo_copy)}
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, passing)
+        await pilot.press("a", "enter")
+        await settle(pilot)
+        await pilot.press("R")
+        await type_text(pilot, "wrong land schedule")
+        await pilot.press("enter")
+        await settle(pilot)
+        assert states(demo_copy)[passing]["certified"] is None
+        await pilot.press("x", "enter")            # a full export is refused: segments are unapproved
+        await settle(pilot)
+        assert app.messages[-1][0] == "error" and "Export refused" in app.messages[-1][1]
+        assert not (demo_copy / "value_roll.csv").exists()
+        await pilot.press("a", "enter")            # approve again, then export the approved part
+        await settle(pilot)
+        await pilot.press("x", "tab", "space", "shift+tab", "enter")
+        await settle(pilot)
+        severity, text = app.messages[-1]
+    roll, manifest = demo_copy / "value_roll.csv", demo_copy / "value_roll.manifest.json"
+    assert severity == "information" and str(manifest) in text
+    assert roll.exists() and manifest.exists()
+    saved = json.loads(manifest.read_text())
+    assert saved["partial"] is True and saved["rows"] == parcels[passing]
+    assert passing not in saved["not_approved"]
+    assert states(demo_copy)[passing]["certified"]["state"] == "exported"
+    revoked = [e for e in cli_roll.event_log(demo_copy, passing)["events"] if e["kind"] == "batch_revoked"]
+    assert revoked and revoked[0]["detail"]["note"] == "wrong land schedule"
+
+
+# ---- the parcel view ---------------------------------------------------------------------------------------------
+
+def test_parcel_view_parts_add_up_to_the_stored_value(fitted_demo: Path) -> None:
+    asyncio.run(_parcel_view_parts_add_up_to_the_stored_value(fitted_demo))
+
+
+async def _parcel_view_parts_add_up_to_the_stored_value(fitted_demo: Path) -> None:
+    con = duckdb.connect(str(fitted_demo / "reval.duckdb"), read_only=True)
+    try:
+        parcel_id, market_value, log_value = con.execute(
+            "SELECT parcel_id, market_value, log_value FROM parcel_estimates ORDER BY parcel_id LIMIT 1 OFFSET 7"
+        ).fetchone()
+    finally:
+        con.close()
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("o")
+        await type_text(pilot, parcel_id)
+        await pilot.press("enter")
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, ParcelScreen) and screen.data is not None
+        rows = table_rows(screen.query_one("#parcel-parts", DataTable))
+    amounts = [int(r[2].replace(",", "")) for r in rows[:-1]]
+    total = int(rows[-1][2].replace(",", ""))
+    assert sum(amounts) == total == round(market_value)
+    # the log parts shown (4 decimals) add up to the stored log value
+    assert math.isclose(sum(float(r[1]) for r in rows[:-1]), log_value, abs_tol=5e-4 * len(rows))
+
+
+def test_unknown_parcel_is_reported_not_fatal(fitted_demo: Path) -> None:
+    asyncio.run(_unknown_parcel_is_reported_not_fatal(fitted_demo))
+
+
+async def _unknown_parcel_is_reported_not_fatal(fitted_demo: Path) -> None:
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("o")
+        await type_text(pilot, "nosuchparcel")
+        await pilot.press("enter")
+        await settle(pilot)
+        assert app.messages[-1][0] == "error" and "No parcel with id 'nosuchparcel'" in app.messages[-1][1]
+        await pilot.press("escape", "question_mark")
+        assert isinstance(app.screen, HelpScreen)
+
+
+# ---- long work, errors, degraded data -------------------------------------------------------------------------
+
+def test_fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: Path) -> None:
+    asyncio.run(_fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy))
+
+
+async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: Path) -> None:
+    config = demo_copy / "reval.toml"
+    config.write_text(config.read_text().replace("[model]\n", "[model]\nfolds = 3\n"), encoding="utf-8")
+    progress: list[JobProgressed] = []
+    app = RevalApp(demo_copy)
+    hook = lambda m: progress.append(m) if isinstance(m, JobProgressed) else None  # noqa: E731
+    async with app.run_test(size=SIZE, message_hook=hook) as pilot:
+        await settle(pilot)
+        table = app.screen.query_one("#segments", DataTable)
+        await pilot.press("f")
+        assert app.job_running and app.status.running
+        await pilot.press("j")                     # the interface answers while the fit runs
+        assert table.cursor_row == 1
+        await settle(pilot)
+        assert not app.status.running
+        severity, text = app.messages[-1]
+    assert severity == "information" and text.startswith("Fit done: run ")
+    assert progress and all(0 < p.done <= p.total for p in progress)
+    con = duckdb.connect(str(demo_copy / "reval.duckdb"), read_only=True)
+    try:
+        assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 2
+    finally:
+        con.close()
+
+
+def test_a_project_without_a_run_says_so_and_never_crashes(small_project: Path) -> None:
+    asyncio.run(_a_project_without_a_run_says_so_and_never_crashes(small_project))
+
+
+async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path) -> None:
+    app = RevalApp(small_project)
+    async with app.run_test(size=SIZE) as pilot:     # not imported yet: no database
+        await settle(pilot)
+        assert app.messages and app.messages[-1][0] == "error" and "reval import" in app.messages[-1][1]
+    commands.import_project(small_project)
+    app = RevalApp(small_project)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        header = str(app.screen.query_one("#stats-header", Static).render())
+        assert "no model run yet — press f to fit" in header
+        await pilot.press("enter")
+        await settle(pilot)
+        assert str(app.screen.query_one("#curve-title", Static).render()) == "No model run yet — press f to fit."
+        await pilot.press("escape", "a", "enter")   # nothing staged: the core refuses, the app reports it
+        await settle(pilot)
+        assert app.messages[-1][0] == "error" and "no staged batch" in app.messages[-1][1]
+        assert isinstance(app.screen, OverviewScreen)
+
+
+# ---- keys, help ----------------------------------------------------------------------------------------------
+
+def test_every_binding_comes_from_the_registry_with_an_id() -> None:
+    registry_ids = {k.id for k in keys.REGISTRY}
+    assert len(registry_ids) == len(keys.REGISTRY)
+    for owner in (RevalApp, OverviewScreen, SegmentScreen, ParcelScreen, HelpScreen):
+        for binding in owner.BINDINGS:
+            assert binding.id in registry_ids, (owner.__name__, binding)
+
+
+def test_help_lists_every_key_and_the_caution(fitted_demo: Path) -> None:
+    asyncio.run(_help_lists_every_key_and_the_caution(fitted_demo))
+
+
+async def _help_lists_every_key_and_the_caution(fitted_demo: Path) -> None:
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("question_mark")
+        assert isinstance(app.screen, HelpScreen)
+        table = keys_table()
+        described = [str(c) for c in table.columns[2]._cells]
+        assert described == [k.description for k in keys.REGISTRY]
+        caution = str(app.screen.query_one("#help-caution", Static).render())
+        assert caution.startswith("Values are estimates for review by a qualified assessor")
+        await pilot.press("escape")
+        assert isinstance(app.screen, OverviewScreen)
+
+
+# ---- the service functions behind the parcel view ---------------------------------------------------------------
+
+def test_apportion_is_hamiltons_largest_remainder_method() -> None:
+    # Hand-worked example of Hamilton's (largest-remainder) apportionment: quotas 3.6, 2.3, 4.1 of 10 seats
+    # get floors 3, 2, 4 (9 seats) and the one seat left goes to the largest remainder (0.6).
+    assert app_service.apportion(np.array([3.6, 2.3, 4.1]), 10).tolist() == [4, 2, 4]
+    # negative parts (a feature that lowers the value) the same way: floors -2, 3, 0 and the two units left
+    # go to the largest remainders 0.8 and 0.7
+    assert app_service.apportion(np.array([-1.5, 3.7, 0.8]), 3).tolist() == [-2, 4, 1]
+
+
+def test_value_split_is_exact_and_splits_in_proportion_to_log_parts() -> None:
+    # Worked example: base 100 and two equal log parts of ln(2)/2 make 200; each part gets half of 100.
+    half = math.log(2) / 2
+    split = app_service.value_split(math.log(100), {"a": half, "b": half})
+    assert split["value"] == 200 and split["base"] == 100
+    assert [p["currency"] for p in split["parts"]] == [50, 50]
+    # Log-mean Divisia split (Ang 2004, "Decomposition analysis for policymaking in energy", Energy Policy
+    # 32:1131-1139): part_i = c_i * L(V, B) with L the logarithmic mean; it leaves no residual.
+    rng = np.random.default_rng(7)
+    for _ in range(200):
+        logs = dict(zip("abcdefg", rng.normal(0, 0.3, 7)))
+        base = rng.uniform(9, 14)
+        split = app_service.value_split(base, logs)
+        parts = [p["currency"] for p in split["parts"]]
+        assert split["base"] + sum(parts) == split["value"] == round(math.exp(base + sum(logs.values())))
+        exact = np.array([p["exact"] for p in split["parts"]])
+        assert np.all(np.sign(exact) == np.sign(list(logs.values())))
+        assert math.isclose(math.exp(base) + exact.sum(), math.exp(base + sum(logs.values())), rel_tol=1e-12)
+    # parts that cancel: the value equals the base and the split stays finite
+    split = app_service.value_split(math.log(5000), {"a": 0.25, "b": -0.25})
+    assert split["value"] == 5000 and [p["currency"] for p in split["parts"]] == [1250, -1250]
+
+
+def test_braille_cells_follow_the_unicode_dot_numbering() -> None:
+    # Unicode Standard, Braille Patterns block (U+2800-U+28FF): dot n sets bit n-1; dots 1-3 run down the
+    # left column, 4-6 down the right, 7 and 8 are the bottom row (left, right).
+    mask = np.zeros((4, 2), dtype=bool)
+    expected = {(0, 0): 0x01, (1, 0): 0x02, (2, 0): 0x04, (0, 1): 0x08, (1, 1): 0x10, (2, 1): 0x20,
+                (3, 0): 0x40, (3, 1): 0x80}
+    for (r, c), bit in expected.items():
+        mask[:] = False
+        mask[r, c] = True
+        assert int(braille(mask)[0, 0]) == bit
+    assert chr(0x2800 + int(braille(np.ones((4, 2), dtype=bool))[0, 0])) == "⣿"
