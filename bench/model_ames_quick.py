@@ -60,8 +60,10 @@ def main() -> None:
         fitted = fit_hierarchy(X, y, segment, market_area, features, settings)
         fit_seconds = time.perf_counter() - start
         print(f"seed {seed}: one fit {fit_seconds:.1f} s, jurisdiction interactions {fitted.jurisdiction.pairs}")
-        for label, variant, offset_folds in [("in-sample offsets", settings, 0), ("cross-fitted offsets", settings, 5),
-                                             ("no interactions", dataclasses.replace(settings, interaction_rule="none"), 0)]:
+        plain = dataclasses.replace(settings, interaction_rule="none")
+        variants = [("in-sample offsets", settings, 0), ("cross-fitted offsets", settings, 5),
+                    ("no interactions", plain, 0)]
+        for label, variant, offset_folds in variants:
             start, cpu = time.perf_counter(), time.process_time()
             pred = out_of_fold(X, y, segment, market_area, features, variant, offset_folds=offset_folds)
             seconds, cpu = time.perf_counter() - start, time.process_time() - cpu

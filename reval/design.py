@@ -113,11 +113,9 @@ class DesignSpec:
     ) -> DesignSpec:
         """Learn imputation, transforms, ranges, standardisation and constraints from training rows X.
 
-        Missing values are imputed with the training median (continuous; the lower median for ordinal,
-        so it is a level) or the most frequent value (categorical, binary). A log feature uses
-        log(max(x, f)) where f is the
-        smallest positive training value, so zeros (e.g. no lot for a condominium) map to the
-        bottom of the observed range instead of minus infinity. `scale_from` (the parent's spec)
+        Missing values are imputed with `typical_value` of the training rows. A log feature uses
+        log(max(x, f)) where f is the smallest positive training value, so zeros (e.g. no lot for a
+        condominium) map to the bottom of the observed range instead of minus infinity. `scale_from` (the parent's spec)
         supplies the log floor and the standardisation, so a deviation's products and curves are on
         the parent's scale and interaction coefficients add up along the hierarchy.
         """
@@ -221,19 +219,24 @@ class DesignSpec:
         return np.arange(t.n_levels, dtype=float)
 
 
+def typical_value(x: np.ndarray, kind: str) -> float:
+    """The value a typical parcel has: median (continuous), lower median (ordinal, so it is a level),
+    or most frequent value (categorical, binary); missing values are ignored (0 if all are missing)."""
+    seen = x[~np.isnan(x)]
+    if seen.size == 0:
+        return 0.0
+    if kind == "continuous":
+        return float(np.median(seen))
+    if kind == "ordinal":
+        return float(np.quantile(seen, 0.5, method="lower"))
+    vals, counts = np.unique(seen, return_counts=True)
+    return float(vals[np.argmax(counts)])
+
+
 def _learn_one(x: np.ndarray, f: Feature, n_basis: int, like: FeatureTransform | None) -> FeatureTransform:
     if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
         raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
-    seen = x[~np.isnan(x)]
-    if seen.size == 0:
-        seen = np.zeros(1)
-    if f.kind == "continuous":
-        impute = float(np.median(seen))
-    elif f.kind == "ordinal":
-        impute = float(np.quantile(seen, 0.5, method="lower"))  # the lower median is always a level
-    else:
-        vals, counts = np.unique(seen, return_counts=True)
-        impute = float(vals[np.argmax(counts)])
+    impute = typical_value(x, f.kind)
     filled = np.where(np.isnan(x), impute, x)
     positive = filled[filled > 0]
     log = bool(f.log) and f.kind == "continuous"

@@ -43,7 +43,7 @@ from joblib import Parallel, delayed
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
-from .design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis
+from .design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis, typical_value
 from .interactions import candidate_pairs, select_interactions
 from .model_settings import ModelSettings
 from .penalised import PenalisedLS, stack
@@ -164,7 +164,7 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
     """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped."""
     n = len(y)
     if n < settings.min_sales_own_deviation:
-        reason = NO_SALES if n == 0 else f"only {n} qualified sales (< {settings.min_sales_own_deviation})"
+        reason = NO_SALES if n == 0 else f"only {n} qualified sale(s) (< {settings.min_sales_own_deviation})"
         return SegmentFit(name, market_area, n, "parent_only", reason, None)
     spec = DesignSpec.learn(X, features, settings.n_basis_segment, deviation=True, scale_from=parent)
     own = n >= settings.min_sales_own_selection and settings.interaction_rule != "none"
@@ -177,7 +177,9 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
         reason = f"{n} sales >= {settings.min_sales_own_selection}: own interactions"
     else:
         pairs = inherited
-        reason = f"{n} sales: interactions inherited from the market area"
+        sales = f"{n} sale{'s' if n != 1 else ''}"
+        reason = (f"{sales}: interaction rule 'none'" if settings.interaction_rule == "none"
+                  else f"{sales} < {settings.min_sales_own_selection}: interactions inherited")
     level, _ = LevelFit.fit(spec, pairs, X, y, offset)
     return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
 
@@ -382,7 +384,9 @@ class FittedHierarchy:
     def curves(self, segment: str, feature: str, n_points: int = 50) -> pd.DataFrame:
         """The segment's curve for one feature with a 95% Bayesian band, beside its market area's curve."""
         chain, fit = self._segment_chain(segment)
-        x = chain[-1].spec.grid(feature, n_points)
+        j = self.spec.index(feature)
+        varying = [level for level in chain if not level.spec.transforms[j].constant]
+        x = (varying or chain)[-1].spec.grid(feature, n_points)  # the segment's own range unless it is one value
         parts = [level.curve(feature, x) for level in chain]
         effect = np.sum([p[0] for p in parts], axis=0)
         se = np.sqrt(np.sum([p[1] for p in parts], axis=0))
@@ -413,8 +417,8 @@ class FittedHierarchy:
         fit = self.segments.get(segment)
         if fit is None:
             raise ValueError(f"unknown segment {segment!r}")
-        typical = DesignSpec.learn(np.asarray(X_segment, dtype=float), self.features, 5)
-        base = np.array([t.impute for t in typical.transforms])
+        X_segment = np.asarray(X_segment, dtype=float)
+        base = np.array([typical_value(X_segment[:, j], f.kind) for j, f in enumerate(self.features)])
         rows, names, kinds, steps = [], [], [], []
         for j, t in enumerate(self.spec.transforms):
             if t.kind == "categorical":

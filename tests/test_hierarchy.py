@@ -67,7 +67,8 @@ def test_contributions_add_up_to_the_prediction_exactly() -> None:
 
 def test_a_segment_without_sales_takes_its_market_area_model() -> None:
     X, y, seg, ma = simulate({"s1a": 200, "s2a": 150, "s3b": 200}, seed=23)
-    model = fit_hierarchy(X, y, seg, ma, FEATURES, FAST, segments={"s1a": "MA", "s2a": "MA", "s3b": "MB", "empty": "MA"})
+    roll = {"s1a": "MA", "s2a": "MA", "s3b": "MB", "empty": "MA"}
+    model = fit_hierarchy(X, y, seg, ma, FEATURES, FAST, segments=roll)
     summary = model.summary("empty")
     assert summary["kind"] == "parent_only" and summary["reason"] == "no qualified sales"
     assert summary["n_sales"] == 0 and summary["edf_deviation"] == 0.0
@@ -124,7 +125,8 @@ def test_marginal_effects_recover_a_known_elasticity() -> None:
     grade = np.sort(X[rows, 2])[(rows.sum() - 1) // 2]  # lower median of the ordinal codes
     typical = np.array([[np.median(X[rows, 0]), np.median(X[rows, 1]), grade, 0.0]])  # pool: most are 0
     value = np.exp(model.predict(typical, np.array(["s1a"]), np.array(["MA"])))[0]
-    assert effects.loc["area", "value_per_unit"] == pytest.approx(value * effects.loc["area", "elasticity"] / typical[0, 0], rel=1e-6)
+    per_sq_ft = value * effects.loc["area", "elasticity"] / typical[0, 0]
+    assert effects.loc["area", "value_per_unit"] == pytest.approx(per_sq_ft, rel=1e-6)
     assert effects.loc["pool", "value_per_unit"] == pytest.approx(value * (np.exp(0.1) - 1), rel=0.5)
     assert np.isnan(effects.loc["grade", "elasticity"])
 

@@ -80,7 +80,10 @@ def test_selection_is_deterministic_and_respects_the_cap_and_none() -> None:
     smoother = PenalisedLS().fit(spec.blocks(X), y)
     pairs = candidate_pairs(feats)
     prods = spec.products(X, pairs)
-    run = lambda rule, cap: select_interactions(smoother, y, prods, pairs, rule=rule, max_interactions=cap, seed=5)  # noqa: E731
+
+    def run(rule: str, cap: int) -> list[tuple[str, str]]:
+        return select_interactions(smoother, y, prods, pairs, rule=rule, max_interactions=cap, seed=5)
+
     assert run("lasso", 4) == run("lasso", 4)
     assert run("lasso", 1) == [("a", "b")]
     assert run("none", 4) == []

@@ -118,7 +118,8 @@ def test_residualise_matches_per_candidate_refits_and_is_faster() -> None:
             t_shared = min(t_shared, time.perf_counter() - start)
         start = time.perf_counter()
         refits = np.column_stack(
-            [Z[:, j] - PenalisedLS(lambdas=model.lambdas_).fit(blocks, Z[:, j]).predict(blocks) for j in range(Z.shape[1])]
+            [Z[:, j] - PenalisedLS(lambdas=model.lambdas_).fit(blocks, Z[:, j]).predict(blocks)
+             for j in range(Z.shape[1])]
         )
         t_refit = time.perf_counter() - start
     np.testing.assert_allclose(shared, refits, atol=1e-10)
@@ -142,7 +143,8 @@ def test_offset_is_subtracted_before_fitting() -> None:
 
 def design_data(n: int = 500, seed: int = 10) -> tuple[np.ndarray, list[SimpleNamespace]]:
     rng = np.random.default_rng(seed)
-    X = np.column_stack([rng.lognormal(7.0, 0.4, n), rng.integers(0, 4, n), rng.integers(0, 3, n), rng.integers(0, 2, n)])
+    X = np.column_stack([rng.lognormal(7.0, 0.4, n), rng.integers(0, 4, n), rng.integers(0, 3, n),
+                         rng.integers(0, 2, n)])
     X[:5, 0] = 0.0  # e.g. no lot: handled by the log floor
     X[5:20, 1] = np.nan
     feats = [feature("area", log=True), feature("grade", "ordinal", levels=("a", "b", "c", "d")),
