@@ -186,6 +186,8 @@ async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
         await pilot.press("m")
         area = screen.area
         assert area is not None and all(r[-1] == area for r in table_rows(table))
+        await pilot.press("c", "t")                 # t cycles batch states: every row shown is in that state
+        assert screen.state is not None and all(r[7] == screen.state for r in table_rows(table))
         await pilot.press("c")
         # incremental search narrows as each letter is typed; Esc clears it
         name = table_rows(table)[0][0]
@@ -385,7 +387,9 @@ def test_fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: Pat
 
 async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: Path) -> None:
     config = demo_copy / "reval.toml"
-    config.write_text(config.read_text().replace("[model]\n", "[model]\nfolds = 3\n"), encoding="utf-8")
+    text = config.read_text(encoding="utf-8")
+    assert "\n[model]\n" in text
+    config.write_text(text.replace("\n[model]\n", "\n[model]\nfolds = 3\n"), encoding="utf-8")  # a quicker fit
     progress: list[JobProgressed] = []
     app = RevalApp(demo_copy)
     hook = lambda m: progress.append(m) if isinstance(m, JobProgressed) else None  # noqa: E731

@@ -56,18 +56,6 @@ def test_segment_drill_in_curves(snap_compare: Any, fitted_demo: Path) -> None:
     assert snap_compare(RevalApp(fitted_demo), terminal_size=(100, 32), run_before=ready)
 
 
-def test_segment_drill_in_equity(snap_compare: Any, fitted_demo: Path) -> None:
-    async def ready(pilot: Pilot[Any]) -> None:
-        await settle(pilot)
-        await pilot.press("enter")
-        await settle(pilot)
-        await pilot.press("3")
-        screen = pilot.app.screen
-        assert isinstance(screen, SegmentScreen) and screen.query_one("#equity-table", DataTable).row_count == 4
-
-    assert snap_compare(RevalApp(fitted_demo), terminal_size=(100, 32), run_before=ready)
-
-
 def test_parcel_view(snap_compare: Any, fitted_demo: Path) -> None:
     parcel_id = first_parcel(fitted_demo)
 

@@ -63,6 +63,19 @@ def level_bars(c: dict[str, Any]) -> list[LevelBar]:
     return out
 
 
+def chasing_line(review: dict[str, Any] | None) -> str:
+    """The core's sales-chasing verdict for the staged values, in one line."""
+    if review is None:
+        return "Sales-chasing check: no staged values yet (press v after a fit)."
+    c = review["sales_chasing"]
+    verdicts = {"pass": "✓ no sign of sales chasing", "flagged": "✗ FLAGGED: possible sales chasing",
+                "too_few_sales": "~ too few sales to judge"}
+    p = "" if c["p_value"] is None else f", Mann-Whitney U p = {c['p_value']:.2g}"
+    return (f"Sales-chasing check (batch {review['batch_id']}, {review['state']}): "
+            f"{verdicts.get(c['status'], c['status'])}{p} ({c['rule']}); {review['n_beyond_threshold']:,} "
+            "parcels change beyond the review threshold.")
+
+
 class SegmentScreen(DataScreen):
     """The drill-in of one segment, one tab per question an assessor asks of its model."""
 
@@ -261,11 +274,11 @@ class SegmentScreen(DataScreen):
             bars.show(None)
             return
         gap = (v["median_sold"] - v["median_unsold"]) if None not in (v["median_sold"], v["median_unsold"]) else None
-        summary.update(
-            f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
-            f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
-            f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}. Sold parcels changing much more "
-            "than unsold ones would point to sales chasing.")
+        lines = [f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
+                 f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
+                 f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}."]
+        lines.append(chasing_line(d["review"]))
+        summary.update("\n".join(lines))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
                            v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
 
