@@ -7,9 +7,10 @@ limited in SQL; the overview is one row per segment.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Iterator, Sequence
+from typing import Any
 
 import duckdb
 import numpy as np
@@ -263,7 +264,9 @@ def _batches(store: Store, config: Config, segment: str) -> dict[str, Any]:
     entry = next((s for s in segment_states(store) if s["segment"] == segment), None)
     if entry is None or (entry["open"] is None and entry["certified"] is None):
         return {"state": None, "open_batch": None, "certified_batch": None, "review": None}
-    from .review import review  # loads scipy.stats: only the drill-in needs it, the overview starts faster
+    from .review import (
+        review,  # loads scipy.stats: only the drill-in needs it, the overview starts faster
+    )
 
     report = review(store, config, segment, limit=10)["segments"]
     return {"state": batch_state(entry), "open_batch": entry["open"], "certified_batch": entry["certified"],
@@ -294,7 +297,7 @@ def apportion(amounts: np.ndarray, total: int) -> np.ndarray:
     """Whole-unit parts of `total` near `amounts` that add up to it exactly (largest-remainder method)."""
     amounts = np.asarray(amounts, dtype=float)
     floors = np.floor(amounts)
-    short = int(round(total - floors.sum()))
+    short = round(total - floors.sum())
     order = np.argsort(-(amounts - floors), kind="stable")
     floors[order[:short]] += 1
     return floors.astype(np.int64)
@@ -314,8 +317,8 @@ def value_split(base_log: float, contributions: dict[str, float]) -> dict[str, A
     gap = log_value - base_log
     log_mean = base if abs(gap) < 1e-12 else (value - base) / gap
     exact = np.concatenate([[base], logs * log_mean])
-    rounded = apportion(exact, int(round(value)))
-    return {"value": int(round(value)), "base": int(rounded[0]),
+    rounded = apportion(exact, round(value))
+    return {"value": round(value), "base": int(rounded[0]),
             "parts": [{"term": t, "log": float(c), "currency": int(v), "exact": float(e)}
                       for t, c, v, e in zip(terms, logs, rounded[1:], exact[1:])]}
 

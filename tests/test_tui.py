@@ -224,16 +224,30 @@ async def _drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path)
         assert str(title.render()).startswith(f"{names[2]} (3 of")
         await pilot.press("left_square_bracket", "p", "p")
         assert str(title.render()).startswith(f"{names[-1]} ({len(names)} of")
-        # the sales tab pages in SQL: page 2 lists different sales than page 1
+        # the sales tab: its page counter follows the core's sales count, and ] stays within the pages
         await pilot.press("5")
         await settle(pilot)
-        first = {r[0] for r in table_rows(screen.query_one("#sales-table", DataTable))}
+        assert screen.sales is not None
+        pages = max(1, math.ceil(screen.sales["total"] / 50))
+        assert f"page 1/{pages}" in str(screen.query_one("#sales-title", Static).render())
         await pilot.press("right_square_bracket")
         await settle(pilot)
-        if screen.sales and screen.sales["pages"] > 1:
-            assert first.isdisjoint({r[0] for r in table_rows(screen.query_one("#sales-table", DataTable))})
+        assert screen.sales["page"] == min(1, pages - 1)
         await pilot.press("escape")
         assert isinstance(app.screen, OverviewScreen)
+
+
+def test_sales_are_paged_in_sql_largest_ratio_deviations_first(fitted_demo: Path) -> None:
+    segment = max(commands.segment_overview(fitted_demo), key=lambda s: s["n_sales"])["segment"]
+    ten = app_service.segment_sales(fitted_demo, segment, page=0, page_size=10)
+    first, second = (app_service.segment_sales(fitted_demo, segment, page=p, page_size=5) for p in (0, 1))
+    assert ten["total"] >= 10 and first["pages"] == math.ceil(ten["total"] / 5)
+    key = [(r["sale_id"], r["parcel_id"]) for r in ten["rows"]]
+    assert [(r["sale_id"], r["parcel_id"]) for r in first["rows"] + second["rows"]] == key
+    deviation = [abs(math.log(r["value"] / r["adjusted_price"])) for r in ten["rows"]]
+    assert deviation == sorted(deviation, reverse=True)
+    last = app_service.segment_sales(fitted_demo, segment, page=10_000, page_size=5)
+    assert last["page"] == last["pages"] - 1 and 0 < len(last["rows"]) <= 5
 
 
 # ---- decisions ---------------------------------------------------------------------------------------------------
@@ -392,7 +406,11 @@ async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: P
     config.write_text(text.replace("\n[model]\n", "\n[model]\nfolds = 3\n"), encoding="utf-8")  # a quicker fit
     progress: list[JobProgressed] = []
     app = RevalApp(demo_copy)
-    hook = lambda m: progress.append(m) if isinstance(m, JobProgressed) else None  # noqa: E731
+
+    def hook(message: object) -> None:
+        if isinstance(message, JobProgressed):
+            progress.append(message)
+
     async with app.run_test(size=SIZE, message_hook=hook) as pilot:
         await settle(pilot)
         table = app.screen.query_one("#segments", DataTable)

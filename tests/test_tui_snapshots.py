@@ -12,10 +12,10 @@ from typing import Any
 
 import duckdb
 import pytest
+from test_tui import fitted_demo_folder, settle, type_text
 from textual.pilot import Pilot
 from textual.widgets import DataTable
 
-from test_tui import fitted_demo_folder, settle, type_text
 from tui.app import RevalApp
 from tui.screens.help import HelpScreen
 from tui.screens.overview import OverviewScreen

@@ -2,9 +2,10 @@
 from __future__ import annotations
 
 import threading
+from collections.abc import Callable
 from functools import partial
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 from textual import work
 from textual.app import App
@@ -23,8 +24,15 @@ from .screens.overview import OverviewScreen
 from .screens.parcel import ParcelScreen
 from .screens.prompt import ExportScreen, PromptScreen
 from .screens.segment import SegmentScreen
-from .steps import (DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values,
-                    roll_service)
+from .steps import (
+    DECISIONS,
+    Describe,
+    describe_decision,
+    describe_export,
+    describe_fit,
+    describe_values,
+    roll_service,
+)
 
 
 def error_text(error: BaseException) -> str:
@@ -173,7 +181,8 @@ class RevalApp(App[None]):
                          answered)
 
     def action_fit(self) -> None:
-        from reval import commands  # the model libraries load only when a fit is asked for (fast start-up)
+        # the model libraries load only when a fit is asked for (fast start-up)
+        from reval import commands
 
         self.start_job("fit", "Fitting every segment", commands.fit_step, self.folder, jobs=1, progress=True,
                        describe=describe_fit)

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from textual.binding import Binding
+from textual.binding import Binding, BindingType
 
 SCOPES = {
     "app": "Everywhere",
@@ -100,9 +100,9 @@ REGISTRY: tuple[KeyAction, ...] = (
 BY_ID = {k.id: k for k in REGISTRY}
 
 
-def bindings(scope: str) -> list[Binding]:
+def bindings(scope: str) -> list[BindingType]:
     """The Textual bindings of one scope."""
-    out = []
+    out: list[BindingType] = []
     for k in REGISTRY:
         if k.scope != scope:
             continue

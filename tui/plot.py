@@ -7,8 +7,8 @@ and light themes. The shapes use position, not colour alone: lines, dots, bars a
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Callable, Sequence
 
 import numpy as np
 from rich.style import Style
@@ -182,19 +182,20 @@ class Chart(Widget):
     def _mask(self, layer: Layer, ph: int, pw: int, xr: tuple[float, float], yr: tuple[float, float]) -> np.ndarray:
         mask = np.zeros((ph, pw), dtype=bool)
         rows_axis = np.arange(ph)[:, None]
-        to_row = lambda v: (ph - 1) - scale(np.asarray(v, dtype=float), yr[0], yr[1], ph)  # noqa: E731
+
+        def to_row(values: Sequence[float] | np.ndarray) -> np.ndarray:
+            return (ph - 1) - scale(np.asarray(values, dtype=float), yr[0], yr[1], ph)
+
         if layer.kind == "hline":
             for yv in layer.y:
                 if yr[0] <= yv <= yr[1]:
-                    r = int(to_row(np.array([yv]))[0])
-                    mask[r, (np.arange(pw) // 2) % 2 == 0] = True
+                    mask[int(to_row([yv])[0]), (np.arange(pw) // 2) % 2 == 0] = True
             return mask
         x = np.asarray(layer.x, dtype=float)
         if layer.kind == "points":
             keep = np.isfinite(x) & np.isfinite(np.asarray(layer.y, dtype=float))
-            c = scale(x[keep], xr[0], xr[1], pw).astype(int)
-            r = to_row(np.asarray(layer.y, dtype=float)[keep]).astype(int)
-            mask[r, c] = True
+            cols = scale(x[keep], xr[0], xr[1], pw).astype(int)
+            mask[to_row(np.asarray(layer.y, dtype=float)[keep]).astype(int), cols] = True
             return mask
         centres = xr[0] + (np.arange(pw) + 0.5) / pw * (xr[1] - xr[0])
         inside = (centres >= np.nanmin(x)) & (centres <= np.nanmax(x)) if x.size else np.zeros(pw, bool)
@@ -355,20 +356,20 @@ class LevelBars(Widget):
         span_w = max(8, self.size.width - label_w - text_w - 2)
         ends = [v for b in self.bars for v in (b.value, b.lo, b.hi, b.parent, 0.0) if v is not None]
         lo, hi = min(ends), max(ends)
-        zero = int(round((0 - lo) / (hi - lo) * (span_w - 1))) if hi > lo else span_w // 2
+        zero = round((0 - lo) / (hi - lo) * (span_w - 1)) if hi > lo else span_w // 2
         out = Text(no_wrap=True, overflow="crop")
         out.append(" " * label_w + "━ segment  ", self.get_component_rich_style("chart--line"))
         out.append("│ market area", self.get_component_rich_style("chart--parent"))
         for b, numbers in zip(self.bars, texts):
             out.append("\n" + b.label.rjust(label_w - 1) + " ", axis)
-            pos = int(round((b.value - lo) / (hi - lo) * (span_w - 1))) if hi > lo else zero
+            pos = round((b.value - lo) / (hi - lo) * (span_w - 1)) if hi > lo else zero
             cells = [" "] * span_w
             for i in range(min(pos, zero), max(pos, zero) + 1):
                 cells[i] = "█"
             cells[zero] = "┃" if pos == zero else cells[zero]
             parent_at = None
             if b.parent is not None and hi > lo:
-                parent_at = int(round((b.parent - lo) / (hi - lo) * (span_w - 1)))
+                parent_at = round((b.parent - lo) / (hi - lo) * (span_w - 1))
             for i, ch in enumerate(cells):
                 style = "chart--parent" if i == parent_at else "chart--line"
                 out.append("│" if i == parent_at else ch, self.get_component_rich_style(style))

@@ -2,13 +2,14 @@
 the one line that reports its outcome."""
 from __future__ import annotations
 
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the function of the same name in reval.cli_roll
 DECISIONS: dict[str, tuple[str, str, bool]] = {
-    "approve": ("Approve the staged batch of {segment}", "note (optional; needed to approve over failing "
-                "statistics)", False),
+    "approve": ("Approve the staged batch of {segment}",
+                "note (optional; needed to approve over failing statistics)", False),
     "hold": ("Hold the staged batch of {segment}", "reason", True),
     "revoke": ("Revoke the approval of {segment} (before export)", "note saying why", True),
 }

@@ -1,7 +1,8 @@
 """What every data screen shares: reading through the app's workers and reloading after a change."""
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any, Callable, cast
+from collections.abc import Callable
+from typing import TYPE_CHECKING, Any, cast
 
 from textual.screen import Screen
 from textual.widgets import Footer
@@ -21,7 +22,7 @@ class DataScreen(Screen[None]):
     """A screen whose data comes from reval.app_service through the app's thread workers."""
 
     @property
-    def reval(self) -> "RevalApp":
+    def reval(self) -> RevalApp:
         return cast("RevalApp", self.app)
 
     def fetch(self, tag: str, fn: Callable[..., Any], *args: Any) -> None:

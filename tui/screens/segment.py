@@ -12,9 +12,28 @@ from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 from reval import app_service
 
 from .. import keys
-from ..format import STAT_NAMES, ci_text, gate_detail, money, number, percent, short_money, signed_money, stat_cell
+from ..format import (
+    STAT_NAMES,
+    ci_text,
+    gate_detail,
+    money,
+    number,
+    percent,
+    short_money,
+    signed_money,
+    stat_cell,
+)
 from ..jobs import Loaded, StatusBar
-from ..plot import Bars, BarsData, Chart, ChartData, Layer, LevelBar, LevelBars, percent_axis
+from ..plot import (
+    Bars,
+    BarsData,
+    Chart,
+    ChartData,
+    Layer,
+    LevelBar,
+    LevelBars,
+    percent_axis,
+)
 from .base import DataScreen, footer
 
 TABS = ("curves", "effects", "equity", "change", "sales", "reference")
@@ -51,7 +70,9 @@ def curve_chart(c: dict[str, Any]) -> ChartData:
 
 
 def level_bars(c: dict[str, Any]) -> list[LevelBar]:
-    pct = lambda v: None if v is None else 100 * math.expm1(v)  # noqa: E731
+    def pct(v: float | None) -> float | None:
+        return None if v is None else 100 * math.expm1(v)
+
     labels = c["levels"] or [axis_number(v) for v in c["x"]]
     counts = c["data_bins"]
     out = []
@@ -274,11 +295,10 @@ class SegmentScreen(DataScreen):
             bars.show(None)
             return
         gap = (v["median_sold"] - v["median_unsold"]) if None not in (v["median_sold"], v["median_unsold"]) else None
-        lines = [f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
-                 f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
-                 f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}."]
-        lines.append(chasing_line(d["review"]))
-        summary.update("\n".join(lines))
+        medians = (f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
+                   f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
+                   f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}.")
+        summary.update(medians + "\n" + chasing_line(d["review"]))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
                            v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
 
