@@ -430,6 +430,27 @@ async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: P
         con.close()
 
 
+def test_a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy: Path) -> None:
+    asyncio.run(_a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy))
+
+
+async def _a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy: Path) -> None:
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("f", "ctrl+k")
+        await settle(pilot)
+        while app.db_lock.locked():            # the fit's thread ends at its next progress report
+            await pilot.pause()
+        await pilot.pause()
+        assert app.messages[-1] == ("warning", "fit cancelled; the step was rolled back and nothing changed")
+    con = duckdb.connect(str(demo_copy / "reval.duckdb"), read_only=True)
+    try:
+        assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 1
+    finally:
+        con.close()
+
+
 def test_a_project_without_a_run_says_so_and_never_crashes(small_project: Path) -> None:
     asyncio.run(_a_project_without_a_run_says_so_and_never_crashes(small_project))
 

@@ -17,7 +17,7 @@ from reval import app_service
 from reval.errors import UserError
 
 from . import keys
-from .jobs import JobCancelled, JobFinished, JobProgressed, Loaded, LoadFailed, Status
+from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, Status
 from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
@@ -37,7 +37,7 @@ from .steps import (
 
 def error_text(error: BaseException) -> str:
     """A person-readable line for a failure: the core's own message, else the exception's type and text."""
-    if isinstance(error, (UserError, JobCancelled)):
+    if isinstance(error, UserError):
         return str(error)
     return f"{type(error).__name__}: {error}"
 
@@ -103,8 +103,12 @@ class RevalApp(App[None]):
                 raise JobCancelled(f"{kind} cancelled; the step was rolled back and nothing changed")
             self.post_message(JobProgressed(kind, step, done, total))
 
-        with self.db_lock:
-            result = fn(*args, progress=progress, **kwargs) if with_progress else fn(*args, **kwargs)
+        try:
+            with self.db_lock:
+                result = fn(*args, progress=progress, **kwargs) if with_progress else fn(*args, **kwargs)
+        except JobCancelled as stop:
+            self.post_message(JobStopped(kind, str(stop)))
+            return
         self.post_message(JobFinished(kind, describe(result), result))
 
     def on_job_progressed(self, message: JobProgressed) -> None:
@@ -116,6 +120,9 @@ class RevalApp(App[None]):
         for screen in self.screen_stack:
             if isinstance(screen, DataScreen):
                 screen.reload()
+
+    def on_job_stopped(self, message: JobStopped) -> None:
+        self.report(message.summary, "warning")
 
     def on_worker_state_changed(self, event: Worker.StateChanged) -> None:
         """The one place a worker's failure becomes a message in the app (never a traceback)."""

@@ -53,6 +53,14 @@ class JobFinished(Message):
     result: Any
 
 
+@dataclass
+class JobStopped(Message):
+    """A job stopped at a progress report because it was cancelled; its step was rolled back."""
+
+    kind: str
+    summary: str
+
+
 @dataclass(frozen=True)
 class Status:
     """What the status bar shows: the running job with its progress, or the last outcome."""
