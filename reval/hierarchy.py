@@ -34,7 +34,7 @@ needs exact per-parcel additive contributions. pygam exposes none of these.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Callable, Iterable, Mapping, Sequence
 
 import numpy as np
@@ -315,10 +315,6 @@ class FittedHierarchy:
     jurisdiction: LevelFit
     market_areas: dict[str, LevelFit]
     segments: dict[str, SegmentFit]
-    _kinds: dict[str, str] = field(init=False, repr=False)
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "_kinds", {f.name: f.kind for f in self.features})
 
     # ---------------------------------------------------------------- routing
     def _chain(self, segment: str, market_area: str) -> tuple[list[LevelFit], str]:
@@ -410,9 +406,10 @@ class FittedHierarchy:
     def marginal_effects(self, segment: str, X_segment: np.ndarray) -> pd.DataFrame:
         """Value per unit and elasticity of each non-categorical feature at the segment's typical parcel.
 
-        The typical parcel takes the median (continuous, ordinal) or the most frequent value
-        (binary) of `X_segment`. Continuous: central finite difference of the log value; ordinal:
-        one level up (down at the top level); binary: 1 versus 0.
+        The typical parcel takes `typical_value` of each column of `X_segment` (the rule used for
+        imputation). Continuous: central finite difference of the log value, value per unit =
+        value x d log value / dx, elasticity = d log value / d log x; ordinal: the value change
+        one level up (down at the top level); binary: value at 1 minus value at 0.
         """
         fit = self.segments.get(segment)
         if fit is None:
@@ -428,7 +425,7 @@ class FittedHierarchy:
                 h = 1e-4 * max(t.raw_hi - t.raw_lo, 1e-12)
                 lo_x[j], hi_x[j] = base[j] - h, base[j] + h
             elif t.kind == "ordinal":
-                level = float(np.rint(base[j]))
+                level = base[j]
                 lo_x[j], hi_x[j] = (level, level + 1) if level < t.n_levels - 1 else (level - 1, level)
             else:
                 lo_x[j], hi_x[j] = 0.0, 1.0
@@ -447,7 +444,8 @@ class FittedHierarchy:
         return pd.DataFrame({"feature": names, "value_per_unit": per_unit, "elasticity": elasticity})
 
     def summary(self, segment: str) -> dict[str, object]:
-        """How the segment was modelled: sales, kind, reason, deviation edf, borrowed share, interactions, penalties."""
+        """How the segment was modelled: sales, kind, reason, deviation edf and columns, the share borrowed
+        (1 - edf / columns), the pairs in its own deviation (own or inherited) and its penalties."""
         _, fit = self._segment_chain(segment)
         level = fit.level
         edf = level.edf if level is not None else 0.0

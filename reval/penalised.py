@@ -52,10 +52,10 @@ class PenalisedLS:
     """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV
     (with edf inflated by `gamma`) picks them."""
 
-    def __init__(self, *, lambdas: Sequence[float] | None = None, coordinate_passes: int = 1,
+    def __init__(self, *, lambdas: Sequence[float] | None = None, line_search_passes: int = 1,
                  gamma: float = 1.0) -> None:
         self.lambdas = lambdas
-        self.coordinate_passes = coordinate_passes
+        self.line_search_passes = line_search_passes
         self.gamma = gamma
 
     def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None) -> PenalisedLS:
@@ -72,7 +72,7 @@ class PenalisedLS:
         jitter = JITTER * max(float(np.trace(gram)) / p, 1e-12) * np.eye(p)
         problem = _Problem(gram, xty, float(target @ target), n, penalties, jitter, self.gamma)
         if self.lambdas is None:
-            lambdas = scale * 10.0 ** _search(problem, scale, self.coordinate_passes)
+            lambdas = scale * 10.0 ** _search(problem, scale, self.line_search_passes)
         else:
             lambdas = np.asarray(self.lambdas, dtype=float)
             if lambdas.shape != (len(penalties),):
