@@ -21,7 +21,9 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python -m pip install --quiet -e '.[bench]'
-	$(BIN)/python bench/import_speed.py
+	$(BIN)/python bench/pipeline_scale.py
+	$(BIN)/python bench/accuracy.py
+	$(BIN)/python bench/demo_scale.py
 
 clean:
 	rm -rf $(VENV) $(DEMO_DIR)

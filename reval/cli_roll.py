@@ -23,7 +23,6 @@ def _project(folder: Path, write: bool) -> Iterator[tuple[Config, Store]]:
     with open_store(config.database, read_only=not write) as store:
         if not write and store.version() < latest_version():
             raise UserError("The database needs upgrading first: run `reval value`.")
-        store.run("roll_quiet")
         yield config, store
 
 

@@ -80,8 +80,17 @@ _TAIL = """
 [assessment]
 # level = 1.0                      # assessment level: assessed value = market value x level
 # rounding = 100                   # round assessed values to this unit
-# land_schedule = "land_schedule.csv"
+# land_schedule = "land_schedule.csv"   # CSV: segment, base_<lot feature>, base_land_value, size_exponent;
+#                                  # land = base_land_value x (lot / base lot) ^ size_exponent
 # review_change_threshold = 0.25   # list parcels whose value changes by more than 25 %
+# A cap on the yearly increase for some property classes (repeat the table for more rules):
+# [[assessment.caps]]
+# property_classes = ["single_family"]
+# max_increase = 0.10              # assessed value at most prior value x 1.10
+#
+# reval review flags possible sales chasing where sold and unsold parcels' value changes differ:
+# Mann-Whitney U p < 0.01 and medians more than 0.05 apart (common practice; see the IAAO
+# Standard on Ratio Studies on sales chasing).
 """
 
 

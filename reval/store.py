@@ -49,6 +49,7 @@ class Store:
     def __init__(self, path: Path | str, read_only: bool = False) -> None:
         self.path = Path(path)
         self.con = duckdb.connect(str(self.path), read_only=read_only)
+        self.run("session_settings")
         if not read_only:
             self.upgrade()
 

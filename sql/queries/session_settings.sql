@@ -1,2 +1,3 @@
--- No terminal progress bar from DuckDB on long statements: it would mix into --json output and the app.
+-- Per-connection settings: no terminal progress bar from DuckDB on long statements (it would mix into
+-- --json output and the app).
 SET enable_progress_bar = false;
