@@ -17,6 +17,7 @@ demo: $(STAMP)
 	$(BIN)/reval demo $(DEMO_DIR)
 
 test: $(STAMP)
+	$(BIN)/ruff check .
 	$(BIN)/python -m pytest -q
 
 bench: $(STAMP)

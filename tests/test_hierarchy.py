@@ -7,7 +7,6 @@ import time
 from types import SimpleNamespace
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from reval.hierarchy import fit_hierarchy, fold_ids, out_of_fold
