@@ -99,9 +99,9 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "config_sha256": config.sha256}, run_id=run_id)
-    for source in ("model_out_of_fold", "model_in_sample"):
-        for by in ("segment", "market_area", "class", "all"):
-            run_study(store, config, source, by, run_id)  # type: ignore[arg-type]
+        for source in ("model_out_of_fold", "model_in_sample"):
+            for by in ("segment", "market_area", "class", "all"):
+                run_study(store, config, source, by, run_id)  # type: ignore[arg-type]
     overall = accuracy[accuracy["segment"] == "(all)"] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings,

@@ -49,6 +49,7 @@ class Store:
     def __init__(self, path: Path | str, read_only: bool = False) -> None:
         self.path = Path(path)
         self.con = duckdb.connect(str(self.path), read_only=read_only)
+        self._depth = 0
         self.run("session_settings")
         if not read_only:
             self.upgrade()
@@ -64,13 +65,24 @@ class Store:
 
     @contextmanager
     def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
-        """All or nothing: commit when the block ends normally, roll back on any exception."""
+        """All or nothing: commit when the outermost block ends normally, roll back on any exception.
+        A nested block joins the enclosing transaction, so a step can combine smaller writing steps."""
+        if self._depth:
+            self._depth += 1
+            try:
+                yield self.con
+            finally:
+                self._depth -= 1
+            return
         self.con.begin()
+        self._depth = 1
         try:
             yield self.con
         except BaseException:
             self.con.rollback()
             raise
+        finally:
+            self._depth = 0
         self.con.commit()
 
     def version(self) -> int:

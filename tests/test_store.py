@@ -30,3 +30,21 @@ def test_every_sql_file_parses() -> None:
     for path in files:
         statements = con.extract_statements(path.read_text())
         assert statements, path.name
+
+
+def test_a_nested_transaction_joins_the_outer_one(tmp_path: Path) -> None:
+    """A failure anywhere inside the outermost block rolls back the inner blocks' writes too."""
+    import pytest
+
+    with Store(tmp_path / "t.duckdb") as store:
+        store.con.execute("CREATE TABLE t (x INTEGER)")
+        with pytest.raises(RuntimeError):
+            with store.transaction() as con:
+                with store.transaction():
+                    con.execute("INSERT INTO t VALUES (1)")
+                raise RuntimeError("later step failed")
+        assert store.con.execute("SELECT count(*) FROM t").fetchone() == (0,)
+        with store.transaction() as con:
+            with store.transaction():
+                con.execute("INSERT INTO t VALUES (2)")
+        assert store.con.execute("SELECT count(*) FROM t").fetchone() == (1,)
