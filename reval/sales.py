@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from .config import Config
-from .dataset import qualified_sales
+from .dataset import SalesData, qualified_sales
 from .errors import UserError
 from .events import record_event
 from .store import Store
@@ -58,13 +58,13 @@ def prepare_sales(store: Store, config: Config, progress: Progress | None = None
         if progress:
             progress("qualifying sales", 2, 2)
         summary = SalesSummary(store.frame("sales_counts"))
-        record_event(con, "sales", {"qualified": summary.as_dict()["qualified"],
-                                    "excluded_by_reason": summary.as_dict()["excluded_by_reason"],
+        counts = summary.as_dict()
+        record_event(con, "sales", {"qualified": counts["qualified"], "excluded_by_reason": counts["excluded_by_reason"],
                                     "config_sha256": config.sha256})
     return summary
 
 
-def _time_adjust(store: Store, config: Config, data: Any) -> None:
+def _time_adjust(store: Store, config: Config, data: SalesData) -> None:
     frame = data.frame
     months = month_offsets(frame["sale_date"].to_numpy(dtype="datetime64[D]"), config.valuation_date)
     trends = estimate_trends(months, np.log(frame["sale_price"].to_numpy(dtype=float)), data.X, data.features,
