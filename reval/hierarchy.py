@@ -11,7 +11,8 @@ training rows). MODEL-NOTES point 3 warns that deviations fitted on a fixed offs
 too small; that was measured with a pooled model holding a neighbourhood factor, which soaks up
 each segment's level in-sample. Our parents carry no segment terms, so we measured the
 alternative, children fitted on 5-fold cross-fitted parent predictions (`offset_folds=5`),
-against in-sample offsets, with 10-fold out-of-fold predictions and default settings:
+against in-sample offsets, with 10-fold out-of-fold predictions and the defaults of the time (interactions
+then selected by a cross-validated Lasso):
   Ames (bench/model_ames_quick.py): COD 7.98 in-sample vs 7.99 cross-fitted (fold seed 7: 8.00
   vs 8.04).
   Vellmarsh demo: RMSE of predicted vs true log value over all 20,000 parcels 0.043 vs 0.065;
@@ -25,6 +26,13 @@ GCV uses gamma = 1.4 (n RSS / (n - 1.4 edf)^2; Kim & Gu 2004, JRSS B 66(2), as i
 `gamma`). Plain GCV undersmooths in small samples: on simulated segments with 12 sales it gave
 deviations of 4.7-11.9 edf (mean of three segments, three seeds), as many as segments with 300
 sales (4.4-6.2), the opposite of partial pooling; with 1.4 the thin ones got 1.5-2.2.
+
+Interactions: the jurisdiction tests its candidates at familywise level alpha, and the segments that select
+their own share one more alpha (reval/interactions.py). On the demo at the default cap of 4 this picks
+exactly the generator's three pairs and no segment adds one; the cross-validated Lasso used before added
+condition:garage_spaces and gave its largest neighbourhood three false pairs. bench/accuracy.py (10 folds,
+one thread, 2-core machine): Ames COD 8.13 in 7.9 s and demo 8.91 in 3.9 s, against 8.17 in 25.3 s and 8.89
+in 11.4 s with that Lasso and the slower GCV search (LightGBM: 7.90 in 2.2 s, 9.14 in 2.8 s).
 
 Why our own splines instead of pygam: the selection needs one factorisation of the penalised
 main-effect smoother shared by every interaction candidate (Robinson's double residual); the
@@ -160,8 +168,11 @@ def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lam
 
 def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offset: np.ndarray,
                  parent: DesignSpec, features: Sequence[Feature], candidates: Sequence[Pair],
-                 inherited: tuple[Pair, ...], settings: ModelSettings) -> SegmentFit:
-    """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped."""
+                 inherited: tuple[Pair, ...], settings: ModelSettings, segment_alpha: float) -> SegmentFit:
+    """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped.
+
+    `segment_alpha` is the level of its own selection: settings.alpha shared (Bonferroni) among the segments
+    that select their own, so all segments together add a false pair with probability at most alpha."""
     n = len(y)
     if n < settings.min_sales_own_deviation:
         reason = NO_SALES if n == 0 else f"only {n} qualified sale(s) (< {settings.min_sales_own_deviation})"
@@ -169,18 +180,18 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
     spec = DesignSpec.learn(X, features, settings.n_basis_segment, deviation=True, scale_from=parent)
     own = n >= settings.min_sales_own_selection and settings.interaction_rule != "none"
     if own:
-        _, smoother = LevelFit.fit(spec, (), X, y, offset)
+        level, smoother = LevelFit.fit(spec, (), X, y, offset)
         pairs = tuple(select_interactions(
             smoother, y - offset, spec.products(X, candidates), candidates, rule=settings.interaction_rule,
-            max_interactions=settings.max_interactions, folds=settings.folds, seed=settings.seed,
-            alpha=settings.alpha))
+            max_interactions=settings.max_interactions, alpha=segment_alpha))
         reason = f"{n} sales >= {settings.min_sales_own_selection}: own interactions"
     else:
         pairs = inherited
         sales = f"{n} sale{'s' if n != 1 else ''}"
         reason = (f"{sales}: interaction rule 'none'" if settings.interaction_rule == "none"
                   else f"{sales} < {settings.min_sales_own_selection}: interactions inherited")
-    level, _ = LevelFit.fit(spec, pairs, X, y, offset)
+    if pairs or not own:  # an own selection of no pairs leaves the deviation already fitted
+        level, _ = LevelFit.fit(spec, pairs, X, y, offset)
     return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
 
 
@@ -254,7 +265,7 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
     main = PenalisedLS(gamma=GAMMA).fit(spec.blocks(Xi) + [_location_block(segment)], y)
     pairs = tuple(select_interactions(
         main, y, spec.products(Xi, candidates), candidates, rule=settings.interaction_rule,
-        max_interactions=settings.max_interactions, folds=settings.folds, seed=settings.seed, alpha=settings.alpha))
+        max_interactions=settings.max_interactions, alpha=settings.alpha))
     top, _ = LevelFit.fit(spec, pairs, Xi, y, None)
     inner = fold_ids(len(y), segment, settings.seed + 1, offset_folds) if offset_folds else None
 
@@ -275,8 +286,10 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
 
     seg_area = _segment_market_areas(segment, market_area)
     groups = _rows_by(segment)
+    selecting = sum(len(rows) >= settings.min_sales_own_selection for rows in groups.values())
+    segment_alpha = settings.alpha / max(selecting, 1)
     tasks = (delayed(_fit_segment)(name, seg_area[name], Xi[rows], y[rows], area_offset[rows], spec, features,
-                                   candidates, pairs, settings) for name, rows in groups.items())
+                                   candidates, pairs, settings, segment_alpha) for name, rows in groups.items())
     fitted: dict[str, SegmentFit] = {}
     for i, result in enumerate(Parallel(n_jobs=settings.jobs, return_as="generator")(tasks)):
         fitted[result.name] = result

@@ -13,21 +13,23 @@ class ModelSettings:
     """Modelling choices shared by every segment of a run."""
 
     folds: int = 10
-    """Number of cross-validation folds for out-of-fold ratio studies and the Lasso."""
+    """Number of cross-validation folds for out-of-fold ratio studies."""
     seed: int = 2026
-    """Seed for every random choice (fold assignment, Lasso folds), so runs are reproducible."""
+    """Seed for every random choice (fold assignment), so runs are reproducible."""
     n_basis_parent: int = 12
     """B-spline basis functions per continuous feature in the jurisdiction model."""
     n_basis_segment: int = 8
     """B-spline basis functions per continuous feature in a market-area or segment deviation."""
     interaction_rule: str = "lasso"
-    """How pairwise interactions are selected: "lasso", "significance" or "none"."""
+    """How pairwise interactions are selected: "lasso" (Lasso screening, then a Bonferroni-corrected t-test),
+    "significance" (backward elimination) or "none"."""
     interaction_candidates: str | tuple[tuple[str, str], ...] = "all"
     """"all" pairs of non-categorical features, or an explicit list of [a, b] pairs."""
     max_interactions: int = 4
     """At most this many interactions per model."""
     alpha: float = 0.05
-    """Significance level for backward elimination (interaction_rule = "significance")."""
+    """Significance level of the selection: familywise for the jurisdiction and for all segments together under
+    "lasso", per test in backward elimination under "significance"."""
     min_sales_own_selection: int = 60
     """Segments with at least this many sales select their own interactions; thinner ones inherit."""
     min_sales_own_deviation: int = 1
@@ -99,14 +101,14 @@ def _candidates(value: Any) -> str | tuple[tuple[str, str], ...]:
 
 MODEL_TOML_COMMENTED = """\
 [model]
-# folds = 10                      # cross-validation folds for out-of-fold ratio studies and the Lasso
-# seed = 2026                     # seed for fold assignment and the Lasso, so runs are reproducible
+# folds = 10                      # cross-validation folds for out-of-fold ratio studies
+# seed = 2026                     # seed for fold assignment, so runs are reproducible
 # n_basis_parent = 12             # spline basis functions per continuous feature, jurisdiction model
 # n_basis_segment = 8             # spline basis functions per continuous feature, segment deviations
 # interaction_rule = "lasso"      # "lasso", "significance" or "none"
 # interaction_candidates = "all"  # or a list of pairs, e.g. [["living_area", "quality"]]
 # max_interactions = 4            # at most this many interactions per model
-# alpha = 0.05                    # significance level when interaction_rule = "significance"
+# alpha = 0.05                    # significance level of the interaction selection
 # min_sales_own_selection = 60    # fewer sales: the segment inherits its parent's interactions
 # min_sales_own_deviation = 1     # fewer sales: the segment takes its market area's model unchanged
 # jobs = 1                        # worker processes for fitting segments in parallel

@@ -16,6 +16,7 @@ from typing import Sequence
 
 import numpy as np
 from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg.lapack import dpotrf, dpotrs, dtrtrs
 
 from .design import Block
 
@@ -121,28 +122,38 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
 
 
 class _Problem:
-    """The p x p quantities GCV needs, with each penalty embedded in a p x p slab so one product sums them."""
+    """The p x p quantities GCV needs, with the penalties stored on their joint support so one product sums them.
+
+    edf = tr((X'X + S)^-1 X'X) = ||L^-1 R'||_F^2 with L L' = X'X + S and R'R = X'X (R from the eigenvectors of
+    X'X, computed once), so an evaluation needs one Cholesky factorisation and one triangular solve.
+    """
 
     def __init__(self, gram: np.ndarray, xty: np.ndarray, yty: float, n: int, penalties: list[Penalty],
                  jitter: np.ndarray, gamma: float) -> None:
         self.gram, self.xty, self.yty, self.n, self.gamma = gram, xty, yty, n, gamma
         self.base = gram + jitter
         p = gram.shape[0]
-        self.slabs = np.zeros((len(penalties), p, p))
+        slabs = np.zeros((len(penalties), p, p))
         for i, pen in enumerate(penalties):
-            self.slabs[i, pen.cols, pen.cols] = pen.matrix
+            slabs[i, pen.cols, pen.cols] = pen.matrix
+        self.support = np.flatnonzero(np.any(slabs != 0, axis=0))  # the penalised entries of the p x p system
+        self.values = slabs.reshape(len(penalties), p * p)[:, self.support]
+        vals, vecs = np.linalg.eigh(gram)
+        self.root = np.asfortranarray(vecs * np.sqrt(np.maximum(vals, 0.0)))  # R' with R'R = X'X
 
     def system(self, lambdas: np.ndarray) -> np.ndarray:
-        return self.base + np.tensordot(lambdas, self.slabs, axes=1)
+        out = self.base.copy()
+        out.flat[self.support] += lambdas @ self.values
+        return out
 
     def gcv(self, lambdas: np.ndarray) -> float:
-        try:
-            chol = cho_factor(self.system(lambdas), lower=True, check_finite=False)
-        except np.linalg.LinAlgError:
+        chol, info = dpotrf(self.system(lambdas), lower=1, clean=0, overwrite_a=1)
+        if info != 0:
             return float("inf")
-        coef = cho_solve(chol, self.xty, check_finite=False)
+        coef, _ = dpotrs(chol, self.xty, lower=1)
         rss = max(self.yty - 2 * coef @ self.xty + coef @ self.gram @ coef, 0.0)
-        edf = float(np.trace(cho_solve(chol, self.gram, check_finite=False)))
+        half, _ = dtrtrs(chol, self.root, lower=1)
+        edf = float(np.einsum("ij,ij->", half, half))
         dof = self.n - self.gamma * edf
         return self.n * rss / dof**2 if dof > 1e-8 else float("inf")
 
@@ -153,7 +164,7 @@ def _search(problem: _Problem, scale: np.ndarray, passes: int) -> np.ndarray:
     The line search steps one decade up, or else down, from the current value and keeps going
     while GCV improves; a smaller penalty must win by a margin, so ties favour smoothing.
     """
-    k = problem.slabs.shape[0]
+    k = problem.values.shape[0]
     if k == 0:
         return np.zeros(0)
     score = lambda rho: problem.gcv(scale * 10.0**rho)  # noqa: E731

@@ -184,13 +184,18 @@ def demo() -> SimpleNamespace:
     seg = data.neighbourhood.astype(str).to_numpy()
     ma = data.market_area.astype(str).to_numpy()
     areas = dict(zip(town.parcels.neighbourhood.astype(str), town.parcels.market_area.astype(str)))
-    model = fit_hierarchy(X, y, seg, ma, features, ModelSettings(max_interactions=3), segments=areas)
+    model = fit_hierarchy(X, y, seg, ma, features, ModelSettings(), segments=areas)
     return SimpleNamespace(model=model, X=X, seg=seg)
 
 
 def test_demo_selects_the_true_interactions(demo: SimpleNamespace) -> None:
-    # The generator's documented truth: exactly these three pairs interact (demo_town.TRUE_INTERACTIONS).
+    # The generator's documented truth: exactly these three pairs interact (demo_town.TRUE_INTERACTIONS), the
+    # same in every neighbourhood, so at the default cap of 4 the jurisdiction must pick exactly them and no
+    # segment selecting its own may add a pair.
     assert set(demo.model.jurisdiction.pairs) == set(demo_town.TRUE_INTERACTIONS)
+    own = [fit for fit in demo.model.segments.values() if fit.kind == "own"]
+    assert len(own) >= 10
+    assert [fit.name for fit in own if fit.level.pairs] == []
 
 
 def test_demo_curves_match_the_true_shapes(demo: SimpleNamespace) -> None:

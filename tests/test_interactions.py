@@ -68,10 +68,29 @@ def test_selection_finds_the_planted_pair_and_not_a_null_one(rule: str) -> None:
     smoother = PenalisedLS().fit(spec.blocks(X), y)
     pairs = candidate_pairs(feats)
     chosen = select_interactions(
-        smoother, y, spec.products(X, pairs), pairs, rule=rule, max_interactions=4, folds=5, seed=1
+        smoother, y, spec.products(X, pairs), pairs, rule=rule, max_interactions=4
     )
     assert chosen[0] == ("a", "b")
     assert ("c", "w") not in chosen
+
+
+def test_lasso_rule_keeps_the_pairs_a_bonferroni_corrected_ols_t_test_keeps() -> None:
+    # Frisch-Waugh-Lovell (coefficients and residuals of the partialled regression equal the full OLS's)
+    # with an unpenalised linear nuisance: the joint t-tests on the double residuals must be those of
+    # statsmodels OLS of y on [1, W, Z], and a pair is kept iff p * m < alpha (Bonferroni), strongest |t| first.
+    rng = np.random.default_rng(15)
+    n, m = 400, 6
+    W = rng.normal(size=(n, 2))
+    Z = rng.normal(size=(n, m)) + 0.3 * W[:, :1]
+    y = W @ np.array([1.0, -0.5]) + Z @ np.array([0.25, 0.0, 0.12, 0.0, 0.0, 0.08]) + rng.normal(0.0, 1.0, n)
+    nuisance = PenalisedLS().fit([Block("(intercept)", np.ones((n, 1)), ()), Block("w", W, ())], y)
+    pairs = [(f"p{j}", "q") for j in range(m)]
+    chosen = select_interactions(nuisance, y, Z, pairs, rule="lasso", max_interactions=m, alpha=0.05)
+    ref = sm.OLS(y, np.column_stack([np.ones(n), W, Z])).fit()
+    t, p = np.abs(ref.tvalues[3:]), ref.pvalues[3:]
+    expected = [pairs[j] for j in np.argsort(-t) if p[j] * m < 0.05]
+    assert chosen == expected
+    assert 0 < len(expected) < m  # the data leave both kept and rejected pairs, so the check can fail
 
 
 def test_selection_is_deterministic_and_respects_the_cap_and_none() -> None:
@@ -82,7 +101,7 @@ def test_selection_is_deterministic_and_respects_the_cap_and_none() -> None:
     prods = spec.products(X, pairs)
 
     def run(rule: str, cap: int) -> list[tuple[str, str]]:
-        return select_interactions(smoother, y, prods, pairs, rule=rule, max_interactions=cap, seed=5)
+        return select_interactions(smoother, y, prods, pairs, rule=rule, max_interactions=cap)
 
     assert run("lasso", 4) == run("lasso", 4)
     assert run("lasso", 1) == [("a", "b")]
