@@ -2,26 +2,36 @@
 
 The app holds no SQL, pandas or statistics: every number it shows is computed here (or stored by the
 core) and every query is a named file in sql/queries/app_*.sql. Lists of parcels and sales are paged or
-limited in SQL; the overview is one row per segment.
+limited in SQL; the overview is one row per segment. Rows are read as plain DuckDB tuples (no pandas), and
+modules the overview does not need (numpy, scipy, the review) load in the calls that use them, so a fresh
+app opens fast.
 """
 from __future__ import annotations
 
+import json
 import math
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import duckdb
-import numpy as np
 
-from .batches import segment_states
 from .config import Config, load_config
 from .errors import UserError
 from .store import Store, latest_version, open_store
-from .study import SOURCE_LABELS, load_study, study_id
+
+if TYPE_CHECKING:
+    import numpy as np
 
 STATS = ("median_ratio", "cod", "prd", "prb")
+CI_COLUMNS = {"median_ratio": "median", "cod": "cod", "prd": "prd", "prb": "prb"}  # stored as <name>_lo, _hi
+# reval.study.SOURCE_LABELS' wording (reval.study loads pandas and scipy, which the overview does not need)
+SOURCE_LABELS = {
+    "prior": "prior roll values",
+    "model_in_sample": "in-sample model values (optimistic: the model saw these sales)",
+    "model_out_of_fold": "out-of-fold model values (honest: each sale valued by a model that did not see it)",
+}
 BASE_TERM = "(base)"
 SORT_KEYS = ("segment", "market_area", "parcels", "sales", "model", "median_ratio", "cod", "prd", "prb",
              "value_change", "state")
@@ -65,18 +75,28 @@ def latest_run(store: Store) -> str | None:
 
 
 def _study(store: Store, run_id: str | None) -> tuple[dict[str, Any] | None, str]:
-    """The segment study the app shows: out-of-fold for the latest run when stored, else prior values."""
+    """The segment study the app shows, read from its stored rows (never recomputed): out-of-fold for the
+    latest run when stored, else prior values; with a note saying what is missing."""
+    header = _records(store, "app_segment_study", [run_id])
     notes = []
-    if run_id is not None:
-        try:
-            return load_study(store, "model_out_of_fold", "segment", run_id), ""
-        except UserError:
-            notes.append(f"run {run_id} has no stored out-of-fold study")
-    try:
-        return load_study(store, "prior", "segment"), "; ".join(notes)
-    except UserError:
+    if run_id is not None and (not header or header[0]["values_source"] != "model_out_of_fold"):
+        notes.append(f"run {run_id} has no stored out-of-fold study")
+    if not header:
         notes.append("no ratio study stored yet (run `reval sales` and `reval study`)")
         return None, "; ".join(notes)
+    groups = [_study_group(r) for r in _records(store, "study_group_rows", [header[0]["study_id"]])]
+    return {**header[0], "groups": groups}, "; ".join(notes)
+
+
+def _study_group(row: dict[str, Any]) -> dict[str, Any]:
+    """One stored study group in the shape of reval.study.load_study's groups (without the trimmed sales)."""
+    return {"group": row["group_name"], "property_class": row["property_class"], "n": row["n"],
+            "n_trimmed": row["n_trimmed"], "mean_ratio": row["mean_ratio"],
+            "weighted_mean_ratio": row["weighted_mean_ratio"],
+            **{stat: row[stat] for stat in STATS},
+            **{f"{stat}_ci": [row[f"{col}_lo"], row[f"{col}_hi"]] for stat, col in CI_COLUMNS.items()},
+            "decile_median_ratios": [_plain(v) for v in row["decile_medians"] or []],
+            "verdicts": json.loads(row["verdicts"])}
 
 
 def _stats_header(study: dict[str, Any] | None, run_id: str | None, note: str) -> str:
@@ -107,18 +127,23 @@ def _stat_cells(group: dict[str, Any] | None) -> dict[str, Any]:
     return cells
 
 
-def batch_state(entry: dict[str, Any] | None) -> str | None:
-    """A segment's state in one word: its open batch's (staged, held), else its certified one's."""
-    if entry is None:
-        return None
-    batch = entry["open"] or entry["certified"]
-    return None if batch is None else str(batch["state"])
+def segment_states(store: Store) -> dict[str, str | None]:
+    """Each segment's state in one word: its open batch's (staged or held, the newest), else its certified
+    batch's (approved, else latest exported), else None; the rule of reval.batches.segment_states, read
+    with plain DuckDB rows (reval.batches loads pandas, which the overview does not need)."""
+    states: dict[str, str | None] = {r["segment"]: r["state"] for r in _records(store, "batch_certified")}
+    opened: set[str] = set()
+    for r in _records(store, "batch_live"):   # newest first within each segment
+        if r["state"] in ("staged", "held") and r["segment"] not in opened:
+            opened.add(r["segment"])
+            states[r["segment"]] = r["state"]
+    return states
 
 
 def overview(folder: Path) -> dict[str, Any]:
     """One row per segment with counts, model kind, ratio statistics and verdicts, value change and state."""
     with project(folder) as (config, store):
-        states = {s["segment"]: batch_state(s) for s in segment_states(store)}
+        states = segment_states(store)
         run_id = latest_run(store)
         study, note = _study(store, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
@@ -260,17 +285,15 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
 
 
 def _batches(store: Store, config: Config, segment: str) -> dict[str, Any]:
-    """The segment's open and certified batches, its state and the core's review (sales-chasing check)."""
-    entry = next((s for s in segment_states(store) if s["segment"] == segment), None)
-    if entry is None or (entry["open"] is None and entry["certified"] is None):
-        return {"state": None, "open_batch": None, "certified_batch": None, "review": None}
-    from .review import (
-        review,  # loads scipy.stats: only the drill-in needs it, the overview starts faster
-    )
+    """The segment's batch state and the core's review of its open (else certified) batch: the
+    sales-chasing check."""
+    state = segment_states(store).get(segment)
+    if state is None:
+        return {"state": None, "review": None}
+    from .review import review  # loads pandas and scipy: only the drill-in needs them, the overview starts faster
 
     report = review(store, config, segment, limit=10)["segments"]
-    return {"state": batch_state(entry), "open_batch": entry["open"], "certified_batch": entry["certified"],
-            "review": report[0] if report else None}
+    return {"state": state, "review": report[0] if report else None}
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> dict[str, Any]:
@@ -279,7 +302,7 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
         run_id = latest_run(store)
         study, _ = _study(store, run_id)
         model = study is not None and study["values_source"] == "model_out_of_fold"
-        sid = study_id(study["values_source"], study["run_id"], "segment") if study else ""
+        sid = study["study_id"] if study else ""
         total = int(store.rows("app_segment_sales_count", [segment])[0][0])
         pages = max(1, math.ceil(total / page_size))
         page = min(max(page, 0), pages - 1)
@@ -295,6 +318,8 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
 
 def apportion(amounts: np.ndarray, total: int) -> np.ndarray:
     """Whole-unit parts of `total` near `amounts` that add up to it exactly (largest-remainder method)."""
+    import numpy as np  # only the parcel view needs numpy; the overview starts faster without it
+
     amounts = np.asarray(amounts, dtype=float)
     floors = np.floor(amounts)
     short = round(total - floors.sum())
@@ -310,6 +335,8 @@ def value_split(base_log: float, contributions: dict[str, float]) -> dict[str, A
     logarithmic mean L(value, base) of the value and the base (the log-mean Divisia split), which stays
     exact and finite when the parts cancel. Parts are then rounded to whole units by largest remainder.
     """
+    import numpy as np  # only the parcel view needs numpy; the overview starts faster without it
+
     terms = list(contributions)
     logs = np.array([contributions[t] for t in terms], dtype=float)
     log_value = base_log + logs.sum()

@@ -10,6 +10,8 @@ import asyncio
 import json
 import math
 import shutil
+import subprocess
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -22,7 +24,7 @@ from textual.widgets import DataTable, Static
 from reval import app_service, cli_roll, commands
 from reval.config import load_config
 from reval.store import open_store
-from reval.study import load_study
+from reval.study import SOURCE_LABELS, load_study
 from tui import keys
 from tui.app import RevalApp
 from tui.jobs import JobProgressed
@@ -32,6 +34,7 @@ from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
 from tui.screens.segment import SegmentScreen
 
+ROOT = Path(__file__).resolve().parent.parent
 SIZE = (100, 32)
 DEMO_PARCELS = 2000      # the demo generator's smallest municipality: a full fit takes seconds, not minutes
 PINNED_RUN = "run-demo"
@@ -502,6 +505,59 @@ async def _help_lists_every_key_and_the_caution(fitted_demo: Path) -> None:
         assert caution.startswith("Values are estimates for review by a qualified assessor")
         await pilot.press("escape")
         assert isinstance(app.screen, OverviewScreen)
+
+
+# ---- start-up: the overview reads stored rows without pandas and loads nothing it does not show -----------------
+
+def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_copy: Path) -> None:
+    failing, passing = failing_and_passing(demo_copy)
+    cli_roll.approve(demo_copy, passing)
+    cli_roll.hold(demo_copy, failing, "recheck lot sizes")
+    data = app_service.overview(demo_copy)
+    rows = {r["segment"]: r for r in data["segments"]}
+    study = oof_study(demo_copy)
+    # the core's own reading of the same stored study (reval.study.load_study), number for number
+    for g in study["groups"]:
+        row = rows[g["group"]]
+        assert row["n"] == g["n"]
+        for stat in app_service.STATS:
+            assert row[stat]["value"] == g[stat] and row[stat]["ci"] == g[f"{stat}_ci"]
+            assert row[stat]["status"] == g["verdicts"].get(stat, {}).get("status")
+    assert data["stats_header"] == f"Ratio statistics of {SOURCE_LABELS['model_out_of_fold']}, run {PINNED_RUN}"
+    # the core's batch states (reval.batches.segment_states): the open batch's, else the certified one's
+    for segment, entry in states(demo_copy).items():
+        batch = entry["open"] or entry["certified"]
+        assert rows[segment]["state"] == (batch["state"] if batch else None)
+    assert (rows[passing]["state"], rows[failing]["state"]) == ("approved", "held")
+    # the drill-in's equity numbers come from the same stored group
+    equity = app_service.segment_detail(demo_copy, passing)["equity"]
+    group = next(g for g in study["groups"] if g["group"] == passing)
+    assert (equity["mean_ratio"], equity["weighted_mean_ratio"], equity["n_trimmed"], equity["confidence"]) \
+        == (group["mean_ratio"], group["weighted_mean_ratio"], group["n_trimmed"], study["confidence"])
+    assert equity["decile_median_ratios"] == group["decile_median_ratios"]
+
+
+def test_a_fresh_app_fills_the_overview_without_loading_later_screens_or_steps(fitted_demo: Path) -> None:
+    later = ["reval.batches", "reval.study", "reval.review", "reval.commands", "reval.cli_roll", "reval.fitting",
+             "sklearn", "statsmodels", "tui.plot", "tui.screens.segment", "tui.screens.parcel"]
+    code = f"""
+import asyncio, sys
+from pathlib import Path
+from tui.app import RevalApp
+
+async def main() -> None:
+    app = RevalApp(Path({str(fitted_demo)!r}))
+    async with app.run_test(size={SIZE!r}) as pilot:
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        assert app.screen.query_one("#segments").row_count > 0, app.messages
+
+asyncio.run(main())
+print(",".join(m for m in {later!r} if m in sys.modules))
+"""
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, timeout=60)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == ""
 
 
 # ---- the service functions behind the parcel view ---------------------------------------------------------------

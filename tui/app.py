@@ -21,9 +21,7 @@ from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, 
 from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
-from .screens.parcel import ParcelScreen
 from .screens.prompt import ExportScreen, PromptScreen
-from .screens.segment import SegmentScreen
 from .steps import (
     DECISIONS,
     Describe,
@@ -152,10 +150,15 @@ class RevalApp(App[None]):
 
     # ---- navigation ------------------------------------------------------------------------------------
 
+    # the drill-in screens (and their plots) load when first opened: the overview starts faster without them
     def open_segment(self, segment: str) -> None:
+        from .screens.segment import SegmentScreen
+
         self.push_screen(SegmentScreen(segment))
 
     def open_parcel(self, parcel_id: str) -> None:
+        from .screens.parcel import ParcelScreen
+
         self.push_screen(ParcelScreen(parcel_id))
 
     def action_help(self) -> None:
