@@ -101,12 +101,12 @@ def main() -> None:
     segments = len(overview(folder)["segments"])
     result = measure(folder, args.trials)
     print(f"App start-up on {folder} ({segments} segments), {args.trials} trials, terminal {SIZE[0]}x{SIZE[1]}")
-    print(f"{'measure':<52}{'median s':>10}{'target':>8}")
+    print(f"{'measure':<58}{'median s':>10}{'target':>8}")
     for key, label, target in (("in_process_s", "in-process: app created -> overview filled", ""),
                                ("fresh_to_overview_beyond_python_s",
                                 "fresh process: launch -> overview filled, beyond python", "< 1"),
                                ("fresh_process_beyond_python_s", "fresh process wall incl. exit, beyond python", "")):
-        print(f"{label:<52}{result[key]['median']:>10.3f}{target:>8}")  # type: ignore[index]
+        print(f"{label:<58}{result[key]['median']:>10.3f}{target:>8}")  # type: ignore[index]
     RESULTS.parent.mkdir(parents=True, exist_ok=True)
     RESULTS.write_text(json.dumps({"folder": str(folder), "segments": segments, "trials": args.trials,
                                    "terminal": list(SIZE), "python": platform.python_version(),
