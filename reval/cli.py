@@ -1,4 +1,4 @@
-"""The `reval` command line: one entry point with subcommands.
+"""The `reval` command line: one entry point with sub_commands().
 
 Exit codes: 0 ok; 1 data or user error (one-paragraph message, no traceback); 2 usage error.
 """
@@ -16,9 +16,16 @@ from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
-from . import commands
 from .cli_roll import add_roll_commands
 from .errors import UserError
+
+def _commands() -> Any:
+    """The step functions, imported when a command runs: they pull in pandas, SciPy and scikit-learn,
+    which `--help` and the terminal app's start-up should not wait for."""
+    from . import commands
+
+    return commands
+
 
 CAUTION = ("Values are estimates for review by a qualified assessor. Assessment level, caps, exemptions, "
            "notices and appeals follow local law.")
@@ -69,13 +76,13 @@ def emit(args: argparse.Namespace, result: dict[str, Any], render: Callable[[dic
 # ---- subcommands -------------------------------------------------------------------------------------------
 
 def cmd_init(args: argparse.Namespace) -> None:
-    path = commands.init_project(Path(args.folder), args.name)
+    path = _commands().init_project(Path(args.folder), args.name)
     print(f"Wrote {path}. Edit it to name your files and columns, then run `reval import` in {path.parent}.")
 
 
 def cmd_import(args: argparse.Namespace) -> None:
     with progress_bar(args) as progress:
-        result = commands.import_project(Path(args.project), progress)
+        result = _commands().import_project(Path(args.project), progress)
     emit(args, result.as_dict(), lambda r, c: c.print(
         ("Imported" if r["changed"] else "Already imported (files unchanged)")
         + f": {r['parcels']:,} parcels, {r['sales']:,} sales, {r['segments']} segments in "
@@ -85,7 +92,7 @@ def cmd_import(args: argparse.Namespace) -> None:
 def cmd_demo(args: argparse.Namespace) -> None:
     folder = Path(args.folder)
     with progress_bar(args) as progress:
-        summary = commands.build_demo(folder, args.parcels, progress)
+        summary = _commands().build_demo(folder, args.parcels, progress)
     headless = args.headless or os.environ.get("HEADLESS", "") not in ("", "0") or not sys.stdout.isatty()
     if headless or args.json:
         emit(args, summary, _render_summary)
@@ -104,10 +111,10 @@ def _render_summary(summary: dict[str, Any], console: Console) -> None:
 
 def cmd_sales(args: argparse.Namespace) -> None:
     if args.report:
-        result = commands.sales_report(Path(args.project))
+        result = _commands().sales_report(Path(args.project))
     else:
         with progress_bar(args) as progress:
-            result = commands.prepare_sales_step(Path(args.project), progress)
+            result = _commands().prepare_sales_step(Path(args.project), progress)
     emit(args, result, _render_sales)
 
 
@@ -120,7 +127,7 @@ def _render_sales(result: dict[str, Any], console: Console) -> None:
 
 
 def cmd_study(args: argparse.Namespace) -> None:
-    result = commands.study_step(Path(args.project), args.values, args.by, args.run, args.in_sample)
+    result = _commands().study_step(Path(args.project), args.values, args.by, args.run, args.in_sample)
     if args.segment:
         result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
         if not result["groups"]:
@@ -150,7 +157,7 @@ def _render_study(result: dict[str, Any], console: Console) -> None:
 
 def cmd_fit(args: argparse.Namespace) -> None:
     with progress_bar(args) as progress:
-        result = commands.fit_step(Path(args.project), progress, args.jobs)
+        result = _commands().fit_step(Path(args.project), progress, args.jobs)
     emit(args, result, _render_fit)
 
 
@@ -163,7 +170,7 @@ def _render_fit(result: dict[str, Any], console: Console) -> None:
 
 
 def cmd_compare(args: argparse.Namespace) -> None:
-    result = commands.compare_report(Path(args.project), args.run)
+    result = _commands().compare_report(Path(args.project), args.run)
     emit(args, result, _render_compare)
 
 

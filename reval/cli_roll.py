@@ -11,7 +11,6 @@ from typing import Any, Callable, Iterator
 from rich.console import Console
 from rich.table import Table
 
-from . import batches, export, review, valuation
 from .config import Config, load_config
 from .errors import UserError
 from .store import Store, latest_version, open_store
@@ -30,42 +29,56 @@ def _project(folder: Path, write: bool) -> Iterator[tuple[Config, Store]]:
 
 def value_step(folder: Path, run_id: str | None = None) -> dict[str, Any]:
     """Value every parcel from a run (default: the newest) and stage one batch per segment."""
+    from . import valuation  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=True) as (config, store):
         return valuation.stage_values(store, config, run_id)
 
 
 def review_report(folder: Path, segment: str | None = None, limit: int = 20) -> dict[str, Any]:
     """Value changes, parcels beyond the review threshold and the sales-chasing check, per segment."""
+    from . import review  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=False) as (config, store):
         return review.review(store, config, segment, limit)
 
 
 def approve(folder: Path, segment: str, note: str | None = None) -> dict[str, Any]:
     """Approve a segment's staged batch (its out-of-fold statistics must pass, or give an override note)."""
+    from . import batches  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=True) as (config, store):
         return batches.approve(store, config, segment, note)
 
 
 def hold(folder: Path, segment: str, reason: str) -> dict[str, Any]:
     """Hold a segment's staged batch, with a reason."""
+    from . import batches  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=True) as (config, store):
         return batches.hold(store, config, segment, reason)
 
 
 def revoke(folder: Path, segment: str, note: str) -> dict[str, Any]:
     """Withdraw a segment's approval before export, with a note."""
+    from . import batches  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=True) as (config, store):
         return batches.revoke(store, config, segment, note)
 
 
 def export_roll(folder: Path, path: Path, partial: bool = False) -> dict[str, Any]:
     """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless partial."""
+    from . import export  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=True) as (config, store):
         return export.export_roll(store, config, path, partial)
 
 
 def event_log(folder: Path, segment: str | None = None) -> dict[str, Any]:
     """The audit log, oldest first, optionally for one segment."""
+    from . import batches  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=False) as (_, store):
         rows = batches.json_records(store.frame("log_events", {"segment": segment}))
     return {"segment": segment, "events": [{**r, "detail": json.loads(r["detail"] or "{}")} for r in rows]}
@@ -73,6 +86,8 @@ def event_log(folder: Path, segment: str | None = None) -> dict[str, Any]:
 
 def batch_states(folder: Path) -> dict[str, Any]:
     """Each segment's open batch (staged or held) and certified batch (approved or exported)."""
+    from . import batches  # step modules load pandas and SciPy: only when the step runs
+
     with _project(folder, write=False) as (_, store):
         return {"segments": batches.segment_states(store)}
 

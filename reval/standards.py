@@ -10,9 +10,10 @@ import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
-from .ratio_stats import RatioStudy
+if TYPE_CHECKING:  # only for the type hint: ratio_stats loads SciPy, which config loading does not need
+    from .ratio_stats import RatioStudy
 
 _DEFAULT_COD_MAX: dict[str, float] = {
     "single_family": 15.0,       # IAAO: single-family, older or more heterogeneous areas, 5.0-15.0

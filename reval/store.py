@@ -9,12 +9,14 @@ import functools
 import re
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, Iterator, Sequence
+from typing import TYPE_CHECKING, Any, Iterator, Sequence
 
 import duckdb
-import pandas as pd
 
 from .errors import UserError
+
+if TYPE_CHECKING:  # pandas loads with DuckDB's .df(); importing it here would slow every start-up
+    import pandas as pd
 
 SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
 _MIGRATION = re.compile(r"^(\d{3})_[a-z0-9_]+\.sql$")
