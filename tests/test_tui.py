@@ -539,7 +539,7 @@ def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_
 
 def test_a_fresh_app_fills_the_overview_without_loading_later_screens_or_steps(fitted_demo: Path) -> None:
     later = ["reval.batches", "reval.study", "reval.review", "reval.commands", "reval.cli_roll", "reval.fitting",
-             "sklearn", "statsmodels", "tui.plot", "tui.screens.segment", "tui.screens.parcel"]
+             "pandas", "scipy", "sklearn", "statsmodels", "tui.plot", "tui.screens.segment", "tui.screens.parcel"]
     code = f"""
 import asyncio, sys
 from pathlib import Path
