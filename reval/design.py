@@ -19,6 +19,7 @@ penalty of Marra & Wood (2011, Computational Statistics & Data Analysis 55(7)).
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from functools import cached_property
 from typing import Protocol, Sequence
 
 import numpy as np
@@ -133,10 +134,14 @@ class DesignSpec:
     def names(self) -> tuple[str, ...]:
         return tuple(t.name for t in self.transforms)
 
+    @cached_property
+    def _positions(self) -> dict[str, int]:
+        return {t.name: j for j, t in enumerate(self.transforms)}
+
     def index(self, feature: str) -> int:
         try:
-            return self.names.index(feature)
-        except ValueError:
+            return self._positions[feature]
+        except KeyError:
             raise ValueError(f"unknown feature {feature!r}") from None
 
     def impute(self, X: np.ndarray) -> np.ndarray:
@@ -175,14 +180,19 @@ class DesignSpec:
             if t.constant:
                 continue
             cols = _raw_columns(t, T[:, j], self.n_basis) @ t.constraint
-            out.append(Block(t.name, cols, self._penalties(t)))
+            out.append(Block(t.name, cols, self._penalties[j]))
         if len(pairs):
             prods = self.products(X, pairs)
             for i, (a, b) in enumerate(pairs):
                 out.append(Block(f"{a}:{b}", prods[:, i : i + 1], ridge if self.deviation else ()))
         return out
 
-    def _penalties(self, t: FeatureTransform) -> tuple[np.ndarray, ...]:
+    @cached_property
+    def _penalties(self) -> tuple[tuple[np.ndarray, ...], ...]:
+        """Penalty matrices of every feature's block, built once per spec (blocks are built per fit and per prediction)."""
+        return tuple(() if t.constant else self._feature_penalties(t) for t in self.transforms)
+
+    def _feature_penalties(self, t: FeatureTransform) -> tuple[np.ndarray, ...]:
         z = t.constraint
         if t.kind == "continuous":
             wiggle = z.T @ difference_penalty(self.n_basis, 2) @ z

@@ -352,6 +352,16 @@ class FittedHierarchy:
             chain, reason = self._chain(seg, area)
             yield order[bounds[g]:bounds[g + 1]], chain, reason
 
+    def _layers(self, segment: np.ndarray, market_area: np.ndarray) -> list[tuple[LevelFit, np.ndarray]]:
+        """Every layer that applies to some rows, with those rows, so each layer builds one design for all of them.
+
+        Layers come in first-use order, which is jurisdiction, market area, segment along every row's chain."""
+        found: dict[int, tuple[LevelFit, list[np.ndarray]]] = {}
+        for rows, chain, _ in self._groups(segment, market_area):
+            for level in chain:
+                found.setdefault(id(level), (level, []))[1].append(rows)
+        return [(level, np.concatenate(parts)) for level, parts in found.values()]
+
     def reasons(self, segment: np.ndarray, market_area: np.ndarray) -> np.ndarray:
         """Per row, why it is valued with a parent's model ("" when its own segment model applies)."""
         out = np.empty(len(segment), dtype=object)
@@ -364,9 +374,8 @@ class FittedHierarchy:
         """Log value per row: the sum of the layers that apply to its segment."""
         Xi = self.spec.impute(np.asarray(X, dtype=float))
         out = np.zeros(Xi.shape[0])
-        for rows, chain, _ in self._groups(segment, market_area):
-            for level in chain:
-                out[rows] += level.predict(Xi[rows])
+        for level, rows in self._layers(segment, market_area):
+            out[rows] += level.predict(Xi[rows])
         return out
 
     def contributions(self, X: np.ndarray, segment: np.ndarray,
@@ -376,11 +385,10 @@ class FittedHierarchy:
         n = Xi.shape[0]
         intercept = np.zeros(n)
         terms: dict[str, np.ndarray] = {f.name: np.zeros(n) for f in self.features}
-        for rows, chain, _ in self._groups(segment, market_area):
-            for level in chain:
-                for term, part in level.contributions(Xi[rows]).items():
-                    target = intercept if term == INTERCEPT else terms.setdefault(term, np.zeros(n))
-                    target[rows] += part
+        for level, rows in self._layers(segment, market_area):
+            for term, part in level.contributions(Xi[rows]).items():
+                target = intercept if term == INTERCEPT else terms.setdefault(term, np.zeros(n))
+                target[rows] += part
         return intercept, terms
 
     # ---------------------------------------------------------------- reports per segment

@@ -2,8 +2,8 @@
 
 Minimises ||y - offset - X b||^2 + sum_j lam_j b' S_j b. Every quantity the search needs
 (coefficients, residual sum of squares, effective degrees of freedom) is computed from the
-p x p Gram matrix X'X and X'(y - offset), so one GCV evaluation costs a p x p Cholesky
-factorisation whatever the number of sales. GCV = n RSS / (n - gamma edf)^2 (Craven & Wahba 1979;
+p x p Gram matrix X'X and X'(y - offset), so the search costs nothing per sale; one Cholesky
+factorisation scores a whole line of penalty values (see `_Problem`). GCV = n RSS / (n - gamma edf)^2 (Craven & Wahba 1979;
 Wood 2017, section 6.2.3); gamma > 1 (Kim & Gu 2004 suggest 1.4) counters GCV's undersmoothing
 in small samples. The posterior covariance sigma^2 (X'X + S)^-1 is the Bayesian one
 of Wood (2017, section 6.10), which gives curve bands with good frequentist coverage.
@@ -16,13 +16,13 @@ from typing import Sequence
 
 import numpy as np
 from scipy.linalg import cho_factor, cho_solve
-from scipy.linalg.lapack import dpotrf, dpotrs, dtrtrs
+from scipy.linalg.lapack import dpotrf, dpstrf, dtrtrs
 
 from .design import Block
 
 LOG10_GRID = np.linspace(-4.0, 6.0, 21)  # global multiplier of the normalised penalties
 LINE_STEP = 1.0  # log10 step of the per-penalty line search
-LOG10_BOUNDS = (-6.0, 8.0)
+LOG10_BOUNDS = (-6.0, 8.0)  # open interval the line search stays in
 JITTER = 1e-9  # relative ridge keeping X'X + S positive definite when a column is empty (e.g. an unsold level)
 TIE = 1e-9  # a smaller penalty must beat the current GCV by this relative margin, so ties favour smoothing
 
@@ -80,8 +80,8 @@ class PenalisedLS:
                 raise ValueError(f"expected {len(penalties)} lambdas, got {lambdas.shape}")
         chol = cho_factor(problem.system(lambdas), lower=True)
         coef = cho_solve(chol, xty)
-        influence = cho_solve(chol, gram)
-        edf_cols = np.diag(influence)
+        inverse = cho_solve(chol, np.eye(p))
+        edf_cols = np.einsum("ij,ji->i", inverse, gram)  # diagonal of (X'X + S)^-1 X'X
         resid = target - X @ coef
         rss = float(resid @ resid)
         edf = float(edf_cols.sum())
@@ -98,7 +98,7 @@ class PenalisedLS:
         self.sigma2_ = rss / dof if dof > 0 else float("nan")
         gdof = n - self.gamma * edf
         self.gcv_ = n * rss / gdof**2 if gdof > 0 else float("inf")
-        self.cov_ = self.sigma2_ * cho_solve(chol, np.eye(p))
+        self.cov_ = self.sigma2_ * inverse
         self.n_ = n
         return self
 
@@ -121,11 +121,32 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
     return g / s if g > 0 and s > 0 else 1.0
 
 
-class _Problem:
-    """The p x p quantities GCV needs, with the penalties stored on their joint support so one product sums them.
+def _embedded_root(pen: Penalty, p: int) -> np.ndarray:
+    """E (p x rank) with E E' = the penalty placed in the p x p system (zero outside its block)."""
+    vals, vecs = np.linalg.eigh(pen.matrix)
+    keep = vals > 1e-12 * max(float(vals.max(initial=0.0)), 1e-300)
+    out = np.zeros((p, int(keep.sum())))
+    out[pen.cols] = vecs[:, keep] * np.sqrt(vals[keep])
+    return out
 
-    edf = tr((X'X + S)^-1 X'X) = ||L^-1 R'||_F^2 with L L' = X'X + S and R'R = X'X (R from the eigenvectors of
-    X'X, computed once), so an evaluation needs one Cholesky factorisation and one triangular solve.
+
+def _gram_root(gram: np.ndarray) -> np.ndarray:
+    """R' (p x rank) with R'R = X'X, from a pivoted Cholesky factorisation (Higham 2002, section 10.3), so
+    its width is the rank: a segment with fewer sales than columns gets a narrow one."""
+    factor, piv, rank, _ = dpstrf(gram, lower=1)
+    root = np.empty((gram.shape[0], rank), order="F")
+    root[piv - 1] = np.tril(factor[:, :rank])
+    return root
+
+
+class _Problem:
+    """The p x p quantities GCV needs, able to score a whole line of penalties from one factorisation.
+
+    Along a line A(t) = A0 + t E E' (one penalty, or all of them together, scaled by t), with
+    L L' = A0 and L^-1 E = Q diag(s) V' (thin SVD), A(t)^-1 = L^-T (I - Q diag(phi) Q') L^-1 with
+    phi = t s^2 / (1 + t s^2): the Demmler-Reinsch diagonalisation (Wood 2017, section 5.1.2), here for
+    a penalty of low rank. Then edf = tr(A^-1 X'X) and RSS = y'y - 2 b'X'y + b'X'X b cost O(p rank) per
+    t after one Cholesky factorisation and two triangular solves.
     """
 
     def __init__(self, gram: np.ndarray, xty: np.ndarray, yty: float, n: int, penalties: list[Penalty],
@@ -138,52 +159,82 @@ class _Problem:
             slabs[i, pen.cols, pen.cols] = pen.matrix
         self.support = np.flatnonzero(np.any(slabs != 0, axis=0))  # the penalised entries of the p x p system
         self.values = slabs.reshape(len(penalties), p * p)[:, self.support]
-        vals, vecs = np.linalg.eigh(gram)
-        self.root = np.asfortranarray(vecs * np.sqrt(np.maximum(vals, 0.0)))  # R' with R'R = X'X
+        self.roots = [_embedded_root(pen, p) for pen in penalties]
+        self.root = _gram_root(gram)
 
     def system(self, lambdas: np.ndarray) -> np.ndarray:
         out = self.base.copy()
         out.flat[self.support] += lambdas @ self.values
         return out
 
-    def gcv(self, lambdas: np.ndarray) -> float:
-        chol, info = dpotrf(self.system(lambdas), lower=1, clean=0, overwrite_a=1)
+    def line(self, fixed: np.ndarray, direction: np.ndarray, rho: np.ndarray) -> np.ndarray:
+        """GCV at penalties fixed + 10**rho * direction, for every rho (both vectors one entry per penalty)."""
+        chol, info = dpotrf(self.system(fixed), lower=1, clean=0, overwrite_a=1)
         if info != 0:
-            return float("inf")
-        coef, _ = dpotrs(chol, self.xty, lower=1)
-        rss = max(self.yty - 2 * coef @ self.xty + coef @ self.gram @ coef, 0.0)
-        half, _ = dtrtrs(chol, self.root, lower=1)
-        edf = float(np.einsum("ij,ij->", half, half))
+            return np.full(len(rho), np.inf)
+        moving = [np.sqrt(d) * r for d, r in zip(direction, self.roots) if d > 0]
+        w, _ = dtrtrs(chol, np.hstack(moving) if moving else np.zeros((len(self.xty), 0)), lower=1)
+        q, sv, _ = np.linalg.svd(w, full_matrices=False)
+        half, _ = dtrtrs(chol, self.root, lower=1)  # L^-1 R', so L^-1 X'X L^-T = half half'
+        z, _ = dtrtrs(chol, self.xty, lower=1)
+        proj = q.T @ half
+        a = q.T @ z
+        t = 10.0 ** np.asarray(rho, dtype=float)
+        ts2 = np.outer(sv**2, t)
+        phi = ts2 / (1.0 + ts2)
+        edf = float(np.einsum("ij,ij->", half, half)) - np.einsum("ij,ij->i", proj, proj) @ phi
+        explained = float(z @ z) - (a * a) @ phi  # b'X'y
+        fitted = (half.T @ z)[:, None] - proj.T @ (phi * a[:, None])  # R b, so ||R b||^2 = b'X'X b
+        rss = np.maximum(self.yty - 2.0 * explained + np.einsum("ij,ij->j", fitted, fitted), 0.0)
         dof = self.n - self.gamma * edf
-        return self.n * rss / dof**2 if dof > 1e-8 else float("inf")
+        safe = np.where(dof > 1e-8, dof, 1.0)
+        return np.where(dof > 1e-8, self.n * rss / safe**2, np.inf)
+
+
+def _scan(values: np.ndarray, best: float) -> tuple[int, float]:
+    """Scan a grid from its largest penalty down, moving only when GCV beats the best so far by TIE (so ties
+    favour smoothing); the index chosen (-1 for none) and its GCV."""
+    chosen = -1
+    for i in range(len(values) - 1, -1, -1):
+        if values[i] < best * (1 - TIE):
+            chosen, best = i, float(values[i])
+    return chosen, best
+
+
+def _climb(values: np.ndarray, best: float) -> tuple[int, float]:
+    """Walk along values while each beats the best so far by TIE; the index reached (-1 for none) and its GCV."""
+    reached = -1
+    for i, value in enumerate(values):
+        if not value < best * (1 - TIE):
+            break
+        reached, best = i, float(value)
+    return reached, best
 
 
 def _search(problem: _Problem, scale: np.ndarray, passes: int) -> np.ndarray:
     """log10 multipliers of the normalised penalties: a global grid, then a line search per penalty.
 
     The line search steps one decade up, or else down, from the current value and keeps going
-    while GCV improves; a smaller penalty must win by a margin, so ties favour smoothing.
+    while GCV improves; a smaller penalty must win by a margin, so ties favour smoothing. The
+    global grid and each penalty's whole line of decade steps are scored from one factorisation.
     """
-    k = problem.values.shape[0]
+    k = len(scale)
     if k == 0:
         return np.zeros(0)
-    score = lambda rho: problem.gcv(scale * 10.0**rho)  # noqa: E731
-    best_rho, best = np.full(k, LOG10_GRID[-1]), score(np.full(k, LOG10_GRID[-1]))
-    for g in LOG10_GRID[::-1][1:]:
-        value = score(np.full(k, g))
-        if value < best * (1 - TIE):
-            best_rho, best = np.full(k, g), value
+    i, best = _scan(problem.line(np.zeros(k), scale, LOG10_GRID), np.inf)
+    rho = np.full(k, LOG10_GRID[i if i >= 0 else len(LOG10_GRID) - 1])  # the largest if every GCV is infinite
     for _ in range(passes if k > 1 else 0):
         for j in range(k):
-            for step in (LINE_STEP, -LINE_STEP):
-                moved = False
-                while LOG10_BOUNDS[0] < best_rho[j] + step < LOG10_BOUNDS[1]:
-                    trial = best_rho.copy()
-                    trial[j] += step
-                    value = score(trial)
-                    if not value < best * (1 - TIE):
-                        break
-                    best_rho, best, moved = trial, value, True
-                if moved:
+            fixed = scale * 10.0**rho
+            fixed[j] = 0.0
+            direction = np.zeros(k)
+            direction[j] = scale[j]
+            up = rho[j] + LINE_STEP * np.arange(1, np.ceil((LOG10_BOUNDS[1] - rho[j]) / LINE_STEP))
+            down = rho[j] - LINE_STEP * np.arange(1, np.ceil((rho[j] - LOG10_BOUNDS[0]) / LINE_STEP))
+            values = problem.line(fixed, direction, np.concatenate([up, down]))
+            for steps, scores in ((up, values[: len(up)]), (down, values[len(up):])):
+                i, best = _climb(scores, best)
+                if i >= 0:
+                    rho[j] = steps[i]
                     break
-    return best_rho
+    return rho

@@ -10,7 +10,7 @@ from pygam import LinearGAM, s
 from threadpoolctl import threadpool_limits
 
 from reval.design import Block, DesignSpec
-from reval.penalised import PenalisedLS, stack
+from reval.penalised import PenalisedLS, _Problem, stack
 
 
 def feature(name: str, kind: str = "continuous", log: bool = False, levels: tuple[str, ...] = ()) -> SimpleNamespace:
@@ -82,6 +82,45 @@ def test_gcv_choice_is_the_minimum_over_a_fine_grid() -> None:
     chosen = PenalisedLS().fit(blocks, y).gcv_
     fine = [PenalisedLS(lambdas=[lam]).fit(blocks, y).gcv_ for lam in np.logspace(-4, 6, 81)]
     assert chosen <= min(fine) * (1 + 1e-3)
+
+
+@pytest.mark.parametrize("n", [200, 15])
+def test_gcv_along_a_line_matches_the_explicit_hat_matrix(n: int) -> None:
+    # Definitions (Wood 2017, sections 6.1-6.2): with A = X'X + sum_j lam_j S_j, H = X A^-1 X',
+    # GCV = n RSS / (n - gamma tr H)^2. The search scores a whole line of one penalty (or of all together)
+    # from one factorisation; every point must equal the direct computation, also with fewer rows than
+    # columns (n = 15 on 23 columns), where X'X is singular and a small penalty leaves no degrees of freedom.
+    rng = np.random.default_rng(11)
+    X = rng.uniform(0.0, 1.0, (n, 2))
+    y = np.sin(5 * X[:, 0]) + X[:, 1] + rng.normal(0.0, 0.2, n)
+    spec = DesignSpec.learn(X, [feature("a"), feature("b")], n_basis=12, deviation=True)
+    blocks = spec.blocks(X)
+    design, _, penalties = stack(blocks)
+    p = design.shape[1]
+    gram = design.T @ design
+    jitter = 1e-9 * np.trace(gram) / p * np.eye(p)
+    problem = _Problem(gram, design.T @ y, float(y @ y), n, penalties, jitter, 1.4)
+    full = np.zeros((len(penalties), p, p))
+    for i, pen in enumerate(penalties):
+        full[i, pen.cols, pen.cols] = pen.matrix
+
+    def direct(lambdas: np.ndarray) -> float:
+        A = gram + jitter + np.tensordot(lambdas, full, axes=1)
+        H = design @ np.linalg.solve(A, design.T)
+        rss = float(np.sum((y - H @ y) ** 2))
+        dof = n - 1.4 * np.trace(H)
+        return n * rss / dof**2 if dof > 0 else np.inf  # no residual degrees of freedom left: ruled out
+
+    rho = np.array([-3.0, 0.0, 2.5])
+    fixed = rng.uniform(0.5, 5.0, len(penalties))
+    fixed[2] = 0.0
+    direction = np.zeros(len(penalties))
+    direction[2] = 3.0
+    expected = [direct(fixed + 10.0**r * direction) for r in rho]
+    np.testing.assert_allclose(problem.line(fixed, direction, rho), expected, rtol=1e-7)
+    together = np.ones(len(penalties))
+    expected = [direct(10.0**r * together) for r in rho]
+    np.testing.assert_allclose(problem.line(np.zeros(len(penalties)), together, rho), expected, rtol=1e-7)
 
 
 def test_infinite_penalty_leaves_a_straight_line() -> None:
