@@ -126,9 +126,14 @@ class DesignSpec:
         if X.shape[0] == 0:
             raise ValueError("cannot learn a design from zero rows")
         like = scale_from.transforms if scale_from is not None else (None,) * len(features)
-        return cls(
-            tuple(_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)), n_basis, deviation
-        )
+        learned = [_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)]
+        varying = [j for j, (_, scale) in enumerate(learned) if scale is not None]
+        T = np.column_stack([learned[j][1] for j in varying]) if varying else np.zeros((X.shape[0], 0))
+        raw = _raw_columns([learned[j][0] for j in varying], T, n_basis)
+        constraint = {j: sum_to_zero_basis(cols.mean(axis=0)) for j, cols in zip(varying, raw)}
+        transforms = tuple(replace(t, constraint=constraint[j]) if j in constraint else t
+                           for j, (t, _) in enumerate(learned))
+        return cls(transforms, n_basis, deviation)
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -168,7 +173,7 @@ class DesignSpec:
         x[np.isnan(x)] = t.impute
         if t.log:
             x = np.log(np.maximum(x, t.log_floor))
-        return _raw_columns(t, x, self.n_basis) @ t.constraint
+        return _raw_columns([t], x[:, None], self.n_basis)[0] @ t.constraint
 
     def blocks(self, X: np.ndarray, pairs: Sequence[Pair] = ()) -> list[Block]:
         """The intercept, one block per non-constant feature, then one product column per pair."""
@@ -176,11 +181,11 @@ class DesignSpec:
         n = T.shape[0]
         ridge = (np.eye(1),)
         out = [Block(INTERCEPT, np.ones((n, 1)), ridge if self.deviation else ())]
-        for j, t in enumerate(self.transforms):
-            if t.constant:
-                continue
-            cols = _raw_columns(t, T[:, j], self.n_basis) @ t.constraint
-            out.append(Block(t.name, cols, self._penalties[j]))
+        used = [j for j, t in enumerate(self.transforms) if not t.constant]
+        raw = _raw_columns([self.transforms[j] for j in used], T[:, used], self.n_basis)
+        for j, cols in zip(used, raw):
+            t = self.transforms[j]
+            out.append(Block(t.name, cols @ t.constraint, self._penalties[j]))
         if len(pairs):
             prods = self.products(X, pairs)
             for i, (a, b) in enumerate(pairs):
@@ -243,7 +248,10 @@ def typical_value(x: np.ndarray, kind: str) -> float:
     return float(vals[np.argmax(counts)])
 
 
-def _learn_one(x: np.ndarray, f: Feature, n_basis: int, like: FeatureTransform | None) -> FeatureTransform:
+def _learn_one(x: np.ndarray, f: Feature, n_basis: int,
+               like: FeatureTransform | None) -> tuple[FeatureTransform, np.ndarray | None]:
+    """A feature's transform and its training values on the modelling scale; a varying feature's transform
+    still lacks its constraint (learned from all features' columns at once), a constant one has none (None)."""
     if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
         raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
     impute = typical_value(x, f.kind)
@@ -263,15 +271,23 @@ def _learn_one(x: np.ndarray, f: Feature, n_basis: int, like: FeatureTransform |
     )
     if sd == 0:
         width = n_basis if f.kind == "continuous" else max(n_levels, 1)
-        return replace(partial, constraint=np.zeros((width, 0)))
+        return replace(partial, constraint=np.zeros((width, 0))), None
     if f.kind in ("ordinal", "categorical") and n_levels < 2:
         raise ValueError(f"feature {f.name!r}: a {f.kind} feature needs its levels listed")
-    means = _raw_columns(partial, t, n_basis).mean(axis=0)
-    return replace(partial, constraint=sum_to_zero_basis(means))
+    return partial, t
 
 
-def _raw_columns(t: FeatureTransform, x: np.ndarray, n_basis: int) -> np.ndarray:
-    """Unconstrained columns on the modelling scale: B-splines, or level indicators (binary = two levels)."""
-    if t.kind == "continuous":
-        return bspline_basis(x, t.lo, t.hi, n_basis)
-    return _indicators(x, t.n_levels)
+def _raw_columns(ts: Sequence[FeatureTransform], T: np.ndarray, n_basis: int) -> list[np.ndarray]:
+    """Unconstrained columns of several features (T: one column each, on the modelling scale): B-splines, or
+    level indicators (binary = two levels). Equally spaced knots make a B-spline basis invariant to an affine
+    map of x, so every curve is evaluated in one call on [0, 1] after mapping [lo, hi] onto it."""
+    n = T.shape[0]
+    curves = [i for i, t in enumerate(ts) if t.kind == "continuous"]
+    splines: dict[int, np.ndarray] = {}
+    if curves:
+        lo = np.array([ts[i].lo for i in curves])
+        hi = np.array([ts[i].hi for i in curves])
+        unit = (np.clip(T[:, curves], lo, hi) - lo) / np.where(hi > lo, hi - lo, 1.0)
+        basis = bspline_basis(unit.ravel(order="F"), 0.0, 1.0, n_basis)
+        splines = {i: basis[k * n : (k + 1) * n] for k, i in enumerate(curves)}
+    return [splines[i] if i in splines else _indicators(T[:, i], t.n_levels) for i, t in enumerate(ts)]
