@@ -16,7 +16,7 @@ from typing import Sequence
 
 import numpy as np
 from scipy.linalg import cho_factor, cho_solve
-from scipy.linalg.lapack import dpotrf, dpstrf, dtrtrs
+from scipy.linalg.lapack import dgesdd, dpotrf, dpstrf, dtrtrs
 
 from .design import Block
 
@@ -159,8 +159,10 @@ class _Problem:
             slabs[i, pen.cols, pen.cols] = pen.matrix
         self.support = np.flatnonzero(np.any(slabs != 0, axis=0))  # the penalised entries of the p x p system
         self.values = slabs.reshape(len(penalties), p * p)[:, self.support]
-        self.roots = [_embedded_root(pen, p) for pen in penalties]
-        self.root = _gram_root(gram)
+        roots = [_embedded_root(pen, p) for pen in penalties]
+        self.roots = np.hstack(roots) if roots else np.zeros((p, 0))  # E_j side by side, E_j E_j' = S_j
+        self.owner = np.repeat(np.arange(len(roots)), [r.shape[1] for r in roots])  # penalty of each column
+        self.data = np.column_stack([_gram_root(gram), xty])  # [R' | X'y], solved with L in the same call
 
     def system(self, lambdas: np.ndarray) -> np.ndarray:
         out = self.base.copy()
@@ -172,11 +174,13 @@ class _Problem:
         chol, info = dpotrf(self.system(fixed), lower=1, clean=0, overwrite_a=1)
         if info != 0:
             return np.full(len(rho), np.inf)
-        moving = [np.sqrt(d) * r for d, r in zip(direction, self.roots) if d > 0]
-        w, _ = dtrtrs(chol, np.hstack(moving) if moving else np.zeros((len(self.xty), 0)), lower=1)
-        q, sv, _ = np.linalg.svd(w, full_matrices=False)
-        half, _ = dtrtrs(chol, self.root, lower=1)  # L^-1 R', so L^-1 X'X L^-T = half half'
-        z, _ = dtrtrs(chol, self.xty, lower=1)
+        cols = np.flatnonzero(direction[self.owner] > 0)
+        moving = self.roots[:, cols] * np.sqrt(direction[self.owner[cols]])
+        solved, _ = dtrtrs(chol, np.hstack([moving, self.data]), lower=1)
+        half, z = solved[:, len(cols):-1], solved[:, -1]  # L^-1 R' (so L^-1 X'X L^-T = half half') and L^-1 X'y
+        q, sv = np.zeros((len(z), 0)), np.zeros(0)
+        if len(cols):
+            q, sv, _, _ = dgesdd(solved[:, : len(cols)], compute_uv=1, full_matrices=0)
         proj = q.T @ half
         a = q.T @ z
         t = 10.0 ** np.asarray(rho, dtype=float)
