@@ -32,7 +32,10 @@ their own share one more alpha (reval/interactions.py). On the demo at the defau
 exactly the generator's three pairs and no segment adds one; the cross-validated Lasso used before added
 condition:garage_spaces and gave its largest neighbourhood three false pairs. bench/accuracy.py (10 folds,
 one thread, 2-core machine): Ames COD 8.13 in 7.9 s and demo 8.91 in 3.9 s, against 8.17 in 25.3 s and 8.89
-in 11.4 s with that Lasso and the slower GCV search (LightGBM: 7.90 in 2.2 s, 9.14 in 2.8 s).
+in 11.4 s with that Lasso and the slower GCV search (LightGBM: 7.90 in 2.2 s, 9.14 in 2.8 s). Later, with
+latitude and longitude as curves on Ames and every GCV line scored from one factorisation (reval/penalised.py):
+Ames 7.75 in 4.7-6.3 s (12.3 s before that search) and demo 8.91 in 2.3-2.9 s (5.1 s before), against
+LightGBM's 7.69 in 2.4-2.5 s and 9.14 in 2.4-2.8 s, over four runs on this shared machine.
 
 Why our own splines instead of pygam: the selection needs one factorisation of the penalised
 main-effect smoother shared by every interaction candidate (Robinson's double residual); the
