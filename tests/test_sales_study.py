@@ -106,3 +106,20 @@ def test_failed_sales_step_changes_nothing(demo_project: Path, tmp_path: Path) -
     with pytest.raises(UserError, match="No sale qualifies"):
         prepare_sales_step(folder)
     assert database_content(folder / "reval.duckdb") == before
+
+
+def test_a_handful_of_sales_still_gets_an_index_with_an_honest_band(small_project: Path) -> None:
+    """With fewer sales than the trend has parameters the noise cannot be estimated: the index is stored,
+    its band is NULL (unknown) or finite, never a made-up number."""
+    from reval.importer import run_import
+
+    run_import(load_config(small_project))
+    result = prepare_sales_step(small_project)
+    assert result["qualified"] == 3  # S4 covers two parcels (multi-parcel, excluded by default)
+    con = _con(small_project)
+    rows = con.execute("SELECT log_index, lo, hi FROM market_trend").fetchall()
+    adjusted = con.execute("SELECT count(*) FROM adjusted_sales").fetchone()[0]
+    con.close()
+    assert adjusted == 3 and rows
+    assert all(np.isfinite(i) for i, _, _ in rows)
+    assert all((lo is None and hi is None) or (lo <= i <= hi) for i, lo, hi in rows)
