@@ -17,3 +17,12 @@ def database_content(path: Path) -> dict[str, list[tuple]]:
         return {t: sorted(con.execute(f'SELECT * FROM "{t}"').fetchall(), key=repr) for t in tables}
     finally:
         con.close()
+
+
+def query_frame(folder: Path, sql: str, params: list | None = None):
+    """One read-only query against a project's database, as a pandas DataFrame."""
+    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+    try:
+        return con.execute(sql, params or []).df()
+    finally:
+        con.close()

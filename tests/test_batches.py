@@ -10,7 +10,6 @@ import itertools
 import json
 from pathlib import Path
 
-import duckdb
 import numpy as np
 import pandas as pd
 import pytest
@@ -18,6 +17,7 @@ import pytest
 from reval.cli_roll import approve, batch_states, event_log, export_roll, hold, revoke, value_step
 from reval.errors import UserError
 from run_fixture import insert_run, roll_project
+from db_content import query_frame
 
 FAILING, PASSING = "CORV", "FENL"
 
@@ -29,23 +29,15 @@ def staged(demo_project: Path, tmp_path: Path) -> Path:
     return folder
 
 
-def _query(folder: Path, sql: str, params: list | None = None) -> pd.DataFrame:
-    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
-    try:
-        return con.execute(sql, params or []).df()
-    finally:
-        con.close()
-
-
 def _oof_ratios(folder: Path, segment: str) -> tuple[np.ndarray, np.ndarray]:
-    f = _query(folder, """SELECT exp(s.oof_log) AS v, a.adjusted_price AS p FROM sale_predictions s
+    f = query_frame(folder, """SELECT exp(s.oof_log) AS v, a.adjusted_price AS p FROM sale_predictions s
                           JOIN adjusted_sales a USING (sale_id, parcel_id) JOIN parcels x USING (parcel_id)
                           WHERE s.run_id = 'run-a' AND x.segment = ?""", [segment])
     return f["v"].to_numpy(), f["p"].to_numpy()
 
 
 def _batch(folder: Path, segment: str, state: str) -> pd.Series:
-    rows = _query(folder, "SELECT * FROM batches WHERE segment = ? AND state = ?", [segment, state])
+    rows = query_frame(folder, "SELECT * FROM batches WHERE segment = ? AND state = ?", [segment, state])
     assert len(rows) == 1, rows
     return rows.iloc[0]
 
@@ -92,9 +84,9 @@ def test_hold_needs_a_reason_and_only_a_new_run_stages_it_again(staged: Path) ->
     insert_run(staged, "run-b", 2, order=1)
     value_step(staged)
     assert _batch(staged, PASSING, "staged")["run_id"] == "run-b"
-    assert _query(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(held["batch_id"])])["state"][0] \
+    assert query_frame(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(held["batch_id"])])["state"][0] \
         == "replaced"
-    assert _query(staged, "SELECT count(*) AS n FROM roll_values WHERE batch_id = ?", [int(held["batch_id"])])["n"][0] == 0
+    assert query_frame(staged, "SELECT count(*) AS n FROM roll_values WHERE batch_id = ?", [int(held["batch_id"])])["n"][0] == 0
 
 
 def test_revoke_needs_a_note_and_is_refused_after_export(staged: Path, tmp_path: Path) -> None:
@@ -115,11 +107,11 @@ def test_revoke_needs_a_note_and_is_refused_after_export(staged: Path, tmp_path:
 def test_a_refit_after_approval_leaves_approved_values_alone(staged: Path) -> None:
     approve(staged, PASSING)
     approved = _batch(staged, PASSING, "approved")
-    before = _query(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
+    before = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     insert_run(staged, "run-b", 2, order=1)
     result = value_step(staged)
     assert result["run_id"] == "run-b" and len(result["staged"]) == 22
-    after = _query(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
+    after = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     pd.testing.assert_frame_equal(before, after)
     assert _batch(staged, PASSING, "approved")["changed_at"] == approved["changed_at"]
     new = _batch(staged, PASSING, "staged")
@@ -128,7 +120,7 @@ def test_a_refit_after_approval_leaves_approved_values_alone(staged: Path) -> No
     assert states[PASSING]["certified"]["batch_id"] == approved["batch_id"]
     assert states[PASSING]["open"]["batch_id"] == new["batch_id"]
     approve(staged, PASSING)  # the newer approval supersedes the older one
-    assert _query(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(approved["batch_id"])])["state"][0] \
+    assert query_frame(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(approved["batch_id"])])["state"][0] \
         == "superseded"
 
 
@@ -140,8 +132,8 @@ def test_every_transition_is_an_event(staged: Path, tmp_path: Path) -> None:
     export_roll(staged, tmp_path / "roll.csv", partial=True)
     insert_run(staged, "run-b", 2, order=1)
     value_step(staged)
-    events = _query(staged, "SELECT * FROM events WHERE kind LIKE 'batch_%' ORDER BY event_id")
-    batches = _query(staged, "SELECT * FROM batches").set_index("batch_id")
+    events = query_frame(staged, "SELECT * FROM events WHERE kind LIKE 'batch_%' ORDER BY event_id")
+    batches = query_frame(staged, "SELECT * FROM batches").set_index("batch_id")
     assert (events["who"].str.len() > 0).all() and events["event_time"].notna().all()
     details = events["detail"].map(json.loads)
     for batch_id, batch in batches.iterrows():

@@ -6,7 +6,6 @@ import hashlib
 import json
 import os
 import re
-import shutil
 import signal
 import subprocess
 import sys
@@ -18,7 +17,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from conftest import SMALL_PARCELS, SMALL_SALES, write_project
+from conftest import SMALL_PARCELS, SMALL_SALES, copy_project, write_project
+from db_content import query_frame
 from reval.cli_roll import approve, event_log, export_roll, revoke, value_step
 from reval.commands import import_project, prepare_sales_step
 from reval.config import load_config
@@ -52,29 +52,16 @@ def approved(demo_project: Path, tmp_path_factory: pytest.TempPathFactory) -> Pa
     return folder
 
 
-def _copy(source: Path, target: Path) -> Path:
-    shutil.copytree(source, target)
-    return target
-
-
-def _query(folder: Path, sql: str, params: list | None = None) -> pd.DataFrame:
-    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
-    try:
-        return con.execute(sql, params or []).df()
-    finally:
-        con.close()
-
-
 def _read_roll(path: Path) -> pd.DataFrame:
     return pd.read_csv(path, dtype=str, keep_default_na=False)
 
 
 def test_the_roll_reconciles_with_the_approved_batches(approved: Path, tmp_path: Path) -> None:
-    folder = _copy(approved, tmp_path / "p")
+    folder = copy_project(approved, tmp_path / "p")
     out = tmp_path / "roll.csv"
     manifest = export_roll(folder, out)
     roll = _read_roll(out)
-    parcels = _query(folder, "SELECT parcel_id, segment FROM parcels")
+    parcels = query_frame(folder, "SELECT parcel_id, segment FROM parcels")
     assert len(roll) == len(parcels) == manifest["rows"]
     assert set(roll["parcel_id"]) == set(parcels["parcel_id"])
     assert "0000007" in set(roll["parcel_id"])                       # leading zeros kept
@@ -82,7 +69,7 @@ def test_the_roll_reconciles_with_the_approved_batches(approved: Path, tmp_path:
     assert keys == sorted(keys)                                      # deterministic order
     for column in VALUE_COLUMNS + ["change_pct"]:
         assert roll[column].map(lambda x: x == "" or bool(PLAIN_DECIMAL.match(x))).all(), column
-    db = _query(folder, """SELECT b.segment, sum(v.prior_value) AS prior_value, sum(v.market_value) AS market_value,
+    db = query_frame(folder, """SELECT b.segment, sum(v.prior_value) AS prior_value, sum(v.market_value) AS market_value,
                                   sum(v.land_value) AS land_value, sum(v.improvement_value) AS improvement_value,
                                   sum(v.assessed_value) AS assessed_value, count(*) AS rows
                            FROM roll_values v JOIN batches b USING (batch_id) WHERE b.state = 'exported'
@@ -96,13 +83,13 @@ def test_the_roll_reconciles_with_the_approved_batches(approved: Path, tmp_path:
     written = json.loads((tmp_path / "roll.manifest.json").read_text())
     assert written["sha256"] == manifest["sha256"] and written["rows"] == len(roll)
     assert written["config_sha256"] == load_config(folder).sha256 and written["run_ids"] == ["run-a"]
-    assert _query(folder, "SELECT count(*) AS n FROM batches WHERE state = 'approved'")["n"][0] == 0
+    assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'approved'")["n"][0] == 0
     kinds = [e["kind"] for e in event_log(folder)["events"]]
     assert kinds.count("batch_exported") == 22 and kinds[-1] == "roll_exported"
 
 
 def test_export_names_unapproved_segments_unless_partial(approved: Path, tmp_path: Path) -> None:
-    folder = _copy(approved, tmp_path / "p")
+    folder = copy_project(approved, tmp_path / "p")
     for segment in ("WHIN", "BRIN"):
         revoke(folder, segment, "second look")
     out = tmp_path / "roll.csv"
@@ -110,7 +97,7 @@ def test_export_names_unapproved_segments_unless_partial(approved: Path, tmp_pat
         export_roll(folder, out)
     assert not out.exists()
     manifest = export_roll(folder, out, partial=True)
-    expected = _query(folder, "SELECT count(*) AS n FROM parcels WHERE segment NOT IN ('BRIN', 'WHIN')")["n"][0]
+    expected = query_frame(folder, "SELECT count(*) AS n FROM parcels WHERE segment NOT IN ('BRIN', 'WHIN')")["n"][0]
     roll = _read_roll(out)
     assert len(roll) == expected and not set(roll["segment"]) & {"BRIN", "WHIN"}
     assert manifest["partial"] and manifest["not_approved"] == ["BRIN", "WHIN"]
@@ -120,7 +107,7 @@ def test_a_killed_export_leaves_no_roll_and_no_exported_state(approved: Path, tm
     """The export runs in a child process that is SIGKILLed as soon as its temporary file appears, i.e. while
     DuckDB writes it. To make that window wide (about a second here) without any hook in the product code,
     the approved batches are padded to 200,000 rows; the kill lands long before the rename."""
-    folder = _copy(approved, tmp_path / "p")
+    folder = copy_project(approved, tmp_path / "p")
     con = duckdb.connect(str(folder / "reval.duckdb"))
     con.execute("""INSERT INTO roll_values SELECT batch_id, parcel_id || '-' || k, property_class, prior_value,
                    market_value, land_value, improvement_value, assessed_value, flags
@@ -138,14 +125,14 @@ def test_a_killed_export_leaves_no_roll_and_no_exported_state(approved: Path, tm
     os.kill(child.pid, signal.SIGKILL)
     assert child.wait() == -signal.SIGKILL and caught, "the export was not caught mid-write"
     assert not out.exists() and not (tmp_path / "roll.manifest.json").exists()
-    assert _query(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 0
-    assert _query(folder, "SELECT count(*) AS n FROM events WHERE kind LIKE '%exported'")["n"][0] == 0
+    assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 0
+    assert query_frame(folder, "SELECT count(*) AS n FROM events WHERE kind LIKE '%exported'")["n"][0] == 0
 
     manifest = export_roll(folder, out)                              # a rerun succeeds
     assert manifest["rows"] == 10 * 20_000
     assert hashlib.sha256(out.read_bytes()).hexdigest() == manifest["sha256"]
     assert not list(tmp_path.glob(".roll*.partial"))                 # and clears what the killed one left
-    assert _query(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 22
+    assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 22
 
 
 def test_formula_like_cells_are_neutralised_and_leading_zeros_kept(tmp_path: Path) -> None:
@@ -175,12 +162,12 @@ def test_formula_like_cells_are_neutralised_and_leading_zeros_kept(tmp_path: Pat
 
 
 def test_a_refit_after_export_leaves_the_roll_unchanged(approved: Path, tmp_path: Path) -> None:
-    folder = _copy(approved, tmp_path / "p")
+    folder = copy_project(approved, tmp_path / "p")
     first = export_roll(folder, tmp_path / "first.csv")
-    before = _query(folder, "SELECT * FROM roll_values ORDER BY batch_id, parcel_id")
+    before = query_frame(folder, "SELECT * FROM roll_values ORDER BY batch_id, parcel_id")
     insert_run(folder, "run-b", 2, order=1)
     assert len(value_step(folder)["staged"]) == 22
-    after = _query(folder, "SELECT v.* FROM roll_values v JOIN batches b USING (batch_id) "
+    after = query_frame(folder, "SELECT v.* FROM roll_values v JOIN batches b USING (batch_id) "
                            "WHERE b.run_id = 'run-a' ORDER BY batch_id, parcel_id")
     pd.testing.assert_frame_equal(before, after)
     again = export_roll(folder, tmp_path / "again.csv")
