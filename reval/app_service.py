@@ -19,6 +19,7 @@ import duckdb
 
 from .config import Config, load_config
 from .errors import UserError
+from .value_sources import SOURCE_LABELS
 from .store import Store, latest_version, open_store
 
 if TYPE_CHECKING:
@@ -26,12 +27,6 @@ if TYPE_CHECKING:
 
 STATS = ("median_ratio", "cod", "prd", "prb")
 CI_COLUMNS = {"median_ratio": "median", "cod": "cod", "prd": "prd", "prb": "prb"}  # stored as <name>_lo, _hi
-# reval.study.SOURCE_LABELS' wording (reval.study loads pandas and scipy, which the overview does not need)
-SOURCE_LABELS = {
-    "prior": "prior roll values",
-    "model_in_sample": "in-sample model values (optimistic: the model saw these sales)",
-    "model_out_of_fold": "out-of-fold model values (honest: each sale valued by a model that did not see it)",
-}
 BASE_TERM = "(base)"
 SORT_KEYS = ("segment", "market_area", "parcels", "sales", "model", "median_ratio", "cod", "prd", "prb",
              "value_change", "state")

@@ -17,17 +17,11 @@ from .errors import UserError
 from .ratio_stats import RatioStudy, ratio_study
 from .standards import judge
 from .store import Store
+from .value_sources import IN_SAMPLE_WARNING, SOURCE_LABELS
 
 Grouping = Literal["segment", "market_area", "class", "all"]
 GROUP_COLUMNS: dict[str, str | None] = {"segment": "segment", "market_area": "market_area",
                                         "class": "property_class", "all": None}
-SOURCE_LABELS = {
-    "prior": "prior roll values",
-    "model_in_sample": "in-sample model values (optimistic: the model saw these sales)",
-    "model_out_of_fold": "out-of-fold model values (honest: each sale valued by a model that did not see it)",
-}
-IN_SAMPLE_WARNING = ("In-sample statistics flatter the model: it was fitted to these very sales. "
-                     "Only out-of-fold statistics may gate approval.")
 
 
 def study_id(values_source: str, run_id: str | None, grouping: str) -> str:
