@@ -18,6 +18,7 @@ from typing import Any
 import duckdb
 import numpy as np
 import pytest
+from db_content import query_frame
 from textual.pilot import Pilot
 from textual.worker import WorkerFailed
 from textual.widgets import DataTable, Static
@@ -431,11 +432,7 @@ async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: P
         severity, text = app.messages[-1]
     assert severity == "information" and text.startswith("Fit done: run ")
     assert progress and all(0 < p.done <= p.total for p in progress)
-    con = duckdb.connect(str(demo_copy / "reval.duckdb"), read_only=True)
-    try:
-        assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 2
-    finally:
-        con.close()
+    assert query_frame(demo_copy, "SELECT count(*) AS n FROM runs")["n"].iloc[0] == 2
 
 
 def test_a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy: Path) -> None:
@@ -452,11 +449,7 @@ async def _a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy:
             await pilot.pause()
         await pilot.pause()
         assert app.messages[-1] == ("warning", "fit cancelled; the step was rolled back and nothing changed")
-    con = duckdb.connect(str(demo_copy / "reval.duckdb"), read_only=True)
-    try:
-        assert con.execute("SELECT count(*) FROM runs").fetchone()[0] == 1
-    finally:
-        con.close()
+    assert query_frame(demo_copy, "SELECT count(*) AS n FROM runs")["n"].iloc[0] == 1
 
 
 def test_a_project_without_a_run_says_so_and_never_crashes(small_project: Path) -> None:
