@@ -67,12 +67,13 @@ def revoke(folder: Path, segment: str, note: str) -> dict[str, Any]:
         return batches.revoke(store, config, segment, note)
 
 
-def export_roll(folder: Path, path: Path, partial: bool = False) -> dict[str, Any]:
-    """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless partial."""
+def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> dict[str, Any]:
+    """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless partial,
+    refuses the project's own files, and an existing file unless overwrite."""
     from . import export  # step modules load pandas and SciPy: only when the step runs
 
     with _project(folder, write=True) as (config, store):
-        return export.export_roll(store, config, path, partial)
+        return export.export_roll(store, config, path, partial, overwrite)
 
 
 def event_log(folder: Path, segment: str | None = None) -> dict[str, Any]:
@@ -217,7 +218,10 @@ def add_roll_commands(sub: Any, common: argparse.ArgumentParser) -> None:
     p = sub.add_parser("export", parents=[common], help="write the approved value roll as CSV with a manifest")
     p.add_argument("path", help="the CSV file to write")
     p.add_argument("--partial", action="store_true", help="export the approved segments even if some are not")
-    p.set_defaults(func=lambda a: _emit(a, export_roll(folder(a), Path(a.path), a.partial), _render_export))
+    p.add_argument("--overwrite", action="store_true", help="replace an existing roll file and its manifest "
+                   "(never the project's own files)")
+    p.set_defaults(func=lambda a: _emit(a, export_roll(folder(a), Path(a.path), a.partial, a.overwrite),
+                                        _render_export))
 
     p = sub.add_parser("log", parents=[common], help="the audit log of events")
     p.add_argument("--segment", help="only this segment's events")

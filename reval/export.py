@@ -19,6 +19,8 @@ from .batches import json_records, segment_states
 from .config import Config
 from .errors import UserError
 from .events import current_user, record_event
+from .importer import ERROR_REPORT
+from .land import schedule_path
 from .store import Store
 
 PARTIAL_SUFFIX = ".partial"
@@ -72,13 +74,38 @@ def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str],
     return certified, missing, pending
 
 
-def export_roll(store: Store, config: Config, path: Path, partial: bool = False) -> dict[str, Any]:
-    """Write the roll of every certified batch to `path` (and its manifest); mark approved batches exported."""
-    path = Path(path).resolve()
+def project_files(config: Config) -> set[Path]:
+    """Files an export must never write over: the config, the database and its log, the inputs."""
+    database = config.database.resolve()
+    owned = {config.path, database, database.with_name(database.name + ".wal"), config.parcels_file,
+             config.folder / ERROR_REPORT}
+    owned |= {p for p in (config.sales_file, schedule_path(config)) if p is not None}
+    return {p.resolve() for p in owned}
+
+
+def check_target(config: Config, path: Path, overwrite: bool) -> None:
+    """Refuse a roll (or its manifest) that would land on a file of the project, or on any existing file
+    unless `overwrite` is given."""
     if not path.parent.is_dir():
         raise UserError(f"{path.parent}: no such folder")
     if path.is_dir():
         raise UserError(f"{path} is a folder; give the roll's file name, e.g. {path / 'roll.csv'}")
+    owned = project_files(config)
+    for target in (path, manifest_path(path)):
+        if target.resolve() in owned:
+            raise UserError(f"Export refused: {target} is one of the project's own files (config, database or "
+                            "input); choose another file name, e.g. value_roll.csv.")
+        if target.exists() and not overwrite:
+            raise UserError(f"Export refused: {target} already exists; choose another file name or give "
+                            "--overwrite to replace it.")
+
+
+def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
+                overwrite: bool = False) -> dict[str, Any]:
+    """Write the roll of every certified batch to `path` (and its manifest); mark approved batches exported.
+    Never writes over the project's own files, nor over an existing file unless `overwrite`."""
+    path = Path(path).resolve()
+    check_target(config, path, overwrite)
     certified, missing, pending = _plan(store, partial)
     ids = [int(b["batch_id"]) for b in certified]
     _remove_stale_partials(path)

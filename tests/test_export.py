@@ -174,3 +174,40 @@ def test_a_refit_after_export_leaves_the_roll_unchanged(approved: Path, tmp_path
     assert (tmp_path / "again.csv").read_bytes() == (tmp_path / "first.csv").read_bytes()
     assert again["sha256"] == first["sha256"] and again["run_ids"] == ["run-a"]
     assert len(again["pending_newer_batches"]) == 22
+
+
+@pytest.mark.parametrize("target", ["reval.duckdb", "reval.toml", "parcels.csv", "sales.csv", "land_schedule.csv"])
+def test_export_never_writes_over_a_file_of_the_project(approved: Path, tmp_path: Path, target: str) -> None:
+    """Issue finding: `reval export reval.duckdb --partial` destroyed the project (exit 0)."""
+    folder = copy_project(approved, tmp_path / "p")
+    before = {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
+    for overwrite in (False, True):
+        with pytest.raises(UserError, match="project's own"):
+            export_roll(folder, folder / target, partial=True, overwrite=overwrite)
+    assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before
+    assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 0
+
+
+def test_export_refuses_an_existing_file_unless_told_to_overwrite(approved: Path, tmp_path: Path) -> None:
+    folder = copy_project(approved, tmp_path / "p")
+    out = tmp_path / "roll.csv"
+    out.write_text("someone else's file\n")
+    with pytest.raises(UserError, match="already exists.*--overwrite"):
+        export_roll(folder, out)
+    assert out.read_text() == "someone else's file\n"
+    (tmp_path / "other.manifest.json").write_text("{}")
+    with pytest.raises(UserError, match="other.manifest.json already exists"):
+        export_roll(folder, tmp_path / "other.csv")
+    assert not (tmp_path / "other.csv").exists()
+    manifest = export_roll(folder, out, overwrite=True)
+    assert hashlib.sha256(out.read_bytes()).hexdigest() == manifest["sha256"]
+
+
+def test_cli_export_onto_the_database_exits_1_and_keeps_the_project(approved: Path, tmp_path: Path) -> None:
+    folder = copy_project(approved, tmp_path / "p")
+    before = (folder / "reval.duckdb").read_bytes()
+    done = subprocess.run([sys.executable, "-m", "reval.cli", "export", "reval.duckdb", "--partial"],
+                          capture_output=True, text=True, cwd=folder, env={**os.environ, "PYTHONPATH": str(ROOT)})
+    assert done.returncode == 1 and "Traceback" not in done.stderr, done.stderr
+    assert "project's own" in done.stderr
+    assert (folder / "reval.duckdb").read_bytes() == before
