@@ -22,14 +22,14 @@ import pandas as pd
 from threadpoolctl import threadpool_limits
 
 from data_samples.ames_data import write_ames_csv
-from reval.commands import DEMO_FILES, DEMO_SOURCE
-from reval.config import load_config
-from reval.dataset import qualified_sales
-from reval.hierarchy import fold_ids, out_of_fold
-from reval.importer import run_import
-from reval.reference_models import accuracy_table, compare_models, reference_factories
-from reval.sales import prepare_sales
-from reval.store import open_store
+from reval.service.actions import DEMO_FILES, DEMO_SOURCE
+from reval.data.config import load_config
+from reval.data.dataset import qualified_sales
+from reval.model.hierarchy import fold_ids, out_of_fold
+from reval.data.importer import run_import
+from reval.model.references import accuracy_table, compare_models, reference_factories
+from reval.data.sales import prepare_sales
+from reval.data.store import open_store
 
 ROOT = Path(__file__).resolve().parent.parent
 RESULTS = ROOT / "bench" / "results" / "accuracy.json"

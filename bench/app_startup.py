@@ -81,7 +81,7 @@ def measure(folder: Path, trials: int) -> dict[str, object]:
 
 
 def demo_folder(parcels: int | None) -> Path:
-    from reval.commands import build_demo
+    from reval.service.actions import build_demo
 
     folder = Path(tempfile.mkdtemp(prefix="reval-bench-")) / "demo"
     build_demo(folder, parcels)
@@ -96,7 +96,7 @@ def main() -> None:
     args = parser.parse_args()
     sys.path.insert(0, str(ROOT))
     folder = args.folder.resolve() if args.folder else demo_folder(args.parcels)
-    from reval.app_service import overview
+    from reval.service.views import overview
 
     segments = len(overview(folder)["segments"])
     result = measure(folder, args.trials)

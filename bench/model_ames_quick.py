@@ -15,9 +15,9 @@ from types import SimpleNamespace
 
 import numpy as np
 
-from reval.hierarchy import fit_hierarchy, out_of_fold
-from reval.model_settings import ModelSettings
-from reval.ratio_stats import cod, prd
+from reval.model.hierarchy import fit_hierarchy, out_of_fold
+from reval.model.settings import ModelSettings
+from reval.stats.ratio_stats import cod, prd
 
 CONDITION_LEVELS = ("Very_Poor", "Poor", "Fair", "Below_Average", "Average", "Above_Average", "Good",
                     "Very_Good", "Excellent")

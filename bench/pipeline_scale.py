@@ -15,11 +15,11 @@ import time
 from pathlib import Path
 
 from data_samples.demo_town import write_project
-from reval.config import load_config
-from reval.fitting import fit_run
-from reval.importer import run_import
-from reval.sales import prepare_sales
-from reval.store import open_store
+from reval.data.config import load_config
+from reval.model.run import fit_run
+from reval.data.importer import run_import
+from reval.data.sales import prepare_sales
+from reval.data.store import open_store
 
 RESULTS = Path(__file__).resolve().parent / "results" / "pipeline_scale.json"
 

@@ -81,7 +81,7 @@ def small_project(tmp_path: Path) -> Path:
 def demo_project(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """The shipped demo municipality, imported, sales prepared and prior-value studies stored (built once;
     tests that change it must copy it first with `copy_project`)."""
-    from reval.commands import build_demo
+    from reval.service.actions import build_demo
 
     folder = tmp_path_factory.mktemp("demo")
     build_demo(folder, None)

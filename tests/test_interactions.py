@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 import statsmodels.api as sm
 
-from reval.design import Block, DesignSpec
-from reval.interactions import candidate_pairs, double_residuals, select_interactions
-from reval.penalised import PenalisedLS
+from reval.model.design import Block, DesignSpec
+from reval.model.interactions import candidate_pairs, double_residuals, select_interactions
+from reval.model.penalised import PenalisedLS
 
 
 def feature(name: str, kind: str = "continuous", levels: tuple[str, ...] = ()) -> SimpleNamespace:

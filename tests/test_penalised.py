@@ -9,8 +9,8 @@ import statsmodels.api as sm
 from pygam import LinearGAM, s
 from threadpoolctl import threadpool_limits
 
-from reval.design import Block, DesignSpec
-from reval.penalised import PenalisedLS, _Problem, stack
+from reval.model.design import Block, DesignSpec
+from reval.model.penalised import PenalisedLS, _Problem, stack
 
 
 def feature(name: str, kind: str = "continuous", log: bool = False, levels: tuple[str, ...] = ()) -> SimpleNamespace:

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 from scipy.interpolate import BSpline
 
-from reval.pspline import bspline_basis, difference_penalty, equal_knots
+from reval.model.splines import bspline_basis, difference_penalty, equal_knots
 
 
 def test_basis_is_a_partition_of_unity() -> None:

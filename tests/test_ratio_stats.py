@@ -14,7 +14,7 @@ import pytest
 import statsmodels.api as sm
 from scipy import stats
 
-from reval.ratio_stats import (
+from reval.stats.ratio_stats import (
     bootstrap_cod_prd, cod, decile_medians, iqr_fences, median_ci, median_ci_ranks, prb, prd,
     ratio_study, ratios, weighted_mean_ratio,
 )

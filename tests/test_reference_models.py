@@ -10,8 +10,8 @@ import pytest
 import statsmodels.api as sm
 from sklearn.preprocessing import PolynomialFeatures, StandardScaler
 
-from reval import ratio_stats
-from reval.reference_models import (
+from reval.stats import ratio_stats
+from reval.model.references import (
     ALL_SEGMENTS,
     GradientBoosting,
     HedonicOLS,

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from scipy.stats import norm
 
-from reval.cli_roll import review_report, value_step
-from reval.review import sales_chasing
+from reval.service.actions import review, stage_values
+from reval.roll.review import sales_chasing
 from run_fixture import roll_project
 
 CHASED = "QUOR"
@@ -44,12 +44,12 @@ def test_fully_separated_samples_match_the_textbook_mann_whitney_p_values() -> N
 @pytest.fixture
 def reviewed(demo_project: Path, tmp_path: Path) -> Path:
     folder = roll_project(demo_project, tmp_path / "p", "review_change_threshold = 0.2\n", chase=(CHASED,))
-    value_step(folder)
+    stage_values(folder)
     return folder
 
 
 def test_sales_chasing_is_flagged_where_sold_parcels_took_their_prices(reviewed: Path) -> None:
-    report = {s["segment"]: s for s in review_report(reviewed)["segments"]}
+    report = {s["segment"]: s for s in review(reviewed)["segments"]}
     chased = report[CHASED]["sales_chasing"]
     assert chased["flagged"] and chased["p_value"] < 1e-6
     assert chased["median_change_unsold"] == pytest.approx(0.0, abs=0.005)  # unsold kept (rounded) prior values
@@ -60,7 +60,7 @@ def test_sales_chasing_is_flagged_where_sold_parcels_took_their_prices(reviewed:
 
 def test_review_numbers_match_an_independent_computation(reviewed: Path) -> None:
     segment = "CORV"
-    report = review_report(reviewed, segment, limit=7)
+    report = review(reviewed, segment, limit=7)
     assert [s["segment"] for s in report["segments"]] == [segment]
     s = report["segments"][0]
     con = duckdb.connect(str(reviewed / "reval.duckdb"), read_only=True)

@@ -9,11 +9,11 @@ import numpy as np
 import pytest
 
 from conftest import copy_project
-from reval.commands import prepare_sales_step, study_step
-from reval.config import load_config
-from reval.ratio_stats import ratio_study
-from reval.store import open_store
-from reval.study import load_study
+from reval.service.actions import prepare_sales, study
+from reval.data.config import load_config
+from reval.stats.ratio_stats import ratio_study
+from reval.data.store import open_store
+from reval.stats.study import load_study
 
 REQUIRED_KEYS = {"group", "n", "median_ratio", "median_ratio_ci", "mean_ratio", "weighted_mean_ratio", "cod",
                  "cod_ci", "prd", "prd_ci", "prb", "prb_ci", "verdicts", "values_source"}
@@ -52,7 +52,7 @@ def test_adjusted_prices_use_the_stored_index(demo_project: Path) -> None:
 
 
 def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project: Path) -> None:
-    result = study_step(demo_project, "prior", "segment")
+    result = study(demo_project, "prior", "segment")
     assert result["values_source"] == "prior" and result["by"] == "segment"
     assert len(result["groups"]) >= 20
     for group in result["groups"]:
@@ -76,14 +76,14 @@ def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project:
 
 
 def test_stored_study_reads_back_without_recomputing(demo_project: Path) -> None:
-    computed = study_step(demo_project, "prior", "market_area")
+    computed = study(demo_project, "prior", "market_area")
     config = load_config(demo_project)
     with open_store(config.database, read_only=True) as store:
         assert load_study(store, "prior", "market_area") == computed
 
 
 def test_trimmed_sales_are_listed_not_dropped(demo_project: Path) -> None:
-    result = study_step(demo_project, "prior", "all")
+    result = study(demo_project, "prior", "all")
     group = result["groups"][0]
     assert group["n_trimmed"] == len(group["trimmed"])
     con = _con(demo_project)
@@ -104,17 +104,17 @@ def test_failed_sales_step_changes_nothing(demo_project: Path, tmp_path: Path) -
     from reval.errors import UserError
 
     with pytest.raises(UserError, match="No sale qualifies"):
-        prepare_sales_step(folder)
+        prepare_sales(folder)
     assert database_content(folder / "reval.duckdb") == before
 
 
 def test_a_handful_of_sales_still_gets_an_index_with_an_honest_band(small_project: Path) -> None:
     """With fewer sales than the trend has parameters the noise cannot be estimated: the index is stored,
     its band is NULL (unknown) or finite, never a made-up number."""
-    from reval.importer import run_import
+    from reval.data.importer import run_import
 
     run_import(load_config(small_project))
-    result = prepare_sales_step(small_project)
+    result = prepare_sales(small_project)
     assert result["qualified"] == 3  # S4 covers two parcels (multi-parcel, excluded by default)
     con = _con(small_project)
     rows = con.execute("SELECT log_index, lo, hi FROM market_trend").fetchall()

@@ -12,8 +12,8 @@ import tomllib
 import numpy as np
 import pytest
 
-from reval.ratio_stats import RatioStudy
-from reval.standards import STANDARDS_TOML_COMMENTED, Standards, Verdict, judge, passes
+from reval.stats.ratio_stats import RatioStudy
+from reval.stats.standards import STANDARDS_TOML_COMMENTED, Standards, Verdict, judge, passes
 
 
 def _study(n: int = 50, median: float = 1.0, cod: float = 10.0, prd: float = 1.0, prb: float = 0.0) -> RatioStudy:

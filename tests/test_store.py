@@ -5,7 +5,7 @@ from pathlib import Path
 
 import duckdb
 
-from reval.store import SQL_DIR, Store, latest_version, migrations
+from reval.data.store import SQL_DIR, Store, latest_version, migrations
 
 
 def test_schema_creates_the_latest_version(tmp_path: Path) -> None:

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reval.time_trend import MarketTrend, adjustment_factors, estimate_trend, estimate_trends, month_offsets
+from reval.data.market_trend import MarketTrend, adjustment_factors, estimate_trend, estimate_trends, month_offsets
 
 WINDOW = 36
 FEATURES = (
@@ -164,7 +164,7 @@ def test_demo_town_index_recovers_its_true_market_trend() -> None:
     # sales, posterior sd 0.02-0.05 at the window start) get 0.05, and every band must cover the
     # truth at >= 85% of those months. Sales qualified by the demo's [sales] rules.
     demo_town = pytest.importorskip("data_samples.demo_town")
-    from reval.config import load_config
+    from reval.data.config import load_config
 
     config = load_config(demo_town.CONFIG_PATH)
     town = demo_town.generate(n_parcels=20000, seed=2026)

@@ -23,10 +23,11 @@ from textual.pilot import Pilot
 from textual.worker import WorkerFailed
 from textual.widgets import DataTable, Static
 
-from reval import app_service, cli_roll, commands
-from reval.config import load_config
-from reval.store import open_store
-from reval.study import SOURCE_LABELS, load_study
+from reval.roll.split import apportion, value_split
+from reval.service import actions, views
+from reval.data.config import load_config
+from reval.data.store import open_store
+from reval.stats.study import SOURCE_LABELS, load_study
 from tui import keys
 from tui.app import RevalApp
 from tui.jobs import JobProgressed
@@ -63,7 +64,7 @@ def fitted_demo_folder(factory: pytest.TempPathFactory) -> Path:
     """The demo municipality built with every step (import, sales, fit, values staged), once per session."""
     if "demo" not in _BUILT:
         folder = factory.mktemp("tui-demo")
-        commands.build_demo(folder, DEMO_PARCELS)
+        actions.build_demo(folder, DEMO_PARCELS)
         pin_run_id(folder / "reval.duckdb", PINNED_RUN)
         _BUILT["demo"] = folder
     return _BUILT["demo"]
@@ -117,7 +118,7 @@ def failing_and_passing(folder: Path) -> tuple[str, str]:
 
 
 def states(folder: Path) -> dict[str, dict[str, Any]]:
-    return {s["segment"]: s for s in cli_roll.batch_states(folder)["segments"]}
+    return {s["segment"]: s for s in actions.batch_states(folder)["segments"]}
 
 
 async def go_to(pilot: Pilot[Any], segment: str) -> None:
@@ -142,7 +143,7 @@ async def _overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) ->
         table = app.screen.query_one("#segments", DataTable)
         rows = {r[0]: r for r in table_rows(table)}
         # every segment of the roll, one row each (the core's own list)
-        assert sorted(rows) == sorted(s["segment"] for s in commands.segment_overview(fitted_demo))
+        assert sorted(rows) == sorted(s["segment"] for s in actions.segment_overview(fitted_demo))
         header = str(app.screen.query_one("#stats-header", Static).render())
         assert "out-of-fold" in header and PINNED_RUN in header
         # the marks are the core's verdicts: ✗ exactly where a statistic fails, never colour alone
@@ -247,15 +248,15 @@ async def _drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path)
 
 
 def test_sales_are_paged_in_sql_largest_ratio_deviations_first(fitted_demo: Path) -> None:
-    segment = max(commands.segment_overview(fitted_demo), key=lambda s: s["n_sales"])["segment"]
-    ten = app_service.segment_sales(fitted_demo, segment, page=0, page_size=10)
-    first, second = (app_service.segment_sales(fitted_demo, segment, page=p, page_size=5) for p in (0, 1))
+    segment = max(actions.segment_overview(fitted_demo), key=lambda s: s["n_sales"])["segment"]
+    ten = views.segment_sales(fitted_demo, segment, page=0, page_size=10)
+    first, second = (views.segment_sales(fitted_demo, segment, page=p, page_size=5) for p in (0, 1))
     assert ten["total"] >= 10 and first["pages"] == math.ceil(ten["total"] / 5)
     key = [(r["sale_id"], r["parcel_id"]) for r in ten["rows"]]
     assert [(r["sale_id"], r["parcel_id"]) for r in first["rows"] + second["rows"]] == key
     deviation = [abs(math.log(r["value"] / r["adjusted_price"])) for r in ten["rows"]]
     assert deviation == sorted(deviation, reverse=True)
-    last = app_service.segment_sales(fitted_demo, segment, page=10_000, page_size=5)
+    last = views.segment_sales(fitted_demo, segment, page=10_000, page_size=5)
     assert last["page"] == last["pages"] - 1 and 0 < len(last["rows"]) <= 5
 
 
@@ -281,7 +282,7 @@ async def _hold_with_a_reason_is_stored_with_its_event(demo_copy: Path) -> None:
         assert row[7] == "held"
     held = states(demo_copy)[segment]["open"]
     assert held["state"] == "held" and held["note"] == "recheck lot sizes"
-    events = cli_roll.event_log(demo_copy, segment)["events"]
+    events = actions.event_log(demo_copy, segment)["events"]
     assert events[-1]["kind"] == "batch_held" and events[-1]["detail"]["note"] == "recheck lot sizes"
 
 
@@ -311,7 +312,7 @@ async def _approval_gate_refuses_failing_statistics_without_a_note(demo_copy: Pa
     after = states(demo_copy)
     assert after[passing]["certified"]["state"] == "approved"
     assert after[failing]["certified"]["state"] == "approved"
-    approved = [e for e in cli_roll.event_log(demo_copy, failing)["events"] if e["kind"] == "batch_approved"]
+    approved = [e for e in actions.event_log(demo_copy, failing)["events"] if e["kind"] == "batch_approved"]
     assert approved[-1]["detail"]["override"] is True
     assert approved[-1]["detail"]["note"] == "thin segment accepted"
 
@@ -322,7 +323,7 @@ def test_revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> None:
 
 async def _revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> None:
     _, passing = failing_and_passing(demo_copy)
-    parcels = {s["segment"]: s["n_parcels"] for s in commands.segment_overview(demo_copy)}
+    parcels = {s["segment"]: s["n_parcels"] for s in actions.segment_overview(demo_copy)}
     app = RevalApp(demo_copy)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
@@ -350,7 +351,7 @@ async def _revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> Non
     assert saved["partial"] is True and saved["rows"] == parcels[passing]
     assert passing not in saved["not_approved"]
     assert states(demo_copy)[passing]["certified"]["state"] == "exported"
-    revoked = [e for e in cli_roll.event_log(demo_copy, passing)["events"] if e["kind"] == "batch_revoked"]
+    revoked = [e for e in actions.event_log(demo_copy, passing)["events"] if e["kind"] == "batch_revoked"]
     assert revoked and revoked[0]["detail"]["note"] == "wrong land schedule"
 
 
@@ -461,7 +462,7 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
     async with app.run_test(size=SIZE) as pilot:     # not imported yet: no database
         await settle(pilot)
         assert app.messages and app.messages[-1][0] == "error" and "reval import" in app.messages[-1][1]
-    commands.import_project(small_project)
+    actions.import_data(small_project)
     app = RevalApp(small_project)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
@@ -509,16 +510,16 @@ async def _help_lists_every_key_and_the_caution(fitted_demo: Path) -> None:
 
 def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_copy: Path) -> None:
     failing, passing = failing_and_passing(demo_copy)
-    cli_roll.approve(demo_copy, passing)
-    cli_roll.hold(demo_copy, failing, "recheck lot sizes")
-    data = app_service.overview(demo_copy)
+    actions.approve(demo_copy, passing)
+    actions.hold(demo_copy, failing, "recheck lot sizes")
+    data = views.overview(demo_copy)
     rows = {r["segment"]: r for r in data["segments"]}
     study = oof_study(demo_copy)
     # the core's own reading of the same stored study (reval.study.load_study), number for number
     for g in study["groups"]:
         row = rows[g["group"]]
         assert row["n"] == g["n"]
-        for stat in app_service.STATS:
+        for stat in views.STATS:
             assert row[stat]["value"] == g[stat] and row[stat]["ci"] == g[f"{stat}_ci"]
             assert row[stat]["status"] == g["verdicts"].get(stat, {}).get("status")
     assert data["stats_header"] == f"Ratio statistics of {SOURCE_LABELS['model_out_of_fold']}, run {PINNED_RUN}"
@@ -528,7 +529,7 @@ def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_
         assert rows[segment]["state"] == (batch["state"] if batch else None)
     assert (rows[passing]["state"], rows[failing]["state"]) == ("approved", "held")
     # the drill-in's equity numbers come from the same stored group
-    equity = app_service.segment_detail(demo_copy, passing)["equity"]
+    equity = views.segment_detail(demo_copy, passing)["equity"]
     group = next(g for g in study["groups"] if g["group"] == passing)
     assert (equity["mean_ratio"], equity["weighted_mean_ratio"], equity["n_trimmed"], equity["confidence"]) \
         == (group["mean_ratio"], group["weighted_mean_ratio"], group["n_trimmed"], study["confidence"])
@@ -536,7 +537,7 @@ def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_
 
 
 def test_a_fresh_app_fills_the_overview_without_loading_later_screens_or_steps(fitted_demo: Path) -> None:
-    later = ["reval.batches", "reval.study", "reval.review", "reval.commands", "reval.cli_roll", "reval.fitting",
+    later = ["reval.roll.batches", "reval.stats.study", "reval.roll.review", "reval.model.run", "reval.data.importer",
              "pandas", "scipy", "sklearn", "statsmodels", "tui.plot", "tui.screens.segment", "tui.screens.parcel"]
     code = f"""
 import asyncio, sys
@@ -563,16 +564,16 @@ print(",".join(m for m in {later!r} if m in sys.modules))
 def test_apportion_is_hamiltons_largest_remainder_method() -> None:
     # Hand-worked example of Hamilton's (largest-remainder) apportionment: quotas 3.6, 2.3, 4.1 of 10 seats
     # get floors 3, 2, 4 (9 seats) and the one seat left goes to the largest remainder (0.6).
-    assert app_service.apportion(np.array([3.6, 2.3, 4.1]), 10).tolist() == [4, 2, 4]
+    assert apportion(np.array([3.6, 2.3, 4.1]), 10).tolist() == [4, 2, 4]
     # negative parts (a feature that lowers the value) the same way: floors -2, 3, 0 and the two units left
     # go to the largest remainders 0.8 and 0.7
-    assert app_service.apportion(np.array([-1.5, 3.7, 0.8]), 3).tolist() == [-2, 4, 1]
+    assert apportion(np.array([-1.5, 3.7, 0.8]), 3).tolist() == [-2, 4, 1]
 
 
 def test_value_split_is_exact_and_splits_in_proportion_to_log_parts() -> None:
     # Worked example: base 100 and two equal log parts of ln(2)/2 make 200; each part gets half of 100.
     half = math.log(2) / 2
-    split = app_service.value_split(math.log(100), {"a": half, "b": half})
+    split = value_split(math.log(100), {"a": half, "b": half})
     assert split["value"] == 200 and split["base"] == 100
     assert [p["currency"] for p in split["parts"]] == [50, 50]
     # Log-mean Divisia split (Ang 2004, "Decomposition analysis for policymaking in energy", Energy Policy
@@ -581,14 +582,14 @@ def test_value_split_is_exact_and_splits_in_proportion_to_log_parts() -> None:
     for _ in range(200):
         logs = dict(zip("abcdefg", rng.normal(0, 0.3, 7)))
         base = rng.uniform(9, 14)
-        split = app_service.value_split(base, logs)
+        split = value_split(base, logs)
         parts = [p["currency"] for p in split["parts"]]
         assert split["base"] + sum(parts) == split["value"] == round(math.exp(base + sum(logs.values())))
         exact = np.array([p["exact"] for p in split["parts"]])
         assert np.all(np.sign(exact) == np.sign(list(logs.values())))
         assert math.isclose(math.exp(base) + exact.sum(), math.exp(base + sum(logs.values())), rel_tol=1e-12)
     # parts that cancel: the value equals the base and the split stays finite
-    split = app_service.value_split(math.log(5000), {"a": 0.25, "b": -0.25})
+    split = value_split(math.log(5000), {"a": 0.25, "b": -0.25})
     assert split["value"] == 5000 and [p["currency"] for p in split["parts"]] == [1250, -1250]
 
 

@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reval.cli_roll import value_step
+from reval.service.actions import stage_values
 from reval.errors import DataErrors, UserError
 from run_fixture import roll_project
 
@@ -36,7 +36,7 @@ def _round_half_up(x: np.ndarray, unit: float) -> np.ndarray:
 
 def test_every_parcel_is_valued_by_the_documented_rules(demo_project: Path, tmp_path: Path) -> None:
     folder = roll_project(demo_project, tmp_path / "p", "level = 0.95\nrounding = 100.0\n" + CAPPED)
-    result = value_step(folder)
+    result = stage_values(folder)
     assert result["run_id"] == "run-a" and len(result["staged"]) == 22
     v = _values(folder)
     parcels = pd.read_csv(folder / "parcels.csv", dtype={"parcel_id": str}).set_index("parcel_id")
@@ -83,7 +83,7 @@ def test_every_parcel_is_valued_by_the_documented_rules(demo_project: Path, tmp_
 
 def test_without_a_schedule_the_split_is_not_allocated(demo_project: Path, tmp_path: Path) -> None:
     folder = roll_project(demo_project, tmp_path / "p", None)
-    result = value_step(folder)
+    result = stage_values(folder)
     v = _values(folder)
     assert result["land_schedule"] is None
     assert v["land_value"].isna().all() and v["improvement_value"].isna().all()
@@ -103,7 +103,7 @@ def test_schedule_problems_are_listed_with_file_line_and_column(demo_project: Pa
         "CORV,-5,104000,0.55\n"
         "ASKR,7000,90000,0.45\n", encoding="utf-8")
     with pytest.raises(DataErrors) as caught:
-        value_step(folder)
+        stage_values(folder)
     text = str(caught.value)
     schedule = folder / "land_schedule.csv"
     assert f"{schedule}, line 3, column 'base_land_value': not a number (value 'lots')" in text
@@ -113,7 +113,7 @@ def test_schedule_problems_are_listed_with_file_line_and_column(demo_project: Pa
     (folder / "land_schedule.csv").write_text("neighbourhood,base_frontage,base_land_value,size_exponent\n"
                                               "ASKR,6900,92000,0.45\n", encoding="utf-8")
     with pytest.raises(DataErrors, match=r"line 1, column 'base_frontage': 'frontage' is not a continuous feature"):
-        value_step(folder)
+        stage_values(folder)
     con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
     assert con.execute("SELECT count(*) FROM batches WHERE run_id = 'run-a'").fetchone()[0] == 0  # nothing staged
     con.close()
@@ -125,6 +125,6 @@ def test_a_run_that_misses_a_parcel_is_refused(demo_project: Path, tmp_path: Pat
     con.execute("DELETE FROM parcel_estimates WHERE parcel_id = '0000007'")
     con.close()
     with pytest.raises(UserError, match=r"no value for 1 imported parcel\(s\) \(e\.g\. 0000007\)"):
-        value_step(folder)
+        stage_values(folder)
     with pytest.raises(UserError, match="No run 'nope'"):
-        value_step(folder, "nope")
+        stage_values(folder, "nope")

@@ -1,1 +1,1 @@
-"""reval's terminal app (Textual). UI only: it calls reval.commands and holds no SQL or statistics."""
+"""reval's terminal app (Textual). UI only: it calls reval.service and holds no SQL or statistics."""

@@ -13,8 +13,7 @@ from textual.reactive import reactive
 from textual.screen import Screen
 from textual.worker import Worker, WorkerState, get_current_worker
 
-from reval import app_service
-from reval.errors import UserError
+from reval.service import UserError, actions, views
 
 from . import keys
 from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, Status
@@ -22,15 +21,7 @@ from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ExportScreen, PromptScreen
-from .steps import (
-    DECISIONS,
-    Describe,
-    describe_decision,
-    describe_export,
-    describe_fit,
-    describe_values,
-    roll_service,
-)
+from .outcomes import DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values
 
 
 def error_text(error: BaseException) -> str:
@@ -74,7 +65,7 @@ class RevalApp(App[None]):
             screen.post_message(Loaded(tag, data))
 
     def overview_data(self) -> dict[str, Any]:
-        return app_service.overview(self.folder)
+        return views.overview(self.folder)
 
     # ---- long jobs and quick actions -------------------------------------------------------------------
 
@@ -178,7 +169,7 @@ class RevalApp(App[None]):
         """Ask for the note or reason, then approve, hold or revoke the segment's batch (the core enforces
         the approval gate and says why it refuses)."""
         title, asked, required = DECISIONS[kind]
-        fn = getattr(roll_service(), kind)
+        fn = getattr(actions, kind)
 
         def answered(text: str | None) -> None:
             if text is None:
@@ -191,14 +182,11 @@ class RevalApp(App[None]):
                          answered)
 
     def action_fit(self) -> None:
-        # the model libraries load only when a fit is asked for (fast start-up)
-        from reval import commands
-
-        self.start_job("fit", "Fitting every segment", commands.fit_step, self.folder, jobs=1, progress=True,
+        self.start_job("fit", "Fitting every segment", actions.fit, self.folder, jobs=1, progress=True,
                        describe=describe_fit)
 
     def action_value(self) -> None:
-        self.start_job("value", "Staging values from the latest run", roll_service().value_step, self.folder,
+        self.start_job("value", "Staging values from the latest run", actions.stage_values, self.folder,
                        describe=describe_values)
 
     def action_export(self) -> None:
@@ -206,7 +194,7 @@ class RevalApp(App[None]):
             if answer is not None:
                 path, partial = answer
                 target = path if path.is_absolute() else self.folder / path
-                self.start_job("export", f"Exporting the value roll to {target}", roll_service().export_roll,
+                self.start_job("export", f"Exporting the value roll to {target}", actions.export_roll,
                                self.folder, target, partial=partial, describe=describe_export)
 
         self.push_screen(ExportScreen(self.folder / "value_roll.csv"), chosen)

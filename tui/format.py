@@ -3,13 +3,15 @@ from __future__ import annotations
 
 from typing import Any
 
+from reval.service.wording import CAUTION, money, percent, signed_money
+
+__all__ = ["CAUTION", "money", "percent", "signed_money"]
+
 MARKS = {"pass": "✓", "fail": "✗ FAIL", "too_few_sales": "~ few"}
 SHORT_MARKS = {"pass": "✓", "fail": "✗", "too_few_sales": "~"}
 STAT_FORMATS = {"median_ratio": ".3f", "cod": ".1f", "prd": ".3f", "prb": "+.3f"}
 STAT_NAMES = {"median_ratio": "Median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
 VERDICT_STYLES = {"pass": "$success", "fail": "$error", "too_few_sales": "$warning"}
-CAUTION = ("Values are estimates for review by a qualified assessor; assessment level, caps, exemptions, "
-           "notices and appeals follow local law.")
 LEGEND = "✓ meets the standard · ✗ FAIL: does not · ~ too few sales to judge"
 
 
@@ -38,18 +40,6 @@ def model_cell(row: dict[str, Any]) -> str:
         return "parent"
     share = row.get("borrowed_share")
     return kind if share is None else f"{kind} ({share:.0%})"
-
-
-def money(value: float | None) -> str:
-    return "–" if value is None else f"{value:,.0f}"
-
-
-def signed_money(value: float | None) -> str:
-    return "–" if value is None else f"{value:+,.0f}"
-
-
-def percent(value: float | None, digits: int = 1) -> str:
-    return "–" if value is None else f"{value:+.{digits}%}"
 
 
 def short_money(value: float) -> str:

@@ -19,7 +19,7 @@ def footer() -> Footer:
 
 
 class DataScreen(Screen[None]):
-    """A screen whose data comes from reval.app_service through the app's thread workers."""
+    """A screen whose data comes from reval.service.views through the app's thread workers."""
 
     @property
     def reval(self) -> RevalApp:

@@ -10,7 +10,7 @@ from textual.app import ComposeResult
 from textual.reactive import reactive
 from textual.widgets import DataTable, Header, Input, Static
 
-from reval import app_service
+from reval.service import views
 
 from .. import keys
 from ..format import CAUTION, LEGEND, gate_detail, model_cell, percent, stat_cell
@@ -89,9 +89,9 @@ class OverviewScreen(DataScreen):
         if self.data is None:
             return
         keep = self.current_segment()
-        rows = app_service.filter_segments(self.data["segments"], failing_only=self.failing_only,
+        rows = views.filter_segments(self.data["segments"], failing_only=self.failing_only,
                                            market_area=self.area, state=self.state, text=self.search_text)
-        self.shown = app_service.sort_segments(rows, self.sort_key, self.descending)
+        self.shown = views.sort_segments(rows, self.sort_key, self.descending)
         table = self.query_one(DataTable)
         table.clear()
         colours = self.app.theme_variables

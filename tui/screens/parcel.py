@@ -8,7 +8,7 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
-from reval import app_service
+from reval.service import views
 
 from .. import keys
 from ..format import CAUTION, money, number, percent, signed_money
@@ -56,7 +56,7 @@ class ParcelScreen(DataScreen):
         self.reload()
 
     def reload(self) -> None:
-        self.fetch("parcel", app_service.parcel_detail, self.reval.folder, self.parcel_id)
+        self.fetch("parcel", views.parcel_detail, self.reval.folder, self.parcel_id)
 
     def on_load_failed(self, message: Any) -> None:
         self.query_one("#parcel-title", Static).update(f"✗ {message.error}")

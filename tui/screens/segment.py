@@ -9,7 +9,7 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 
-from reval import app_service
+from reval.service import views
 
 from .. import keys
 from ..format import (
@@ -154,8 +154,8 @@ class SegmentScreen(DataScreen):
         self.reload()
 
     def reload(self) -> None:
-        self.fetch("segment", app_service.segment_detail, self.reval.folder, self.segment)
-        self.fetch("sales", app_service.segment_sales, self.reval.folder, self.segment, self.sales_page,
+        self.fetch("segment", views.segment_detail, self.reval.folder, self.segment)
+        self.fetch("sales", views.segment_sales, self.reval.folder, self.segment, self.sales_page,
                    SALES_PAGE)
 
     @on(Loaded)
@@ -214,7 +214,7 @@ class SegmentScreen(DataScreen):
             page = min(max(self.sales_page + step, 0), self.sales["pages"] - 1)
             if page != self.sales_page:
                 self.sales_page = page
-                self.fetch("sales", app_service.segment_sales, self.reval.folder, self.segment, page, SALES_PAGE)
+                self.fetch("sales", views.segment_sales, self.reval.folder, self.segment, page, SALES_PAGE)
 
     def action_tab(self, index: int) -> None:
         self.query_one(TabbedContent).active = TABS[index]

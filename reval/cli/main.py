@@ -1,0 +1,177 @@
+"""The `reval` command line: argparse over the service layer, one subcommand per action.
+
+Exit codes: 0 ok; 1 data or user error (one-paragraph message, no traceback); 2 usage error.
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from pathlib import Path
+
+from reval.cli import render
+from reval.errors import UserError
+from reval.service import actions
+from reval.service.wording import CAUTION
+
+
+def _folder(args: argparse.Namespace) -> Path:
+    return Path(args.project)
+
+
+def cmd_init(args: argparse.Namespace) -> None:
+    path = actions.init_project(Path(args.folder), args.name)
+    print(f"Wrote {path}. Edit it to name your files and columns, then run `reval import` in {path.parent}.")
+
+
+def cmd_import(args: argparse.Namespace) -> None:
+    with render.progress_bar(args) as progress:
+        result = actions.import_data(_folder(args), progress)
+    render.emit(args, result, render.imported)
+
+
+def cmd_demo(args: argparse.Namespace) -> None:
+    folder = Path(args.folder)
+    with render.progress_bar(args) as progress:
+        summary = actions.build_demo(folder, args.parcels, progress)
+    headless = args.headless or os.environ.get("HEADLESS", "") not in ("", "0") or not sys.stdout.isatty()
+    if headless or args.json:
+        render.emit(args, summary, render.demo_summary)
+        return
+    _launch_app(folder)
+
+
+def cmd_sales(args: argparse.Namespace) -> None:
+    if args.report:
+        result = actions.sales_report(_folder(args))
+    else:
+        with render.progress_bar(args) as progress:
+            result = actions.prepare_sales(_folder(args), progress)
+    render.emit(args, result, render.sales)
+
+
+def cmd_study(args: argparse.Namespace) -> None:
+    result = actions.study(_folder(args), args.values, args.by, args.run, args.in_sample)
+    if args.segment:
+        result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
+        if not result["groups"]:
+            raise UserError(f"No group named '{args.segment}' in the study by {args.by}.")
+    render.emit(args, result, render.study)
+
+
+def cmd_fit(args: argparse.Namespace) -> None:
+    with render.progress_bar(args) as progress:
+        result = actions.fit(_folder(args), progress, args.jobs)
+    render.emit(args, result, render.fit)
+
+
+def cmd_tui(args: argparse.Namespace) -> None:
+    _launch_app(_folder(args))
+
+
+def _launch_app(folder: Path) -> None:
+    from tui.app import run_app  # the UI is loaded only when asked for; the core never imports it
+
+    run_app(folder)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The whole command line: every subcommand with its options."""
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--project", default=".", metavar="DIR", help="project folder (default: current folder)")
+    common.add_argument("--json", action="store_true", help="print machine-readable JSON")
+
+    parser = argparse.ArgumentParser(prog="reval", description="Assessment revaluation over an embedded DuckDB "
+                                     "database. " + CAUTION)
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    p = sub.add_parser("init", help="write a commented starter reval.toml into a new project folder")
+    p.add_argument("folder", help="project folder to create")
+    p.add_argument("--name", default="My municipality", help="jurisdiction name")
+    p.set_defaults(func=cmd_init)
+
+    p = sub.add_parser("import", parents=[common], help="check and load the files named in reval.toml")
+    p.set_defaults(func=cmd_import)
+
+    p = sub.add_parser("demo", parents=[common], help="build the demo municipality's project and run every step")
+    p.add_argument("folder", nargs="?", default="demo_project", help="where to build it (default: demo_project)")
+    p.add_argument("--parcels", type=int, default=None, help="generate this many parcels instead of the shipped sample")
+    p.add_argument("--headless", action="store_true", help="print a summary instead of opening the app")
+    p.set_defaults(func=cmd_demo)
+
+    p = sub.add_parser("sales", parents=[common], help="qualify sales and time-adjust them to the valuation date")
+    p.add_argument("--report", action="store_true", help="show the stored counts without recomputing")
+    p.set_defaults(func=cmd_sales)
+
+    p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
+    p.add_argument("--segment", help="show only this group")
+    p.add_argument("--by", choices=["segment", "market_area", "class", "all"], default="segment")
+    p.add_argument("--values", choices=["prior", "model"], default="prior",
+                   help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
+    p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
+    p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.set_defaults(func=cmd_study)
+
+    p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
+    p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
+    p.set_defaults(func=cmd_fit)
+
+    p = sub.add_parser("compare", parents=[common], help="reference models' accuracy beside ours, on the same folds")
+    p.add_argument("--run", default=None, help="run id (default: the latest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.compare(_folder(a), a.run), render.compare))
+
+    p = sub.add_parser("value", parents=[common], help="value every parcel from a run and stage a batch per segment")
+    p.add_argument("--run", help="run id (default: the newest run)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run), render.staged))
+
+    p = sub.add_parser("review", parents=[common], help="value changes, large changes and the sales-chasing check")
+    p.add_argument("--segment", help="only this segment (also lists its largest changes)")
+    p.add_argument("--limit", type=int, default=20, help="parcels beyond the threshold listed per segment")
+    p.set_defaults(func=lambda a: render.emit(a, actions.review(_folder(a), a.segment, a.limit), render.review))
+
+    p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch")
+    p.add_argument("segment")
+    p.add_argument("--note", help="why; required to approve over failing out-of-fold statistics")
+    p.set_defaults(func=lambda a: render.emit(a, actions.approve(_folder(a), a.segment, a.note), render.decision))
+
+    p = sub.add_parser("hold", parents=[common], help="hold a segment's staged batch")
+    p.add_argument("segment")
+    p.add_argument("--reason", required=True, help="why the batch is held")
+    p.set_defaults(func=lambda a: render.emit(a, actions.hold(_folder(a), a.segment, a.reason), render.decision))
+
+    p = sub.add_parser("revoke", parents=[common], help="withdraw a segment's approval (only before export)")
+    p.add_argument("segment")
+    p.add_argument("--note", required=True, help="why the approval is withdrawn")
+    p.set_defaults(func=lambda a: render.emit(a, actions.revoke(_folder(a), a.segment, a.note), render.decision))
+
+    p = sub.add_parser("export", parents=[common], help="write the approved value roll as CSV with a manifest")
+    p.add_argument("path", help="the CSV file to write")
+    p.add_argument("--partial", action="store_true", help="export the approved segments even if some are not")
+    p.add_argument("--overwrite", action="store_true", help="replace an existing roll file and its manifest "
+                   "(never the project's own files)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.export_roll(_folder(a), Path(a.path), a.partial, a.overwrite),
+                                              render.exported))
+
+    p = sub.add_parser("log", parents=[common], help="the audit log of events")
+    p.add_argument("--segment", help="only this segment's events")
+    p.set_defaults(func=lambda a: render.emit(a, actions.event_log(_folder(a), a.segment), render.log))
+
+    p = sub.add_parser("batches", parents=[common], help="each segment's open and certified batch")
+    p.set_defaults(func=lambda a: render.emit(a, actions.batch_states(_folder(a)), render.batch_states))
+
+    p = sub.add_parser("tui", parents=[common], help="open the terminal app on a project")
+    p.set_defaults(func=cmd_tui)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    try:
+        args.func(args)
+    except UserError as exc:
+        print(f"reval: {exc}", file=sys.stderr)
+        return 1
+    except KeyboardInterrupt:
+        print("reval: interrupted; nothing was changed by the unfinished step", file=sys.stderr)
+        return 1
+    return 0

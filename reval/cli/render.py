@@ -1,0 +1,198 @@
+"""How each command's result reads on a terminal (rich), and the JSON form of `--json`."""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from typing import Any
+
+from rich.console import Console
+from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+from reval.service.wording import CAUTION, money, percent
+
+Render = Callable[[Any, Console], None]
+MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
+
+
+def emit(args: argparse.Namespace, result: Any, render: Render) -> None:
+    """Print a command's result: JSON with --json, else the human rendering."""
+    if getattr(args, "json", False):
+        print(json.dumps(result, indent=2, default=str))
+    else:
+        render(result, Console())
+
+
+@contextmanager
+def progress_bar(args: argparse.Namespace) -> Iterator[Callable[[str, int, int], None] | None]:
+    """A rich progress bar on a terminal; nothing with --json or without a terminal."""
+    if getattr(args, "json", False) or not sys.stderr.isatty():
+        yield None
+        return
+    with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+                  TimeElapsedColumn(), console=Console(stderr=True), transient=True) as bar:
+        tasks: dict[str, Any] = {}
+
+        def update(step: str, done: int, total: int) -> None:
+            if step not in tasks:
+                tasks[step] = bar.add_task(step, total=total)
+            bar.update(tasks[step], completed=done, total=total)
+
+        yield update
+
+
+def table(title: str, columns: list[str], rows: list[list[str]], console: Console) -> None:
+    """A titled table, the first column left-aligned and the rest right-aligned."""
+    out = Table(title=title)
+    for i, name in enumerate(columns):
+        out.add_column(name, justify="left" if i == 0 else "right")
+    for row in rows:
+        out.add_row(*row)
+    console.print(out)
+
+
+def records_table(title: str, rows: list[dict[str, Any]], console: Console) -> None:
+    """A table of records, one column per key; numbers right-aligned to four significant digits."""
+    if not rows:
+        console.print(f"{title}: nothing to show")
+        return
+    out = Table(title=title)
+    for key in rows[0]:
+        out.add_column(str(key), justify="right" if isinstance(rows[0][key], (int, float)) else "left")
+    for row in rows:
+        out.add_row(*("" if v is None else f"{v:,.4g}" if isinstance(v, float) else str(v) for v in row.values()))
+    console.print(out)
+
+
+# ---- the project and its data -------------------------------------------------------------------------------
+
+def imported(r: dict[str, Any], console: Console) -> None:
+    console.print(("Imported" if r["changed"] else "Already imported (files unchanged)")
+                  + f": {r['parcels']:,} parcels, {r['sales']:,} sales, {r['segments']} segments in "
+                  f"{r['market_areas']} market areas.")
+
+
+def demo_summary(summary: dict[str, Any], console: Console) -> None:
+    console.print(f"[bold]{summary['jurisdiction']}[/bold] — project folder {summary['folder']}")
+    console.print(f"{summary['parcels']:,} parcels, {summary['sales']:,} sales, {summary['segments']} neighbourhoods "
+                  f"in {summary['market_areas']} market areas")
+    for step in summary.get("steps", []):
+        console.print(f"  done: {step}")
+    console.print(CAUTION)
+
+
+def sales(result: dict[str, Any], console: Console) -> None:
+    console.print(f"{result['qualified']:,} qualified sales; {result['excluded']:,} excluded:")
+    for reason, n in sorted(result["excluded_by_reason"].items(), key=lambda kv: -kv[1]):
+        console.print(f"  {n:>6,}  {reason}")
+    records_table("Sales per segment", [{"segment": s["segment"], "qualified": s["qualified"],
+                                         "excluded": s["excluded"]} for s in result["segments"]], console)
+
+
+# ---- studies and models ----------------------------------------------------------------------------------------
+
+def study(result: dict[str, Any], console: Console) -> None:
+    console.print(f"Ratio study of {result['values']}, by {result['by']}")
+    if "warning" in result:
+        console.print(f"[bold]Warning:[/bold] {result['warning']}")
+
+    def cell(g: dict[str, Any], stat: str, fmt: str) -> str:
+        value, verdict = g[stat], g["verdicts"][stat]
+        shown = "-" if value is None else format(value, fmt)
+        return f"{shown} {MARKS[verdict['status']]}"
+
+    rows = [{"group": g["group"], "n": g["n"], "trimmed": g["n_trimmed"],
+             "median": cell(g, "median_ratio", ".3f"), "COD": cell(g, "cod", ".1f"),
+             "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
+    records_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
+    console.print(CAUTION)
+
+
+def fit(result: dict[str, Any], console: Console) -> None:
+    console.print(f"Run {result['run_id']}: {result['sales']:,} sales, {result['segments']} segments, "
+                  f"{result['parcels']:,} parcels valued")
+    console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
+    records_table("Out-of-fold accuracy, whole jurisdiction (same folds for every model)", result["accuracy"],
+                  console)
+    console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)
+
+
+def compare(result: dict[str, Any], console: Console) -> None:
+    rows = result["rows"]
+    for segment in dict.fromkeys(r["segment"] for r in rows):
+        records_table(f"{segment}: out-of-fold accuracy by model (run {result['run_id']})",
+                      [{k: v for k, v in r.items() if k != "segment"} for r in rows if r["segment"] == segment],
+                      console)
+    records_table("What the gradient-boosting reference relies on (permutation importance)",
+                  result["gradient_boosting_importance"], console)
+
+
+# ---- the value roll --------------------------------------------------------------------------------------------
+
+def staged(r: dict[str, Any], console: Console) -> None:
+    console.print(f"Run {r['run_id']}: staged {len(r['staged'])} batch(es); "
+                  f"{len(r['unchanged'])} segment(s) already hold a batch of this run.")
+    if r["land_schedule"] is None:
+        console.print("No land schedule configured: land and improvement are not allocated.")
+    table("Staged batches", ["segment", "batch", "parcels", "replaced"],
+          [[s["segment"], str(s["batch_id"]), f"{s['n_parcels']:,}",
+            "-" if s["replaced_batch_id"] is None else f"{s['replaced_batch_id']} ({s['replaced_state']})"]
+           for s in r["staged"]], console)
+    for flag, n in r["flags"].items():
+        console.print(f"  {n:>8,}  parcels flagged {flag}")
+
+
+def review(r: dict[str, Any], console: Console) -> None:
+    rows = []
+    for s in r["segments"]:
+        q = s["change_ratio_quantiles"] or {}
+        rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}", percent(s["total_change"]),
+                     " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
+                     f"{s['n_beyond_threshold']:,}", s["sales_chasing"]["status"].replace("_", " ")])
+    table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%",
+          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "sales chasing"], rows, console)
+    for s in r["segments"]:
+        chase = s["sales_chasing"]
+        if chase["flagged"]:
+            console.print(f"[bold]{s['segment']}: possible sales chasing[/bold] — median change sold "
+                          f"{percent(chase['median_change_sold'])} vs unsold {percent(chase['median_change_unsold'])}, "
+                          f"Mann-Whitney U p = {chase['p_value']:.2g} ({chase['rule']}).")
+        if s["beyond_threshold"] and len(r["segments"]) == 1:
+            table(f"{s['segment']}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
+                  ["parcel", "class", "prior", "new", "change"],
+                  [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
+                    percent(p["change"])] for p in s["beyond_threshold"]], console)
+
+
+def decision(r: dict[str, Any], console: Console) -> None:
+    console.print(f"{r['segment']}: batch {r['batch_id']} (run {r['run_id']}) is now {r['state']}.")
+    if r.get("override"):
+        console.print(f"Approved over failing statistics ({'; '.join(r['failed'])}); note stored: {r['note']}")
+    elif r.get("note"):
+        console.print(f"Note stored: {r['note']}")
+
+
+def exported(r: dict[str, Any], console: Console) -> None:
+    console.print(f"Wrote {r['rows']:,} parcels to {r['path']} (sha256 {r['sha256'][:16]}...); "
+                  f"manifest {r['manifest']}.")
+    if r["not_approved"]:
+        console.print(f"Partial roll: not approved and left out: {', '.join(r['not_approved'])}.")
+    if r["pending_newer_batches"]:
+        console.print(f"Newer batches await review in: {', '.join(r['pending_newer_batches'])}.")
+
+
+def log(r: dict[str, Any], console: Console) -> None:
+    table("Events", ["id", "when", "who", "kind", "segment", "run", "note"],
+          [[str(e["event_id"]), str(e["event_time"])[:19], e["who"], e["kind"], e["segment"] or "",
+            e["run_id"] or "", str(e["detail"].get("note") or "")] for e in r["events"]], console)
+
+
+def batch_states(r: dict[str, Any], console: Console) -> None:
+    def show(b: dict[str, Any] | None) -> str:
+        return "-" if b is None else f"{b['batch_id']} {b['state']} (run {b['run_id']})"
+
+    table("Batches", ["segment", "open batch", "certified batch"],
+          [[s["segment"], show(s["open"]), show(s["certified"])] for s in r["segments"]], console)

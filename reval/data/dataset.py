@@ -1,0 +1,50 @@
+"""Reading the imported data set as arrays: sales and parcels with a dense feature matrix."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from reval.data.config import FeatureSpec
+from reval.data.store import Store
+
+
+@dataclass(frozen=True)
+class SalesData:
+    """Qualified sales (one row per sale and parcel) and their parcels' features (NaN = missing)."""
+
+    frame: pd.DataFrame
+    X: np.ndarray
+    features: tuple[FeatureSpec, ...]
+
+
+def feature_specs(store: Store) -> tuple[FeatureSpec, ...]:
+    """The features as imported (the database, not the config, is the truth for stored codes)."""
+    specs = []
+    for row in store.frame("feature_list").itertuples():
+        levels = tuple(row.levels) if isinstance(row.levels, (list, tuple, np.ndarray)) else ()
+        rng = None if pd.isna(row.range_lo) else (float(row.range_lo), float(row.range_hi))
+        specs.append(FeatureSpec(row.name, row.name, row.kind, bool(row.log), levels, rng))
+    return tuple(specs)
+
+
+def dense_matrix(values: np.ndarray | pd.Series, n_features: int) -> np.ndarray:
+    """Reshape a (row, feature)-ordered value column into an (n, k) float matrix with NaN for missing."""
+    flat = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    return flat.reshape(-1, n_features) if n_features else np.empty((len(flat), 0))
+
+
+def qualified_sales(store: Store) -> SalesData:
+    """The qualified sales with their features, in a fixed order."""
+    features = feature_specs(store)
+    frame = store.frame("qualified_sales")
+    values = store.run("qualified_sales_features").fetchnumpy()["value"]
+    return SalesData(frame, dense_matrix(values, len(features)), features)
+
+
+def all_parcels(store: Store, features: tuple[FeatureSpec, ...]) -> tuple[pd.DataFrame, np.ndarray]:
+    """Every parcel (id, segment, market area) and its dense feature matrix, in parcel id order."""
+    frame = store.frame("all_parcels")
+    values = store.run("all_parcel_features").fetchnumpy()["value"]
+    return frame, dense_matrix(values, len(features))

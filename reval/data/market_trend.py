@@ -1,0 +1,171 @@
+"""Market trend over the sale window: a hedonic monthly price index with a confidence band.
+
+Sale prices from two or three years are expressed at the valuation date by a smooth index of
+the market level by month, estimated from qualified sales while controlling for what sold:
+
+    log price = intercept + c(month) + segment effect + sum of feature main-effect curves.
+
+c is a cubic P-spline in the month number with a second-difference penalty (Eilers & Marx 1996),
+on equally spaced knots over the whole window up to the valuation month, so the curve reaches
+month 0 even when nothing sold in it (the penalty's null space is a straight line, so the curve
+continues the recent slope). Controlling for features keeps a drift in what sold (bigger houses
+later in the window, say) out of the index, which a monthly median of prices would absorb.
+
+Segment effects are a ridge-penalised indicator block (a random-effect-like intercept per
+segment); all penalties, the segment ridge included, are chosen by GCV in `PenalisedLS`.
+The band is pointwise for c(m) - c(0), from the Bayesian covariance of the penalised fit
+(Wood 2017, section 6.10) and the difference of the month's and month 0's basis rows.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+from typing import Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+from scipy.stats import norm
+
+from reval.model.design import Block, DesignSpec, Feature, sum_to_zero_basis
+from reval.model.penalised import PenalisedLS
+from reval.model.splines import bspline_basis, difference_penalty
+
+JURISDICTION = "jurisdiction"
+MONTH_TERM = "(sale month)"
+SEGMENT_TERM = "(segment)"
+
+
+@dataclass(frozen=True)
+class MarketTrend:
+    """Estimated log market level by month relative to the valuation month, with a pointwise band."""
+
+    area: str
+    months: np.ndarray  # month offsets -window .. 0
+    log_index: np.ndarray  # c(m) - c(0)
+    lo: np.ndarray
+    hi: np.ndarray
+    n_sales: int
+
+    def factor(self, month_offsets: np.ndarray) -> np.ndarray:
+        """Multiplier taking a price of that month to the valuation month; months beyond the range clamp to the ends."""
+        m = np.asarray(month_offsets, dtype=float)
+        return np.exp(-np.interp(m, self.months, self.log_index))
+
+
+def month_offsets(sale_dates: np.ndarray, valuation_date: dt.date) -> np.ndarray:
+    """Whole calendar months from the valuation month to each sale (negative before it)."""
+    sale_months = np.asarray(sale_dates, dtype="datetime64[D]").astype("datetime64[M]").astype(np.int64)
+    return sale_months - np.datetime64(valuation_date, "M").astype(np.int64)
+
+
+def _month_block(month: np.ndarray, window_months: int, n_basis: int) -> tuple[Block, np.ndarray]:
+    """Centred P-spline block in the month over [-window, 0], and its constraint basis Z."""
+    basis = bspline_basis(month, -window_months, 0.0, n_basis)
+    z = sum_to_zero_basis(basis.mean(axis=0))
+    return Block(MONTH_TERM, basis @ z, (z.T @ difference_penalty(n_basis, 2) @ z,)), z
+
+
+def _segment_block(segment: np.ndarray) -> Block:
+    """One indicator per segment under a ridge penalty (its weight chosen with the others by GCV)."""
+    _, codes = np.unique(np.asarray(segment), return_inverse=True)
+    k = int(codes.max()) + 1
+    cols = np.zeros((codes.size, k))
+    cols[np.arange(codes.size), codes] = 1.0
+    return Block(SEGMENT_TERM, cols, (np.eye(k),))
+
+
+def _in_window(month_offset: np.ndarray, window_months: int) -> np.ndarray:
+    m = np.asarray(month_offset)
+    return (m >= -window_months) & (m <= 0)
+
+
+def estimate_trend(
+    month_offset: np.ndarray,
+    log_price: np.ndarray,
+    X: np.ndarray,
+    features: Sequence[Feature],
+    segment: np.ndarray,
+    *,
+    window_months: int,
+    n_basis: int = 10,
+    confidence: float = 0.95,
+    area: str = JURISDICTION,
+) -> MarketTrend:
+    """Hedonic monthly index from the sales dated within `window_months` of the valuation month."""
+    month_offset = np.asarray(month_offset)
+    log_price = np.asarray(log_price, dtype=float)
+    X = np.asarray(X, dtype=float)
+    segment = np.asarray(segment)
+    n = month_offset.shape[0]
+    if log_price.shape != (n,) or segment.shape != (n,) or X.ndim != 2 or X.shape[0] != n:
+        raise ValueError(f"month_offset, log_price, X and segment must have {n} rows each")
+    if window_months < 1:
+        raise ValueError(f"window_months must be at least 1, got {window_months}")
+    keep = _in_window(month_offset, window_months)
+    if not keep.any():
+        raise ValueError(f"{area}: no sales within {window_months} months of the valuation date")
+    month = month_offset[keep].astype(float)
+    spec = DesignSpec.learn(X[keep], features, n_basis)
+    month_block, z = _month_block(month, window_months, n_basis)
+    blocks = [*spec.blocks(X[keep]), month_block, _segment_block(segment[keep])]
+    model = PenalisedLS().fit(blocks, log_price[keep])
+
+    months = np.arange(-window_months, 1)
+    rows = bspline_basis(months.astype(float), -window_months, 0.0, n_basis) @ z
+    diff = rows - rows[-1]
+    cols = model.slices_[MONTH_TERM]
+    log_index = diff @ model.coef_[cols]
+    se = np.sqrt(np.maximum(np.einsum("ij,jk,ik->i", diff, model.cov_[cols, cols], diff), 0.0))
+    half = norm.ppf(0.5 + confidence / 2.0) * se
+    return MarketTrend(area, months, log_index, log_index - half, log_index + half, int(keep.sum()))
+
+
+def estimate_trends(
+    month_offset: np.ndarray,
+    log_price: np.ndarray,
+    X: np.ndarray,
+    features: Sequence[Feature],
+    segment: np.ndarray,
+    market_area: np.ndarray,
+    *,
+    window_months: int,
+    by_market_area: bool,
+    min_sales_market_area: int,
+    n_basis: int = 10,
+    confidence: float = 0.95,
+) -> dict[str, MarketTrend]:
+    """The jurisdiction's trend, plus one per market area with enough in-window sales when asked.
+
+    Sales with no market area (None or NaN) inform only the jurisdiction's trend.
+    """
+    month_offset = np.asarray(month_offset)
+    log_price = np.asarray(log_price, dtype=float)
+    X = np.asarray(X, dtype=float)
+    segment = np.asarray(segment)
+    market_area = np.asarray(market_area)
+    settings = dict(window_months=window_months, n_basis=n_basis, confidence=confidence)
+    trends = {JURISDICTION: estimate_trend(month_offset, log_price, X, features, segment, **settings)}
+    if not by_market_area:
+        return trends
+    counts = pd.Series(market_area[_in_window(month_offset, window_months)]).value_counts()  # missing areas dropped
+    for name in counts.index[counts.to_numpy() >= min_sales_market_area]:
+        rows = market_area == name
+        trends[str(name)] = estimate_trend(
+            month_offset[rows], log_price[rows], X[rows], features, segment[rows], area=str(name), **settings
+        )
+    return trends
+
+
+def adjustment_factors(
+    trends: Mapping[str, MarketTrend], month_offset: np.ndarray, market_area: np.ndarray
+) -> np.ndarray:
+    """Per sale: the factor of its market area's trend where one was estimated, else the jurisdiction's."""
+    month_offset = np.asarray(month_offset)
+    market_area = np.asarray(market_area)
+    out = trends[JURISDICTION].factor(month_offset)
+    for name, trend in trends.items():
+        if name != JURISDICTION:
+            rows = market_area == name
+            out[rows] = trend.factor(month_offset[rows])
+    return out

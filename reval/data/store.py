@@ -1,0 +1,150 @@
+"""The project's embedded DuckDB database: the one place that opens connections and loads SQL files.
+
+SQL lives in `sql/`: `schema.sql` (version 1), `migrations/NNN_name.sql` (forward migrations, applied in
+order) and `queries/NAME.sql` (named queries, always run with bound parameters).
+"""
+from __future__ import annotations
+
+import functools
+import re
+from contextlib import contextmanager
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Iterator, Sequence
+
+import duckdb
+
+from reval.errors import UserError
+from reval.plain import scalar
+
+if TYPE_CHECKING:  # pandas loads with DuckDB's .df(); importing it here would slow every start-up
+    import pandas as pd
+
+SQL_DIR = Path(__file__).resolve().parents[2] / "sql"
+_MIGRATION = re.compile(r"^(\d{3})_[a-z0-9_]+\.sql$")
+
+
+@functools.cache
+def sql_text(name: str) -> str:
+    """The text of `sql/queries/NAME.sql` (or `sql/NAME.sql` for schema files)."""
+    path = SQL_DIR / "queries" / f"{name}.sql"
+    if not path.exists():
+        path = SQL_DIR / f"{name}.sql"
+    return path.read_text(encoding="utf-8")
+
+
+def _statements(con: duckdb.DuckDBPyConnection, name: str) -> list[Any]:
+    return con.extract_statements(sql_text(name))
+
+
+def migrations() -> list[tuple[int, Path]]:
+    """Forward migrations as (version, file), in version order."""
+    found = [(int(m.group(1)), p) for p in (SQL_DIR / "migrations").glob("*.sql") if (m := _MIGRATION.match(p.name))]
+    return sorted(found)
+
+
+def latest_version() -> int:
+    return max([1, *(v for v, _ in migrations())])
+
+
+class Store:
+    """An open project database. Use `transaction()` around every step that writes."""
+
+    def __init__(self, path: Path | str, read_only: bool = False) -> None:
+        self.path = Path(path)
+        self.con = duckdb.connect(str(self.path), read_only=read_only)
+        self._depth = 0
+        self.run("session_settings")
+        if not read_only:
+            self.upgrade()
+
+    def close(self) -> None:
+        self.con.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @contextmanager
+    def transaction(self) -> Iterator[duckdb.DuckDBPyConnection]:
+        """All or nothing: commit when the outermost block ends normally, roll back on any exception.
+        A nested block joins the enclosing transaction, so a step can combine smaller writing steps."""
+        if self._depth:
+            self._depth += 1
+            try:
+                yield self.con
+            finally:
+                self._depth -= 1
+            return
+        self.con.begin()
+        self._depth = 1
+        try:
+            yield self.con
+        except BaseException:
+            self.con.rollback()
+            raise
+        finally:
+            self._depth = 0
+        self.con.commit()
+
+    def version(self) -> int:
+        exists = self.con.execute(
+            "SELECT count(*) FROM information_schema.tables WHERE table_name = 'schema_version'"
+        ).fetchone()
+        if not exists or exists[0] == 0:
+            return 0
+        row = self.con.execute("SELECT max(version) FROM schema_version").fetchone()
+        return int(row[0]) if row and row[0] is not None else 0
+
+    def upgrade(self) -> None:
+        """Create the schema on a new database and apply any forward migrations, each in one transaction."""
+        current = self.version()
+        if current == 0:
+            with self.transaction() as con:
+                con.execute(sql_text("schema"))
+            current = 1
+        for version, path in migrations():
+            if version > current:
+                with self.transaction() as con:
+                    con.execute(path.read_text(encoding="utf-8"))
+                    con.execute("INSERT INTO schema_version (version) VALUES (?)", [version])
+
+    def run(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> duckdb.DuckDBPyConnection:
+        """Execute the named query file with bound parameters; a file may hold several statements, each
+        given the parameters it uses (DuckDB binds parameters only for single statements)."""
+        statements = _statements(self.con, name)
+        for statement in statements[:-1]:
+            self.con.execute(statement, params if statement.named_parameters else None)
+        last = statements[-1]
+        return self.con.execute(last, params if last.named_parameters else None)
+
+    def insert(self, name: str, frame: pd.DataFrame) -> None:
+        """Run an insert query that reads the DataFrame as `staged_frame` (columns matched by name)."""
+        if frame.empty:
+            return
+        self.con.register("staged_frame", frame)
+        try:
+            self.run(name)
+        finally:
+            self.con.unregister("staged_frame")
+
+    def frame(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> pd.DataFrame:
+        """The named query's result as a pandas DataFrame."""
+        return self.run(name, params).df()
+
+    def rows(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> list[tuple[Any, ...]]:
+        return self.run(name, params).fetchall()
+
+    def records(self, name: str, params: Sequence[Any] | dict[str, Any] | None = None) -> list[dict[str, Any]]:
+        """The named query's rows as dicts of plain Python values (NaN as None), without pandas."""
+        cursor = self.run(name, params)
+        columns = [d[0] for d in cursor.description or ()]
+        return [dict(zip(columns, (scalar(v) for v in row))) for row in cursor.fetchall()]
+
+
+def open_store(database: Path, read_only: bool = False) -> Store:
+    """Open (creating and upgrading if needed) the database at `database`."""
+    if read_only and not database.exists():
+        raise UserError(f"{database}: no database yet; run `reval import` first")
+    return Store(database, read_only=read_only)

@@ -1,0 +1,293 @@
+"""Turn a feature matrix into penalised model blocks, with every transformation learned on training rows only.
+
+A `DesignSpec` records what it learned (imputation values, log floors, ranges, standardisation,
+identifiability constraints) so that parcels being valued are treated exactly like the sales the
+model saw: the same imputation, the same clamping to the training range, the same centring.
+
+Identifiability: every curve and level effect is constrained to average zero over the training
+rows (the sum-to-zero constraint of Wood 2017, section 5.4.1). The constraint vector c (column
+means of the basis) is absorbed by reparametrising with an orthonormal basis Z of its null space
+(QR of c), so a block's columns are B Z and its penalty Z' S Z. The intercept is then the average
+fitted log value and each term says how a parcel differs from the average one.
+
+A deviation design (market area or segment on top of a parent offset) is penalised toward zero
+in every direction: its intercept, binary and interaction columns get a ridge, and each curve gets
+a second penalty on the null space of its wiggliness penalty (the straight line), the double
+penalty of Marra & Wood (2011, Computational Statistics & Data Analysis 55(7)).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from functools import cached_property
+from typing import Protocol, Sequence
+
+import numpy as np
+
+from reval.model.splines import bspline_basis, difference_penalty
+
+INTERCEPT = "(intercept)"
+PRODUCT_CAP = 2.5  # standardised values are capped at +/- this before forming products (MODEL-NOTES point 4)
+Pair = tuple[str, str]
+
+
+class Feature(Protocol):
+    """What the design needs to know about a feature (duck-typed; reval.config.FeatureSpec fits)."""
+
+    name: str
+    kind: str
+    log: bool
+    levels: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Block:
+    """One model term: its columns and the penalty matrices that act on its coefficients (none = unpenalised)."""
+
+    term: str
+    columns: np.ndarray
+    penalties: tuple[np.ndarray, ...]
+
+
+@dataclass(frozen=True)
+class FeatureTransform:
+    """Everything learned about one feature from the training rows."""
+
+    name: str
+    kind: str
+    log: bool
+    n_levels: int
+    impute: float
+    log_floor: float
+    raw_lo: float
+    raw_hi: float
+    lo: float
+    hi: float
+    mean: float
+    sd: float
+    constraint: np.ndarray  # orthonormal null-space basis Z of the sum-to-zero constraint (m x m-1)
+
+    @property
+    def constant(self) -> bool:
+        return self.constraint.shape[1] == 0
+
+
+def sum_to_zero_basis(column_means: np.ndarray) -> np.ndarray:
+    """Orthonormal basis of {b : c'b = 0}, from the QR decomposition of c (Wood 2017, section 1.8.1)."""
+    c = np.asarray(column_means, dtype=float)[:, None]
+    if not np.any(c):
+        return np.zeros((c.shape[0], 0))
+    q, _ = np.linalg.qr(c, mode="complete")
+    return q[:, 1:]
+
+
+def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
+    idx = np.clip(np.rint(codes), 0, n_levels - 1).astype(np.intp)
+    out = np.zeros((codes.shape[0], n_levels))
+    out[np.arange(codes.shape[0]), idx] = 1.0
+    return out
+
+
+def _null_space_projector(penalty: np.ndarray) -> np.ndarray:
+    vals, vecs = np.linalg.eigh(penalty)
+    null = vecs[:, vals < 1e-9 * max(vals.max(), 1.0)]
+    return null @ null.T
+
+
+@dataclass(frozen=True)
+class DesignSpec:
+    """Learned transformations for a list of features, able to build blocks for any rows."""
+
+    transforms: tuple[FeatureTransform, ...]
+    n_basis: int
+    deviation: bool
+
+    @classmethod
+    def learn(
+        cls,
+        X: np.ndarray,
+        features: Sequence[Feature],
+        n_basis: int,
+        *,
+        deviation: bool = False,
+        scale_from: DesignSpec | None = None,
+    ) -> DesignSpec:
+        """Learn imputation, transforms, ranges, standardisation and constraints from training rows X.
+
+        Missing values are imputed with `typical_value` of the training rows. A log feature uses
+        log(max(x, f)) where f is the smallest positive training value, so zeros (e.g. no lot for a
+        condominium) map to the bottom of the observed range instead of minus infinity. `scale_from` (the parent's spec)
+        supplies the log floor and the standardisation, so a deviation's products and curves are on
+        the parent's scale and interaction coefficients add up along the hierarchy.
+        """
+        X = np.asarray(X, dtype=float)
+        if X.ndim != 2 or X.shape[1] != len(features):
+            raise ValueError(f"X must have one column per feature ({len(features)}), got shape {X.shape}")
+        if X.shape[0] == 0:
+            raise ValueError("cannot learn a design from zero rows")
+        like = scale_from.transforms if scale_from is not None else (None,) * len(features)
+        learned = [_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)]
+        varying = [j for j, (_, scale) in enumerate(learned) if scale is not None]
+        T = np.column_stack([learned[j][1] for j in varying]) if varying else np.zeros((X.shape[0], 0))
+        raw = _raw_columns([learned[j][0] for j in varying], T, n_basis)
+        constraint = {j: sum_to_zero_basis(cols.mean(axis=0)) for j, cols in zip(varying, raw)}
+        transforms = tuple(replace(t, constraint=constraint[j]) if j in constraint else t
+                           for j, (t, _) in enumerate(learned))
+        return cls(transforms, n_basis, deviation)
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        return tuple(t.name for t in self.transforms)
+
+    @cached_property
+    def _positions(self) -> dict[str, int]:
+        return {t.name: j for j, t in enumerate(self.transforms)}
+
+    def index(self, feature: str) -> int:
+        try:
+            return self._positions[feature]
+        except KeyError:
+            raise ValueError(f"unknown feature {feature!r}") from None
+
+    def impute(self, X: np.ndarray) -> np.ndarray:
+        """Copy of X with missing values replaced by the training imputation values."""
+        X = np.array(X, dtype=float, copy=True)
+        for j, t in enumerate(self.transforms):
+            col = X[:, j]
+            col[np.isnan(col)] = t.impute
+        return X
+
+    def transformed(self, X: np.ndarray) -> np.ndarray:
+        """Imputed features on the modelling scale (log where requested, with the log floor)."""
+        T = self.impute(X)
+        for j, t in enumerate(self.transforms):
+            if t.log:
+                T[:, j] = np.log(np.maximum(T[:, j], t.log_floor))
+        return T
+
+    def term_columns(self, feature: str, x: np.ndarray) -> np.ndarray:
+        """Columns of one feature's block for raw values x (imputed and clamped like training rows)."""
+        j = self.index(feature)
+        t = self.transforms[j]
+        x = np.asarray(x, dtype=float).copy()
+        x[np.isnan(x)] = t.impute
+        if t.log:
+            x = np.log(np.maximum(x, t.log_floor))
+        return _raw_columns([t], x[:, None], self.n_basis)[0] @ t.constraint
+
+    def blocks(self, X: np.ndarray, pairs: Sequence[Pair] = ()) -> list[Block]:
+        """The intercept, one block per non-constant feature, then one product column per pair."""
+        T = self.transformed(X)
+        n = T.shape[0]
+        ridge = (np.eye(1),)
+        out = [Block(INTERCEPT, np.ones((n, 1)), ridge if self.deviation else ())]
+        used = [j for j, t in enumerate(self.transforms) if not t.constant]
+        raw = _raw_columns([self.transforms[j] for j in used], T[:, used], self.n_basis)
+        for j, cols in zip(used, raw):
+            t = self.transforms[j]
+            out.append(Block(t.name, cols @ t.constraint, self._penalties[j]))
+        if len(pairs):
+            prods = self.products(X, pairs)
+            for i, (a, b) in enumerate(pairs):
+                out.append(Block(f"{a}:{b}", prods[:, i : i + 1], ridge if self.deviation else ()))
+        return out
+
+    @cached_property
+    def _penalties(self) -> tuple[tuple[np.ndarray, ...], ...]:
+        """Penalty matrices of every feature's block, built once per spec (blocks are built per fit and per prediction)."""
+        return tuple(() if t.constant else self._feature_penalties(t) for t in self.transforms)
+
+    def _feature_penalties(self, t: FeatureTransform) -> tuple[np.ndarray, ...]:
+        z = t.constraint
+        if t.kind == "continuous":
+            wiggle = z.T @ difference_penalty(self.n_basis, 2) @ z
+            return (wiggle, _null_space_projector(wiggle)) if self.deviation else (wiggle,)
+        if t.kind == "ordinal":
+            return (z.T @ difference_penalty(t.n_levels, 1) @ z,)
+        if t.kind == "categorical":
+            return (z.T @ z,)
+        return (np.eye(1),) if self.deviation else ()
+
+    def standardised(self, X: np.ndarray) -> np.ndarray:
+        """Features standardised with the training mean and sd on the modelling scale, capped at +/-2.5."""
+        T = self.transformed(X)
+        mean = np.array([t.mean for t in self.transforms])
+        sd = np.array([t.sd for t in self.transforms])
+        return np.clip((T - mean) / sd, -PRODUCT_CAP, PRODUCT_CAP)
+
+    def products(self, X: np.ndarray, pairs: Sequence[Pair]) -> np.ndarray:
+        """(n, len(pairs)) products of capped standardised features; categorical features are refused."""
+        Z = self.standardised(X)
+        out = np.empty((Z.shape[0], len(pairs)))
+        for i, (a, b) in enumerate(pairs):
+            for name in (a, b):
+                if self.transforms[self.index(name)].kind == "categorical":
+                    raise ValueError(f"interaction {a}:{b}: categorical feature {name!r} has no product term")
+            out[:, i] = Z[:, self.index(a)] * Z[:, self.index(b)]
+        return out
+
+    def grid(self, feature: str, n_points: int = 50) -> np.ndarray:
+        """Raw values spanning the training range of a feature, for drawing its curve."""
+        t = self.transforms[self.index(feature)]
+        if t.kind == "continuous":
+            return np.linspace(t.raw_lo, t.raw_hi, n_points)
+        return np.arange(t.n_levels, dtype=float)
+
+
+def typical_value(x: np.ndarray, kind: str) -> float:
+    """The value a typical parcel has: median (continuous), lower median (ordinal, so it is a level),
+    or most frequent value (categorical, binary); missing values are ignored (0 if all are missing)."""
+    seen = x[~np.isnan(x)]
+    if seen.size == 0:
+        return 0.0
+    if kind == "continuous":
+        return float(np.median(seen))
+    if kind == "ordinal":
+        return float(np.quantile(seen, 0.5, method="lower"))
+    vals, counts = np.unique(seen, return_counts=True)
+    return float(vals[np.argmax(counts)])
+
+
+def _learn_one(x: np.ndarray, f: Feature, n_basis: int,
+               like: FeatureTransform | None) -> tuple[FeatureTransform, np.ndarray | None]:
+    """A feature's transform and its training values on the modelling scale; a varying feature's transform
+    still lacks its constraint (learned from all features' columns at once), a constant one has none (None)."""
+    if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
+        raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
+    impute = typical_value(x, f.kind)
+    filled = np.where(np.isnan(x), impute, x)
+    positive = filled[filled > 0]
+    log = bool(f.log) and f.kind == "continuous"
+    log_floor = float(positive.min()) if positive.size else 1.0
+    if like is not None:
+        log_floor = like.log_floor
+    t = np.log(np.maximum(filled, log_floor)) if log else filled
+    n_levels = len(f.levels) if f.kind in ("ordinal", "categorical") else (2 if f.kind == "binary" else 0)
+    sd = float(t.std())
+    mean, scale = (like.mean, like.sd) if like is not None else (float(t.mean()), sd if sd > 0 else 1.0)
+    partial = FeatureTransform(
+        f.name, f.kind, log, n_levels, impute, log_floor, float(filled.min()), float(filled.max()),
+        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)),
+    )
+    if sd == 0:
+        width = n_basis if f.kind == "continuous" else max(n_levels, 1)
+        return replace(partial, constraint=np.zeros((width, 0))), None
+    if f.kind in ("ordinal", "categorical") and n_levels < 2:
+        raise ValueError(f"feature {f.name!r}: a {f.kind} feature needs its levels listed")
+    return partial, t
+
+
+def _raw_columns(ts: Sequence[FeatureTransform], T: np.ndarray, n_basis: int) -> list[np.ndarray]:
+    """Unconstrained columns of several features (T: one column each, on the modelling scale): B-splines, or
+    level indicators (binary = two levels). Equally spaced knots make a B-spline basis invariant to an affine
+    map of x, so every curve is evaluated in one call on [0, 1] after mapping [lo, hi] onto it."""
+    n = T.shape[0]
+    curves = [i for i, t in enumerate(ts) if t.kind == "continuous"]
+    splines: dict[int, np.ndarray] = {}
+    if curves:
+        lo = np.array([ts[i].lo for i in curves])
+        hi = np.array([ts[i].hi for i in curves])
+        unit = (np.clip(T[:, curves], lo, hi) - lo) / np.where(hi > lo, hi - lo, 1.0)
+        basis = bspline_basis(unit.ravel(order="F"), 0.0, 1.0, n_basis)
+        splines = {i: basis[k * n : (k + 1) * n] for k, i in enumerate(curves)}
+    return [splines[i] if i in splines else _indicators(T[:, i], t.n_levels) for i, t in enumerate(ts)]

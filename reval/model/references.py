@@ -1,0 +1,444 @@
+"""Reference models fitted on the same folds as the main model, to show what interpretability costs.
+
+Three comparisons: a log-linear hedonic regression per segment (OLS), the same with squares and
+pairwise products of the numeric terms, and gradient boosting over the whole jurisdiction with the
+segment as a categorical feature. Out-of-fold predictions and the ratio-study table put them side
+by side with the additive model. Segment intercepts are fitted by within-segment demeaning
+(Frisch-Waugh-Lovell theorem), so a pooled fit never builds an n x segments dummy matrix.
+"""
+from __future__ import annotations
+
+import time
+import warnings
+from dataclasses import dataclass
+from typing import Callable, Mapping, Protocol, Sequence
+
+import numpy as np
+import pandas as pd
+import statsmodels.api as sm
+from scipy import sparse
+from statsmodels.tools.sm_exceptions import SingularMatrixWarning
+from sklearn.ensemble import HistGradientBoostingRegressor
+from sklearn.inspection import permutation_importance as sklearn_permutation_importance
+
+from reval.stats import ratio_stats
+
+EXTRA_SALES = 10        # a segment gets its own OLS only if n_sales >= n_parameters + EXTRA_SALES
+PRODUCT_CAP = 2.5       # standardised values are capped here before squares and products
+MAX_CATEGORIES = 255    # HistGradientBoosting's limit on a categorical feature's levels (max_bins)
+ALL_SEGMENTS = "(all)"  # segment label of the overall rows of the accuracy table
+
+
+class FeatureLike(Protocol):
+    """What the reference models read from a feature spec (reval.config.FeatureSpec fits)."""
+
+    name: str
+    kind: str
+    log: bool
+    levels: tuple[str, ...]
+
+
+class ReferenceModel(Protocol):
+    """Estimator shape shared by the reference models (and accepted by the cross-validation)."""
+
+    specs: Sequence[FeatureLike]
+
+    def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "ReferenceModel": ...
+
+    def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray: ...
+
+
+# ---------------------------------------------------------------- hedonic design
+
+
+@dataclass(frozen=True, eq=False)  # eq=False: ndarray fields make field-wise == ambiguous
+class Design:
+    """How raw features become regression columns; learned from training rows only."""
+
+    specs: tuple[FeatureLike, ...]
+    fill: np.ndarray        # per feature: training median (continuous, ordinal) or mode (categorical, binary)
+    log_floor: np.ndarray   # per feature: smallest positive training value (log features), else NaN
+    centre: np.ndarray      # per numeric term: training mean (quadratic designs)
+    scale: np.ndarray       # per numeric term: training standard deviation, 1 where constant
+    quadratic: bool
+
+
+def _is_numeric(spec: FeatureLike) -> bool:
+    return spec.kind in ("continuous", "ordinal")
+
+
+def fill_values(X: np.ndarray, specs: Sequence[FeatureLike]) -> np.ndarray:
+    """Training medians for continuous and ordinal features, modes for categorical and binary ones."""
+    fill = np.empty(len(specs))
+    for j, spec in enumerate(specs):
+        seen = X[~np.isnan(X[:, j]), j]
+        if seen.size == 0:
+            raise ValueError(f"feature '{spec.name}' has no values in the training sales")
+        if _is_numeric(spec):
+            fill[j] = np.median(seen)
+        else:
+            levels, counts = np.unique(seen, return_counts=True)
+            fill[j] = levels[np.argmax(counts)]
+    return fill
+
+
+def _transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: Sequence[FeatureLike]) -> np.ndarray:
+    """Imputed features, log-transformed where the spec says so (clamped at the training floor)."""
+    Z = np.where(np.isnan(X), fill, X)
+    logged = np.array([s.log for s in specs], dtype=bool)
+    Z[:, logged] = np.log(np.maximum(Z[:, logged], log_floor[logged]))
+    return Z
+
+
+def learn_design(X: np.ndarray, specs: Sequence[FeatureLike], quadratic: bool) -> Design:
+    """Learn imputation values, log floors and standardisation from training rows."""
+    for j, spec in enumerate(specs):
+        if spec.kind == "categorical":
+            codes = X[~np.isnan(X[:, j]), j]
+            if len(spec.levels) < 2 or np.any((codes < 0) | (codes >= len(spec.levels)) | (codes % 1 != 0)):
+                raise ValueError(f"categorical '{spec.name}' needs levels and integer codes 0..{len(spec.levels) - 1}")
+    fill = fill_values(X, specs)
+    log_floor = np.full(len(specs), np.nan)
+    for j, spec in enumerate(specs):
+        if spec.log:
+            positive = X[X[:, j] > 0, j]
+            if positive.size == 0:
+                raise ValueError(f"log feature '{spec.name}' has no positive training values")
+            log_floor[j] = positive.min()
+    numeric = [j for j, s in enumerate(specs) if _is_numeric(s)]
+    terms = _transformed(X, fill, log_floor, specs)[:, numeric]
+    scale = terms.std(axis=0)
+    return Design(tuple(specs), fill, log_floor, terms.mean(axis=0), np.where(scale > 0, scale, 1.0), quadratic)
+
+
+def design_names(design: Design) -> list[str]:
+    """Column names of `design_matrix`, in order."""
+    names: list[str] = []
+    numeric: list[str] = []
+    for spec in design.specs:
+        if spec.kind == "categorical":
+            names += [f"{spec.name}={level}" for level in spec.levels[1:]]
+        else:
+            names.append(f"log({spec.name})" if spec.log else spec.name)
+            numeric += names[-1:] if _is_numeric(spec) else []
+    if design.quadratic:
+        pairs = np.triu_indices(len(numeric))
+        names += [f"{numeric[a]}^2" if a == b else f"{numeric[a]}*{numeric[b]}" for a, b in zip(*pairs)]
+    return names
+
+
+def design_matrix(X: np.ndarray, design: Design) -> np.ndarray:
+    """Regression columns (no intercept): linear terms, categorical dummies (first level dropped)
+    and, for quadratic designs, squares and pairwise products of standardised capped numeric terms."""
+    Z = _transformed(X, design.fill, design.log_floor, design.specs)
+    blocks = []
+    for j, spec in enumerate(design.specs):
+        if spec.kind == "categorical":
+            blocks.append((Z[:, j, None] == np.arange(1, len(spec.levels))).astype(float))
+        else:
+            blocks.append(Z[:, j, None])
+    if design.quadratic:
+        numeric = [j for j, s in enumerate(design.specs) if _is_numeric(s)]
+        S = np.clip((Z[:, numeric] - design.centre) / design.scale, -PRODUCT_CAP, PRODUCT_CAP)
+        a, b = np.triu_indices(len(numeric))
+        blocks.append(S[:, a] * S[:, b])
+    return np.hstack(blocks) if blocks else np.empty((len(X), 0))
+
+
+# ---------------------------------------------------------------- OLS with group intercepts
+
+
+@dataclass(frozen=True, eq=False)
+class GroupOLS:
+    """Slopes shared by all groups and one intercept per group; `columns` are the design columns used."""
+
+    columns: np.ndarray
+    slopes: np.ndarray
+    intercepts: np.ndarray
+    counts: np.ndarray
+
+    @property
+    def n_parameters(self) -> int:
+        return len(self.columns) + len(self.intercepts)
+
+
+def _group_means(values: np.ndarray, group: np.ndarray, n_groups: int) -> np.ndarray:
+    """Per-group means of the rows of `values` (n x q), via a sparse group-by-row indicator."""
+    n = len(group)
+    indicator = sparse.csr_matrix((np.ones(n), (group, np.arange(n))), shape=(n_groups, n))
+    counts = np.asarray(indicator.sum(axis=1)).ravel()
+    return (indicator @ values) / counts[:, None]
+
+
+def varying_columns(M: np.ndarray, group: np.ndarray, n_groups: int) -> np.ndarray:
+    """Columns of M that vary within at least one group (others are absorbed by the intercepts)."""
+    within = M - _group_means(M, group, n_groups)[group]
+    size = np.abs(M).max(axis=0, initial=0.0) + 1.0
+    return np.flatnonzero(np.abs(within).max(axis=0, initial=0.0) > 1e-9 * size)
+
+
+def fit_group_ols(M: np.ndarray, y: np.ndarray, group: np.ndarray, n_groups: int) -> GroupOLS:
+    """OLS of y on M with one intercept per group, by demeaning within groups (Frisch-Waugh-Lovell).
+
+    The slopes equal those of OLS on [M, group dummies]; each intercept is the group's mean
+    residual. Columns constant within every group are dropped first.
+    """
+    columns = varying_columns(M, group, n_groups)
+    design = np.column_stack([M[:, columns], y])
+    means = _group_means(design, group, n_groups)
+    within = design - means[group]
+    with warnings.catch_warnings():
+        # A rank-deficient design (e.g. a feature constant in one class) is expected here: statsmodels'
+        # pseudo-inverse gives the minimum-norm slopes, which predict the same fitted values.
+        warnings.simplefilter("ignore", SingularMatrixWarning)
+        slopes = sm.OLS(within[:, -1], within[:, :-1]).fit().params if len(columns) else np.empty(0)
+    intercepts = means[:, -1] - means[:, :-1] @ slopes
+    return GroupOLS(columns, np.asarray(slopes), intercepts, np.bincount(group, minlength=n_groups))
+
+
+def _segment_groups(segment: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:
+    """Distinct segments, each row's segment index, and the row indices of each segment."""
+    names, inverse = np.unique(np.asarray(segment).astype(str), return_inverse=True)
+    order = np.argsort(inverse, kind="stable")
+    bounds = np.searchsorted(inverse[order], np.arange(len(names) + 1))
+    return names, inverse, [order[bounds[i]:bounds[i + 1]] for i in range(len(names))]
+
+
+def _check_inputs(X: np.ndarray, segment: np.ndarray, n_features: int, y: np.ndarray | None = None) -> None:
+    if X.ndim != 2 or X.shape[1] != n_features:
+        raise ValueError(f"X must have {n_features} feature columns, got shape {X.shape}")
+    if len(segment) != len(X) or (y is not None and len(y) != len(X)):
+        raise ValueError("X, y and segment must have the same number of rows")
+    if y is not None and not np.all(np.isfinite(y)):
+        raise ValueError("y (log time-adjusted price) must be finite")
+
+
+MAX_CONDITION = 1e6  # common practice: beyond this, OLS slopes of a segment are too unstable to trust
+
+
+def _well_conditioned(D: np.ndarray) -> bool:
+    """Whether the standardised segment design is far enough from collinear for its own OLS."""
+    if D.shape[1] == 0:
+        return True
+    centred = D - D.mean(axis=0)
+    scale = centred.std(axis=0)
+    return bool(np.all(scale > 0) and np.linalg.cond(centred / scale) < MAX_CONDITION)
+
+
+class HedonicOLS:
+    """Log-linear hedonic regression per segment (OLS); thin segments share one pooled OLS.
+
+    A segment gets its own fit when n_sales >= n_parameters + 10 and its design is not near-collinear
+    (condition number below MAX_CONDITION); otherwise (and for segments
+    unseen in training) values come from one jurisdiction-wide OLS with segment intercepts.
+    `quadratic=True` adds squares and pairwise products of the numeric terms.
+    """
+
+    def __init__(self, specs: Sequence[FeatureLike], *, quadratic: bool = False) -> None:
+        self.specs = specs
+        self.quadratic = quadratic
+
+    def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "HedonicOLS":
+        X, y = np.asarray(X, dtype=float), np.asarray(y, dtype=float)
+        _check_inputs(X, segment, len(self.specs), y)
+        self.design_ = learn_design(X, self.specs, self.quadratic)
+        self.columns_ = design_names(self.design_)
+        M = design_matrix(X, self.design_)
+        names, inverse, rows = _segment_groups(segment)
+        self.pooled_ = fit_group_ols(M, y, inverse, len(names))
+        self.pooled_range_ = (M.min(axis=0), M.max(axis=0))
+        self.segment_fits_: dict[str, GroupOLS] = {}
+        self.segment_ranges_: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+        info = []
+        for name, idx in zip(names, rows):
+            fit = fit_group_ols(M[idx], y[idx], np.zeros(len(idx), dtype=int), 1)
+            own = len(idx) >= fit.n_parameters + EXTRA_SALES and _well_conditioned(M[idx][:, fit.columns])
+            if own:
+                self.segment_fits_[name] = fit
+                self.segment_ranges_[name] = (M[idx].min(axis=0), M[idx].max(axis=0))
+            info.append((name, len(idx), fit.n_parameters, "own" if own else "pooled"))
+        self.segment_names_ = names
+        self.fit_info_ = pd.DataFrame(info, columns=["segment", "n_sales", "n_parameters", "fit"])
+        self.pooled_segments_ = tuple(self.fit_info_.loc[self.fit_info_["fit"] == "pooled", "segment"])
+        return self
+
+    def coefficients(self, segment: str) -> pd.Series:
+        """Intercept and slopes used for `segment` (its own fit, or the pooled one with its intercept)."""
+        fit, intercept = self._fit_for(segment)
+        names = ["intercept"] + [self.columns_[c] for c in fit.columns]
+        return pd.Series(np.r_[intercept, fit.slopes], index=names, name=segment)
+
+    def _fit_for(self, segment: str) -> tuple[GroupOLS, float]:
+        """The fit and intercept for a segment: its own, its pooled intercept, or (unseen) the
+        sales-weighted mean of the pooled intercepts."""
+        if segment in self.segment_fits_:
+            fit = self.segment_fits_[segment]
+            return fit, float(fit.intercepts[0])
+        pooled = self.pooled_
+        known = np.flatnonzero(self.segment_names_ == segment)
+        if known.size:
+            return pooled, float(pooled.intercepts[known[0]])
+        return pooled, float(pooled.intercepts @ pooled.counts / pooled.counts.sum())
+
+    def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        """Predicted log price, each design column clamped to its fit's training range; a segment
+        unseen in training gets the sales-weighted mean intercept."""
+        if not hasattr(self, "pooled_"):
+            raise RuntimeError("HedonicOLS is not fitted; call fit first")
+        X = np.asarray(X, dtype=float)
+        _check_inputs(X, segment, len(self.specs))
+        out = np.empty(len(X))
+        names, _, rows = _segment_groups(segment)
+        for name, idx in zip(names, rows):
+            fit, intercept = self._fit_for(name)
+            # Clamp each column to the range its fit was trained on: a polynomial extrapolates wildly
+            # (seen on Ames: one quadratic per-segment prediction 900 log units off).
+            lo, hi = self.segment_ranges_.get(name, self.pooled_range_)
+            design = np.clip(design_matrix(X[idx], self.design_), lo, hi)
+            out[idx] = intercept + design[:, fit.columns] @ fit.slopes
+        return out
+
+
+# ---------------------------------------------------------------- gradient boosting
+
+
+def segment_codes(segment: np.ndarray, y: np.ndarray) -> dict[str, int]:
+    """Integer code per training segment, ordered by mean log price (meaningful if used as numeric)."""
+    names, inverse = np.unique(np.asarray(segment).astype(str), return_inverse=True)
+    means = np.bincount(inverse, weights=y) / np.bincount(inverse)
+    return {str(names[i]): rank for rank, i in enumerate(np.argsort(means, kind="stable"))}
+
+
+class GradientBoosting:
+    """HistGradientBoosting on the whole jurisdiction, segment as one more (categorical) feature.
+
+    Fixed hyper-parameters and no early stopping, so a seed fixes the result. Segments unseen
+    in training are passed as missing. With more than 255 segments the segment code (ordered
+    by mean log price) is used as a numeric feature instead; `segment_as_categorical_` says which.
+    """
+
+    def __init__(self, specs: Sequence[FeatureLike], *, seed: int = 0, learning_rate: float = 0.1,
+                 max_iter: int = 200, max_leaf_nodes: int = 31, min_samples_leaf: int = 20,
+                 l2_regularization: float = 1.0) -> None:
+        self.specs = specs
+        self.seed = seed
+        self.learning_rate = learning_rate
+        self.max_iter = max_iter
+        self.max_leaf_nodes = max_leaf_nodes
+        self.min_samples_leaf = min_samples_leaf
+        self.l2_regularization = l2_regularization
+
+    def _matrix(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        codes = pd.Series(np.asarray(segment).astype(str)).map(self.segment_codes_).to_numpy(dtype=float)
+        return np.column_stack([X, codes])
+
+    def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "GradientBoosting":
+        X, y = np.asarray(X, dtype=float), np.asarray(y, dtype=float)
+        _check_inputs(X, segment, len(self.specs), y)
+        self.segment_codes_ = segment_codes(segment, y)
+        self.segment_as_categorical_ = len(self.segment_codes_) <= MAX_CATEGORIES
+        categorical = [s.kind == "categorical" for s in self.specs] + [self.segment_as_categorical_]
+        self.estimator_ = HistGradientBoostingRegressor(
+            learning_rate=self.learning_rate, max_iter=self.max_iter, max_leaf_nodes=self.max_leaf_nodes,
+            min_samples_leaf=self.min_samples_leaf, l2_regularization=self.l2_regularization,
+            categorical_features=np.array(categorical), early_stopping=False, random_state=self.seed,
+        ).fit(self._matrix(X, segment), y)
+        return self
+
+    def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        """Predicted log price."""
+        if not hasattr(self, "estimator_"):
+            raise RuntimeError("GradientBoosting is not fitted; call fit first")
+        X = np.asarray(X, dtype=float)
+        _check_inputs(X, segment, len(self.specs))
+        return self.estimator_.predict(self._matrix(X, segment))
+
+
+def permutation_importance(model: ReferenceModel, X: np.ndarray, y: np.ndarray, segment: np.ndarray,
+                           seed: int, n_repeats: int = 5) -> pd.DataFrame:
+    """Rise in RMSE of log price when one feature (or the segment) is shuffled, by
+    sklearn.inspection.permutation_importance; most important first."""
+    names = [s.name for s in model.specs]
+    frame = pd.DataFrame(np.asarray(X, dtype=float), columns=names)
+    frame["segment"] = np.asarray(segment).astype(str)
+
+    def score(fitted: ReferenceModel, data: pd.DataFrame, target: np.ndarray) -> float:
+        predicted = fitted.predict(data[names].to_numpy(dtype=float), data["segment"].to_numpy())
+        return -float(np.sqrt(np.mean((target - predicted) ** 2)))
+
+    result = sklearn_permutation_importance(model, frame, np.asarray(y, dtype=float), scoring=score,
+                                            n_repeats=n_repeats, random_state=seed)
+    table = pd.DataFrame({"feature": frame.columns, "importance_mean": result.importances_mean,
+                          "importance_std": result.importances_std})
+    return table.sort_values("importance_mean", ascending=False, ignore_index=True)
+
+
+def reference_factories(specs: Sequence[FeatureLike], seed: int = 0) -> dict[str, Callable[[], ReferenceModel]]:
+    """The three reference models by name, as factories for `cross_validated_predictions`."""
+    return {
+        "hedonic_ols": lambda: HedonicOLS(specs),
+        "hedonic_ols_quadratic": lambda: HedonicOLS(specs, quadratic=True),
+        "gradient_boosting": lambda: GradientBoosting(specs, seed=seed),
+    }
+
+
+# ---------------------------------------------------------------- same-fold comparison
+
+
+def cross_validated_predictions(model_factory: Callable[[], ReferenceModel], X: np.ndarray, y: np.ndarray,
+                                segment: np.ndarray, folds: np.ndarray) -> np.ndarray:
+    """Out-of-fold predicted log price for every row: each fold is predicted by a fresh model
+    fitted on all the other folds."""
+    folds = np.asarray(folds)
+    if len(folds) != len(y):
+        raise ValueError("folds must give one fold id per row")
+    segment = np.asarray(segment)
+    out = np.empty(len(y))
+    for fold in np.unique(folds):
+        held = folds == fold
+        model = model_factory().fit(X[~held], y[~held], segment[~held])
+        out[held] = model.predict(X[held], segment[held])
+    return out
+
+
+def compare_models(factories: Mapping[str, Callable[[], ReferenceModel]], X: np.ndarray, y: np.ndarray,
+                   segment: np.ndarray, folds: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, float]]:
+    """Out-of-fold predictions of each model on the same folds, and the wall-clock seconds each took."""
+    predictions, seconds = {}, {}
+    for name, factory in factories.items():
+        start = time.perf_counter()
+        predictions[name] = cross_validated_predictions(factory, X, y, segment, folds)
+        seconds[name] = time.perf_counter() - start
+    return predictions, seconds
+
+
+def _accuracy_row(y: np.ndarray, predicted: np.ndarray, n_boot: int, seed: int) -> dict[str, float]:
+    study = ratio_stats.ratio_study(np.exp(predicted), np.exp(y), n_boot=n_boot, seed=seed)
+    return {
+        "n": study.n,
+        "rmse_log": float(np.sqrt(np.mean((predicted - y) ** 2))),
+        "median_ratio": study.median_ratio,
+        "cod": study.cod,
+        "cod_lo": study.cod_ci[0],
+        "cod_hi": study.cod_ci[1],
+        "prd": study.prd,
+        "prb": study.prb,
+    }
+
+
+def accuracy_table(y: np.ndarray, predictions: Mapping[str, np.ndarray], segment: np.ndarray,
+                   seconds: Mapping[str, float] | None = None, *, n_boot: int = 200,
+                   seed: int = 0) -> pd.DataFrame:
+    """Per model, one overall row ("(all)") and one row per segment: n, RMSE of log price and the
+    ratio study (reval.ratio_stats) of exp(prediction) / exp(y), with a seeded bootstrap CI for
+    the COD; `cv_seconds` is the model's cross-validation time when given."""
+    y = np.asarray(y, dtype=float)
+    names, _, rows = _segment_groups(segment)
+    records = []
+    for model, predicted in predictions.items():
+        predicted = np.asarray(predicted, dtype=float)
+        for name, idx in [(ALL_SEGMENTS, np.arange(len(y))), *zip(names, rows)]:
+            records.append({"model": model, "segment": str(name),
+                            **_accuracy_row(y[idx], predicted[idx], n_boot, seed),
+                            "cv_seconds": (seconds or {}).get(model, np.nan)})
+    return pd.DataFrame(records)

@@ -1,0 +1,172 @@
+"""`reval fit`: one run = the valuation model for every segment, honest out-of-fold predictions, the
+reference models on the same folds, and every parcel's estimate with its contributions — all stored in
+DuckDB in one transaction so the app and the exports never refit anything."""
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import hashlib
+import json
+import time
+from importlib import metadata
+from typing import Any, Callable
+
+import numpy as np
+import pandas as pd
+from threadpoolctl import threadpool_limits
+
+from reval.data.config import Config
+from reval.data.dataset import SalesData, all_parcels, qualified_sales
+from reval.errors import UserError
+from reval.data.events import record_event
+from reval.model import BASE_TERM
+from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
+from reval.model.settings import ModelSettings
+from reval.model.references import accuracy_table, compare_models, permutation_importance, reference_factories
+from reval.data.store import Store
+from reval.stats.study import run_study
+
+Progress = Callable[[str, int, int], None]
+LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "duckdb", "joblib")
+OURS, OURS_NO_INTERACTIONS = "additive_with_interactions", "additive_no_interactions"
+
+
+def _versions() -> dict[str, str]:
+    return {name: metadata.version(name) for name in LIBRARIES}
+
+
+def _data_hash(sales: SalesData, y: np.ndarray) -> str:
+    digest = hashlib.sha256()
+    for part in (np.ascontiguousarray(sales.X), y, sales.frame["segment"].to_numpy(str).astype("U"),
+                 sales.frame["market_area"].to_numpy(str).astype("U")):
+        digest.update(np.ascontiguousarray(part).tobytes())
+    return digest.hexdigest()
+
+
+def _step(progress: Progress | None, name: str) -> Callable[[int, int], None] | None:
+    return None if progress is None else (lambda done, total: progress(name, done, total))
+
+
+def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs: int | None = None,
+            references: bool = True) -> dict[str, Any]:
+    """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary."""
+    settings: ModelSettings = config.model if jobs is None else dataclasses.replace(config.model, jobs=jobs)
+    sales = qualified_sales(store)
+    if len(sales.frame) == 0 or sales.frame["adjusted_price"].isna().any():
+        raise UserError("No prepared sales: run `reval sales` before `reval fit`.")
+    y = np.log(sales.frame["adjusted_price"].to_numpy(float))
+    segment = sales.frame["segment"].to_numpy(str)
+    market_area = sales.frame["market_area"].to_numpy(str)
+    roll_segments = dict(store.rows("segment_market_areas"))
+    timings: dict[str, float] = {}
+
+    start = time.perf_counter()
+    model = fit_hierarchy(sales.X, y, segment, market_area, sales.features, settings, segments=roll_segments,
+                          progress=_step(progress, "fitting segments"))
+    timings["fit"] = time.perf_counter() - start
+    start = time.perf_counter()
+    oof = out_of_fold(sales.X, y, segment, market_area, sales.features, settings,
+                      progress=_step(progress, "out-of-fold folds"))
+    timings["out_of_fold"] = time.perf_counter() - start
+    folds = fold_ids(len(y), segment, settings.seed, settings.folds)
+    with threadpool_limits(limits=1):  # OpenMP/BLAS threads thrash on small fits; measured 7x slower on 2 cores
+        accuracy, importance = (_references(sales, y, segment, market_area, settings, folds, oof, timings, progress)
+                                if references else (pd.DataFrame(), pd.DataFrame()))
+
+    start = time.perf_counter()
+    parcels, X_all = all_parcels(store, sales.features)
+    estimates, contributions = _value_parcels(model, parcels, X_all)
+    timings["value_parcels"] = time.perf_counter() - start
+
+    run_id = "run-" + dt.datetime.now().strftime("%Y%m%d-%H%M%S-%f")
+    header = pd.DataFrame([{
+        "run_id": run_id, "created_at": dt.datetime.now(), "config_sha256": config.sha256,
+        "data_sha256": _data_hash(sales, y), "seed": settings.seed, "folds": settings.folds,
+        "settings": json.dumps(dataclasses.asdict(settings), default=list), "library_versions": json.dumps(_versions()),
+        "timings": json.dumps(timings)}])
+    reports = _segment_reports(model, parcels, X_all, run_id)
+    sale_predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"],
+                                     "parcel_id": sales.frame["parcel_id"], "fold": folds.astype(np.int16),
+                                     "insample_log": model.predict(sales.X, segment, market_area), "oof_log": oof})
+    with store.transaction() as con:
+        store.insert("insert_runs", header)
+        for table, frame in reports.items():
+            store.insert(f"insert_{table}", frame)
+        store.insert("insert_sale_predictions", sale_predictions)
+        store.insert("insert_parcel_estimates", estimates.assign(run_id=run_id))
+        store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
+        store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
+        store.insert("insert_feature_importance", importance.assign(run_id=run_id))
+        record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
+                                  "config_sha256": config.sha256}, run_id=run_id)
+        for source in ("model_out_of_fold", "model_in_sample"):
+            for by in ("segment", "market_area", "class", "all"):
+                run_study(store, config, source, by, run_id)  # type: ignore[arg-type]
+    overall = accuracy[accuracy["segment"] == "(all)"] if len(accuracy) else accuracy
+    return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
+            "segments": len(reports["segment_models"]), "timings": timings,
+            "accuracy": overall.drop(columns=["segment"], errors="ignore").to_dict("records")}
+
+
+def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
+                settings: ModelSettings, folds: np.ndarray, oof: np.ndarray, timings: dict[str, float],
+                progress: Progress | None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The reference models and the additive model without interactions, on the same folds."""
+    start = time.perf_counter()
+    plain = out_of_fold(sales.X, y, segment, market_area, sales.features,
+                        dataclasses.replace(settings, interaction_rule="none"))
+    plain_seconds = time.perf_counter() - start
+    if progress:
+        progress("reference models", 1, 2)
+    factories = reference_factories(sales.features, seed=settings.seed)
+    predictions, seconds = compare_models(factories, sales.X, y, segment, folds)
+    predictions = {OURS: oof, OURS_NO_INTERACTIONS: plain, **predictions}
+    seconds = {OURS: timings["out_of_fold"], OURS_NO_INTERACTIONS: plain_seconds, **seconds}
+    table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)
+    booster = factories["gradient_boosting"]().fit(sales.X, y, segment)
+    importance = permutation_importance(booster, sales.X, y, segment, seed=settings.seed)
+    timings["references"] = time.perf_counter() - start
+    if progress:
+        progress("reference models", 2, 2)
+    accuracy = table.rename(columns={"cv_seconds": "seconds"})[
+        ["model", "segment", "n", "rmse_log", "median_ratio", "cod", "prd", "prb", "seconds"]]
+    return accuracy, importance
+
+
+def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Every parcel's log value and its exact additive contributions (long form)."""
+    segment = parcels["segment"].to_numpy(str)
+    market_area = parcels["market_area"].to_numpy(str)
+    intercept, terms = model.contributions(X, segment, market_area)
+    log_value = intercept + np.sum(list(terms.values()), axis=0)
+    estimates = pd.DataFrame({"parcel_id": parcels["parcel_id"], "segment": segment, "log_value": log_value,
+                              "market_value": np.exp(log_value)})
+    names = [BASE_TERM, *terms]
+    stacked = np.column_stack([intercept, *terms.values()])
+    contributions = pd.DataFrame({"parcel_id": np.repeat(parcels["parcel_id"].to_numpy(), len(names)),
+                                  "term": np.tile(np.array(names, dtype=object), len(parcels)),
+                                  "contribution": stacked.ravel()})
+    return estimates, contributions
+
+
+def _segment_reports(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray, run_id: str) -> dict[str, pd.DataFrame]:
+    """Per segment: how it was modelled, its curves, interactions and marginal effects."""
+    summaries, curves, interactions, effects = [], [], [], []
+    by_segment = pd.Series(np.arange(len(parcels))).groupby(parcels["segment"].to_numpy()).indices
+    for name in sorted(model.segments):
+        s = model.summary(name)
+        summaries.append({"run_id": run_id, "segment": name, "market_area": s["market_area"], "kind": s["kind"],
+                          "reason": s["reason"] or None, "n_sales": s["n_sales"],
+                          "edf_deviation": s["edf_deviation"], "borrowed_share": s["borrowed_share"],
+                          "interactions": json.dumps(s["interactions"]),
+                          "detail": json.dumps({"lambdas": s["lambdas"],
+                                                "deviation_columns": s["deviation_columns"]})})
+        for f in model.features:
+            curves.append(model.curves(name, f.name).assign(run_id=run_id, segment=name, feature=f.name))
+        interactions.append(model.interactions(name).assign(run_id=run_id, segment=name))
+        rows = by_segment.get(name)
+        if rows is not None and len(rows):
+            effects.append(model.marginal_effects(name, X[rows]).assign(run_id=run_id, segment=name))
+    return {"segment_models": pd.DataFrame(summaries), "model_curves": pd.concat(curves, ignore_index=True),
+            "model_interactions": pd.concat(interactions, ignore_index=True),
+            "marginal_effects": pd.concat(effects, ignore_index=True) if effects else pd.DataFrame()}

@@ -1,0 +1,1 @@
+"""The value roll: values, land, review, decisions on batches, export."""

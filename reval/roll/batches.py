@@ -1,0 +1,145 @@
+"""Batch states and their transitions: approve, hold, revoke; each one transaction and one event.
+
+staged -> approved | held; held -> staged again only through a new value step (`reval value` after a new
+run or a changed basis); approved -> exported (reval.export), or back to staged when revoked before export
+(to 'replaced' when a newer open batch already exists). Approval needs the segment's out-of-fold ratio
+statistics of the batch's run to pass the standards, or an override note, which is stored. Approving a
+newer batch marks the segment's earlier approved one 'superseded'. Approved values never change.
+"""
+from __future__ import annotations
+
+from typing import Any
+
+from reval.clock import utc_now
+from reval.data.config import Config
+from reval.errors import UserError
+from reval.data.events import record_event
+from reval.stats.standards import Verdict, passes
+from reval.data.store import Store
+from reval.roll.batch_states import live_batches
+from reval.stats.study import load_study, run_study, study_id
+
+OUT_OF_FOLD = "model_out_of_fold"
+
+
+def _known(store: Store, segment: str) -> None:
+    if segment not in {r[0] for r in store.rows("roll_segments")}:
+        raise UserError(f"No segment named '{segment}'.")
+
+
+def segment_statistics(store: Store, config: Config, run_id: str, segment: str) -> dict[str, Any]:
+    """The segment's out-of-fold ratio statistics for a run (computed and stored when missing), without the
+    list of trimmed sales; a segment without sales gets n = 0 and no verdicts."""
+    if store.frame("study_header", [study_id(OUT_OF_FOLD, run_id, "segment")]).empty:
+        run_study(store, config, OUT_OF_FOLD, "segment", run_id)
+    study = load_study(store, OUT_OF_FOLD, "segment", run_id)
+    group = next((g for g in study["groups"] if g["group"] == segment), None)
+    if group is None:
+        return {"study_id": study_id(OUT_OF_FOLD, run_id, "segment"), "n": 0, "verdicts": {}}
+    return {"study_id": study_id(OUT_OF_FOLD, run_id, "segment"),
+            **{k: v for k, v in group.items() if k != "trimmed"}}
+
+
+def failures(statistics: dict[str, Any]) -> list[str]:
+    """Why the statistics do not pass the standards (empty when they pass)."""
+    verdicts = {k: Verdict(v["status"], v["limit"], v["value"]) for k, v in statistics["verdicts"].items()}
+    if not verdicts:
+        return ["no qualified sales in the segment"]
+    if passes(verdicts):
+        return []
+    return [f"{name} {'-' if v.value is None else f'{v.value:.3f}'} ({v.status.replace('_', ' ')}; standard {v.limit})"
+            for name, v in verdicts.items() if v.status != "pass"]
+
+
+def _transition(store: Store, batch: dict[str, Any], to: str, kind: str, note: str | None,
+                detail: dict[str, Any]) -> None:
+    """Move one batch to `to` and record the event; the caller holds the transaction."""
+    store.run("batch_set_state", {"batch_ids": [batch["batch_id"]], "state": to, "at": utc_now(), "note": note})
+    record_event(store.con, kind, {"batch_id": batch["batch_id"], "from": batch["state"], "to": to, "note": note,
+                                   **detail}, segment=batch["segment"], run_id=batch["run_id"])
+
+
+def _open_batch(store: Store, segment: str, action: str) -> dict[str, Any]:
+    """The segment's staged batch, read inside the caller's transaction; a plain refusal otherwise."""
+    live = live_batches(store, segment)
+    batch = next((b for b in live if b["state"] in ("staged", "held")), None)
+    if batch is None:
+        raise UserError(f"Cannot {action} {segment}: it has no staged batch; run `reval value` after a run.")
+    if batch["state"] == "held":
+        raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
+                        "a new run and `reval value` stage it again.")
+    return batch
+
+
+def _note(text: str | None) -> str | None:
+    return text.strip() if text and text.strip() else None
+
+
+def approve(store: Store, config: Config, segment: str, note: str | None = None) -> dict[str, Any]:
+    """Approve the segment's staged batch when its out-of-fold statistics pass, or with an override note."""
+    _known(store, segment)
+    note = _note(note)
+    run_id = _open_batch(store, segment, "approve")["run_id"]
+    statistics = segment_statistics(store, config, run_id, segment)
+    reasons = failures(statistics)
+    if reasons and note is None:
+        raise UserError(f"Cannot approve {segment}: its out-of-fold ratio statistics of run {run_id} do not pass "
+                        f"the standards: {'; '.join(reasons)}. Approve with a note to override (the note is stored).")
+    with store.transaction():
+        batch = _open_batch(store, segment, "approve")
+        if batch["run_id"] != run_id:
+            raise UserError(f"The batch of {segment} changed while approving; try again.")
+        totals = store.records("batch_totals", [batch["batch_id"]])[0]
+        earlier = [b for b in live_batches(store, segment) if b["state"] == "approved"]
+        for old in earlier:
+            _transition(store, old, "superseded", "batch_superseded", None, {"by_batch_id": batch["batch_id"]})
+        _transition(store, batch, "approved", "batch_approved", note,
+                    {"override": bool(reasons), "failed": reasons, "statistics": statistics, "totals": totals})
+    return {"segment": segment, "batch_id": batch["batch_id"], "run_id": run_id, "state": "approved",
+            "override": bool(reasons), "failed": reasons, "note": note, "statistics": statistics,
+            "superseded": [b["batch_id"] for b in earlier]}
+
+
+def hold(store: Store, config: Config, segment: str, reason: str) -> dict[str, Any]:
+    """Hold the segment's staged batch; a reason is required."""
+    _known(store, segment)
+    note = _note(reason)
+    if note is None:
+        raise UserError(f"Cannot hold {segment}: give a reason.")
+    run_id = _open_batch(store, segment, "hold")["run_id"]
+    statistics = segment_statistics(store, config, run_id, segment)
+    with store.transaction():
+        batch = _open_batch(store, segment, "hold")
+        _transition(store, batch, "held", "batch_held", note, {"statistics": statistics})
+    return {"segment": segment, "batch_id": batch["batch_id"], "run_id": batch["run_id"], "state": "held",
+            "note": note, "statistics": statistics}
+
+
+def _approved_batch(live: list[dict[str, Any]], segment: str) -> dict[str, Any]:
+    batch = next((b for b in live if b["state"] == "approved"), None)
+    if batch is not None:
+        return batch
+    exported = next((b for b in live if b["state"] == "exported"), None)
+    if exported is not None:
+        raise UserError(f"Cannot revoke {segment}: batch {exported['batch_id']} was exported; exported values "
+                        "are final (a new run makes a new batch).")
+    raise UserError(f"Cannot revoke {segment}: it has no approved batch.")
+
+
+def revoke(store: Store, config: Config, segment: str, note: str) -> dict[str, Any]:
+    """Withdraw the segment's approval before export; a note is required. Exported batches cannot be revoked."""
+    _known(store, segment)
+    text = _note(note)
+    if text is None:
+        raise UserError(f"Cannot revoke {segment}: give a note saying why.")
+    target = _approved_batch(live_batches(store, segment), segment)
+    statistics = segment_statistics(store, config, target["run_id"], segment)
+    with store.transaction():
+        live = live_batches(store, segment)
+        batch = _approved_batch(live, segment)
+        if batch["batch_id"] != target["batch_id"]:
+            raise UserError(f"The approved batch of {segment} changed while revoking; try again.")
+        to = "replaced" if any(b["state"] in ("staged", "held") for b in live) else "staged"
+        _transition(store, batch, to, "batch_revoked", text, {"statistics": statistics})
+    return {"segment": segment, "batch_id": batch["batch_id"], "run_id": batch["run_id"], "state": to,
+            "note": text, "statistics": statistics}

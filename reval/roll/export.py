@@ -1,0 +1,148 @@
+"""Export of the certified value roll: a CSV written by DuckDB, made durable, then put in place atomically.
+
+The file is written to a hidden temporary file in the target folder, fsync'd, hashed, and moved over the
+target with os.replace; a manifest (row count, totals per segment, sha256 of the CSV, run ids, config
+hash, who, when) goes beside it the same way. Only then are the batches marked exported and the event
+recorded, in one transaction: a process that dies earlier leaves no roll file and no exported state (a
+stale temporary file is removed by the next export).
+"""
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+from reval.roll.batch_states import segment_states
+from reval.data.config import Config
+from reval.errors import UserError
+from reval.data.events import current_user, record_event
+from reval.clock import utc_now
+from reval.data.importer import ERROR_REPORT
+from reval.roll.land import schedule_path
+from reval.data.store import Store
+
+PARTIAL_SUFFIX = ".partial"
+CHUNK = 1 << 20
+
+
+def manifest_path(path: Path) -> Path:
+    """Where the manifest of a roll file goes: roll.csv -> roll.manifest.json."""
+    return path.with_name(path.stem + ".manifest.json")
+
+
+def _partial(path: Path) -> Path:
+    return path.with_name(f".{path.name}.{os.getpid()}{PARTIAL_SUFFIX}")
+
+
+def _remove_stale_partials(path: Path) -> None:
+    """Temporary files a killed export left behind (only one export runs at a time: it holds the database)."""
+    for target in (path, manifest_path(path)):
+        for stale in target.parent.glob(f".{target.name}.*{PARTIAL_SUFFIX}"):
+            stale.unlink()
+
+
+def _fsync(path: Path) -> None:
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with path.open("rb") as handle:
+        while block := handle.read(CHUNK):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str], list[str]]:
+    """The certified batches to export, the segments without one, and segments with an open newer batch."""
+    states = segment_states(store)
+    missing = [s["segment"] for s in states if s["certified"] is None]
+    if missing and not partial:
+        shown = ", ".join(missing[:30]) + (f" and {len(missing) - 30} more" if len(missing) > 30 else "")
+        raise UserError(f"Export refused: {len(missing)} segment(s) not approved: {shown}. Approve them, or "
+                        "export the approved segments alone with --partial.")
+    certified = [s["certified"] for s in states if s["certified"] is not None]
+    if not certified:
+        raise UserError("Nothing to export: no segment is approved.")
+    pending = [s["segment"] for s in states if s["certified"] is not None and s["open"] is not None]
+    return certified, missing, pending
+
+
+def project_files(config: Config) -> set[Path]:
+    """Files an export must never write over: the config, the database and its log, the inputs."""
+    database = config.database.resolve()
+    owned = {config.path, database, database.with_name(database.name + ".wal"), config.parcels_file,
+             config.folder / ERROR_REPORT}
+    owned |= {p for p in (config.sales_file, schedule_path(config)) if p is not None}
+    return {p.resolve() for p in owned}
+
+
+def check_target(config: Config, path: Path, overwrite: bool) -> None:
+    """Refuse a roll (or its manifest) that would land on a file of the project, or on any existing file
+    unless `overwrite` is given."""
+    if not path.parent.is_dir():
+        raise UserError(f"{path.parent}: no such folder")
+    if path.is_dir():
+        raise UserError(f"{path} is a folder; give the roll's file name, e.g. {path / 'roll.csv'}")
+    owned = project_files(config)
+    for target in (path, manifest_path(path)):
+        if target.resolve() in owned:
+            raise UserError(f"Export refused: {target} is one of the project's own files (config, database or "
+                            "input); choose another file name, e.g. value_roll.csv.")
+        if target.exists() and not overwrite:
+            raise UserError(f"Export refused: {target} already exists; choose another file name or give "
+                            "--overwrite to replace it.")
+
+
+def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
+                overwrite: bool = False) -> dict[str, Any]:
+    """Write the roll of every certified batch to `path` (and its manifest); mark approved batches exported.
+    Never writes over the project's own files, nor over an existing file unless `overwrite`."""
+    path = Path(path).resolve()
+    check_target(config, path, overwrite)
+    certified, missing, pending = _plan(store, partial)
+    ids = [int(b["batch_id"]) for b in certified]
+    _remove_stale_partials(path)
+    tmp, tmp_manifest = _partial(path), _partial(manifest_path(path))
+    store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
+    _fsync(tmp)
+    totals = store.records("export_totals", {"batch_ids": ids})
+    manifest = {
+        "file": path.name, "rows": sum(t["rows"] for t in totals), "sha256": _sha256(tmp),
+        "segments": totals, "run_ids": sorted({t["run_id"] for t in totals}),
+        "partial": bool(missing), "not_approved": missing, "pending_newer_batches": pending,
+        "config_sha256": config.sha256, "who": current_user(),
+        "when": utc_now().isoformat(timespec="seconds") + "Z",
+    }
+    tmp_manifest.write_text(json.dumps(manifest, indent=2, sort_keys=True), encoding="utf-8")
+    _fsync(tmp_manifest)
+    os.replace(tmp, path)
+    os.replace(tmp_manifest, manifest_path(path))
+    _fsync(path.parent)
+    _mark_exported(store, certified, manifest, path)
+    return {**manifest, "path": str(path), "manifest": str(manifest_path(path))}
+
+
+def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: dict[str, Any], path: Path) -> None:
+    """Approved batches become exported and every export is an event; after the files are in place."""
+    at = utc_now()
+    fresh = [b for b in certified if b["state"] == "approved"]
+    with store.transaction() as con:
+        if [b["batch_id"] for b in store.records("batch_certified")] != [b["batch_id"] for b in certified]:
+            raise UserError("Batches changed while exporting; the file was written but nothing is marked "
+                            "exported: export again.")
+        store.run("batch_set_state", {"batch_ids": [b["batch_id"] for b in fresh], "state": "exported",
+                                      "at": at, "note": None})
+        for b in fresh:
+            record_event(con, "batch_exported", {"batch_id": b["batch_id"], "from": "approved", "to": "exported",
+                                                 "file": str(path), "sha256": manifest["sha256"]},
+                         segment=b["segment"], run_id=b["run_id"])
+        record_event(con, "roll_exported", {"file": str(path), **{k: manifest[k] for k in (
+            "rows", "sha256", "run_ids", "partial", "not_approved", "config_sha256")},
+            "batch_ids": [b["batch_id"] for b in certified]})

@@ -1,0 +1,141 @@
+"""Values for every parcel from a model run, staged as one batch per segment (set-based, in DuckDB).
+
+market value = the run's estimate, rounded to the nearest `assessment.rounding`;
+assessed value = market value x `assessment.level`, rounded, then capped: a `[[assessment.caps]]` entry
+limits the assessed value of its property classes (all classes when it names none) to at most
+prior value x (1 + max_increase), rounded down; the tightest cap of a class applies;
+land value from the land schedule (reval.land), never above the total; improvement = total - land.
+Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%").
+"""
+from __future__ import annotations
+
+import hashlib
+from typing import Any, Mapping
+
+import duckdb
+import pandas as pd
+
+from reval.clock import utc_now
+from reval.data.config import Config
+from reval.errors import ConfigError, UserError
+from reval.data.events import record_event
+from reval.roll.land import LandSchedule, load_land_schedule
+from reval.data.store import Store
+
+OPEN_STATES = ("staged", "held")
+
+
+def resolve_run(store: Store, run_id: str | None) -> str:
+    """The given run (checked to exist) or the newest one."""
+    if run_id is None:
+        rows = store.rows("roll_latest_run")
+        if not rows:
+            raise UserError("No model run yet: run `reval fit` first.")
+        return str(rows[0][0])
+    if store.rows("roll_run_exists", [run_id])[0][0] == 0:
+        raise UserError(f"No run '{run_id}'.")
+    return run_id
+
+
+def _check_coverage(store: Store, run_id: str) -> None:
+    missing, unknown, first_missing, first_unknown = store.rows("roll_run_coverage", [run_id])[0]
+    if missing:
+        raise UserError(f"Run {run_id} has no value for {missing:,} imported parcel(s) (e.g. {first_missing}); "
+                        "it was fitted on another data set: run `reval fit` again.")
+    if unknown:
+        raise UserError(f"Run {run_id} values {unknown:,} parcel(s) that are no longer imported "
+                        f"(e.g. {first_unknown}): run `reval fit` again.")
+
+
+def cap_table(config: Config, classes: list[str]) -> pd.DataFrame:
+    """Each property class's tightest cap: property_class, max_increase, label (classes without a cap left out)."""
+    best: dict[str, float] = {}
+    for i, cap in enumerate(config.assessment.caps):
+        key = f"assessment.caps[{i}]"
+        limit = float(cap["max_increase"])
+        if limit < 0:
+            raise ConfigError(config.path, f"{key}.max_increase", "cannot be negative")
+        named = cap.get("property_classes")
+        if named is not None and (not isinstance(named, list) or not all(isinstance(c, str) for c in named)):
+            raise ConfigError(config.path, f"{key}.property_classes", "expected a list of strings")
+        for cls in classes if named is None else [c for c in named if c in classes]:
+            best[cls] = min(limit, best.get(cls, limit))
+    return pd.DataFrame({"property_class": pd.Series(list(best), dtype=str),
+                         "max_increase": pd.Series(list(best.values()), dtype=float),
+                         "label": pd.Series([f"cap:max_increase_{v * 100:g}%" for v in best.values()], dtype=str)})
+
+
+def _basis(config: Config, schedule: LandSchedule | None) -> str:
+    """Fingerprint of what the values depend on besides the run: the config and the land schedule."""
+    return hashlib.sha256(f"{config.sha256}:{schedule.sha256 if schedule else '-'}".encode()).hexdigest()
+
+
+def _lot_position(store: Store, schedule: LandSchedule | None) -> int | None:
+    if schedule is None:
+        return None
+    rows = store.rows("roll_feature_position", [schedule.lot_feature])
+    if not rows:
+        raise UserError(f"The land schedule reads feature '{schedule.lot_feature}', which the imported data does "
+                        "not hold as a continuous feature: run `reval import` again.")
+    return int(rows[0][0])
+
+
+def stage_values(store: Store, config: Config, run_id: str | None = None) -> dict[str, Any]:
+    """Value every parcel from a run and stage one batch per segment, replacing the segment's open batch;
+    approved and exported batches are never touched. One transaction."""
+    run = resolve_run(store, run_id)
+    _check_coverage(store, run)
+    segments = [r[0] for r in store.rows("roll_segments")]
+    schedule = load_land_schedule(config, segments)
+    basis = _basis(config, schedule)
+    caps = cap_table(config, [r[0] for r in store.rows("roll_property_classes")])
+    lot_position = _lot_position(store, schedule)
+    land_rows = schedule.rows if schedule else pd.DataFrame(
+        {"segment": pd.Series(dtype=str), "base_lot_size": pd.Series(dtype=float),
+         "base_land_value": pd.Series(dtype=float), "size_exponent": pd.Series(dtype=float)})
+    at = utc_now()
+    frames = {"roll_land_schedule": land_rows, "roll_caps": caps}
+    for name, frame in frames.items():
+        store.con.register(name, frame)
+    try:
+        with store.transaction() as con:
+            to_stage = store.frame("roll_segments_to_stage", {"run": run, "basis": basis})
+            store.con.register("roll_stage_segments", to_stage)
+            frames["roll_stage_segments"] = to_stage
+            replaced = store.frame("roll_open_batches")
+            store.run("batch_set_state", {"batch_ids": replaced["batch_id"].tolist(), "state": "replaced",
+                                          "at": at, "note": None})
+            store.run("roll_delete_values", {"batch_ids": replaced["batch_id"].tolist()})
+            staged = store.frame("roll_insert_batches", {"run": run, "basis": basis, "at": at})
+            new_ids = staged["batch_id"].tolist()
+            store.run("roll_insert_values", {"run": run, "batch_ids": new_ids, "level": config.assessment.level,
+                                             "rounding": config.assessment.rounding,
+                                             "allocate": schedule is not None, "lot_position": lot_position})
+            _record_staging(con, run, basis, staged, replaced)
+            flags = dict(store.rows("roll_flag_counts", {"batch_ids": new_ids}))
+    finally:
+        for name in frames:
+            store.con.unregister(name)
+    unchanged = sorted(set(segments) - set(to_stage["segment"]))  # the run covers every segment (checked)
+    return {"run_id": run, "staged": _staged_rows(staged, replaced), "unchanged": unchanged,
+            "land_schedule": None if schedule is None else {"lot_feature": schedule.lot_feature,
+                                                            "sha256": schedule.sha256},
+            "flags": {str(k): int(v) for k, v in flags.items()}}
+
+
+def _staged_rows(staged: pd.DataFrame, replaced: pd.DataFrame) -> list[dict[str, Any]]:
+    before: Mapping[str, Any] = {r.segment: r for r in replaced.itertuples()}
+    return [{"segment": r.segment, "batch_id": int(r.batch_id), "n_parcels": int(r.n_parcels),
+             "replaced_batch_id": int(before[r.segment].batch_id) if r.segment in before else None,
+             "replaced_state": before[r.segment].state if r.segment in before else None}
+            for r in staged.itertuples()]
+
+
+def _record_staging(con: duckdb.DuckDBPyConnection, run: str, basis: str, staged: pd.DataFrame, replaced: pd.DataFrame) -> None:
+    """One event per transition: each replaced open batch, each new staged batch."""
+    for r in replaced.itertuples():
+        record_event(con, "batch_replaced", {"batch_id": int(r.batch_id), "from": r.state, "to": "replaced",
+                                             "by_run": run}, segment=r.segment, run_id=r.run_id)
+    for row in _staged_rows(staged, replaced):
+        record_event(con, "batch_staged", {**row, "from": None, "to": "staged", "basis_sha256": basis},
+                     segment=row["segment"], run_id=run)

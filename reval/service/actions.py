@@ -1,0 +1,203 @@
+"""Every action a user can take, one function each, shared by the command line and the app.
+
+Each opens the project with `open_project` (read-only unless the action writes) and calls the core.
+The core's step modules load pandas, SciPy and scikit-learn, so they are imported inside the action
+that needs them: the app's start-up and `reval --help` do not wait for them.
+"""
+from __future__ import annotations
+
+import json
+import shutil
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from reval.data.config import CONFIG_NAME
+from reval.errors import UserError
+from reval.service.project import open_project
+
+Progress = Callable[[str, int, int], None]
+DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
+DEMO_FILES = ("reval.toml", "parcels.csv", "sales.csv", "land_schedule.csv")
+
+
+# ---- the project and its data ----------------------------------------------------------------------------
+
+def init_project(folder: Path, name: str) -> Path:
+    """Create a project folder with a commented starter reval.toml; never overwrite one."""
+    from reval.data.starter import starter_config
+
+    path = folder / CONFIG_NAME
+    if path.exists():
+        raise UserError(f"{path} already exists; reval init never overwrites a config")
+    folder.mkdir(parents=True, exist_ok=True)
+    path.write_text(starter_config(name), encoding="utf-8")
+    return path
+
+
+def import_data(folder: Path, progress: Progress | None = None) -> dict[str, Any]:
+    """Check and load the project's input files (all or nothing)."""
+    from reval.data.config import load_config
+    from reval.data.importer import run_import
+
+    return run_import(load_config(folder), progress).as_dict()
+
+
+def prepare_sales(folder: Path, progress: Progress | None = None) -> dict[str, Any]:
+    """Qualify sales and time-adjust them to the valuation date."""
+    from reval.data.sales import prepare_sales as prepare
+
+    with open_project(folder, write=True) as (config, store):
+        return prepare(store, config, progress).as_dict()
+
+
+def sales_report(folder: Path) -> dict[str, Any]:
+    """The stored qualification counts."""
+    from reval.data.sales import SalesSummary
+
+    with open_project(folder) as (_, store):
+        return SalesSummary(store.frame("sales_counts")).as_dict()
+
+
+def segment_overview(folder: Path) -> list[dict[str, Any]]:
+    """One row per segment with its parcel and sale counts."""
+    with open_project(folder) as (_, store):
+        return store.records("segment_counts")
+
+
+# ---- studies and models --------------------------------------------------------------------------------------
+
+def study(folder: Path, values: str = "prior", by: str = "segment", run_id: str | None = None,
+          in_sample: bool = False) -> dict[str, Any]:
+    """Run and store a ratio study; model values (the latest run unless named) are out-of-fold unless
+    in_sample is asked for."""
+    from reval.roll.valuation import resolve_run
+    from reval.stats.study import run_study
+
+    source = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    with open_project(folder, write=True) as (config, store):
+        run = None if source == "prior" else resolve_run(store, run_id)
+        return run_study(store, config, source, by, run)  # type: ignore[arg-type]
+
+
+def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> dict[str, Any]:
+    """Fit every segment's model, validate out of fold, compare with the reference models, store a run."""
+    from reval.model.run import fit_run
+
+    with open_project(folder, write=True) as (config, store):
+        return fit_run(store, config, progress, jobs)
+
+
+def compare(folder: Path, run_id: str | None = None) -> dict[str, Any]:
+    """The reference models' accuracy beside ours, per segment and overall, for a run."""
+    from reval.roll.valuation import resolve_run
+
+    with open_project(folder) as (_, store):
+        run = resolve_run(store, run_id)
+        rows = store.records("reference_accuracy_rows", [run])
+        importance = store.records("feature_importance_rows", [run])
+    return {"run_id": run, "models": sorted({r["model"] for r in rows}), "rows": rows,
+            "gradient_boosting_importance": importance}
+
+
+# ---- the value roll --------------------------------------------------------------------------------------------
+
+def stage_values(folder: Path, run_id: str | None = None) -> dict[str, Any]:
+    """Value every parcel from a run (default: the newest) and stage one batch per segment."""
+    from reval.roll import valuation
+
+    with open_project(folder, write=True) as (config, store):
+        return valuation.stage_values(store, config, run_id)
+
+
+def review(folder: Path, segment: str | None = None, limit: int = 20) -> dict[str, Any]:
+    """Value changes, parcels beyond the review threshold and the sales-chasing check, per segment."""
+    from reval.roll.review import review as review_batches
+
+    with open_project(folder) as (config, store):
+        return review_batches(store, config, segment, limit)
+
+
+def approve(folder: Path, segment: str, note: str | None = None) -> dict[str, Any]:
+    """Approve a segment's staged batch (its out-of-fold statistics must pass, or give an override note)."""
+    from reval.roll import batches
+
+    with open_project(folder, write=True) as (config, store):
+        return batches.approve(store, config, segment, note)
+
+
+def hold(folder: Path, segment: str, reason: str) -> dict[str, Any]:
+    """Hold a segment's staged batch, with a reason."""
+    from reval.roll import batches
+
+    with open_project(folder, write=True) as (config, store):
+        return batches.hold(store, config, segment, reason)
+
+
+def revoke(folder: Path, segment: str, note: str) -> dict[str, Any]:
+    """Withdraw a segment's approval before export, with a note."""
+    from reval.roll import batches
+
+    with open_project(folder, write=True) as (config, store):
+        return batches.revoke(store, config, segment, note)
+
+
+def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> dict[str, Any]:
+    """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless
+    partial, refuses the project's own files, and an existing file unless overwrite."""
+    from reval.roll import export
+
+    with open_project(folder, write=True) as (config, store):
+        return export.export_roll(store, config, path, partial, overwrite)
+
+
+def event_log(folder: Path, segment: str | None = None) -> dict[str, Any]:
+    """The audit log, oldest first, optionally for one segment."""
+    with open_project(folder) as (_, store):
+        rows = store.records("log_events", {"segment": segment})
+    return {"segment": segment, "events": [{**r, "detail": json.loads(r["detail"] or "{}")} for r in rows]}
+
+
+def batch_states(folder: Path) -> dict[str, Any]:
+    """Each segment's open batch (staged or held) and certified batch (approved or exported)."""
+    from reval.roll.batch_states import segment_states
+
+    with open_project(folder) as (_, store):
+        return {"segments": segment_states(store)}
+
+
+# ---- the demo ----------------------------------------------------------------------------------------------------
+
+def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = None) -> dict[str, Any]:
+    """Build the demo municipality's project folder and run every step of the job up to staged values."""
+    from reval.data.config import load_config
+
+    folder.mkdir(parents=True, exist_ok=True)
+    if n_parcels is None:
+        for name in DEMO_FILES:
+            shutil.copyfile(DEMO_SOURCE / name, folder / name)
+    else:
+        from data_samples.demo_town import write_project
+
+        write_project(folder, n_parcels=n_parcels)
+    imported = import_data(folder, progress)
+    steps = ["import" + ("" if imported["changed"] else " (unchanged)")]
+    sales = prepare_sales(folder, progress)
+    steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
+    for by in ("market_area", "class", "all", "segment"):
+        prior = study(folder, "prior", by)
+    steps.append(_failing("ratio study of prior values", prior))
+    run = fit(folder, progress)
+    steps.append(f"fit: run {run['run_id']}, {run['segments']} segments, {run['parcels']:,} parcels valued")
+    steps.append(_failing("out-of-fold ratio study of model values", study(folder, "model", "segment", run["run_id"])))
+    staged = stage_values(folder)
+    steps.append(f"values staged for review: {len(staged['staged'])} neighbourhood batches")
+    config = load_config(folder)
+    return {"jurisdiction": config.jurisdiction, "folder": str(config.folder), "parcels": imported["parcels"],
+            "sales": imported["sales"], "segments": imported["segments"], "market_areas": imported["market_areas"],
+            "steps": steps}
+
+
+def _failing(what: str, result: dict[str, Any]) -> str:
+    failing = [g["group"] for g in result["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
+    return f"{what}: {len(result['groups'])} neighbourhoods, {len(failing)} failing a standard"

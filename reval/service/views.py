@@ -1,0 +1,327 @@
+"""Read-only data for the terminal app's screens, as plain dicts, lists and numbers.
+
+The app holds no SQL, pandas or statistics: every number it shows is computed here (or stored by the
+core) and every query is a named file in sql/queries/app_*.sql. Lists of parcels and sales are paged or
+limited in SQL; the overview is one row per segment. Rows are read as plain DuckDB tuples (no pandas), and
+modules the overview does not need (numpy, scipy, the review) load in the calls that use them, so a fresh
+app opens fast.
+"""
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Any
+
+from reval.data.config import Config
+from reval.data.store import Store
+from reval.errors import UserError
+from reval.model import BASE_TERM
+from reval.plain import number
+from reval.roll import batch_states
+from reval.roll.batch_states import state_of
+from reval.roll.split import value_split
+from reval.service.project import open_project
+from reval.states import BatchState
+from reval.stats.sources import SOURCE_LABELS
+
+STATS = ("median_ratio", "cod", "prd", "prb")
+CI_COLUMNS = {"median_ratio": "median", "cod": "cod", "prd": "prd", "prb": "prb"}  # stored as <name>_lo, _hi
+SORT_KEYS = ("segment", "market_area", "parcels", "sales", "model", "median_ratio", "cod", "prd", "prb",
+             "value_change", "state")
+
+
+def latest_run(store: Store) -> str | None:
+    rows = store.rows("app_latest_run")
+    return str(rows[0][0]) if rows else None
+
+
+def _study(store: Store, run_id: str | None) -> tuple[dict[str, Any] | None, str]:
+    """The segment study the app shows, read from its stored rows (never recomputed): out-of-fold for the
+    latest run when stored, else prior values; with a note saying what is missing."""
+    header = store.records("app_segment_study", [run_id])
+    notes = []
+    if run_id is not None and (not header or header[0]["values_source"] != "model_out_of_fold"):
+        notes.append(f"run {run_id} has no stored out-of-fold study")
+    if not header:
+        notes.append("no ratio study stored yet (run `reval sales` and `reval study`)")
+        return None, "; ".join(notes)
+    groups = [_study_group(r) for r in store.records("study_group_rows", [header[0]["study_id"]])]
+    return {**header[0], "groups": groups}, "; ".join(notes)
+
+
+def _study_group(row: dict[str, Any]) -> dict[str, Any]:
+    """One stored study group in the shape of reval.study.load_study's groups (without the trimmed sales)."""
+    return {"group": row["group_name"], "property_class": row["property_class"], "n": row["n"],
+            "n_trimmed": row["n_trimmed"], "mean_ratio": row["mean_ratio"],
+            "weighted_mean_ratio": row["weighted_mean_ratio"],
+            **{stat: row[stat] for stat in STATS},
+            **{f"{stat}_ci": [row[f"{col}_lo"], row[f"{col}_hi"]] for stat, col in CI_COLUMNS.items()},
+            "decile_median_ratios": [number(v) for v in row["decile_medians"] or []],
+            "verdicts": json.loads(row["verdicts"])}
+
+
+def _stats_header(study: dict[str, Any] | None, run_id: str | None, note: str) -> str:
+    if study is None:
+        return "Ratio statistics: none yet" + (f" ({note})" if note else "")
+    source = study["values_source"]
+    head = f"Ratio statistics of {SOURCE_LABELS[source]}"
+    if source == "model_out_of_fold":
+        head += f", run {run_id}"
+    return head + (f" ({note})" if note else "")
+
+
+def _stats_short(study: dict[str, Any] | None, run_id: str | None) -> str:
+    if study is None:
+        return "no ratio study yet"
+    if study["values_source"] == "model_out_of_fold":
+        return f"out-of-fold model values of run {run_id}"
+    return "prior roll values" + ("" if run_id is None else f" (run {run_id} has no out-of-fold study)")
+
+
+def _stat_cells(group: dict[str, Any] | None) -> dict[str, Any]:
+    cells: dict[str, Any] = {}
+    for stat in STATS:
+        verdict = group["verdicts"].get(stat, {}) if group else {}
+        cells[stat] = {"value": group[stat] if group else None, "status": verdict.get("status"),
+                       "limit": verdict.get("limit"),
+                       "ci": group.get(f"{stat}_ci") if group else None}
+    return cells
+
+
+def segment_states(store: Store) -> dict[str, BatchState | None]:
+    """Each segment's state in one word (reval.roll.batch_states, the one rule)."""
+    return {entry["segment"]: state_of(entry) for entry in batch_states.segment_states(store)}
+
+
+def overview(folder: Path) -> dict[str, Any]:
+    """One row per segment with counts, model kind, ratio statistics and verdicts, value change and state."""
+    with open_project(folder) as (config, store):
+        states = segment_states(store)
+        run_id = latest_run(store)
+        study, note = _study(store, run_id)
+        by_group = {g["group"]: g for g in (study["groups"] if study else [])}
+        rows = []
+        for r in store.records("app_segments", [run_id]):
+            group = by_group.get(r["segment"])
+            stats = _stat_cells(group)
+            rows.append({**r, **stats, "n": group["n"] if group else 0,
+                         "failing": any(c["status"] == "fail" for c in stats.values()),
+                         "state": states.get(r["segment"])})
+        return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
+                "folder": str(config.folder), "run_id": run_id,
+                "stats_source": study["values_source"] if study else None,
+                "stats_header": _stats_header(study, run_id, note), "segments": rows,
+                "market_areas": sorted({r["market_area"] for r in rows}),
+                "states": sorted({r["state"] for r in rows if r["state"]})}
+
+
+def filter_segments(rows: list[dict[str, Any]], *, failing_only: bool = False, market_area: str | None = None,
+                    state: str | None = None, text: str = "") -> list[dict[str, Any]]:
+    """The overview rows that pass every filter; `text` matches anywhere in the segment name, any case."""
+    needle = text.strip().casefold()
+    return [r for r in rows
+            if (not failing_only or r["failing"])
+            and (market_area is None or r["market_area"] == market_area)
+            and (state is None or (r["state"] or "none") == state)
+            and needle in r["segment"].casefold()]
+
+
+def _sort_value(row: dict[str, Any], key: str) -> Any:
+    if key in STATS:
+        return row[key]["value"]
+    if key == "model":
+        return None if row["kind"] is None else (row["kind"], row["borrowed_share"] or 0.0)
+    return row[key]
+
+
+def sort_segments(rows: list[dict[str, Any]], key: str, descending: bool = False) -> list[dict[str, Any]]:
+    """Rows ordered by one column; missing values always last, ties by segment name."""
+    if key not in SORT_KEYS:
+        raise ValueError(f"cannot sort by {key!r}")
+    present = [r for r in rows if _sort_value(r, key) is not None]
+    missing = [r for r in rows if _sort_value(r, key) is None]
+    present.sort(key=lambda r: r["segment"])
+    present.sort(key=lambda r: _sort_value(r, key), reverse=descending)
+    return present + sorted(missing, key=lambda r: r["segment"])
+
+
+# ---- one segment ---------------------------------------------------------------------------------------
+
+def _histogram(rows: list[dict[str, Any]], feature: str, n_bins: int) -> list[int]:
+    counts = [0] * n_bins
+    for r in rows:
+        if r["feature"] == feature and 0 <= r["bin"] < n_bins:
+            counts[r["bin"]] = r["n"]
+    return counts
+
+
+def _curves(store: Store, run_id: str, segment: str, n_bins: int) -> list[dict[str, Any]]:
+    rows = store.records("app_curves", [run_id, segment])
+    bins = store.records("app_feature_bins", [run_id, segment, n_bins])
+    curves: dict[str, dict[str, Any]] = {}
+    for r in rows:
+        c = curves.setdefault(r["feature"], {"feature": r["feature"], "kind": r["kind"],
+                                             "levels": list(r["levels"] or []), "x": [], "effect": [],
+                                             "lo": [], "hi": [], "parent_effect": []})
+        for key in ("x", "effect", "lo", "hi", "parent_effect"):
+            c[key].append(r[key])
+    for c in curves.values():
+        if c["kind"] == "binary":
+            c["levels"] = ["no", "yes"]
+        continuous = c["kind"] == "continuous"
+        c["data_bins"] = _histogram(bins, c["feature"], n_bins if continuous else len(c["levels"]))
+    return list(curves.values())
+
+
+def _interactions(store: Store, run_id: str, segment: str) -> list[dict[str, Any]]:
+    """Each interaction with a plain reading of its coefficient (products of standardised features)."""
+    out = []
+    for r in store.records("app_interactions", [run_id, segment]):
+        a, _, b = r["term"].partition(":")
+        pct = 100.0 * math.expm1(r["coef"])
+        out.append({**r, "reading": f"{a} and {b} both one standard deviation above their means: {pct:+.1f}% "
+                                    "in value beyond their separate effects"})
+    return out
+
+
+def _equity(store: Store, run_id: str | None, study: dict[str, Any] | None, segment: str,
+            max_points: int) -> dict[str, Any]:
+    group = next((g for g in (study["groups"] if study else []) if g["group"] == segment), None)
+    model = study is not None and study["values_source"] == "model_out_of_fold"
+    points = store.records("app_ratio_points", [run_id if model else None, segment, max_points])
+    return {"stats": _stat_cells(group), "n": group["n"] if group else 0, "model_values": model,
+            "n_trimmed": group["n_trimmed"] if group else 0,
+            "confidence": study["confidence"] if study else None,
+            "mean_ratio": group["mean_ratio"] if group else None,
+            "weighted_mean_ratio": group["weighted_mean_ratio"] if group else None,
+            "decile_median_ratios": group["decile_median_ratios"] if group else [],
+            "price": [p["price"] for p in points], "ratio": [p["ratio"] for p in points]}
+
+
+def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> dict[str, Any]:
+    rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
+    medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
+    sold, unsold = [0] * n_bins, [0] * n_bins
+    for r in rows:
+        (sold if r["sold"] else unsold)[r["bin"]] += r["n"]
+    lo = rows[0]["lo"] if rows else None
+    hi = rows[0]["hi"] if rows else None
+    return {"sold": sold, "unsold": unsold, "lo": lo, "hi": hi,
+            "median_sold": medians.get(True, {}).get("median_change"),
+            "median_unsold": medians.get(False, {}).get("median_change"),
+            "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0)}
+
+
+def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int = 2000) -> dict[str, Any]:
+    """Everything the drill-in shows for one segment; model parts are empty lists when there is no run."""
+    with open_project(folder) as (config, store):
+        info = [r for r in store.records("app_segments", [None]) if r["segment"] == segment]
+        if not info:
+            raise UserError(f"No segment named {segment!r}.")
+        run_id = latest_run(store)
+        study, note = _study(store, run_id)
+        model = store.records("app_segment_model", [run_id, segment]) if run_id else []
+        return {
+            "segment": segment, "market_area": info[0]["market_area"], "parcels": info[0]["parcels"],
+            "sales": info[0]["sales"], "run_id": run_id,
+            "stats_header": _stats_header(study, run_id, note), "stats_short": _stats_short(study, run_id),
+            "model": model[0] if model else None,
+            "curves": _curves(store, run_id, segment, n_bins) if run_id else [],
+            "interactions": _interactions(store, run_id, segment) if run_id else [],
+            "marginal_effects": store.records("app_marginal_effects", [run_id, segment]) if run_id else [],
+            "equity": _equity(store, run_id, study, segment, max_points),
+            "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
+            "reference_accuracy": store.records("app_reference_accuracy", [run_id, segment]) if run_id else [],
+            "oof_accuracy": store.records("app_oof_accuracy", [run_id, segment])[0] if run_id else None,
+            **_batches(store, config, segment),
+        }
+
+
+def _batches(store: Store, config: Config, segment: str) -> dict[str, Any]:
+    """The segment's batch state and the core's review of its open (else certified) batch: the
+    sales-chasing check."""
+    state = segment_states(store).get(segment)
+    if state is None:
+        return {"state": None, "review": None}
+    from reval.roll.review import review  # loads pandas and scipy: only the drill-in needs them, the overview starts faster
+
+    report = review(store, config, segment, limit=10)["segments"]
+    return {"state": state, "review": report[0] if report else None}
+
+
+def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> dict[str, Any]:
+    """One page of a segment's sales (largest ratio deviations first) with the values under study."""
+    with open_project(folder) as (_, store):
+        run_id = latest_run(store)
+        study, _ = _study(store, run_id)
+        model = study is not None and study["values_source"] == "model_out_of_fold"
+        sid = study["study_id"] if study else ""
+        total = int(store.rows("app_segment_sales_count", [segment])[0][0])
+        pages = max(1, math.ceil(total / page_size))
+        page = min(max(page, 0), pages - 1)
+        rows = store.records("app_segment_sales",
+                        [run_id if model else None, segment, sid, page_size, page * page_size])
+        for r in rows:
+            r["sale_date"] = r["sale_date"].isoformat()
+        return {"segment": segment, "page": page, "pages": pages, "total": total, "rows": rows,
+                "values": "out-of-fold model values" if model else "prior roll values"}
+
+
+# ---- one parcel ----------------------------------------------------------------------------------------
+
+def _parcel_flags(config: Config, parcel: dict[str, Any], features: list[dict[str, Any]],
+                  estimate: dict[str, Any] | None, sales: list[dict[str, Any]], trimmed: list[str],
+                  roll: list[dict[str, Any]]) -> list[str]:
+    flags = []
+    missing = [f["name"] for f in features if f["value"] is None]
+    if missing:
+        flags.append("missing feature values (the model used typical values): " + ", ".join(missing))
+    if not parcel["prior_value"]:
+        flags.append("no prior value on the roll")
+    if estimate and parcel["prior_value"]:
+        change = estimate["market_value"] / parcel["prior_value"] - 1
+        limit = config.assessment.review_change_threshold
+        if abs(change) > limit:
+            flags.append(f"value change {change:+.1%} is beyond the review threshold of ±{limit:.0%}")
+    if estimate and estimate["kind"] == "parent_only":
+        flags.append(f"valued with its parent's model: {estimate['reason'] or 'too few sales'}")
+    flags += [f"sale {s['sale_id']} excluded: {s['reason']}" for s in sales if s["qualified"] is False]
+    flags += [f"sale {t} trimmed as a ratio outlier" for t in trimmed]
+    flags += [f"roll (batch {r['batch_id']}, {r['state']}): {flag}" for r in roll for flag in r["flags"]]
+    return flags
+
+
+def parcel_detail(folder: Path, parcel_id: str) -> dict[str, Any]:
+    """One parcel: its features, value and contributions (currency parts summing to the value), prior
+    value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
+    parcel_id = parcel_id.strip()
+    with open_project(folder) as (config, store):
+        found = store.records("app_parcel", [parcel_id])
+        if not found:
+            near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
+            hint = f"; did you mean {', '.join(near)}?" if near else ""
+            raise UserError(f"No parcel with id {parcel_id!r}{hint}")
+        parcel = found[0]
+        run_id = latest_run(store)
+        features = store.records("app_parcel_features", [parcel_id])
+        estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
+        parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
+        sales = store.records("app_parcel_sales", [run_id, parcel_id])
+        for s in sales:
+            s["sale_date"] = s["sale_date"].isoformat()
+        trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
+        roll = store.records("app_parcel_roll", [parcel_id])
+        for r in roll:
+            r["flags"] = list(r["flags"] or [])
+        split = None
+        if parts:
+            logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
+            base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
+            split = value_split(base, logs)
+            split["base_log"] = base
+        prior = parcel["prior_value"]
+        value = estimate["market_value"] if estimate else None
+        return {**parcel, "run_id": run_id, "features": features, "estimate": estimate, "split": split, "roll": roll,
+                "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
+                "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}

@@ -1,0 +1,20 @@
+"""Every set of states and kinds reval stores or reports, declared once (no heavy imports: the app uses it)."""
+from __future__ import annotations
+
+from typing import Literal, get_args
+
+BatchState = Literal["staged", "held", "approved", "exported", "replaced", "superseded"]
+OPEN_STATES: tuple[BatchState, ...] = ("staged", "held")            # awaiting a decision
+CERTIFIED_STATES: tuple[BatchState, ...] = ("approved", "exported")  # in force on the roll
+
+ModelKind = Literal["own", "pooled", "parent_only"]                  # how a segment's model was made
+ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold"]
+VerdictStatus = Literal["pass", "fail", "too_few_sales"]
+Grouping = Literal["segment", "market_area", "class", "all"]
+FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
+InteractionRule = Literal["lasso", "significance", "none"]
+
+GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
+FEATURE_KINDS: tuple[FeatureKind, ...] = get_args(FeatureKind)
+INTERACTION_RULES: tuple[InteractionRule, ...] = get_args(InteractionRule)
+VALUES_SOURCES: tuple[ValuesSource, ...] = get_args(ValuesSource)

@@ -1,0 +1,1 @@
+"""Ratio studies: the IAAO statistics, the standards and stored studies."""
