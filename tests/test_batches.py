@@ -16,8 +16,7 @@ import pytest
 
 from reval.service.actions import approve, batch_states, event_log, export_roll, hold, revoke, stage_values
 from reval.errors import UserError
-from run_fixture import insert_run, roll_project
-from db_content import query_frame
+from helpers import insert_run, query_frame, roll_project
 
 FAILING, PASSING = "CORV", "FENL"
 

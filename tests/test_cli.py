@@ -1,12 +1,14 @@
 """The `reval` command as a user runs it: real subprocesses, exit codes, messages, JSON."""
 from __future__ import annotations
 
+import argparse
 import json
 import subprocess
 import sys
 from pathlib import Path
 
-from conftest import SMALL_PARCELS
+from helpers import SMALL_PARCELS
+from reval.cli.main import build_parser
 
 
 def reval(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
@@ -45,10 +47,13 @@ def test_usage_error_exits_2() -> None:
     assert reval("frobnicate").returncode == 2
 
 
-def test_every_subcommand_has_help() -> None:
-    for command in ("init", "import", "demo", "tui"):
+def test_every_subcommand_of_the_real_parser_has_help() -> None:
+    parser = build_parser()
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction)).choices
+    assert {"import", "sales", "study", "fit", "value", "approve", "export"} <= set(commands)
+    for command in commands:
         done = reval(command, "--help")
-        assert done.returncode == 0 and "usage: reval" in done.stdout
+        assert done.returncode == 0 and f"usage: reval {command}" in done.stdout, (command, done.stderr)
 
 
 def test_init_then_missing_files_is_a_user_error(tmp_path: Path) -> None:

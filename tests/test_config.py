@@ -6,7 +6,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import SMALL_CONFIG, write_project
+from helpers import SMALL_CONFIG, write_project
 from reval.service.actions import init_project
 from reval.data.config import load_config
 from reval.errors import ConfigError, UserError

@@ -17,14 +17,12 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from conftest import SMALL_PARCELS, SMALL_SALES, copy_project, write_project
-from db_content import query_frame
+from helpers import SMALL_PARCELS, SMALL_SALES, copy_project, insert_prior_run, insert_run, query_frame, roll_project, write_project
 from reval.service.actions import approve, event_log, export_roll, revoke, stage_values
 from reval.service.actions import import_data, prepare_sales
 from reval.data.config import load_config
 from reval.errors import UserError
 from reval.data.store import open_store
-from run_fixture import insert_prior_run, insert_run, roll_project
 
 ROOT = Path(__file__).resolve().parent.parent
 VALUE_COLUMNS = ["prior_value", "market_value", "land_value", "improvement_value", "assessed_value"]

@@ -8,7 +8,7 @@ import duckdb
 import numpy as np
 import pytest
 
-from conftest import copy_project
+from helpers import copy_project
 from reval.service.actions import compare, study
 from reval.data.config import load_config
 from reval.model.run import fit_run
@@ -63,24 +63,24 @@ def test_thin_neighbourhoods_borrow_more_than_thick_ones(demo_project: Path) -> 
     assert min(thin) > np.median(thick)
 
 
-def test_model_study_is_out_of_fold_by_default_and_labelled(demo_project: Path) -> None:
-    oof = study(demo_project, "model", "segment")
+def test_model_study_is_out_of_fold_by_default_and_labelled(demo_writable: Path) -> None:
+    oof = study(demo_writable, "model", "segment")
     assert oof["values_source"] == "model_out_of_fold" and "warning" not in oof
     assert all(g["values_source"] == "model_out_of_fold" for g in oof["groups"])
-    inside = study(demo_project, "model", "all", in_sample=True)
+    inside = study(demo_writable, "model", "all", in_sample=True)
     assert inside["values_source"] == "model_in_sample" and "Only out-of-fold" in inside["warning"]
-    overall = study(demo_project, "model", "all")["groups"][0]
+    overall = study(demo_writable, "model", "all")["groups"][0]
     # Honest values beat the prior roll on the demo, and meet the IAAO residential limits overall
     # (COD <= 15, median ratio 0.90-1.10: IAAO Standard on Ratio Studies, limits from memory).
-    prior = study(demo_project, "prior", "all")["groups"][0]
+    prior = study(demo_writable, "prior", "all")["groups"][0]
     assert overall["cod"] < prior["cod"] and overall["cod"] <= 15
     assert 0.90 <= overall["median_ratio"] <= 1.10
     # In-sample statistics flatter the model: the fitted values saw these sales.
     assert inside["groups"][0]["cod"] < overall["cod"]
 
 
-def test_compare_reports_every_reference_model_on_the_same_sales(demo_project: Path) -> None:
-    report = compare(demo_project)
+def test_compare_reports_every_reference_model_on_the_same_sales(demo_writable: Path) -> None:
+    report = compare(demo_writable)
     assert set(report["models"]) == {"additive_with_interactions", "additive_no_interactions", "hedonic_ols",
                                      "hedonic_ols_quadratic", "gradient_boosting"}
     overall = [r for r in report["rows"] if r["segment"] == "(all)"]

@@ -8,8 +8,7 @@ from pathlib import Path
 import duckdb
 import pytest
 
-from conftest import SMALL_CONFIG, SMALL_PARCELS, SMALL_SALES, write_project
-from db_content import database_content
+from helpers import SMALL_CONFIG, SMALL_PARCELS, SMALL_SALES, database_content, write_project
 from reval.data.config import load_config
 from reval.errors import ConfigError, DataErrors
 from reval.data.importer import ERROR_REPORT, run_import

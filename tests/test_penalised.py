@@ -1,13 +1,11 @@
 """Penalised least squares: against pygam, statsmodels OLS, the explicit hat matrix, and per-column refits."""
 
-import time
 from types import SimpleNamespace
 
 import numpy as np
 import pytest
 import statsmodels.api as sm
 from pygam import LinearGAM, s
-from threadpoolctl import threadpool_limits
 
 from reval.model.design import Block, DesignSpec
 from reval.model.penalised import PenalisedLS, _Problem, stack
@@ -135,11 +133,10 @@ def test_infinite_penalty_leaves_a_straight_line() -> None:
     np.testing.assert_allclose(np.diff(curve, 2), 0.0, atol=1e-5)
 
 
-def test_residualise_matches_per_candidate_refits_and_is_faster() -> None:
+def test_residualise_matches_per_candidate_refits() -> None:
     # MODEL-NOTES point 6: Z - HZ with the one factorisation equals refitting the smoother to each
-    # column (H does not depend on the response); measured there to 4e-13 and ~80x faster.
-    # Timed on one BLAS thread: on a shared 2-core machine a second OpenBLAS thread that is descheduled
-    # makes every small product wait, which would time the machine, not the algorithm.
+    # column (H does not depend on the response); measured there to 4e-13 (the speed-up is measured by
+    # bench/model_speed.py).
     rng = np.random.default_rng(8)
     n = 1500
     X = np.column_stack([rng.uniform(0, 1, n), rng.uniform(0, 1, n), rng.integers(0, 4, n)])
@@ -149,20 +146,11 @@ def test_residualise_matches_per_candidate_refits_and_is_faster() -> None:
     y = np.sin(4 * X[:, 0]) + X[:, 1] ** 2 + 0.1 * X[:, 2] + rng.normal(0, 0.2, n)
     model = PenalisedLS().fit(blocks, y)
     Z = rng.normal(size=(n, 60)) + X[:, :1]
-    with threadpool_limits(limits=1):
-        t_shared = float("inf")
-        for _ in range(3):  # best of three
-            start = time.perf_counter()
-            shared = model.residualise(Z)
-            t_shared = min(t_shared, time.perf_counter() - start)
-        start = time.perf_counter()
-        refits = np.column_stack(
-            [Z[:, j] - PenalisedLS(lambdas=model.lambdas_).fit(blocks, Z[:, j]).predict(blocks)
-             for j in range(Z.shape[1])]
-        )
-        t_refit = time.perf_counter() - start
+    shared = model.residualise(Z)
+    refits = np.column_stack(
+        [Z[:, j] - PenalisedLS(lambdas=model.lambdas_).fit(blocks, Z[:, j]).predict(blocks) for j in range(Z.shape[1])]
+    )
     np.testing.assert_allclose(shared, refits, atol=1e-10)
-    assert t_refit > 5 * t_shared
 
 
 def test_offset_is_subtracted_before_fitting() -> None:

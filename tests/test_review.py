@@ -11,7 +11,7 @@ from scipy.stats import norm
 
 from reval.service.actions import review, stage_values
 from reval.roll.review import sales_chasing
-from run_fixture import roll_project
+from helpers import roll_project
 
 CHASED = "QUOR"
 

@@ -8,7 +8,7 @@ import duckdb
 import numpy as np
 import pytest
 
-from conftest import copy_project
+from helpers import copy_project
 from reval.service.actions import prepare_sales, study
 from reval.data.config import load_config
 from reval.stats.ratio_stats import ratio_study
@@ -51,8 +51,8 @@ def test_adjusted_prices_use_the_stored_index(demo_project: Path) -> None:
     np.testing.assert_allclose(adjusted, price * factor, rtol=1e-12)
 
 
-def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project: Path) -> None:
-    result = study(demo_project, "prior", "segment")
+def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_writable: Path) -> None:
+    result = study(demo_writable, "prior", "segment")
     assert result["values_source"] == "prior" and result["by"] == "segment"
     assert len(result["groups"]) >= 20
     for group in result["groups"]:
@@ -60,13 +60,13 @@ def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project:
         assert set(group["verdicts"]) == {"median_ratio", "cod", "prd", "prb"}
     json.dumps(result, allow_nan=False)  # strict JSON: missing values are null, never NaN
     # The stored numbers are ratio_stats' numbers on the same sales (one implementation, no drift).
-    con = _con(demo_project)
+    con = _con(demo_writable)
     name = result["groups"][0]["group"]
     value, price = map(np.array, zip(*con.execute(
         """SELECT p.prior_value, a.adjusted_price FROM adjusted_sales a JOIN parcels p USING (parcel_id)
            WHERE p.segment = ? AND p.prior_value > 0""", [name]).fetchall()))
     con.close()
-    config = load_config(demo_project)
+    config = load_config(demo_writable)
     direct = ratio_study(value, price, confidence=config.study.confidence, n_boot=config.study.bootstrap,
                          seed=config.study.seed, trim_iqr_k=config.study.trim_iqr_k)
     g = result["groups"][0]
@@ -75,18 +75,18 @@ def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_project:
     assert g["cod_ci"] == pytest.approx(list(direct.cod_ci), abs=1e-12)
 
 
-def test_stored_study_reads_back_without_recomputing(demo_project: Path) -> None:
-    computed = study(demo_project, "prior", "market_area")
-    config = load_config(demo_project)
+def test_stored_study_reads_back_without_recomputing(demo_writable: Path) -> None:
+    computed = study(demo_writable, "prior", "market_area")
+    config = load_config(demo_writable)
     with open_store(config.database, read_only=True) as store:
         assert load_study(store, "prior", "market_area") == computed
 
 
-def test_trimmed_sales_are_listed_not_dropped(demo_project: Path) -> None:
-    result = study(demo_project, "prior", "all")
+def test_trimmed_sales_are_listed_not_dropped(demo_writable: Path) -> None:
+    result = study(demo_writable, "prior", "all")
     group = result["groups"][0]
     assert group["n_trimmed"] == len(group["trimmed"])
-    con = _con(demo_project)
+    con = _con(demo_writable)
     n_all = con.execute("SELECT count(*) FROM adjusted_sales a JOIN parcels p USING (parcel_id) "
                         "WHERE p.prior_value > 0").fetchone()[0]
     con.close()
@@ -95,7 +95,7 @@ def test_trimmed_sales_are_listed_not_dropped(demo_project: Path) -> None:
 
 def test_failed_sales_step_changes_nothing(demo_project: Path, tmp_path: Path) -> None:
     folder = copy_project(demo_project, tmp_path / "copy")
-    from db_content import database_content
+    from helpers import database_content
 
     before = database_content(folder / "reval.duckdb")
     config = folder / "reval.toml"

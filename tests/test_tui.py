@@ -9,7 +9,6 @@ from __future__ import annotations
 import asyncio
 import json
 import math
-import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -17,13 +16,10 @@ from typing import Any
 
 import duckdb
 import numpy as np
-import pytest
-from db_content import query_frame
+from helpers import PINNED_RUN, ROOT, query_frame, settle, table_rows, type_text
 from textual.pilot import Pilot
-from textual.worker import WorkerFailed
 from textual.widgets import DataTable, Static
 
-from reval.roll.split import apportion, value_split
 from reval.service import actions, views
 from reval.data.config import load_config
 from reval.data.store import open_store
@@ -37,71 +33,7 @@ from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
 from tui.screens.segment import SegmentScreen
 
-ROOT = Path(__file__).resolve().parent.parent
 SIZE = (100, 32)
-DEMO_PARCELS = 2000      # the demo generator's smallest municipality: a full fit takes seconds, not minutes
-PINNED_RUN = "run-demo"
-_BUILT: dict[str, Path] = {}
-
-
-def pin_run_id(database: Path, run_id: str) -> None:
-    """Give the demo's one run a fixed id everywhere it is stored, so screens (and snapshots) do not
-    show the fit's clock."""
-    con = duckdb.connect(str(database))
-    try:
-        (old,), = con.execute("SELECT run_id FROM runs").fetchall()
-        columns = con.execute("SELECT table_name, column_name FROM information_schema.columns "
-                              "WHERE column_name IN ('run_id', 'study_id') AND table_schema = 'main'").fetchall()
-        con.begin()
-        for table, column in columns:
-            con.execute(f'UPDATE "{table}" SET "{column}" = replace("{column}", ?, ?)', [old, run_id])
-        con.commit()
-    finally:
-        con.close()
-
-
-def fitted_demo_folder(factory: pytest.TempPathFactory) -> Path:
-    """The demo municipality built with every step (import, sales, fit, values staged), once per session."""
-    if "demo" not in _BUILT:
-        folder = factory.mktemp("tui-demo")
-        actions.build_demo(folder, DEMO_PARCELS)
-        pin_run_id(folder / "reval.duckdb", PINNED_RUN)
-        _BUILT["demo"] = folder
-    return _BUILT["demo"]
-
-
-@pytest.fixture(scope="session")
-def fitted_demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return fitted_demo_folder(tmp_path_factory)
-
-
-@pytest.fixture
-def demo_copy(fitted_demo: Path, tmp_path: Path) -> Path:
-    """A private copy for a test that writes."""
-    return Path(shutil.copytree(fitted_demo, tmp_path / "demo"))
-
-
-async def settle(pilot: Pilot[Any]) -> None:
-    """Wait until every worker has finished and the messages they posted are handled."""
-    app = pilot.app
-    for _ in range(20):
-        for worker in list(app.workers):
-            try:
-                await worker.wait()
-            except WorkerFailed:
-                pass  # the app turns a worker's error into a message; the tests assert on that message
-        await pilot.pause()
-        if not any(w.is_running for w in app.workers):
-            return
-    raise AssertionError("workers kept running")
-
-
-async def type_text(pilot: Pilot[Any], text: str) -> None:
-    await pilot.press(*("space" if ch == " " else ch for ch in text))
-
-
-def table_rows(table: DataTable[Any]) -> list[list[str]]:
-    return [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
 
 
 def oof_study(folder: Path) -> dict[str, Any]:
@@ -560,38 +492,6 @@ print(",".join(m for m in {later!r} if m in sys.modules))
 
 
 # ---- the service functions behind the parcel view ---------------------------------------------------------------
-
-def test_apportion_is_hamiltons_largest_remainder_method() -> None:
-    # Hand-worked example of Hamilton's (largest-remainder) apportionment: quotas 3.6, 2.3, 4.1 of 10 seats
-    # get floors 3, 2, 4 (9 seats) and the one seat left goes to the largest remainder (0.6).
-    assert apportion(np.array([3.6, 2.3, 4.1]), 10).tolist() == [4, 2, 4]
-    # negative parts (a feature that lowers the value) the same way: floors -2, 3, 0 and the two units left
-    # go to the largest remainders 0.8 and 0.7
-    assert apportion(np.array([-1.5, 3.7, 0.8]), 3).tolist() == [-2, 4, 1]
-
-
-def test_value_split_is_exact_and_splits_in_proportion_to_log_parts() -> None:
-    # Worked example: base 100 and two equal log parts of ln(2)/2 make 200; each part gets half of 100.
-    half = math.log(2) / 2
-    split = value_split(math.log(100), {"a": half, "b": half})
-    assert split["value"] == 200 and split["base"] == 100
-    assert [p["currency"] for p in split["parts"]] == [50, 50]
-    # Log-mean Divisia split (Ang 2004, "Decomposition analysis for policymaking in energy", Energy Policy
-    # 32:1131-1139): part_i = c_i * L(V, B) with L the logarithmic mean; it leaves no residual.
-    rng = np.random.default_rng(7)
-    for _ in range(200):
-        logs = dict(zip("abcdefg", rng.normal(0, 0.3, 7)))
-        base = rng.uniform(9, 14)
-        split = value_split(base, logs)
-        parts = [p["currency"] for p in split["parts"]]
-        assert split["base"] + sum(parts) == split["value"] == round(math.exp(base + sum(logs.values())))
-        exact = np.array([p["exact"] for p in split["parts"]])
-        assert np.all(np.sign(exact) == np.sign(list(logs.values())))
-        assert math.isclose(math.exp(base) + exact.sum(), math.exp(base + sum(logs.values())), rel_tol=1e-12)
-    # parts that cancel: the value equals the base and the split stays finite
-    split = value_split(math.log(5000), {"a": 0.25, "b": -0.25})
-    assert split["value"] == 5000 and [p["currency"] for p in split["parts"]] == [1250, -1250]
-
 
 def test_braille_cells_follow_the_unicode_dot_numbering() -> None:
     # Unicode Standard, Braille Patterns block (U+2800-U+28FF): dot n sets bit n-1; dots 1-3 run down the

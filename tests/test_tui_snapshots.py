@@ -1,7 +1,7 @@
 """Screenshots of the app compared with the accepted SVGs in __snapshots__ (pytest-textual-snapshot).
 
 Deterministic by construction: fixed terminal sizes, the demo generator's fixed seed, the run id pinned
-(see test_tui.pin_run_id), no clock in the header, notifications off under the pilot. Each test first
+(see helpers.pin_run_id), no clock in the header, notifications off under the pilot. Each test first
 asserts the state it expects, so a snapshot never silently records a broken screen.
 Update after an intended change with `pytest tests/test_tui_snapshots.py --snapshot-update`, then look.
 """
@@ -11,8 +11,7 @@ from pathlib import Path
 from typing import Any
 
 import duckdb
-import pytest
-from test_tui import fitted_demo_folder, settle, type_text
+from helpers import settle, type_text
 from textual.pilot import Pilot
 from textual.widgets import DataTable
 
@@ -21,11 +20,6 @@ from tui.screens.help import HelpScreen
 from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
 from tui.screens.segment import SegmentScreen
-
-
-@pytest.fixture(scope="session")
-def fitted_demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    return fitted_demo_folder(tmp_path_factory)
 
 
 def first_parcel(folder: Path) -> str:

@@ -14,7 +14,7 @@ import pytest
 
 from reval.service.actions import stage_values
 from reval.errors import DataErrors, UserError
-from run_fixture import roll_project
+from helpers import roll_project
 
 CAPPED = '[[assessment.caps]]\nproperty_classes = ["condominium"]\nmax_increase = 0.05\n'
 

@@ -1,4 +1,8 @@
-"""A plausible model run written straight into a demo project's database, for tests of what follows a fit.
+"""Helpers shared by the tests: small projects on disk, database snapshots, fixture runs and the app's pilot.
+
+Everything here works on real files and real DuckDB databases (no mocks). Fixtures live in conftest.py.
+
+Fixture runs: A plausible model run written straight into a demo project's database, for tests of what follows a fit.
 
 Each parcel's estimate is its TRUE market value from the demo generator (data_samples.demo_town,
 true_log_value of its recorded features) times lognormal noise; a qualified sale's in-sample log value is
@@ -10,15 +14,123 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import shutil
+import textwrap
 from pathlib import Path
+from typing import Any
 
 import duckdb
 import numpy as np
 import pandas as pd
+import pytest
+from textual.pilot import Pilot
+from textual.widgets import DataTable
+from textual.worker import WorkerFailed
 
 from data_samples.demo_town import true_log_value
+from reval.service import actions
+
+ROOT = Path(__file__).resolve().parent.parent
 
 
+# ---- small projects ---------------------------------------------------------------------------------------------
+
+SMALL_CONFIG = """\
+[jurisdiction]
+name = "Test township"
+valuation_date = 2025-01-01
+sale_window_months = 24
+
+[files]
+parcels = "parcels.csv"
+sales = "sales.csv"
+
+[columns]
+parcel_id = "pid"
+segment = "nbhd"
+market_area = "area"
+property_class = "class"
+prior_value = "prior"
+sale_id = "sale_id"
+sale_date = "date"
+sale_price = "price"
+sale_validity = "code"
+
+[[features]]
+name = "living_area"
+column = "sqft"
+type = "continuous"
+log = true
+range = [200, 8000]
+
+[[features]]
+name = "quality"
+type = "ordinal"
+levels = ["low", "average", "good"]
+
+[[features]]
+name = "garage"
+type = "binary"
+"""
+
+SMALL_PARCELS = """\
+pid,nbhd,area,class,prior,sqft,quality,garage
+00101,north,A,single_family,150000,1200,average,1
+00102,north,A,single_family,210000,1800,good,0
+00103,south,A,single_family,99000,900,low,yes
+00104,east,B,condominium,120000,750,average,no
+00105,east,B,condominium,,800,good,1
+"""
+
+SMALL_SALES = """\
+sale_id,pid,date,price,code
+S1,00101,2024-03-01,180000,valid
+S2,00102,2024-06-15,260000,valid
+S3,00104,2023-11-30,140000,family
+S4,00105,2024-09-01,155000,valid
+S4,00103,2024-09-01,155000,valid
+"""
+
+
+def write_project(folder: Path, config: str = SMALL_CONFIG, parcels: str = SMALL_PARCELS,
+                  sales: str = SMALL_SALES) -> Path:
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "reval.toml").write_text(textwrap.dedent(config), encoding="utf-8")
+    (folder / "parcels.csv").write_text(parcels, encoding="utf-8")
+    (folder / "sales.csv").write_text(sales, encoding="utf-8")
+    return folder
+
+
+def copy_project(source: Path, target: Path) -> Path:
+    shutil.copytree(source, target)
+    return target
+
+
+# ---- reading a database ------------------------------------------------------------------------------------------
+
+def database_content(path: Path) -> dict[str, list[tuple]]:
+    """All rows of all tables, sorted, so two snapshots compare equal iff the content is equal."""
+    if not path.exists():
+        return {}
+    con = duckdb.connect(str(path), read_only=True)
+    try:
+        tables = [t for (t,) in con.execute("SELECT table_name FROM information_schema.tables "
+                                              "WHERE table_schema = 'main' ORDER BY table_name").fetchall()]
+        return {t: sorted(con.execute(f'SELECT * FROM "{t}"').fetchall(), key=repr) for t in tables}
+    finally:
+        con.close()
+
+
+def query_frame(folder: Path, sql: str, params: list | None = None):
+    """One read-only query against a project's database, as a pandas DataFrame."""
+    con = duckdb.connect(str(folder / "reval.duckdb"), read_only=True)
+    try:
+        return con.execute(sql, params or []).df()
+    finally:
+        con.close()
+
+
+# ---- fixture runs ---------------------------------------------------------------------------------------------------
 
 def _created(order: int) -> dt.datetime:
     """A creation time after any run already in the project (e.g. one the demo build fitted), `order` minutes on,
@@ -100,9 +212,63 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
 def roll_project(demo_project: Path, target: Path, assessment: str | None = "", **run: object) -> Path:
     """A copy of the demo project with one fixture run 'run-a' (seed 1). The [assessment] section uses the
     demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults)."""
-    import shutil
-
     shutil.copytree(demo_project, target)
     set_assessment(target, "" if assessment is None else f'land_schedule = "land_schedule.csv"\n{assessment}')
     insert_run(target, "run-a", 1, **run)  # type: ignore[arg-type]
     return target
+
+
+# ---- the app ----------------------------------------------------------------------------------------------------------
+
+APP_DEMO_PARCELS = 2000   # the demo generator's smallest municipality: a full fit takes seconds, not minutes
+PINNED_RUN = "run-demo"
+_BUILT: dict[str, Path] = {}
+
+
+def pin_run_id(database: Path, run_id: str) -> None:
+    """Give the demo's one run a fixed id everywhere it is stored, so screens (and snapshots) do not
+    show the fit's clock."""
+    con = duckdb.connect(str(database))
+    try:
+        (old,), = con.execute("SELECT run_id FROM runs").fetchall()
+        columns = con.execute("SELECT table_name, column_name FROM information_schema.columns "
+                              "WHERE column_name IN ('run_id', 'study_id') AND table_schema = 'main'").fetchall()
+        con.begin()
+        for table, column in columns:
+            con.execute(f'UPDATE "{table}" SET "{column}" = replace("{column}", ?, ?)', [old, run_id])
+        con.commit()
+    finally:
+        con.close()
+
+
+def fitted_demo_folder(factory: pytest.TempPathFactory) -> Path:
+    """The demo municipality built with every step (import, sales, fit, values staged), once per session."""
+    if "demo" not in _BUILT:
+        folder = factory.mktemp("tui-demo")
+        actions.build_demo(folder, APP_DEMO_PARCELS)
+        pin_run_id(folder / "reval.duckdb", PINNED_RUN)
+        _BUILT["demo"] = folder
+    return _BUILT["demo"]
+
+
+async def settle(pilot: Pilot[Any]) -> None:
+    """Wait until every worker has finished and the messages they posted are handled."""
+    app = pilot.app
+    for _ in range(20):
+        for worker in list(app.workers):
+            try:
+                await worker.wait()
+            except WorkerFailed:
+                pass  # the app turns a worker's error into a message; the tests assert on that message
+        await pilot.pause()
+        if not any(w.is_running for w in app.workers):
+            return
+    raise AssertionError("workers kept running")
+
+
+async def type_text(pilot: Pilot[Any], text: str) -> None:
+    await pilot.press(*("space" if ch == " " else ch for ch in text))
+
+
+def table_rows(table: DataTable[Any]) -> list[list[str]]:
+    return [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
