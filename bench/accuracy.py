@@ -14,6 +14,7 @@ import platform
 import shutil
 import tempfile
 import time
+from collections.abc import Sequence
 from pathlib import Path
 
 import lightgbm
@@ -25,6 +26,7 @@ from data_samples.ames_data import write_ames_csv
 from reval.service.actions import DEMO_FILES, DEMO_SOURCE
 from reval.data.config import load_config
 from reval.data.dataset import qualified_sales
+from reval.model.design import Feature
 from reval.model.hierarchy import fold_ids, out_of_fold
 from reval.data.importer import run_import
 from reval.model.references import accuracy_table, compare_models, reference_factories
@@ -38,7 +40,7 @@ RESULTS = ROOT / "bench" / "results" / "accuracy.json"
 class LightGBMModel:
     """LightGBM with the segment and categorical features as categories (benchmark-only reference)."""
 
-    def __init__(self, specs, seed: int) -> None:
+    def __init__(self, specs: Sequence[Feature], seed: int) -> None:
         self.specs, self.seed = specs, seed
 
     def _frame(self, X: np.ndarray, segment: np.ndarray) -> pd.DataFrame:

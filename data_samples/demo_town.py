@@ -517,7 +517,7 @@ def _swap_leading_digits(price: np.ndarray) -> np.ndarray:
 
 def _plant_errors(
     rng: np.random.Generator, nb: np.ndarray, f: dict[str, np.ndarray], s: dict[str, np.ndarray]
-) -> list[tuple[str, int, str, object, object]]:
+) -> list[tuple[str, int, str, int, int]]:
     """Apply eight plausible keying errors in place.
 
     Returns (kind, sale row, column, recorded value, correct value) for each.
@@ -545,7 +545,7 @@ def _plant_errors(
     eligible = (s["validity"] == 0) & ~s["multi"] & (s["date"] >= WINDOW_START) & _NB_BUSY[nb[p]]
     order = rng.permutation(p.size)
     used = np.zeros(p.size, dtype=bool)
-    planted = []
+    planted: list[tuple[str, int, str, int, int]] = []
     for kind, column, mask, keyed in plans:
         candidates = order[(eligible & mask & ~used)[order]]
         if candidates.size == 0:
@@ -555,7 +555,7 @@ def _plant_errors(
         target, at = (s["price"], row) if column == "sale_price" else (f[column], p[row])
         correct = target[at]
         target[at] = keyed(correct)
-        planted.append((kind, row, column, target[at], correct))
+        planted.append((kind, int(row), column, int(target[at]), int(correct)))
     return planted
 
 

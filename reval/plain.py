@@ -11,6 +11,9 @@ if TYPE_CHECKING:  # pandas is imported by the callers that have frames; the app
     import pandas as pd
 
 
+Record = dict[str, Any]   # one row of a named query, as Store.records returns it
+
+
 def number(x: Any) -> float | None:
     """A float, or None for a missing value (None, NaN, NA, a masked entry)."""
     if x is None or getattr(x, "mask", False):

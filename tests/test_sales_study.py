@@ -13,7 +13,7 @@ from reval.service.actions import prepare_sales, study
 from reval.data.config import load_config
 from reval.stats.ratio_stats import ratio_study
 from reval.data.store import open_store
-from reval.stats.study import load_study
+from reval.stats.stored import load_study
 
 REQUIRED_KEYS = {"group", "n", "median_ratio", "median_ratio_ci", "mean_ratio", "weighted_mean_ratio", "cod",
                  "cod_ci", "prd", "prd_ci", "prb", "prb_ci", "verdicts", "values_source"}

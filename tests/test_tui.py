@@ -23,7 +23,8 @@ from textual.widgets import DataTable, Static
 from reval.service import actions, views
 from reval.data.config import load_config
 from reval.data.store import open_store
-from reval.stats.study import SOURCE_LABELS, load_study
+from reval.stats.sources import SOURCE_LABELS
+from reval.stats.stored import load_study
 from tui import keys
 from tui.app import RevalApp
 from tui.jobs import JobProgressed
@@ -452,8 +453,9 @@ def test_overview_reads_the_stored_study_and_batch_states_as_the_core_does(demo_
         row = rows[g["group"]]
         assert row["n"] == g["n"]
         for stat in views.STATS:
-            assert row[stat]["value"] == g[stat] and row[stat]["ci"] == g[f"{stat}_ci"]
-            assert row[stat]["status"] == g["verdicts"].get(stat, {}).get("status")
+            cell = row["stats"][stat]
+            assert cell["value"] == g[stat] and cell["ci"] == g[f"{stat}_ci"]
+            assert cell["status"] == g["verdicts"].get(stat, {}).get("status")
     assert data["stats_header"] == f"Ratio statistics of {SOURCE_LABELS['model_out_of_fold']}, run {PINNED_RUN}"
     # the core's batch states (reval.batches.segment_states): the open batch's, else the certified one's
     for segment, entry in states(demo_copy).items():

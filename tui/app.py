@@ -14,6 +14,7 @@ from textual.screen import Screen
 from textual.worker import Worker, WorkerState, get_current_worker
 
 from reval.service import UserError, actions, views
+from reval.service.types import Overview
 
 from . import keys
 from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, Status
@@ -64,7 +65,7 @@ class RevalApp(App[None]):
         if not get_current_worker().is_cancelled:
             screen.post_message(Loaded(tag, data))
 
-    def overview_data(self) -> dict[str, Any]:
+    def overview_data(self) -> Overview:
         return views.overview(self.folder)
 
     # ---- long jobs and quick actions -------------------------------------------------------------------

@@ -1,8 +1,8 @@
 """How numbers and verdicts read on screen: never colour alone, always a symbol or word too."""
 from __future__ import annotations
 
-from typing import Any
 
+from reval.service.types import OverviewRow, StatCell
 from reval.service.wording import CAUTION, money, percent, signed_money
 
 __all__ = ["CAUTION", "money", "percent", "signed_money"]
@@ -15,7 +15,7 @@ VERDICT_STYLES = {"pass": "$success", "fail": "$error", "too_few_sales": "$warni
 LEGEND = "✓ meets the standard · ✗ FAIL: does not · ~ too few sales to judge"
 
 
-def stat_cell(cell: dict[str, Any], stat: str, short: bool = False) -> str:
+def stat_cell(cell: StatCell, stat: str, short: bool = False) -> str:
     """'0.982 ✓', '1.046 ✗ FAIL' (short: '1.046 ✗') or '–' when there is no value."""
     value = cell.get("value")
     if value is None:
@@ -24,14 +24,14 @@ def stat_cell(cell: dict[str, Any], stat: str, short: bool = False) -> str:
     return f"{format(value, STAT_FORMATS[stat])} {mark}".rstrip()
 
 
-def ci_text(cell: dict[str, Any], stat: str) -> str:
+def ci_text(cell: StatCell, stat: str) -> str:
     ci = cell.get("ci") or [None, None]
     if ci[0] is None or ci[1] is None:
         return "–"
     return f"{format(ci[0], STAT_FORMATS[stat])} … {format(ci[1], STAT_FORMATS[stat])}"
 
 
-def model_cell(row: dict[str, Any]) -> str:
+def model_cell(row: OverviewRow) -> str:
     """How the segment's model was made: own, pooled (with the share borrowed from its parent), or parent."""
     kind = row.get("kind")
     if kind is None:
@@ -56,7 +56,7 @@ def number(value: float | None, fmt: str = ".3g") -> str:
     return "–" if value is None else format(value, fmt)
 
 
-def gate_detail(stats: dict[str, dict[str, Any]], model_values: bool) -> str:
+def gate_detail(stats: dict[str, StatCell], model_values: bool) -> str:
     """What the approval gate will say, as far as the screen knows it (the core decides)."""
     if not model_values:
         return ("No out-of-fold statistics are shown for this segment yet; the core checks those of the "

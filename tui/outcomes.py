@@ -5,6 +5,8 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
+from reval.service.types import Decision, ExportResult, FitSummary, StageResult
+
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
 DECISIONS: dict[str, tuple[str, str, bool]] = {
@@ -15,7 +17,7 @@ DECISIONS: dict[str, tuple[str, str, bool]] = {
 }
 
 
-def describe_decision(result: dict[str, Any]) -> str:
+def describe_decision(result: Decision) -> str:
     text = f"{result['segment']}: batch {result['batch_id']} (run {result['run_id']}) is now {result['state']}"
     if result.get("override"):
         text += f", approved over failing statistics ({'; '.join(result['failed'])}); note stored"
@@ -24,19 +26,19 @@ def describe_decision(result: dict[str, Any]) -> str:
     return text + "."
 
 
-def describe_export(result: dict[str, Any]) -> str:
+def describe_export(result: ExportResult) -> str:
     text = f"Exported {result['rows']:,} parcels to {result['path']}; manifest {result['manifest']}"
     if result["not_approved"]:
         text += f"; partial: left out (not approved) {', '.join(result['not_approved'])}"
     return text + "."
 
 
-def describe_fit(result: dict[str, Any]) -> str:
+def describe_fit(result: FitSummary) -> str:
     seconds = sum(result["timings"].values())
     return (f"Fit done: run {result['run_id']}, {result['segments']} segments, {result['sales']:,} sales, "
             f"{result['parcels']:,} parcels valued in {seconds:.0f} s. Press v to stage values for review.")
 
 
-def describe_values(result: dict[str, Any]) -> str:
+def describe_values(result: StageResult) -> str:
     return (f"Values of run {result['run_id']} staged: {len(result['staged'])} batch(es); "
             f"{len(result['unchanged'])} segment(s) already held this run's batch.")

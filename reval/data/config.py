@@ -234,6 +234,8 @@ def load_config(path: Path | str) -> Config:
 
     f = r.section(data, "files", {"parcels", "sales", "date_format"}, required=True)
     parcels_file = _input_file(r, path, f, "parcels", required=True)
+    if parcels_file is None:  # required: _input_file raised already
+        raise r.fail("files.parcels", "missing")
     sales_file = _input_file(r, path, f, "sales", required=False)
 
     columns = _columns(r, data)
@@ -312,7 +314,7 @@ def _features(r: _Reader, data: Mapping[str, Any]) -> tuple[FeatureSpec, ...]:
             raise r.fail(f"{key}.{'log' if log else 'range'}", "only continuous features take log or range")
         if log and rng and rng[0] < 0:
             raise r.fail(f"{key}.range", "a log-transformed feature cannot have negative values")
-        specs.append(FeatureSpec(name, r.get(item, key, "column", str, name), kind, log, levels, rng))  # type: ignore[arg-type]
+        specs.append(FeatureSpec(name, r.get(item, key, "column", str, name), kind, log, levels, rng))
     names = [s.name for s in specs]
     dupes = sorted({n for n in names if names.count(n) > 1})
     if dupes:

@@ -20,6 +20,7 @@ from reval.data.config import PARCEL_ROLES, SALE_ROLES, Config
 from reval.errors import ConfigError, DataErrors, DataProblem
 from reval.data.events import record_event
 from reval.data.store import Store, open_store
+from reval.results import ImportSummary
 
 ERROR_REPORT = "import_errors.csv"
 Progress = Callable[[str, int, int], None]
@@ -43,7 +44,7 @@ class ImportResult:
     market_areas: int
     files: dict[str, str]
 
-    def as_dict(self) -> dict[str, object]:
+    def as_dict(self) -> ImportSummary:
         return {"changed": self.changed, "parcels": self.parcels, "sales": self.sales,
                 "segments": self.segments, "market_areas": self.market_areas, "files": self.files}
 

@@ -144,15 +144,16 @@ def estimate_trends(
     X = np.asarray(X, dtype=float)
     segment = np.asarray(segment)
     market_area = np.asarray(market_area)
-    settings = dict(window_months=window_months, n_basis=n_basis, confidence=confidence)
-    trends = {JURISDICTION: estimate_trend(month_offset, log_price, X, features, segment, **settings)}
+    trends = {JURISDICTION: estimate_trend(month_offset, log_price, X, features, segment, window_months=window_months,
+                                           n_basis=n_basis, confidence=confidence)}
     if not by_market_area:
         return trends
     counts = pd.Series(market_area[_in_window(month_offset, window_months)]).value_counts()  # missing areas dropped
     for name in counts.index[counts.to_numpy() >= min_sales_market_area]:
         rows = market_area == name
         trends[str(name)] = estimate_trend(
-            month_offset[rows], log_price[rows], X[rows], features, segment[rows], area=str(name), **settings
+            month_offset[rows], log_price[rows], X[rows], features, segment[rows], area=str(name),
+            window_months=window_months, n_basis=n_basis, confidence=confidence,
         )
     return trends
 

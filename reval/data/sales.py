@@ -3,7 +3,7 @@ qualified sale price at the valuation date. One transaction; every excluded sale
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -14,6 +14,7 @@ from reval.errors import UserError
 from reval.data.events import record_event
 from reval.data.store import Store
 from reval.data.market_trend import adjustment_factors, estimate_trends, month_offsets
+from reval.results import SalesCounts, SegmentSales
 
 Progress = Callable[[str, int, int], None]
 
@@ -24,17 +25,17 @@ class SalesSummary:
 
     counts: pd.DataFrame   # segment, outcome, n
 
-    def as_dict(self) -> dict[str, Any]:
+    def as_dict(self) -> SalesCounts:
         by_reason = self.counts.groupby("outcome")["n"].sum()
-        segments = []
+        segments: list[SegmentSales] = []
         for segment, group in self.counts.groupby("segment", sort=True):
-            outcomes = dict(zip(group["outcome"], group["n"].astype(int)))
+            outcomes = {str(k): int(v) for k, v in zip(group["outcome"], group["n"])}
             kept = outcomes.pop("qualified", 0)
-            segments.append({"segment": segment, "qualified": kept, "excluded": sum(outcomes.values()),
+            segments.append({"segment": str(segment), "qualified": kept, "excluded": sum(outcomes.values()),
                              "excluded_by_reason": outcomes})
         return {"qualified": int(by_reason.get("qualified", 0)),
                 "excluded": int(by_reason.drop("qualified", errors="ignore").sum()),
-                "excluded_by_reason": {k: int(v) for k, v in by_reason.drop("qualified", errors="ignore").items()},
+                "excluded_by_reason": {str(k): int(v) for k, v in by_reason.drop("qualified", errors="ignore").items()},
                 "segments": segments}
 
 

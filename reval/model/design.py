@@ -32,12 +32,19 @@ Pair = tuple[str, str]
 
 
 class Feature(Protocol):
-    """What the design needs to know about a feature (duck-typed; reval.config.FeatureSpec fits)."""
+    """What the models need to know about a feature (read-only; reval.data.config.FeatureSpec fits)."""
 
-    name: str
-    kind: str
-    log: bool
-    levels: tuple[str, ...]
+    @property
+    def name(self) -> str: ...
+
+    @property
+    def kind(self) -> str: ...
+
+    @property
+    def log(self) -> bool: ...
+
+    @property
+    def levels(self) -> tuple[str, ...]: ...
 
 
 @dataclass(frozen=True)
@@ -128,7 +135,8 @@ class DesignSpec:
         like = scale_from.transforms if scale_from is not None else (None,) * len(features)
         learned = [_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)]
         varying = [j for j, (_, scale) in enumerate(learned) if scale is not None]
-        T = np.column_stack([learned[j][1] for j in varying]) if varying else np.zeros((X.shape[0], 0))
+        columns = [values for _, values in learned if values is not None]
+        T = np.column_stack(columns) if columns else np.zeros((X.shape[0], 0))
         raw = _raw_columns([learned[j][0] for j in varying], T, n_basis)
         constraint = {j: sum_to_zero_basis(cols.mean(axis=0)) for j, cols in zip(varying, raw)}
         transforms = tuple(replace(t, constraint=constraint[j]) if j in constraint else t

@@ -93,7 +93,7 @@ def select_interactions(
         strength = _significance_strength(ry, rz, alpha)
     order = np.lexsort((usable, -strength))  # strongest first; ties by candidate order
     chosen = [usable[i] for i in order if strength[i] > 0][:max_interactions]
-    return [tuple(pairs[i]) for i in chosen]  # type: ignore[misc]
+    return [(pairs[i][0], pairs[i][1]) for i in chosen]
 
 
 def _lasso_ols_strength(ry: np.ndarray, rz: np.ndarray, edf: float, level: float) -> np.ndarray:

@@ -53,7 +53,7 @@ class PenalisedLS:
     """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV
     (with edf inflated by `gamma`) picks them."""
 
-    def __init__(self, *, lambdas: Sequence[float] | None = None, line_search_passes: int = 1,
+    def __init__(self, *, lambdas: Sequence[float] | np.ndarray | None = None, line_search_passes: int = 1,
                  gamma: float = 1.0) -> None:
         self.lambdas = lambdas
         self.line_search_passes = line_search_passes
@@ -118,7 +118,7 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
     """Put penalties on the scale of their block's Gram matrix, so one multiplier suits all terms."""
     g = np.linalg.norm(gram[pen.cols, pen.cols])
     s = np.linalg.norm(pen.matrix)
-    return g / s if g > 0 and s > 0 else 1.0
+    return float(g / s) if g > 0 and s > 0 else 1.0
 
 
 def _embedded_root(pen: Penalty, p: int) -> np.ndarray:

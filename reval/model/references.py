@@ -21,27 +21,18 @@ from statsmodels.tools.sm_exceptions import SingularMatrixWarning
 from sklearn.ensemble import HistGradientBoostingRegressor
 from sklearn.inspection import permutation_importance as sklearn_permutation_importance
 
+from reval.model.design import PRODUCT_CAP, Feature
 from reval.stats import ratio_stats
 
 EXTRA_SALES = 10        # a segment gets its own OLS only if n_sales >= n_parameters + EXTRA_SALES
-PRODUCT_CAP = 2.5       # standardised values are capped here before squares and products
 MAX_CATEGORIES = 255    # HistGradientBoosting's limit on a categorical feature's levels (max_bins)
 ALL_SEGMENTS = "(all)"  # segment label of the overall rows of the accuracy table
-
-
-class FeatureLike(Protocol):
-    """What the reference models read from a feature spec (reval.config.FeatureSpec fits)."""
-
-    name: str
-    kind: str
-    log: bool
-    levels: tuple[str, ...]
 
 
 class ReferenceModel(Protocol):
     """Estimator shape shared by the reference models (and accepted by the cross-validation)."""
 
-    specs: Sequence[FeatureLike]
+    specs: Sequence[Feature]
 
     def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "ReferenceModel": ...
 
@@ -55,7 +46,7 @@ class ReferenceModel(Protocol):
 class Design:
     """How raw features become regression columns; learned from training rows only."""
 
-    specs: tuple[FeatureLike, ...]
+    specs: tuple[Feature, ...]
     fill: np.ndarray        # per feature: training median (continuous, ordinal) or mode (categorical, binary)
     log_floor: np.ndarray   # per feature: smallest positive training value (log features), else NaN
     centre: np.ndarray      # per numeric term: training mean (quadratic designs)
@@ -63,11 +54,11 @@ class Design:
     quadratic: bool
 
 
-def _is_numeric(spec: FeatureLike) -> bool:
+def _is_numeric(spec: Feature) -> bool:
     return spec.kind in ("continuous", "ordinal")
 
 
-def fill_values(X: np.ndarray, specs: Sequence[FeatureLike]) -> np.ndarray:
+def fill_values(X: np.ndarray, specs: Sequence[Feature]) -> np.ndarray:
     """Training medians for continuous and ordinal features, modes for categorical and binary ones."""
     fill = np.empty(len(specs))
     for j, spec in enumerate(specs):
@@ -82,7 +73,7 @@ def fill_values(X: np.ndarray, specs: Sequence[FeatureLike]) -> np.ndarray:
     return fill
 
 
-def _transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: Sequence[FeatureLike]) -> np.ndarray:
+def _transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: Sequence[Feature]) -> np.ndarray:
     """Imputed features, log-transformed where the spec says so (clamped at the training floor)."""
     Z = np.where(np.isnan(X), fill, X)
     logged = np.array([s.log for s in specs], dtype=bool)
@@ -90,7 +81,7 @@ def _transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: 
     return Z
 
 
-def learn_design(X: np.ndarray, specs: Sequence[FeatureLike], quadratic: bool) -> Design:
+def learn_design(X: np.ndarray, specs: Sequence[Feature], quadratic: bool) -> Design:
     """Learn imputation values, log floors and standardisation from training rows."""
     for j, spec in enumerate(specs):
         if spec.kind == "categorical":
@@ -234,7 +225,7 @@ class HedonicOLS:
     `quadratic=True` adds squares and pairwise products of the numeric terms.
     """
 
-    def __init__(self, specs: Sequence[FeatureLike], *, quadratic: bool = False) -> None:
+    def __init__(self, specs: Sequence[Feature], *, quadratic: bool = False) -> None:
         self.specs = specs
         self.quadratic = quadratic
 
@@ -317,7 +308,7 @@ class GradientBoosting:
     by mean log price) is used as a numeric feature instead; `segment_as_categorical_` says which.
     """
 
-    def __init__(self, specs: Sequence[FeatureLike], *, seed: int = 0, learning_rate: float = 0.1,
+    def __init__(self, specs: Sequence[Feature], *, seed: int = 0, learning_rate: float = 0.1,
                  max_iter: int = 200, max_leaf_nodes: int = 31, min_samples_leaf: int = 20,
                  l2_regularization: float = 1.0) -> None:
         self.specs = specs
@@ -373,7 +364,7 @@ def permutation_importance(model: ReferenceModel, X: np.ndarray, y: np.ndarray, 
     return table.sort_values("importance_mean", ascending=False, ignore_index=True)
 
 
-def reference_factories(specs: Sequence[FeatureLike], seed: int = 0) -> dict[str, Callable[[], ReferenceModel]]:
+def reference_factories(specs: Sequence[Feature], seed: int = 0) -> dict[str, Callable[[], ReferenceModel]]:
     """The three reference models by name, as factories for `cross_validated_predictions`."""
     return {
         "hedonic_ols": lambda: HedonicOLS(specs),

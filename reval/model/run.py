@@ -9,7 +9,7 @@ import hashlib
 import json
 import time
 from importlib import metadata
-from typing import Any, Callable
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -24,7 +24,9 @@ from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_
 from reval.model.settings import ModelSettings
 from reval.model.references import accuracy_table, compare_models, permutation_importance, reference_factories
 from reval.data.store import Store
+from reval.plain import records
 from reval.stats.study import run_study
+from reval.results import FitSummary
 
 Progress = Callable[[str, int, int], None]
 LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "duckdb", "joblib")
@@ -48,7 +50,7 @@ def _step(progress: Progress | None, name: str) -> Callable[[int, int], None] | 
 
 
 def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs: int | None = None,
-            references: bool = True) -> dict[str, Any]:
+            references: bool = True) -> FitSummary:
     """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary."""
     settings: ModelSettings = config.model if jobs is None else dataclasses.replace(config.model, jobs=jobs)
     sales = qualified_sales(store)
@@ -101,11 +103,11 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
                                   "config_sha256": config.sha256}, run_id=run_id)
         for source in ("model_out_of_fold", "model_in_sample"):
             for by in ("segment", "market_area", "class", "all"):
-                run_study(store, config, source, by, run_id)  # type: ignore[arg-type]
+                run_study(store, config, source, by, run_id)
     overall = accuracy[accuracy["segment"] == "(all)"] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings,
-            "accuracy": overall.drop(columns=["segment"], errors="ignore").to_dict("records")}
+            "accuracy": records(overall.drop(columns=["segment"], errors="ignore"))}
 
 
 def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,

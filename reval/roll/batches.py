@@ -17,9 +17,12 @@ from reval.data.events import record_event
 from reval.stats.standards import Verdict, passes
 from reval.data.store import Store
 from reval.roll.batch_states import live_batches
-from reval.stats.study import load_study, run_study, study_id
+from reval.states import BatchState, ValuesSource
+from reval.stats.stored import load_study, study_id
+from reval.stats.study import run_study
+from reval.results import Decision
 
-OUT_OF_FOLD = "model_out_of_fold"
+OUT_OF_FOLD: ValuesSource = "model_out_of_fold"
 
 
 def _known(store: Store, segment: str) -> None:
@@ -30,7 +33,7 @@ def _known(store: Store, segment: str) -> None:
 def segment_statistics(store: Store, config: Config, run_id: str, segment: str) -> dict[str, Any]:
     """The segment's out-of-fold ratio statistics for a run (computed and stored when missing), without the
     list of trimmed sales; a segment without sales gets n = 0 and no verdicts."""
-    if store.frame("study_header", [study_id(OUT_OF_FOLD, run_id, "segment")]).empty:
+    if not store.rows("study_header", [study_id(OUT_OF_FOLD, run_id, "segment")]):
         run_study(store, config, OUT_OF_FOLD, "segment", run_id)
     study = load_study(store, OUT_OF_FOLD, "segment", run_id)
     group = next((g for g in study["groups"] if g["group"] == segment), None)
@@ -75,7 +78,7 @@ def _note(text: str | None) -> str | None:
     return text.strip() if text and text.strip() else None
 
 
-def approve(store: Store, config: Config, segment: str, note: str | None = None) -> dict[str, Any]:
+def approve(store: Store, config: Config, segment: str, note: str | None = None) -> Decision:
     """Approve the segment's staged batch when its out-of-fold statistics pass, or with an override note."""
     _known(store, segment)
     note = _note(note)
@@ -100,7 +103,7 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
             "superseded": [b["batch_id"] for b in earlier]}
 
 
-def hold(store: Store, config: Config, segment: str, reason: str) -> dict[str, Any]:
+def hold(store: Store, config: Config, segment: str, reason: str) -> Decision:
     """Hold the segment's staged batch; a reason is required."""
     _known(store, segment)
     note = _note(reason)
@@ -126,7 +129,7 @@ def _approved_batch(live: list[dict[str, Any]], segment: str) -> dict[str, Any]:
     raise UserError(f"Cannot revoke {segment}: it has no approved batch.")
 
 
-def revoke(store: Store, config: Config, segment: str, note: str) -> dict[str, Any]:
+def revoke(store: Store, config: Config, segment: str, note: str) -> Decision:
     """Withdraw the segment's approval before export; a note is required. Exported batches cannot be revoked."""
     _known(store, segment)
     text = _note(note)
@@ -139,7 +142,7 @@ def revoke(store: Store, config: Config, segment: str, note: str) -> dict[str, A
         batch = _approved_batch(live, segment)
         if batch["batch_id"] != target["batch_id"]:
             raise UserError(f"The approved batch of {segment} changed while revoking; try again.")
-        to = "replaced" if any(b["state"] in ("staged", "held") for b in live) else "staged"
+        to: BatchState = "replaced" if any(b["state"] in ("staged", "held") for b in live) else "staged"
         _transition(store, batch, to, "batch_revoked", text, {"statistics": statistics})
     return {"segment": segment, "batch_id": batch["batch_id"], "run_id": batch["run_id"], "state": to,
             "note": text, "statistics": statistics}

@@ -22,6 +22,8 @@ from reval.clock import utc_now
 from reval.data.importer import ERROR_REPORT
 from reval.roll.land import schedule_path
 from reval.data.store import Store
+from reval.results import ExportResult, Manifest
+
 
 PARTIAL_SUFFIX = ".partial"
 CHUNK = 1 << 20
@@ -101,7 +103,7 @@ def check_target(config: Config, path: Path, overwrite: bool) -> None:
 
 
 def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
-                overwrite: bool = False) -> dict[str, Any]:
+                overwrite: bool = False) -> ExportResult:
     """Write the roll of every certified batch to `path` (and its manifest); mark approved batches exported.
     Never writes over the project's own files, nor over an existing file unless `overwrite`."""
     path = Path(path).resolve()
@@ -113,7 +115,7 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
     store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
     _fsync(tmp)
     totals = store.records("export_totals", {"batch_ids": ids})
-    manifest = {
+    manifest: Manifest = {
         "file": path.name, "rows": sum(t["rows"] for t in totals), "sha256": _sha256(tmp),
         "segments": totals, "run_ids": sorted({t["run_id"] for t in totals}),
         "partial": bool(missing), "not_approved": missing, "pending_newer_batches": pending,
@@ -129,7 +131,7 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
     return {**manifest, "path": str(path), "manifest": str(manifest_path(path))}
 
 
-def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: dict[str, Any], path: Path) -> None:
+def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: Manifest, path: Path) -> None:
     """Approved batches become exported and every export is an event; after the files are in place."""
     at = utc_now()
     fresh = [b for b in certified if b["state"] == "approved"]

@@ -23,21 +23,23 @@ from reval.data.config import Config
 from reval.errors import UserError
 from reval.data.store import Store
 from reval.plain import number, records
+from reval.results import ReviewReport, SalesChasing, SegmentReview
 
 CHASING_P_VALUE = 0.01
 CHASING_MEDIAN_GAP = 0.05
 QUANTILES = ("p05", "p25", "median", "p75", "p95")
 
 
-def sales_chasing(ratios: np.ndarray, sold: np.ndarray, min_sales: int) -> dict[str, Any]:
+def sales_chasing(ratios: np.ndarray, sold: np.ndarray, min_sales: int) -> SalesChasing:
     """Compare value changes of sold and unsold parcels: medians, their gap, Mann-Whitney U and the verdict."""
     sold_r, unsold_r = ratios[sold], ratios[~sold]
-    out: dict[str, Any] = {"n_sold": int(sold_r.size), "n_unsold": int(unsold_r.size),
-                           "median_change_sold": None, "median_change_unsold": None, "median_gap": None,
-                           "u_statistic": None, "p_value": None,
-                           "rule": f"flag when p < {CHASING_P_VALUE} and |median gap| > {CHASING_MEDIAN_GAP}"}
+    out: SalesChasing = {"n_sold": int(sold_r.size), "n_unsold": int(unsold_r.size),
+                         "median_change_sold": None, "median_change_unsold": None, "median_gap": None,
+                         "u_statistic": None, "p_value": None,
+                         "rule": f"flag when p < {CHASING_P_VALUE} and |median gap| > {CHASING_MEDIAN_GAP}",
+                         "status": "too_few_sales", "flagged": False}
     if sold_r.size < min_sales or unsold_r.size < min_sales:
-        return {**out, "status": "too_few_sales", "flagged": False}
+        return out
     med_sold, med_unsold = float(np.median(sold_r)) - 1, float(np.median(unsold_r)) - 1
     test = mannwhitneyu(sold_r, unsold_r, alternative="two-sided")
     gap = med_sold - med_unsold
@@ -47,7 +49,7 @@ def sales_chasing(ratios: np.ndarray, sold: np.ndarray, min_sales: int) -> dict[
             "status": "flagged" if flagged else "pass", "flagged": flagged}
 
 
-def review(store: Store, config: Config, segment: str | None = None, limit: int = 20) -> dict[str, Any]:
+def review(store: Store, config: Config, segment: str | None = None, limit: int = 20) -> ReviewReport:
     """The review report for one segment or all: each segment's open batch (else its certified one)."""
     batches = store.frame("review_batches", {"segment": segment})
     if batches.empty:
@@ -60,7 +62,7 @@ def review(store: Store, config: Config, segment: str | None = None, limit: int 
     by_batch = dict(list(changes.groupby("batch_id")))
     listed = dict(list(beyond.groupby("batch_id")))
     empty = changes.iloc[0:0]
-    segments = []
+    segments: list[SegmentReview] = []
     for b in batches.itertuples():
         s = summary.loc[b.batch_id]
         moved = by_batch.get(b.batch_id, empty)

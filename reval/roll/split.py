@@ -27,6 +27,7 @@ class SplitPart(TypedDict):
 class ValueSplit(TypedDict):
     value: int
     base: int
+    base_log: float
     parts: list[SplitPart]
 
 
@@ -54,6 +55,6 @@ def value_split(base_log: float, contributions: dict[str, float]) -> ValueSplit:
     log_mean = base if abs(gap) < 1e-12 else (value - base) / gap
     exact = np.concatenate([[base], logs * log_mean])
     rounded = apportion(exact, round(value))
-    return {"value": round(value), "base": int(rounded[0]),
+    return {"value": round(value), "base": int(rounded[0]), "base_log": base_log,
             "parts": [{"term": t, "log": float(c), "currency": int(v), "exact": float(e)}
                       for t, c, v, e in zip(terms, logs, rounded[1:], exact[1:])]}

@@ -21,8 +21,7 @@ from reval.errors import ConfigError, UserError
 from reval.data.events import record_event
 from reval.roll.land import LandSchedule, load_land_schedule
 from reval.data.store import Store
-
-OPEN_STATES = ("staged", "held")
+from reval.results import StageResult, StagedBatch
 
 
 def resolve_run(store: Store, run_id: str | None) -> str:
@@ -80,7 +79,7 @@ def _lot_position(store: Store, schedule: LandSchedule | None) -> int | None:
     return int(rows[0][0])
 
 
-def stage_values(store: Store, config: Config, run_id: str | None = None) -> dict[str, Any]:
+def stage_values(store: Store, config: Config, run_id: str | None = None) -> StageResult:
     """Value every parcel from a run and stage one batch per segment, replacing the segment's open batch;
     approved and exported batches are never touched. One transaction."""
     run = resolve_run(store, run_id)
@@ -123,11 +122,11 @@ def stage_values(store: Store, config: Config, run_id: str | None = None) -> dic
             "flags": {str(k): int(v) for k, v in flags.items()}}
 
 
-def _staged_rows(staged: pd.DataFrame, replaced: pd.DataFrame) -> list[dict[str, Any]]:
+def _staged_rows(staged: pd.DataFrame, replaced: pd.DataFrame) -> list[StagedBatch]:
     before: Mapping[str, Any] = {r.segment: r for r in replaced.itertuples()}
-    return [{"segment": r.segment, "batch_id": int(r.batch_id), "n_parcels": int(r.n_parcels),
+    return [{"segment": str(r.segment), "batch_id": int(r.batch_id), "n_parcels": int(r.n_parcels),
              "replaced_batch_id": int(before[r.segment].batch_id) if r.segment in before else None,
-             "replaced_state": before[r.segment].state if r.segment in before else None}
+             "replaced_state": str(before[r.segment].state) if r.segment in before else None}
             for r in staged.itertuples()]
 
 

@@ -10,11 +10,18 @@ import json
 import shutil
 from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
 
 from reval.data.config import CONFIG_NAME
 from reval.errors import UserError
 from reval.service.project import open_project
+from reval.states import Grouping, ValuesSource
+
+if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
+    from reval.plain import Record
+    from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
+                                     ExportResult, FitSummary, ImportSummary, ReviewReport, SalesCounts,
+                                     StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -35,7 +42,7 @@ def init_project(folder: Path, name: str) -> Path:
     return path
 
 
-def import_data(folder: Path, progress: Progress | None = None) -> dict[str, Any]:
+def import_data(folder: Path, progress: Progress | None = None) -> ImportSummary:
     """Check and load the project's input files (all or nothing)."""
     from reval.data.config import load_config
     from reval.data.importer import run_import
@@ -43,7 +50,7 @@ def import_data(folder: Path, progress: Progress | None = None) -> dict[str, Any
     return run_import(load_config(folder), progress).as_dict()
 
 
-def prepare_sales(folder: Path, progress: Progress | None = None) -> dict[str, Any]:
+def prepare_sales(folder: Path, progress: Progress | None = None) -> SalesCounts:
     """Qualify sales and time-adjust them to the valuation date."""
     from reval.data.sales import prepare_sales as prepare
 
@@ -51,7 +58,7 @@ def prepare_sales(folder: Path, progress: Progress | None = None) -> dict[str, A
         return prepare(store, config, progress).as_dict()
 
 
-def sales_report(folder: Path) -> dict[str, Any]:
+def sales_report(folder: Path) -> SalesCounts:
     """The stored qualification counts."""
     from reval.data.sales import SalesSummary
 
@@ -59,7 +66,7 @@ def sales_report(folder: Path) -> dict[str, Any]:
         return SalesSummary(store.frame("sales_counts")).as_dict()
 
 
-def segment_overview(folder: Path) -> list[dict[str, Any]]:
+def segment_overview(folder: Path) -> list[Record]:
     """One row per segment with its parcel and sale counts."""
     with open_project(folder) as (_, store):
         return store.records("segment_counts")
@@ -67,20 +74,20 @@ def segment_overview(folder: Path) -> list[dict[str, Any]]:
 
 # ---- studies and models --------------------------------------------------------------------------------------
 
-def study(folder: Path, values: str = "prior", by: str = "segment", run_id: str | None = None,
-          in_sample: bool = False) -> dict[str, Any]:
+def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id: str | None = None,
+          in_sample: bool = False) -> StudyResult:
     """Run and store a ratio study; model values (the latest run unless named) are out-of-fold unless
     in_sample is asked for."""
     from reval.roll.valuation import resolve_run
     from reval.stats.study import run_study
 
-    source = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    source: ValuesSource = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
     with open_project(folder, write=True) as (config, store):
         run = None if source == "prior" else resolve_run(store, run_id)
-        return run_study(store, config, source, by, run)  # type: ignore[arg-type]
+        return run_study(store, config, source, by, run)
 
 
-def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> dict[str, Any]:
+def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> FitSummary:
     """Fit every segment's model, validate out of fold, compare with the reference models, store a run."""
     from reval.model.run import fit_run
 
@@ -88,7 +95,7 @@ def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None)
         return fit_run(store, config, progress, jobs)
 
 
-def compare(folder: Path, run_id: str | None = None) -> dict[str, Any]:
+def compare(folder: Path, run_id: str | None = None) -> CompareResult:
     """The reference models' accuracy beside ours, per segment and overall, for a run."""
     from reval.roll.valuation import resolve_run
 
@@ -102,7 +109,7 @@ def compare(folder: Path, run_id: str | None = None) -> dict[str, Any]:
 
 # ---- the value roll --------------------------------------------------------------------------------------------
 
-def stage_values(folder: Path, run_id: str | None = None) -> dict[str, Any]:
+def stage_values(folder: Path, run_id: str | None = None) -> StageResult:
     """Value every parcel from a run (default: the newest) and stage one batch per segment."""
     from reval.roll import valuation
 
@@ -110,7 +117,7 @@ def stage_values(folder: Path, run_id: str | None = None) -> dict[str, Any]:
         return valuation.stage_values(store, config, run_id)
 
 
-def review(folder: Path, segment: str | None = None, limit: int = 20) -> dict[str, Any]:
+def review(folder: Path, segment: str | None = None, limit: int = 20) -> ReviewReport:
     """Value changes, parcels beyond the review threshold and the sales-chasing check, per segment."""
     from reval.roll.review import review as review_batches
 
@@ -118,7 +125,7 @@ def review(folder: Path, segment: str | None = None, limit: int = 20) -> dict[st
         return review_batches(store, config, segment, limit)
 
 
-def approve(folder: Path, segment: str, note: str | None = None) -> dict[str, Any]:
+def approve(folder: Path, segment: str, note: str | None = None) -> Decision:
     """Approve a segment's staged batch (its out-of-fold statistics must pass, or give an override note)."""
     from reval.roll import batches
 
@@ -126,7 +133,7 @@ def approve(folder: Path, segment: str, note: str | None = None) -> dict[str, An
         return batches.approve(store, config, segment, note)
 
 
-def hold(folder: Path, segment: str, reason: str) -> dict[str, Any]:
+def hold(folder: Path, segment: str, reason: str) -> Decision:
     """Hold a segment's staged batch, with a reason."""
     from reval.roll import batches
 
@@ -134,7 +141,7 @@ def hold(folder: Path, segment: str, reason: str) -> dict[str, Any]:
         return batches.hold(store, config, segment, reason)
 
 
-def revoke(folder: Path, segment: str, note: str) -> dict[str, Any]:
+def revoke(folder: Path, segment: str, note: str) -> Decision:
     """Withdraw a segment's approval before export, with a note."""
     from reval.roll import batches
 
@@ -142,7 +149,7 @@ def revoke(folder: Path, segment: str, note: str) -> dict[str, Any]:
         return batches.revoke(store, config, segment, note)
 
 
-def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> dict[str, Any]:
+def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> ExportResult:
     """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless
     partial, refuses the project's own files, and an existing file unless overwrite."""
     from reval.roll import export
@@ -151,14 +158,17 @@ def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool
         return export.export_roll(store, config, path, partial, overwrite)
 
 
-def event_log(folder: Path, segment: str | None = None) -> dict[str, Any]:
+def event_log(folder: Path, segment: str | None = None) -> EventLog:
     """The audit log, oldest first, optionally for one segment."""
     with open_project(folder) as (_, store):
         rows = store.records("log_events", {"segment": segment})
-    return {"segment": segment, "events": [{**r, "detail": json.loads(r["detail"] or "{}")} for r in rows]}
+    events: list[Event] = [{"event_id": r["event_id"], "event_time": r["event_time"], "who": r["who"], "kind": r["kind"],
+                            "segment": r["segment"], "run_id": r["run_id"], "detail": json.loads(r["detail"] or "{}")}
+                           for r in rows]
+    return {"segment": segment, "events": events}
 
 
-def batch_states(folder: Path) -> dict[str, Any]:
+def batch_states(folder: Path) -> BatchStates:
     """Each segment's open batch (staged or held) and certified batch (approved or exported)."""
     from reval.roll.batch_states import segment_states
 
@@ -168,7 +178,7 @@ def batch_states(folder: Path) -> dict[str, Any]:
 
 # ---- the demo ----------------------------------------------------------------------------------------------------
 
-def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = None) -> dict[str, Any]:
+def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = None) -> DemoSummary:
     """Build the demo municipality's project folder and run every step of the job up to staged values."""
     from reval.data.config import load_config
 
@@ -198,6 +208,6 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
             "steps": steps}
 
 
-def _failing(what: str, result: dict[str, Any]) -> str:
+def _failing(what: str, result: StudyResult) -> str:
     failing = [g["group"] for g in result["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
     return f"{what}: {len(result['groups'])} neighbourhoods, {len(failing)} failing a standard"

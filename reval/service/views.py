@@ -8,27 +8,37 @@ app opens fast.
 """
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
-from typing import Any
+from typing import Any, TypedDict
 
 from reval.data.config import Config
 from reval.data.store import Store
 from reval.errors import UserError
 from reval.model import BASE_TERM
-from reval.plain import number
 from reval.roll import batch_states
 from reval.roll.batch_states import state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
+from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
+                                 SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.sources import SOURCE_LABELS
+from reval.states import ValuesSource
+from reval.stats.stored import STATS, StudyGroup, stored_groups
 
-STATS = ("median_ratio", "cod", "prd", "prb")
-CI_COLUMNS = {"median_ratio": "median", "cod": "cod", "prd": "prd", "prb": "prb"}  # stored as <name>_lo, _hi
 SORT_KEYS = ("segment", "market_area", "parcels", "sales", "model", "median_ratio", "cod", "prd", "prb",
              "value_change", "state")
+
+
+class ShownStudy(TypedDict):
+    """The stored segment study the app shows."""
+
+    study_id: str
+    values_source: ValuesSource
+    run_id: str | None
+    confidence: float
+    groups: list[StudyGroup]
 
 
 def latest_run(store: Store) -> str | None:
@@ -36,7 +46,7 @@ def latest_run(store: Store) -> str | None:
     return str(rows[0][0]) if rows else None
 
 
-def _study(store: Store, run_id: str | None) -> tuple[dict[str, Any] | None, str]:
+def _study(store: Store, run_id: str | None) -> tuple[ShownStudy | None, str]:
     """The segment study the app shows, read from its stored rows (never recomputed): out-of-fold for the
     latest run when stored, else prior values; with a note saying what is missing."""
     header = store.records("app_segment_study", [run_id])
@@ -46,22 +56,13 @@ def _study(store: Store, run_id: str | None) -> tuple[dict[str, Any] | None, str
     if not header:
         notes.append("no ratio study stored yet (run `reval sales` and `reval study`)")
         return None, "; ".join(notes)
-    groups = [_study_group(r) for r in store.records("study_group_rows", [header[0]["study_id"]])]
-    return {**header[0], "groups": groups}, "; ".join(notes)
+    h = header[0]
+    groups = stored_groups(store, h["study_id"], h["values_source"])
+    return {"study_id": h["study_id"], "values_source": h["values_source"], "run_id": h["run_id"],
+            "confidence": float(h["confidence"]), "groups": groups}, "; ".join(notes)
 
 
-def _study_group(row: dict[str, Any]) -> dict[str, Any]:
-    """One stored study group in the shape of reval.study.load_study's groups (without the trimmed sales)."""
-    return {"group": row["group_name"], "property_class": row["property_class"], "n": row["n"],
-            "n_trimmed": row["n_trimmed"], "mean_ratio": row["mean_ratio"],
-            "weighted_mean_ratio": row["weighted_mean_ratio"],
-            **{stat: row[stat] for stat in STATS},
-            **{f"{stat}_ci": [row[f"{col}_lo"], row[f"{col}_hi"]] for stat, col in CI_COLUMNS.items()},
-            "decile_median_ratios": [number(v) for v in row["decile_medians"] or []],
-            "verdicts": json.loads(row["verdicts"])}
-
-
-def _stats_header(study: dict[str, Any] | None, run_id: str | None, note: str) -> str:
+def _stats_header(study: ShownStudy | None, run_id: str | None, note: str) -> str:
     if study is None:
         return "Ratio statistics: none yet" + (f" ({note})" if note else "")
     source = study["values_source"]
@@ -71,7 +72,7 @@ def _stats_header(study: dict[str, Any] | None, run_id: str | None, note: str) -
     return head + (f" ({note})" if note else "")
 
 
-def _stats_short(study: dict[str, Any] | None, run_id: str | None) -> str:
+def _stats_short(study: ShownStudy | None, run_id: str | None) -> str:
     if study is None:
         return "no ratio study yet"
     if study["values_source"] == "model_out_of_fold":
@@ -79,13 +80,16 @@ def _stats_short(study: dict[str, Any] | None, run_id: str | None) -> str:
     return "prior roll values" + ("" if run_id is None else f" (run {run_id} has no out-of-fold study)")
 
 
-def _stat_cells(group: dict[str, Any] | None) -> dict[str, Any]:
-    cells: dict[str, Any] = {}
+def _stat_cells(group: StudyGroup | None) -> dict[str, StatCell]:
+    cells: dict[str, StatCell] = {}
     for stat in STATS:
-        verdict = group["verdicts"].get(stat, {}) if group else {}
-        cells[stat] = {"value": group[stat] if group else None, "status": verdict.get("status"),
-                       "limit": verdict.get("limit"),
-                       "ci": group.get(f"{stat}_ci") if group else None}
+        if group is None:
+            cells[stat] = {"value": None, "status": None, "limit": None, "ci": None}
+            continue
+        plain: dict[str, Any] = dict(group)
+        verdict = group["verdicts"].get(stat)
+        cells[stat] = {"value": plain[stat], "status": verdict["status"] if verdict else None,
+                       "limit": verdict["limit"] if verdict else None, "ci": plain[f"{stat}_ci"]}
     return cells
 
 
@@ -94,18 +98,21 @@ def segment_states(store: Store) -> dict[str, BatchState | None]:
     return {entry["segment"]: state_of(entry) for entry in batch_states.segment_states(store)}
 
 
-def overview(folder: Path) -> dict[str, Any]:
+def overview(folder: Path) -> Overview:
     """One row per segment with counts, model kind, ratio statistics and verdicts, value change and state."""
     with open_project(folder) as (config, store):
         states = segment_states(store)
         run_id = latest_run(store)
         study, note = _study(store, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
-        rows = []
+        rows: list[OverviewRow] = []
         for r in store.records("app_segments", [run_id]):
             group = by_group.get(r["segment"])
             stats = _stat_cells(group)
-            rows.append({**r, **stats, "n": group["n"] if group else 0,
+            rows.append({"segment": r["segment"], "market_area": r["market_area"], "parcels": r["parcels"],
+                         "sales": r["sales"], "kind": r["kind"], "borrowed_share": r["borrowed_share"],
+                         "reason": r["reason"], "value_change": r["value_change"], "stats": stats,
+                         "n": group["n"] if group else 0,
                          "failing": any(c["status"] == "fail" for c in stats.values()),
                          "state": states.get(r["segment"])})
         return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
@@ -116,8 +123,8 @@ def overview(folder: Path) -> dict[str, Any]:
                 "states": sorted({r["state"] for r in rows if r["state"]})}
 
 
-def filter_segments(rows: list[dict[str, Any]], *, failing_only: bool = False, market_area: str | None = None,
-                    state: str | None = None, text: str = "") -> list[dict[str, Any]]:
+def filter_segments(rows: list[OverviewRow], *, failing_only: bool = False, market_area: str | None = None,
+                    state: str | None = None, text: str = "") -> list[OverviewRow]:
     """The overview rows that pass every filter; `text` matches anywhere in the segment name, any case."""
     needle = text.strip().casefold()
     return [r for r in rows
@@ -127,15 +134,15 @@ def filter_segments(rows: list[dict[str, Any]], *, failing_only: bool = False, m
             and needle in r["segment"].casefold()]
 
 
-def _sort_value(row: dict[str, Any], key: str) -> Any:
+def _sort_value(row: OverviewRow, key: str) -> Any:
     if key in STATS:
-        return row[key]["value"]
+        return row["stats"][key]["value"]
     if key == "model":
         return None if row["kind"] is None else (row["kind"], row["borrowed_share"] or 0.0)
-    return row[key]
+    return dict(row)[key]
 
 
-def sort_segments(rows: list[dict[str, Any]], key: str, descending: bool = False) -> list[dict[str, Any]]:
+def sort_segments(rows: list[OverviewRow], key: str, descending: bool = False) -> list[OverviewRow]:
     """Rows ordered by one column; missing values always last, ties by segment name."""
     if key not in SORT_KEYS:
         raise ValueError(f"cannot sort by {key!r}")
@@ -148,7 +155,7 @@ def sort_segments(rows: list[dict[str, Any]], key: str, descending: bool = False
 
 # ---- one segment ---------------------------------------------------------------------------------------
 
-def _histogram(rows: list[dict[str, Any]], feature: str, n_bins: int) -> list[int]:
+def _histogram(rows: list[Record], feature: str, n_bins: int) -> list[int]:
     counts = [0] * n_bins
     for r in rows:
         if r["feature"] == feature and 0 <= r["bin"] < n_bins:
@@ -156,16 +163,19 @@ def _histogram(rows: list[dict[str, Any]], feature: str, n_bins: int) -> list[in
     return counts
 
 
-def _curves(store: Store, run_id: str, segment: str, n_bins: int) -> list[dict[str, Any]]:
+def _curves(store: Store, run_id: str, segment: str, n_bins: int) -> list[Curve]:
     rows = store.records("app_curves", [run_id, segment])
     bins = store.records("app_feature_bins", [run_id, segment, n_bins])
-    curves: dict[str, dict[str, Any]] = {}
+    curves: dict[str, Curve] = {}
     for r in rows:
         c = curves.setdefault(r["feature"], {"feature": r["feature"], "kind": r["kind"],
                                              "levels": list(r["levels"] or []), "x": [], "effect": [],
-                                             "lo": [], "hi": [], "parent_effect": []})
-        for key in ("x", "effect", "lo", "hi", "parent_effect"):
-            c[key].append(r[key])
+                                             "lo": [], "hi": [], "parent_effect": [], "data_bins": []})
+        c["x"].append(r["x"])
+        c["effect"].append(r["effect"])
+        c["lo"].append(r["lo"])
+        c["hi"].append(r["hi"])
+        c["parent_effect"].append(r["parent_effect"])
     for c in curves.values():
         if c["kind"] == "binary":
             c["levels"] = ["no", "yes"]
@@ -174,7 +184,7 @@ def _curves(store: Store, run_id: str, segment: str, n_bins: int) -> list[dict[s
     return list(curves.values())
 
 
-def _interactions(store: Store, run_id: str, segment: str) -> list[dict[str, Any]]:
+def _interactions(store: Store, run_id: str, segment: str) -> list[Record]:
     """Each interaction with a plain reading of its coefficient (products of standardised features)."""
     out = []
     for r in store.records("app_interactions", [run_id, segment]):
@@ -185,8 +195,8 @@ def _interactions(store: Store, run_id: str, segment: str) -> list[dict[str, Any
     return out
 
 
-def _equity(store: Store, run_id: str | None, study: dict[str, Any] | None, segment: str,
-            max_points: int) -> dict[str, Any]:
+def _equity(store: Store, run_id: str | None, study: ShownStudy | None, segment: str,
+            max_points: int) -> Equity:
     group = next((g for g in (study["groups"] if study else []) if g["group"] == segment), None)
     model = study is not None and study["values_source"] == "model_out_of_fold"
     points = store.records("app_ratio_points", [run_id if model else None, segment, max_points])
@@ -199,7 +209,7 @@ def _equity(store: Store, run_id: str | None, study: dict[str, Any] | None, segm
             "price": [p["price"] for p in points], "ratio": [p["ratio"] for p in points]}
 
 
-def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> dict[str, Any]:
+def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> ValueChange:
     rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
     medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
     sold, unsold = [0] * n_bins, [0] * n_bins
@@ -213,7 +223,7 @@ def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> dict[
             "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0)}
 
 
-def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int = 2000) -> dict[str, Any]:
+def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int = 2000) -> SegmentDetail:
     """Everything the drill-in shows for one segment; model parts are empty lists when there is no run."""
     with open_project(folder) as (config, store):
         info = [r for r in store.records("app_segments", [None]) if r["segment"] == segment]
@@ -222,6 +232,7 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
         run_id = latest_run(store)
         study, note = _study(store, run_id)
         model = store.records("app_segment_model", [run_id, segment]) if run_id else []
+        state = segment_states(store).get(segment)
         return {
             "segment": segment, "market_area": info[0]["market_area"], "parcels": info[0]["parcels"],
             "sales": info[0]["sales"], "run_id": run_id,
@@ -234,23 +245,19 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
             "reference_accuracy": store.records("app_reference_accuracy", [run_id, segment]) if run_id else [],
             "oof_accuracy": store.records("app_oof_accuracy", [run_id, segment])[0] if run_id else None,
-            **_batches(store, config, segment),
+            "state": state, "review": _review(store, config, segment) if state else None,
         }
 
 
-def _batches(store: Store, config: Config, segment: str) -> dict[str, Any]:
-    """The segment's batch state and the core's review of its open (else certified) batch: the
-    sales-chasing check."""
-    state = segment_states(store).get(segment)
-    if state is None:
-        return {"state": None, "review": None}
+def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
+    """The core's review of the segment's open (else certified) batch: the sales-chasing check."""
     from reval.roll.review import review  # loads pandas and scipy: only the drill-in needs them, the overview starts faster
 
     report = review(store, config, segment, limit=10)["segments"]
-    return {"state": state, "review": report[0] if report else None}
+    return report[0] if report else None
 
 
-def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> dict[str, Any]:
+def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
     """One page of a segment's sales (largest ratio deviations first) with the values under study."""
     with open_project(folder) as (_, store):
         run_id = latest_run(store)
@@ -270,9 +277,8 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
 
 # ---- one parcel ----------------------------------------------------------------------------------------
 
-def _parcel_flags(config: Config, parcel: dict[str, Any], features: list[dict[str, Any]],
-                  estimate: dict[str, Any] | None, sales: list[dict[str, Any]], trimmed: list[str],
-                  roll: list[dict[str, Any]]) -> list[str]:
+def _parcel_flags(config: Config, parcel: Record, features: list[Record], estimate: Record | None,
+                  sales: list[Record], trimmed: list[str], roll: list[Record]) -> list[str]:
     flags = []
     missing = [f["name"] for f in features if f["value"] is None]
     if missing:
@@ -292,7 +298,7 @@ def _parcel_flags(config: Config, parcel: dict[str, Any], features: list[dict[st
     return flags
 
 
-def parcel_detail(folder: Path, parcel_id: str) -> dict[str, Any]:
+def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
     parcel_id = parcel_id.strip()
@@ -319,9 +325,11 @@ def parcel_detail(folder: Path, parcel_id: str) -> dict[str, Any]:
             logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
             base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
             split = value_split(base, logs)
-            split["base_log"] = base
         prior = parcel["prior_value"]
         value = estimate["market_value"] if estimate else None
-        return {**parcel, "run_id": run_id, "features": features, "estimate": estimate, "split": split, "roll": roll,
+        return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
+                "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
+                "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
+                "features": features, "estimate": estimate, "split": split, "roll": roll,
                 "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
                 "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-from typing import Any, Literal
+from typing import Any
 
 import pandas as pd
 
@@ -17,15 +17,11 @@ from reval.stats.ratio_stats import RatioStudy, ratio_study
 from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
-from reval.stats.sources import IN_SAMPLE_WARNING, SOURCE_LABELS
+from reval.states import Grouping, ValuesSource
+from reval.stats.stored import StudyResult, load_study, study_id
 
-Grouping = Literal["segment", "market_area", "class", "all"]
 GROUP_COLUMNS: dict[str, str | None] = {"segment": "segment", "market_area": "market_area",
                                         "class": "property_class", "all": None}
-
-
-def study_id(values_source: str, run_id: str | None, grouping: str) -> str:
-    return f"{values_source}/{run_id or '-'}/{grouping}"
 
 
 def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.DataFrame:
@@ -58,8 +54,8 @@ def _group_row(sid: str, name: str, cls: str | None, s: RatioStudy, verdicts: di
                                     for k, v in verdicts.items()})}
 
 
-def run_study(store: Store, config: Config, values_source: str = "prior", grouping: Grouping = "segment",
-              run_id: str | None = None) -> dict[str, Any]:
+def run_study(store: Store, config: Config, values_source: ValuesSource = "prior", grouping: Grouping = "segment",
+              run_id: str | None = None) -> StudyResult:
     """Compute, store (replacing the same study) and return a ratio study."""
     sales = sales_for_study(store, values_source, run_id)
     column = GROUP_COLUMNS[grouping]
@@ -84,37 +80,3 @@ def run_study(store: Store, config: Config, values_source: str = "prior", groupi
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
     return load_study(store, values_source, grouping, run_id)
-
-
-def load_study(store: Store, values_source: str, grouping: str, run_id: str | None = None) -> dict[str, Any]:
-    """A stored study as a JSON-ready dict (the shape `reval study --json` prints)."""
-    sid = study_id(values_source, run_id, grouping)
-    header = store.frame("study_header", [sid])
-    if header.empty:
-        raise UserError(f"No stored ratio study for {SOURCE_LABELS.get(values_source, values_source)} "
-                        f"by {grouping}; run `reval study`.")
-    h = header.iloc[0]
-    trimmed = store.frame("study_trimmed_rows", [sid])
-    by_group = {name: g for name, g in trimmed.groupby("group_name")}
-    groups = []
-    for r in store.frame("study_group_rows", [sid]).itertuples():
-        cut = by_group.get(r.group_name, trimmed.iloc[0:0])
-        groups.append({
-            "group": r.group_name, "property_class": r.property_class, "n": int(r.n), "n_trimmed": int(r.n_trimmed),
-            "median_ratio": number(r.median_ratio), "median_ratio_ci": [number(r.median_lo), number(r.median_hi)],
-            "mean_ratio": number(r.mean_ratio), "weighted_mean_ratio": number(r.weighted_mean_ratio),
-            "cod": number(r.cod), "cod_ci": [number(r.cod_lo), number(r.cod_hi)],
-            "prd": number(r.prd), "prd_ci": [number(r.prd_lo), number(r.prd_hi)],
-            "prb": number(r.prb), "prb_ci": [number(r.prb_lo), number(r.prb_hi)],
-            "decile_median_ratios": [number(v) for v in (r.decile_medians if r.decile_medians is not None else [])],
-            "verdicts": json.loads(r.verdicts),
-            "values_source": h["values_source"],
-            "trimmed": [{"sale_id": t.sale_id, "parcel_id": t.parcel_id, "ratio": float(t.ratio)}
-                        for t in cut.itertuples()],
-        })
-    out: dict[str, Any] = {"values_source": h["values_source"], "values": SOURCE_LABELS[h["values_source"]],
-                           "run_id": h["run_id"], "by": h["grouping"], "trim_iqr_k": number(h["trim_iqr_k"]),
-                           "confidence": float(h["confidence"]), "groups": groups}
-    if h["values_source"] == "model_in_sample":
-        out["warning"] = IN_SAMPLE_WARNING
-    return out

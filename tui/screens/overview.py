@@ -11,6 +11,7 @@ from textual.reactive import reactive
 from textual.widgets import DataTable, Header, Input, Static
 
 from reval.service import views
+from reval.service.types import Overview, OverviewRow
 
 from .. import keys
 from ..format import CAUTION, LEGEND, gate_detail, model_cell, percent, stat_cell
@@ -40,8 +41,8 @@ class OverviewScreen(DataScreen):
 
     def __init__(self) -> None:
         super().__init__()
-        self.data: dict[str, Any] | None = None
-        self.shown: list[dict[str, Any]] = []
+        self.data: Overview | None = None
+        self.shown: list[OverviewRow] = []
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -102,11 +103,11 @@ class OverviewScreen(DataScreen):
             table.move_cursor(row=table.get_row_index(keep))
         self._show_filters()
 
-    def _cells(self, row: dict[str, Any], colours: dict[str, str]) -> list[Any]:
+    def _cells(self, row: OverviewRow, colours: dict[str, str]) -> list[Any]:
         def verdict(stat: str) -> Text:
-            status = row[stat]["status"]
+            status = row["stats"][stat]["status"]
             colour = colours.get(VERDICT_COLOURS.get(status or "", ""), None)
-            return Text(stat_cell(row[stat], stat, short=True), style=Style(color=colour) if colour else "")
+            return Text(stat_cell(row["stats"][stat], stat, short=True), style=Style(color=colour) if colour else "")
 
         return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
                 verdict("prb"), percent(row["value_change"]), row["state"] or "–", f"{row['sales']:,}",
@@ -245,7 +246,7 @@ class OverviewScreen(DataScreen):
             return
         row = next(r for r in self.shown if r["segment"] == segment)
         model = self.data["stats_source"] == "model_out_of_fold"
-        stats = {k: row[k] for k in ("median_ratio", "cod", "prd", "prb")}
+        stats = row["stats"]
         self.reval.decide(kind, segment, gate_detail(stats, model) if kind == "approve" else "")
 
     def action_refresh(self) -> None:

@@ -9,6 +9,7 @@ from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
 from reval.service import views
+from reval.service.types import ParcelDetail, Record
 
 from .. import keys
 from ..format import CAUTION, money, number, percent, signed_money
@@ -16,7 +17,7 @@ from ..jobs import Loaded, StatusBar
 from .base import DataScreen, footer
 
 
-def feature_text(f: dict[str, Any]) -> str:
+def feature_text(f: Record) -> str:
     if f["value"] is None:
         return "missing"
     return f["label"] if f["label"] is not None else f"{f['value']:.6g}"
@@ -31,7 +32,7 @@ class ParcelScreen(DataScreen):
     def __init__(self, parcel_id: str) -> None:
         super().__init__()
         self.parcel_id = parcel_id
-        self.data: dict[str, Any] | None = None
+        self.data: ParcelDetail | None = None
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -80,7 +81,7 @@ class ParcelScreen(DataScreen):
         self.query_one("#parcel-flags", Static).update(
             "\n".join(f"! {f}" for f in flags) if flags else "none")
 
-    def _value_panel(self, d: dict[str, Any]) -> None:
+    def _value_panel(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-value", DataTable)
         table.clear(columns=True)
         table.add_columns("Value", "Amount")
@@ -95,12 +96,12 @@ class ParcelScreen(DataScreen):
             for name in ("market", "land", "improvement", "assessed"):
                 table.add_row(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"]))
 
-    def _parts(self, d: dict[str, Any]) -> None:
+    def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
         table.clear(columns=True)
         note = self.query_one("#parcel-parts-note", Static)
-        split = d["split"]
-        if split is None:
+        split, estimate = d["split"], d["estimate"]
+        if split is None or estimate is None:
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
         table.add_columns("Part", "Log value", "Value", "% of value")
@@ -110,11 +111,11 @@ class ParcelScreen(DataScreen):
             table.add_row(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
                           percent(p["currency"] / split["value"]))
         total = split["base"] + sum(p["currency"] for p in split["parts"])
-        table.add_row("= value", number(d["estimate"]["log_value"], ".4f"), money(total), "")
+        table.add_row("= value", number(estimate["log_value"], ".4f"), money(total), "")
         note.update(f"The parts add up to the value exactly ({money(total)}). The log parts add up to the "
                     "log value; the value beyond the base is shared in proportion to them.")
 
-    def _sales(self, d: dict[str, Any]) -> None:
+    def _sales(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-sales", DataTable)
         table.clear(columns=True)
         table.add_columns("Sale", "Date", "Price", "Adjusted", "Qualified", "Ratio (out-of-fold)")

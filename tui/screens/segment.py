@@ -10,6 +10,7 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 
 from reval.service import views
+from reval.service.types import Curve, SalesPage, SegmentDetail, SegmentReview
 
 from .. import keys
 from ..format import (
@@ -45,7 +46,7 @@ def axis_number(v: float) -> str:
     return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
 
 
-def model_line(d: dict[str, Any]) -> str:
+def model_line(d: SegmentDetail) -> str:
     m = d["model"]
     if m is None:
         return "Model: none yet (press f to fit)"
@@ -59,7 +60,7 @@ def model_line(d: dict[str, Any]) -> str:
     return text
 
 
-def curve_chart(c: dict[str, Any]) -> ChartData:
+def curve_chart(c: Curve) -> ChartData:
     x = c["x"]
     layers = (Layer("band", x, c["lo"], c["hi"], style="band", label="95% band"),
               Layer("line", x, c["parent_effect"], style="parent", label="market area"),
@@ -69,7 +70,7 @@ def curve_chart(c: dict[str, Any]) -> ChartData:
                      strip_label="data")
 
 
-def level_bars(c: dict[str, Any]) -> list[LevelBar]:
+def level_bars(c: Curve) -> list[LevelBar]:
     def pct(v: float | None) -> float | None:
         return None if v is None else 100 * math.expm1(v)
 
@@ -84,7 +85,7 @@ def level_bars(c: dict[str, Any]) -> list[LevelBar]:
     return out
 
 
-def chasing_line(review: dict[str, Any] | None) -> str:
+def chasing_line(review: SegmentReview | None) -> str:
     """The core's sales-chasing verdict for the staged values, in one line."""
     if review is None:
         return "Sales-chasing check: no staged values yet (press v after a fit)."
@@ -106,10 +107,10 @@ class SegmentScreen(DataScreen):
     def __init__(self, segment: str) -> None:
         super().__init__()
         self.segment = segment
-        self.data: dict[str, Any] | None = None
+        self.data: SegmentDetail | None = None
         self.curve_index = 0
         self.sales_page = 0
-        self.sales: dict[str, Any] | None = None
+        self.sales: SalesPage | None = None
 
     def compose(self) -> ComposeResult:
         yield Header()
@@ -171,7 +172,7 @@ class SegmentScreen(DataScreen):
         self.query_one("#segment-title", Static).update(f"✗ {message.error}")
         super().on_load_failed(message)
 
-    def show_segment(self, d: dict[str, Any]) -> None:
+    def show_segment(self, d: SegmentDetail) -> None:
         state = f" · batch {d['state']}" if d.get("state") else ""
         self.query_one("#segment-title", Static).update(
             f"Segment {d['segment']} · market area {d['market_area']} · {d['parcels']:,} parcels · "
@@ -228,7 +229,7 @@ class SegmentScreen(DataScreen):
 
     # ---- interactions and marginal effects ---------------------------------------------------------------
 
-    def show_effects(self, d: dict[str, Any]) -> None:
+    def show_effects(self, d: SegmentDetail) -> None:
         table = self.query_one("#interactions", DataTable)
         table.clear(columns=True)
         readings = self.query_one("#interaction-readings", Static)
@@ -250,7 +251,7 @@ class SegmentScreen(DataScreen):
 
     # ---- equity ------------------------------------------------------------------------------------------
 
-    def show_equity(self, d: dict[str, Any]) -> None:
+    def show_equity(self, d: SegmentDetail) -> None:
         e = d["equity"]
         confidence = f"{e['confidence']:.0%} " if e["confidence"] else ""
         self.query_one("#equity-title", Static).update(
@@ -287,14 +288,15 @@ class SegmentScreen(DataScreen):
 
     # ---- value change ------------------------------------------------------------------------------------
 
-    def show_change(self, d: dict[str, Any]) -> None:
+    def show_change(self, d: SegmentDetail) -> None:
         summary, bars = self.query_one("#change-summary", Static), self.query_one("#change-bars", Bars)
         v = d["value_change"]
-        if v is None or v["lo"] is None:
+        if v is None or v["lo"] is None or v["hi"] is None:
             summary.update(NO_RUN if d["run_id"] is None else "No values to compare with prior values.")
             bars.show(None)
             return
-        gap = (v["median_sold"] - v["median_unsold"]) if None not in (v["median_sold"], v["median_unsold"]) else None
+        sold, unsold = v["median_sold"], v["median_unsold"]
+        gap = sold - unsold if sold is not None and unsold is not None else None
         medians = (f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
                    f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
                    f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}.")
@@ -304,7 +306,7 @@ class SegmentScreen(DataScreen):
 
     # ---- sales -------------------------------------------------------------------------------------------
 
-    def show_sales(self, s: dict[str, Any]) -> None:
+    def show_sales(self, s: SalesPage) -> None:
         self.sales_page = s["page"]
         self.query_one("#sales-title", Static).update(
             f"{s['total']:,} sales, ratios of {s['values']}, farthest from 1 first · page {s['page'] + 1}/"
@@ -328,7 +330,7 @@ class SegmentScreen(DataScreen):
 
     # ---- reference models --------------------------------------------------------------------------------
 
-    def show_reference(self, d: dict[str, Any]) -> None:
+    def show_reference(self, d: SegmentDetail) -> None:
         title = self.query_one("#reference-title", Static)
         table = self.query_one("#reference-table", DataTable)
         table.clear(columns=True)

@@ -1,0 +1,142 @@
+"""The typed results the core's steps return (and `--json` prints): declared here, light to import, so the
+service layer and the app can name them without loading the steps' libraries."""
+from __future__ import annotations
+
+from typing import Any, Literal, TypedDict
+
+from reval.states import BatchState
+
+
+class ImportSummary(TypedDict):
+    """What an import did, as `reval import --json` prints it."""
+
+    changed: bool
+    parcels: int
+    sales: int
+    segments: int
+    market_areas: int
+    files: dict[str, str]
+
+
+class SegmentSales(TypedDict):
+    segment: str
+    qualified: int
+    excluded: int
+    excluded_by_reason: dict[str, int]
+
+
+class SalesCounts(TypedDict):
+    """Qualified and excluded sales, in all and per segment, with each exclusion's reason."""
+
+    qualified: int
+    excluded: int
+    excluded_by_reason: dict[str, int]
+    segments: list[SegmentSales]
+
+
+class FitSummary(TypedDict):
+    """What a run stored: its id, counts, seconds per stage and the whole jurisdiction's accuracy per model."""
+
+    run_id: str
+    sales: int
+    parcels: int
+    segments: int
+    timings: dict[str, float]
+    accuracy: list[dict[str, Any]]
+
+
+class StagedBatch(TypedDict):
+    segment: str
+    batch_id: int
+    n_parcels: int
+    replaced_batch_id: int | None
+    replaced_state: str | None
+
+
+class LandScheduleUsed(TypedDict):
+    lot_feature: str
+    sha256: str
+
+
+class StageResult(TypedDict):
+    """What `reval value` staged: the run, the new batches (and what each replaced), the flag counts."""
+
+    run_id: str
+    staged: list[StagedBatch]
+    unchanged: list[str]
+    land_schedule: LandScheduleUsed | None
+    flags: dict[str, int]
+
+
+class SalesChasing(TypedDict):
+    """The sales-chasing check of one segment: sold vs unsold value changes and the verdict."""
+
+    n_sold: int
+    n_unsold: int
+    median_change_sold: float | None
+    median_change_unsold: float | None
+    median_gap: float | None
+    u_statistic: float | None
+    p_value: float | None
+    rule: str
+    status: Literal["pass", "flagged", "too_few_sales"]
+    flagged: bool
+
+
+class SegmentReview(TypedDict):
+    """One segment's batch under review: totals, value-change quantiles, large changes, the chasing check."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: str
+    note: str | None
+    n_parcels: int
+    n_with_prior: int
+    totals: dict[str, float | None]
+    total_change: float | None
+    change_ratio_quantiles: dict[str, float | None] | None
+    n_beyond_threshold: int
+    beyond_threshold: list[dict[str, Any]]
+    sales_chasing: SalesChasing
+
+
+class ReviewReport(TypedDict):
+    threshold: float
+    listed_per_segment: int
+    segments: list[SegmentReview]
+
+
+class Decision(TypedDict, total=False):
+    """The outcome of approve, hold or revoke: the batch, its new state, the note and the statistics judged."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: BatchState
+    note: str | None
+    statistics: dict[str, Any]
+    override: bool
+    failed: list[str]
+    superseded: list[int]
+
+
+class Manifest(TypedDict):
+    """What travels beside a roll file: its rows, hash, per-segment totals, runs and provenance."""
+
+    file: str
+    rows: int
+    sha256: str
+    segments: list[dict[str, Any]]
+    run_ids: list[str]
+    partial: bool
+    not_approved: list[str]
+    pending_newer_batches: list[str]
+    config_sha256: str
+    who: str
+    when: str
+
+
+class ExportResult(Manifest):
+    path: str
+    manifest: str
