@@ -134,7 +134,7 @@ def test_infinite_penalty_leaves_a_straight_line() -> None:
 
 
 def test_residualise_matches_per_candidate_refits() -> None:
-    # MODEL-NOTES point 6: Z - HZ with the one factorisation equals refitting the smoother to each
+    # docs/model.md, section 1, point 6: Z - HZ with the one factorisation equals refitting the smoother to each
     # column (H does not depend on the response); measured there to 4e-13 (the speed-up is measured by
     # bench/model_speed.py).
     rng = np.random.default_rng(8)
@@ -210,7 +210,7 @@ def test_imputation_log_floor_and_clamping_follow_the_training_rows() -> None:
 
 
 def test_products_are_capped_and_categorical_refused() -> None:
-    # MODEL-NOTES point 4: standardised values are capped at +/-2.5 before forming products.
+    # docs/model.md, section 1, point 4: standardised values are capped at +/-2.5 before forming products.
     X, feats = design_data()
     spec = DesignSpec.learn(X, feats, n_basis=10)
     Z = spec.standardised(X)

@@ -35,7 +35,7 @@ def test_basis_reproduces_scipy_spline_evaluation() -> None:
 
 
 def test_values_outside_the_range_are_clamped_to_the_boundary() -> None:
-    # MODEL-NOTES point 4: a parcel outside the training range gets the boundary value, no extrapolation.
+    # docs/model.md, section 1, point 4: a parcel outside the training range gets the boundary value, no extrapolation.
     B = bspline_basis(np.array([-10.0, 0.0, 1.0, 40.0]), 0.0, 1.0, n_basis=9)
     np.testing.assert_array_equal(B[0], B[1])
     np.testing.assert_array_equal(B[3], B[2])

@@ -27,7 +27,7 @@ import numpy as np
 from reval.model.splines import bspline_basis, difference_penalty
 
 INTERCEPT = "(intercept)"
-PRODUCT_CAP = 2.5  # standardised values are capped at +/- this before forming products (MODEL-NOTES point 4)
+PRODUCT_CAP = 2.5  # standardised values are capped at +/- this before forming products (docs/model.md, section 1, point 4)
 Pair = tuple[str, str]
 
 

@@ -6,41 +6,13 @@ log value = jurisdiction model (P-spline main effects + selected interactions, a
 Each deviation's penalties are chosen by GCV, so a segment borrows from its parent exactly as
 much as its own sales fail to support; the edf of its deviation says how much it used its own data.
 
-Offsets: each child is fitted on its parent's in-sample predictions (the parent fitted on all
-training rows). MODEL-NOTES point 3 warns that deviations fitted on a fixed offset come out far
-too small; that was measured with a pooled model holding a neighbourhood factor, which soaks up
-each segment's level in-sample. Our parents carry no segment terms, so we measured the
-alternative, children fitted on 5-fold cross-fitted parent predictions (`offset_folds=5`),
-against in-sample offsets, with 10-fold out-of-fold predictions and the defaults of the time (interactions
-then selected by a cross-validated Lasso):
-  Ames (bench/model_ames_quick.py): COD 7.98 in-sample vs 7.99 cross-fitted (fold seed 7: 8.00
-  vs 8.04).
-  Vellmarsh demo: RMSE of predicted vs true log value over all 20,000 parcels 0.043 vs 0.065;
-  out-of-fold COD 8.97 vs 9.13.
-Cross-fitting hands the child the parent's fold-to-fold estimation noise (largest at sparse
-extremes of a feature), which the child then fits. A joint fit of parent and all deviations was
-not chosen: its system grows with segments x columns and loses the per-segment pure function
-that parallel fitting maps over.
-
-GCV uses gamma = 1.4 (n RSS / (n - 1.4 edf)^2; Kim & Gu 2004, JRSS B 66(2), as in mgcv's
-`gamma`). Plain GCV undersmooths in small samples: on simulated segments with 12 sales it gave
-deviations of 4.7-11.9 edf (mean of three segments, three seeds), as many as segments with 300
-sales (4.4-6.2), the opposite of partial pooling; with 1.4 the thin ones got 1.5-2.2.
-
-Interactions: the jurisdiction tests its candidates at familywise level alpha, and the segments that select
-their own share one more alpha (reval/interactions.py). On the demo at the default cap of 4 this picks
-exactly the generator's three pairs and no segment adds one; the cross-validated Lasso used before added
-condition:garage_spaces and gave its largest neighbourhood three false pairs. bench/accuracy.py (10 folds,
-one thread, 2-core machine): Ames COD 8.13 in 7.9 s and demo 8.91 in 3.9 s, against 8.17 in 25.3 s and 8.89
-in 11.4 s with that Lasso and the slower GCV search (LightGBM: 7.90 in 2.2 s, 9.14 in 2.8 s). Later, with
-latitude and longitude as curves on Ames and every GCV line scored from one factorisation (reval/penalised.py):
-Ames 7.75 in 4.7-6.3 s (12.3 s before that search) and demo 8.91 in 2.3-2.9 s (5.1 s before), against
-LightGBM's 7.69 in 2.4-2.5 s and 9.14 in 2.4-2.8 s, over four runs on this shared machine.
-
-Why our own splines instead of pygam: the selection needs one factorisation of the penalised
-main-effect smoother shared by every interaction candidate (Robinson's double residual); the
-deviations need penalties toward zero on top of a parent offset, chosen by GCV; and valuation
-needs exact per-parcel additive contributions. pygam exposes none of these.
+Offsets: each child is fitted on its parent's in-sample predictions (the parent fitted on all training
+rows); cross-fitted offsets (`offset_folds`) were measured and were equal or worse (docs/model.md, section
+2). GCV's edf is inflated by gamma = 1.4 (Kim & Gu 2004, JRSS B 66(2)) so thin segments borrow more
+(docs/model.md, section 3). Interactions: the jurisdiction tests its candidates at familywise level alpha
+and the segments that select their own share one more alpha (reval/model/interactions.py). The model is
+built on our own P-splines rather than pygam because the selection, the deviations and the contributions
+need things pygam does not expose (docs/model.md, section 5).
 """
 
 from __future__ import annotations

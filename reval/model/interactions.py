@@ -9,10 +9,8 @@ The "lasso" rule screens candidates with the Lasso path and keeps only what a t-
 first K candidates to enter the path (all m of them when the sales allow ten residual degrees of
 freedom per candidate) are fitted jointly by OLS on the double residuals, and a pair is kept when
 its p-value times m (Bonferroni over every candidate looked at) is below alpha. The t-tests use
-n - edf - K residual degrees of freedom, edf being the smoother's (which holds the intercept). A cross-validated Lasso was
-used before: its minimum-error rule kept noise pairs (on the demo one false pair beside the three
-true ones; three false pairs in its largest neighbourhood) and its 1-standard-error rule was
-unstable (MODEL-NOTES point 5).
+n - edf - K residual degrees of freedom, edf being the smoother's (which holds the intercept). Why not a
+cross-validated Lasso alone: it kept noise pairs or was unstable (docs/model.md, section 4).
 """
 
 from __future__ import annotations
