@@ -10,11 +10,17 @@ class UserError(Exception):
 
 
 class ConfigError(UserError):
-    """A problem in reval.toml, naming the file and the key (and the column when one is involved)."""
+    """A problem in reval.toml, naming the file and the dotted key ("model.alpha": section and key);
+    key "" for a problem with the whole file (not found, not TOML)."""
 
     def __init__(self, file: Path | str, key: str, problem: str) -> None:
         self.file, self.key, self.problem = str(file), key, problem
-        super().__init__(f"{file}: key '{key}': {problem}")
+        super().__init__(f"{file}: key '{key}': {problem}" if key else f"{file}: {problem}")
+
+    @property
+    def section(self) -> str:
+        """The section of reval.toml the key is in ("model" for "model.alpha", "features" for "features[1].type")."""
+        return self.key.split(".")[0].split("[")[0]
 
 
 @dataclass(frozen=True)

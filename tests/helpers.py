@@ -15,6 +15,8 @@ from __future__ import annotations
 import datetime as dt
 import json
 import shutil
+import subprocess
+import sys
 import textwrap
 from pathlib import Path
 from typing import Any
@@ -104,6 +106,12 @@ def write_project(folder: Path, config: str = SMALL_CONFIG, parcels: str = SMALL
 def copy_project(source: Path, target: Path) -> Path:
     shutil.copytree(source, target)
     return target
+
+
+def run_reval(*args: str | bytes, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
+    """The `reval` command as a user runs it: a real subprocess with a bare environment."""
+    return subprocess.run([sys.executable, "-m", "reval.cli", *args], capture_output=True, text=True, cwd=cwd,
+                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home()), "PYTHONPATH": str(ROOT)})
 
 
 # ---- reading a database ------------------------------------------------------------------------------------------

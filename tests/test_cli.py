@@ -3,21 +3,11 @@ from __future__ import annotations
 
 import argparse
 import json
-import subprocess
-import sys
 from pathlib import Path
 
 from helpers import SMALL_PARCELS
+from helpers import run_reval as reval
 from reval.cli.main import build_parser
-
-
-def reval(*args: str, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
-    return subprocess.run([sys.executable, "-m", "reval.cli", *args], capture_output=True, text=True, cwd=cwd,
-                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home())} | _pythonpath())
-
-
-def _pythonpath() -> dict[str, str]:
-    return {"PYTHONPATH": str(Path(__file__).resolve().parent.parent)}
 
 
 def test_import_json_and_exit_code(small_project: Path) -> None:

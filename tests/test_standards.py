@@ -12,8 +12,10 @@ import tomllib
 import numpy as np
 import pytest
 
+from reval.config_keys import Invalid, declared_keys, read_table
+from reval.data.starter import starter_config
 from reval.stats.ratio_stats import RatioStudy
-from reval.stats.standards import STANDARDS_TOML_COMMENTED, Standards, Verdict, judge, passes
+from reval.stats.standards import Standards, Verdict, judge, passes
 
 
 def _study(n: int = 50, median: float = 1.0, cod: float = 10.0, prd: float = 1.0, prb: float = 0.0) -> RatioStudy:
@@ -36,33 +38,47 @@ def test_defaults_match_the_iaao_standard():
     assert s.cod_max_default == 15.0 and s.min_sales == 10  # common practice
 
 
-def test_commented_toml_block_is_valid_and_holds_the_defaults():
-    # Reference: Python's tomllib parses the block; it must rebuild exactly the default standards.
-    table = tomllib.loads(STANDARDS_TOML_COMMENTED)["standards"]
-    assert Standards.from_mapping(table) == Standards()
-    body = [ln for ln in STANDARDS_TOML_COMMENTED.splitlines() if "=" in ln and not ln.startswith("#")]
-    assert body and all("# IAAO" in ln or "# common practice" in ln for ln in body)
-    assert "may differ" in STANDARDS_TOML_COMMENTED
+def test_starter_section_is_valid_and_holds_the_defaults():
+    # Reference: Python's tomllib parses the starter; its [standards] table must rebuild exactly the defaults.
+    table = tomllib.loads(starter_config("Test"))["standards"]
+    assert read_table(Standards, table, "standards") == Standards()
+    # Every limit names where it comes from: the IAAO standard or common practice.
+    docs = [k.spec.doc for k in declared_keys(Standards)]
+    assert all("IAAO" in doc or "common practice" in doc for doc in docs), docs
+    section = starter_config("Test").split("[standards]")[1].split("[model]")[0]
+    body = [ln for ln in section.splitlines() if "=" in ln and not ln.startswith("#")]
+    assert len(body) == 12 and all("# IAAO" in ln or "# common practice" in ln for ln in body), body
+    assert "may differ" in starter_config("Test").split("[standards]")[0].rsplit("\n\n", 1)[1]
 
 
-def test_from_mapping_validates_and_merges_cod_limits():
-    s = Standards.from_mapping({"median_ratio": [0.95, 1.05], "min_sales": 5, "cod_max": {"farm": 30}})
+def test_reading_validates_names_the_key_and_merges_cod_limits():
+    s = read_table(Standards, {"median_ratio": [0.95, 1.05], "min_sales": 5, "cod_max": {"farm": 30}}, "standards")
     assert s.median_ratio == (0.95, 1.05) and s.min_sales == 5
     assert s.cod_limit("farm") == 30.0 and s.cod_limit("vacant_land") == 25.0  # given class added, defaults kept
-    with pytest.raises(ValueError, match="unknown key 'cod'"):
-        Standards.from_mapping({"cod": 15})
-    with pytest.raises(ValueError, match="prd must be .*low <= high"):
-        Standards.from_mapping({"prd": [1.03, 0.98]})
-    with pytest.raises(ValueError, match="prb must be"):
-        Standards.from_mapping({"prb": 0.05})
-    with pytest.raises(ValueError, match="min_sales"):
-        Standards.from_mapping({"min_sales": 2.5})
-    with pytest.raises(ValueError, match="cod_max.income"):
-        Standards.from_mapping({"cod_max": {"income": -1}})
-    with pytest.raises(ValueError, match="cod_max_default"):
-        Standards.from_mapping({"cod_max_default": True})
-    assert hash(s) == hash(Standards.from_mapping({"median_ratio": [0.95, 1.05], "min_sales": 5,
-                                                   "cod_max": {"farm": 30.0}}))
+    bad = [({"cod": 15}, "standards.cod", "unknown key"),
+           ({"prd": [1.03, 0.98]}, "standards.prd", "low <= high"),
+           ({"prb": 0.05}, "standards.prb", "expected [low, high]"),
+           ({"prb": [-0.05, float("nan")]}, "standards.prb", "finite"),
+           ({"median_ratio": [-0.1, 1.1]}, "standards.median_ratio", "greater than 0"),
+           ({"min_sales": 2.5}, "standards.min_sales", "whole number"),
+           ({"min_sales": 0}, "standards.min_sales", "at least 1"),
+           ({"cod_max": {"income": -1}}, "standards.cod_max.income", "greater than 0"),
+           ({"cod_max": {"income": float("inf")}}, "standards.cod_max.income", "finite"),
+           ({"cod_max": 15}, "standards.cod_max", "table"),
+           ({"cod_max_default": True}, "standards.cod_max_default", "expected a number")]
+    for table, key, fragment in bad:
+        with pytest.raises(Invalid) as caught:
+            read_table(Standards, table, "standards")
+        assert caught.value.key == key and fragment in caught.value.problem, (table, str(caught.value))
+    assert hash(s) == hash(read_table(Standards, {"median_ratio": [0.95, 1.05], "min_sales": 5,
+                                                  "cod_max": {"farm": 30.0}}, "standards"))
+
+
+def test_limits_set_in_code_are_checked_too():
+    # The same declaration checks a Standards built in code: a ValueError naming the key.
+    with pytest.raises(ValueError, match="key 'cod_max_default': must be greater than 0"):
+        Standards(cod_max_default=0)
+    assert Standards(prd=[0.97, 1.04]).prd == (0.97, 1.04)   # lists become tuples
 
 
 def test_boundaries_are_inclusive():

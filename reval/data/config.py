@@ -1,4 +1,10 @@
-"""The project config (reval.toml): a typed, validated model; every error names the file and the key."""
+"""The project config (reval.toml): each key declared once (reval.config_keys); errors name file and key.
+
+The sections below and those of [standards] (reval.stats.standards) and [model] (reval.model.settings)
+declare every key with its type, default, bounds and one-line doc; `SECTIONS` lists them in file order.
+`load_config` reads them all through `read_table`; the starter file (reval.data.starter) and the README's
+table (reval.data.config_doc) are written from the same list.
+"""
 from __future__ import annotations
 
 import datetime as dt
@@ -7,86 +13,234 @@ import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Literal, Mapping
+from typing import Any, Mapping
 
+from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declared_keys, read_table, setting,
+                               toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
+from reval.states import FeatureKind
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
-FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
-FEATURE_KINDS: tuple[str, ...] = ("continuous", "ordinal", "categorical", "binary")
-NAME_PATTERN = re.compile(r"^[a-z][a-z0-9_]*$")
-
-# Role -> required?  Roles are what reval needs; the values in [columns] are the user's own column names.
-PARCEL_ROLES: dict[str, bool] = {
-    "parcel_id": True,
-    "segment": True,
-    "market_area": False,
-    "property_class": False,
-    "prior_value": False,
-    "latitude": False,
-    "longitude": False,
-}
-SALE_ROLES: dict[str, bool] = {
-    "sale_id": False,
-    "sale_date": True,
-    "sale_price": True,
-    "sale_validity": False,
-}
 
 
 @dataclass(frozen=True)
-class FeatureSpec:
-    """One model feature: its name in reval, the user's column, its type, transform and valid range."""
+class Jurisdiction(Declared):
+    """Whose values, at which date, from which sales (the [jurisdiction] section)."""
 
-    name: str
-    column: str
-    kind: FeatureKind
-    log: bool = False
-    levels: tuple[str, ...] = ()
-    range: tuple[float, float] | None = None
+    name: str = setting(REQUIRED, "the jurisdiction's name, shown on reports", example="My municipality",
+                        active=True)
+    valuation_date: dt.date = setting(REQUIRED, "the date all values and time-adjusted prices refer to",
+                                      lo=dt.date(1900, 1, 1), hi=dt.date(2199, 12, 31), example=dt.date(2026, 1, 1),
+                                      active=True)
+    sale_window_months: int = setting(36, "sales from this many months before the valuation date", lo=1, hi=600,
+                                      active=True)
+
+
+# The directives DuckDB's strptime accepts (duckdb.org/docs/sql/functions/dateformat; a test checks this
+# list against DuckDB itself). A sale date needs a year.
+DATE_DIRECTIVES = frozenset("aAbBcdfgGhHIjmMnpSTuUVwWxXyYzZ%") | {"-d", "-j", "-m", "-y", "-H", "-I", "-M", "-S"}
+_YEAR_DIRECTIVES = {"Y", "y", "-y", "G", "c", "x"}
+
+
+def _date_format(value: Any, key: str) -> str | None:
+    """A strptime format every directive of which DuckDB knows, naming a year."""
+    if value is None:
+        return None
+    if not isinstance(value, str):
+        raise Invalid(key, f"expected text, got {toml_value(value)}")
+    directives = re.findall(r"%(-?.?)", value)
+    unknown = [d for d in directives if d not in DATE_DIRECTIVES]
+    if unknown:
+        raise Invalid(key, f"unknown directive %{unknown[0]} in {toml_value(value)} (known: %Y %y %m %-m %d %-d "
+                      "%b %B %j and the other strptime directives DuckDB reads)")
+    if not _YEAR_DIRECTIVES & set(directives):
+        raise Invalid(key, f"{toml_value(value)} names no year (%Y or %y)")
+    return value
 
 
 @dataclass(frozen=True)
-class SalesRules:
+class Files(Declared):
+    """The input files, relative to the project folder (the [files] section)."""
+
+    parcels: str = setting(REQUIRED, "CSV or Parquet, one row per parcel", example="parcels.csv", active=True)
+    sales: str | None = setting(None, "one row per sale and parcel; leave out if the parcels file holds the sales "
+                                "too (one row per sold parcel, as in research data)", example="sales.csv",
+                                active=True)
+    date_format: str | None = setting(None, "sale date format if not YYYY-MM-DD (strptime directives; it must "
+                                      "name a year)", example="%d/%m/%Y", check=_date_format, type_text="text")
+
+
+def _column(doc: str, example: str, required: bool = False, active: bool = True) -> Any:
+    """A [columns] key: the user's column name for a role."""
+    return setting(REQUIRED if required else None, doc, pattern=(r"\S", "a column name"), example=example,
+                   active=active)
+
+
+@dataclass(frozen=True, kw_only=True)
+class Columns(Declared):
+    """Your column name for each role reval needs (the [columns] section)."""
+
+    parcel_id: str = _column("the parcel's id (text: leading zeros are kept)", "parcel_id", required=True)
+    segment: str = _column("the unit a model is fitted for", "neighbourhood", required=True)
+    market_area: str | None = _column("the parent a thin segment borrows from", "market_area")
+    property_class: str | None = _column("the property class (COD limits and caps are by class)", "property_class")
+    prior_value: str | None = _column("value on the current roll", "prior_value")
+    latitude: str | None = _column("the parcel's latitude", "latitude", active=False)
+    longitude: str | None = _column("the parcel's longitude", "longitude", active=False)
+    sale_id: str | None = _column("the same sale id on several parcels = a multi-parcel sale", "sale_id")
+    sale_date: str = _column("the date of the sale", "sale_date", required=True)
+    sale_price: str = _column("the price of the sale", "sale_price", required=True)
+    sale_validity: str | None = _column("code telling arm's-length sales from others", "validity")
+
+
+# Role -> required?  The roles each file's columns play; the sales file also carries parcel_id.
+ROLES: dict[str, bool] = {k.name: k.required for k in declared_keys(Columns)}
+SALE_ROLES: dict[str, bool] = {r: ROLES[r] for r in ("sale_id", "sale_date", "sale_price", "sale_validity")}
+PARCEL_ROLES: dict[str, bool] = {r: required for r, required in ROLES.items() if r not in SALE_ROLES}
+
+
+@dataclass(frozen=True, kw_only=True)
+class FeatureSpec(Declared):
+    """One model feature (a [[features]] table): its name, the user's column, its type, transform and range."""
+
+    name: str = setting(REQUIRED, "the feature's name in reval", pattern=(r"^[a-z][a-z0-9_]*$",
+                        "lower case letters, digits and _, starting with a letter"))
+    column: str = setting("", "your column, if it differs from name", default_text="the name")
+    kind: FeatureKind = setting(REQUIRED, "ordinal and categorical need levels; binary reads 0/1, yes/no, "
+                                "true/false", toml="type")
+    log: bool = setting(False, "model the logarithm (continuous only)")
+    levels: tuple[str, ...] = setting((), "the levels, lowest first (ordinal and categorical only)")
+    range: tuple[float, float] | None = setting(None, "values outside [low, high] are errors (continuous only)")
+
+    def check(self) -> None:
+        if not self.column:
+            object.__setattr__(self, "column", self.name)
+        listed = self.kind in ("ordinal", "categorical")
+        if listed and len(self.levels) < 2:
+            raise Invalid("levels", f"a {self.kind} feature needs its levels (at least two)")
+        if not listed and self.levels:
+            raise Invalid("levels", f"levels only apply to ordinal and categorical features, not {self.kind}")
+        if len(set(self.levels)) != len(self.levels):
+            raise Invalid("levels", "levels repeat")
+        if self.kind != "continuous" and (self.log or self.range):
+            raise Invalid("log" if self.log else "range", "only continuous features take log or range")
+        if self.log and self.range and self.range[0] < 0:
+            raise Invalid("range", "a log-transformed feature cannot have negative values")
+
+
+@dataclass(frozen=True)
+class SalesRules(Declared):
     """Which sales qualify for models and ratio studies (the [sales] section)."""
 
-    validity_codes_kept: tuple[str, ...] | None = None
-    price_min: float | None = None
-    price_max: float | None = None
-    property_classes: tuple[str, ...] | None = None
-    exclude_multi_parcel: bool = True
+    validity_codes_kept: tuple[str, ...] | None = setting(None, "leave out to keep every code", example=("valid",),
+                                                          active=True)
+    price_min: float | None = setting(None, "sales below this price are left out", lo=0, example=10000)
+    price_max: float | None = setting(None, "sales above this price are left out", lo=0, lo_open=True,
+                                      example=5000000)
+    property_classes: tuple[str, ...] | None = setting(None, "only sales of these classes (leave out: every class)",
+                                                       example=("single_family", "condominium"))
+    exclude_multi_parcel: bool = setting(True, "leave out sales that cover several parcels", active=True)
+
+    def check(self) -> None:
+        if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:
+            raise Invalid("price_min", "is above sales.price_max")
 
 
 @dataclass(frozen=True)
-class TimeSettings:
+class TimeSettings(Declared):
     """Market-trend estimation (the [time_adjustment] section)."""
 
-    by_market_area: bool = False
-    min_sales_market_area: int = 400
-    n_basis: int = 10
+    by_market_area: bool = setting(False, "a trend per market area where it has enough sales")
+    min_sales_market_area: int = setting(400, "sales a market area needs for its own trend", lo=1)
+    n_basis: int = setting(10, "spline basis functions of the monthly trend", lo=4, hi=100)
 
 
 @dataclass(frozen=True)
-class StudySettings:
+class StudySettings(Declared):
     """Ratio-study options (the [study] section)."""
 
-    trim_iqr_k: float | None = None
-    confidence: float = 0.95
-    bootstrap: int = 1000
-    seed: int = 2026
+    trim_iqr_k: float | None = setting(None, "trim ratios outside Q1 - k*IQR .. Q3 + k*IQR (listed, never silent); "
+                                       "leave out to keep every sale", lo=0, lo_open=True, example=3.0)
+    confidence: float = setting(0.95, "level of the confidence intervals", lo=0.5, hi=1, lo_open=True, hi_open=True)
+    bootstrap: int = setting(1000, "resamples for the COD and PRD confidence intervals", lo=100, hi=100_000)
+    seed: int = setting(2026, "seed of the bootstrap, so studies are reproducible", lo=0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class CapRule(Declared):
+    """One cap on the yearly increase of assessed values (an [[assessment.caps]] table)."""
+
+    property_classes: tuple[str, ...] | None = setting(None, "the classes it applies to (leave out: every class)",
+                                                       example=("single_family",))
+    max_increase: float = setting(REQUIRED, "assessed value at most prior value x (1 + max_increase)", lo=0,
+                                  example=0.10)
+
+
+def _caps(value: Any, key: str) -> tuple[Mapping[str, Any], ...]:
+    """The [[assessment.caps]] tables, checked, as plain tables (the form reval.roll.valuation reads)."""
+    if not isinstance(value, (list, tuple)):
+        raise Invalid(key, "must be an array of tables ([[assessment.caps]])")
+    caps = []
+    for i, item in enumerate(value):
+        rule = read_table(CapRule, dict(item) if isinstance(item, Mapping) else item, f"{key}[{i}]")
+        named = {} if rule.property_classes is None else {"property_classes": list(rule.property_classes)}
+        caps.append({**named, "max_increase": rule.max_increase})
+    return tuple(caps)
+
+
+def _caps_starter() -> list[str]:
+    lines = ["# A cap on the yearly increase for some property classes (repeat the table for more rules):",
+             "# [[assessment.caps]]"]
+    return lines + [comment_line(f"# {k.name} = {toml_value(k.spec.example)}", k.spec.doc) for k in declared_keys(CapRule)]
 
 
 @dataclass(frozen=True)
-class AssessmentSettings:
+class AssessmentSettings(Declared):
     """Rules from local law for turning market values into assessed values (the [assessment] section)."""
 
-    level: float = 1.0
-    rounding: float = 100.0
-    land_schedule: str | None = None
-    review_change_threshold: float = 0.25
-    caps: tuple[Mapping[str, Any], ...] = ()
+    level: float = setting(1.0, "assessment level: assessed value = market value x level", lo=0, hi=1, lo_open=True)
+    rounding: float = setting(100.0, "round values to this unit (0 = no rounding)", lo=0, hi=10_000, example=100)
+    land_schedule: str | None = setting(None, "CSV: segment, base_<lot feature>, base_land_value, size_exponent; "
+                                        "land = base_land_value x (lot / base lot) ^ size_exponent",
+                                        example="land_schedule.csv")
+    review_change_threshold: float = setting(0.25, "list parcels whose value changes by more than this share "
+                                             "(0.25 = 25 %)", lo=0)
+    caps: tuple[Mapping[str, Any], ...] = setting((), "caps on the yearly increase by property class",
+                                                  check=_caps, starter=_caps_starter, items=CapRule)
+
+
+@dataclass(frozen=True)
+class Section:
+    """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
+
+    name: str
+    cls: type[Declared]
+    intro: str
+    required: bool = False
+    array: bool = False                                  # an array of tables ([[name]])
+    examples: tuple[Mapping[str, Any], ...] = ()         # the starter's tables of an array
+
+
+SECTIONS: tuple[Section, ...] = (
+    Section("jurisdiction", Jurisdiction, "", required=True),
+    Section("files", Files, "", required=True),
+    Section("columns", Columns, "Your column names (right) for each role (left). Required: parcel_id, segment, "
+            "and for sales sale_date and sale_price. The others are optional.", required=True),
+    Section("features", FeatureSpec, "Model features: type is continuous, ordinal (with its levels, lowest first), "
+            "categorical (with its levels) or binary (0/1, yes/no, true/false).", array=True,
+            examples=({"name": "living_area", "type": "continuous", "log": True, "range": [100, 20000]},
+                      {"name": "quality", "type": "ordinal", "levels": ["low", "average", "good", "excellent"]})),
+    Section("sales", SalesRules, "Which sales qualify for models and ratio studies."),
+    Section("time_adjustment", TimeSettings, "Market-trend estimation for time adjustment to the valuation date."),
+    Section("study", StudySettings, "Ratio studies."),
+    Section("standards", Standards, 'Ratio-study performance standards. "IAAO" marks a limit from the IAAO Standard '
+            'on Ratio Studies (2013); "common practice" marks a usual choice the standard does not fix. Local rules '
+            "(statute, the oversight agency) may differ and then take precedence."),
+    Section("model", ModelSettings, "Modelling choices shared by every segment of a run."),
+    Section("assessment", AssessmentSettings, "Rules from local law: the office sets these."),
+)
 
 
 @dataclass(frozen=True)
@@ -130,257 +284,92 @@ class Config:
         return dt.date(months // 12, months % 12 + 1, min(self.valuation_date.day, 28))
 
 
-class _Reader:
-    """Walks the TOML tree, checking keys and types and naming the full key in every error."""
-
-    def __init__(self, path: Path) -> None:
-        self.path = path
-
-    def fail(self, key: str, problem: str) -> ConfigError:
-        return ConfigError(self.path, key, problem)
-
-    def section(self, data: Mapping[str, Any], name: str, allowed: set[str], required: bool = False) -> dict[str, Any]:
-        raw = data.get(name)
-        if raw is None:
-            if required:
-                raise self.fail(name, "missing section")
-            return {}
-        if not isinstance(raw, dict):
-            raise self.fail(name, "must be a table")
-        self.no_unknown(raw, allowed, name)
-        return raw
-
-    def no_unknown(self, raw: Mapping[str, Any], allowed: set[str], prefix: str) -> None:
-        unknown = sorted(set(raw) - allowed)
-        if unknown:
-            raise self.fail(f"{prefix}.{unknown[0]}", f"unknown key (allowed: {', '.join(sorted(allowed))})")
-
-    def get(self, raw: Mapping[str, Any], prefix: str, key: str, kind: type | tuple[type, ...], default: Any = ...) -> Any:
-        if key not in raw:
-            if default is ...:
-                raise self.fail(f"{prefix}.{key}", "missing")
-            return default
-        value = raw[key]
-        if kind is float and isinstance(value, int) and not isinstance(value, bool):
-            value = float(value)
-        if isinstance(value, bool) and kind is not bool and bool not in (kind if isinstance(kind, tuple) else (kind,)):
-            raise self.fail(f"{prefix}.{key}", f"expected {_kind_name(kind)}, got a boolean")
-        if not isinstance(value, kind):
-            raise self.fail(f"{prefix}.{key}", f"expected {_kind_name(kind)}, got {type(value).__name__}")
-        return value
-
-    def strings(self, raw: Mapping[str, Any], prefix: str, key: str) -> tuple[str, ...] | None:
-        value = raw.get(key)
-        if value is None:
-            return None
-        if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-            raise self.fail(f"{prefix}.{key}", "expected a list of strings")
-        return tuple(value)
-
-    def pair(self, raw: Mapping[str, Any], prefix: str, key: str) -> tuple[float, float] | None:
-        value = raw.get(key)
-        if value is None:
-            return None
-        ok = isinstance(value, list) and len(value) == 2 and all(_is_number(v) for v in value)
-        if not ok or value[0] > value[1]:
-            raise self.fail(f"{prefix}.{key}", "expected [low, high] with low <= high")
-        return float(value[0]), float(value[1])
-
-    def delegate(self, data: Mapping[str, Any], name: str, build: Callable[[Mapping[str, Any]], Any]) -> Any:
-        """Build a section whose keys another module owns and checks, naming this file in its errors."""
-        raw = data.get(name, {})
-        if not isinstance(raw, dict):
-            raise self.fail(name, "must be a table")
-        try:
-            return build(raw)
-        except ValueError as exc:
-            raise self.fail(name, str(exc)) from None
-
-
-def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
-
-
-def _kind_name(kind: type | tuple[type, ...]) -> str:
-    kinds = kind if isinstance(kind, tuple) else (kind,)
-    names = {str: "a string", int: "a whole number", float: "a number", bool: "true or false",
-             dt.date: "a date (YYYY-MM-DD)", list: "a list", dict: "a table"}
-    return " or ".join(names.get(k, k.__name__) for k in kinds)
-
-
 def load_config(path: Path | str) -> Config:
-    """Read and validate a reval.toml; raise ConfigError naming the file and key on any problem."""
+    """Read and validate a reval.toml; raise ConfigError naming the file and the key on any problem."""
     path = Path(path).resolve()
     if path.is_dir():
         path = path / CONFIG_NAME
-    if not path.exists():
-        raise ConfigError(path, "-", f"no {CONFIG_NAME} here; create one with `reval init DIR`")
+    if not path.is_file():
+        raise ConfigError(path, "", f"no {CONFIG_NAME} here; create one with `reval init DIR`")
     raw_bytes = path.read_bytes()
+    data = _parse(path, raw_bytes)
     try:
-        data = tomllib.loads(raw_bytes.decode("utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(path, "-", f"not valid TOML: {exc}") from None
-    r = _Reader(path)
-    r.no_unknown(data, {"jurisdiction", "files", "columns", "features", "sales", "time_adjustment",
-                        "study", "standards", "model", "assessment"}, "(top level)")
-
-    j = r.section(data, "jurisdiction", {"name", "valuation_date", "sale_window_months"}, required=True)
-    valuation_date = r.get(j, "jurisdiction", "valuation_date", dt.date)
-    if isinstance(valuation_date, dt.datetime):
-        raise r.fail("jurisdiction.valuation_date", "expected a date without a time (YYYY-MM-DD)")
-    window = r.get(j, "jurisdiction", "sale_window_months", int, 36)
-    if window <= 0:
-        raise r.fail("jurisdiction.sale_window_months", "must be positive")
-
-    f = r.section(data, "files", {"parcels", "sales", "date_format"}, required=True)
-    parcels_file = _input_file(r, path, f, "parcels", required=True)
-    if parcels_file is None:  # required: _input_file raised already
-        raise r.fail("files.parcels", "missing")
-    sales_file = _input_file(r, path, f, "sales", required=False)
-
-    columns = _columns(r, data)
-    features = _features(r, data)
+        sections = _read_sections(data)
+        files: Files = sections["files"]
+        jurisdiction: Jurisdiction = sections["jurisdiction"]
+        parcels_file = _input_file(path, files.parcels, "files.parcels")
+        sales_file = None if files.sales is None else _input_file(path, files.sales, "files.sales")
+    except Invalid as exc:
+        raise ConfigError(path, exc.key, exc.problem) from None
+    columns = {k.name: getattr(sections["columns"], k.attribute) for k in declared_keys(Columns)}
     return Config(
         path=path,
-        jurisdiction=r.get(j, "jurisdiction", "name", str),
-        valuation_date=valuation_date,
-        sale_window_months=window,
+        jurisdiction=jurisdiction.name,
+        valuation_date=jurisdiction.valuation_date,
+        sale_window_months=jurisdiction.sale_window_months,
         parcels_file=parcels_file,
         sales_file=sales_file,
-        date_format=r.get(f, "files", "date_format", str, None),
-        columns=columns,
-        features=features,
-        sales=_sales_rules(r, data),
-        time=_time_settings(r, data),
-        study=_study_settings(r, data),
-        standards=r.delegate(data, "standards", Standards.from_mapping),
-        model=r.delegate(data, "model", ModelSettings.from_mapping),
-        assessment=_assessment(r, data),
+        date_format=files.date_format,
+        columns={role: column for role, column in columns.items() if column is not None},
+        features=sections["features"],
+        sales=sections["sales"],
+        time=sections["time_adjustment"],
+        study=sections["study"],
+        standards=sections["standards"],
+        model=sections["model"],
+        assessment=sections["assessment"],
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )
 
 
-def _input_file(r: _Reader, config_path: Path, f: Mapping[str, Any], key: str, required: bool) -> Path | None:
-    name = r.get(f, "files", key, str, ... if required else None)
-    if name is None:
-        return None
+def _parse(path: Path, raw_bytes: bytes) -> dict[str, Any]:
+    """The TOML tree; text that is not UTF-8 or not TOML is refused naming the line and column."""
+    try:
+        text = raw_bytes.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        before = raw_bytes[: exc.start]
+        line, column = before.count(b"\n") + 1, exc.start - (before.rfind(b"\n") + 1) + 1
+        raise ConfigError(path, "", f"line {line}, column {column}: not UTF-8 text (byte 0x{raw_bytes[exc.start]:02x}); "
+                          "save the file as UTF-8") from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(path, "", f"not valid TOML: {exc}") from None
+
+
+def _read_sections(data: dict[str, Any]) -> dict[str, Any]:
+    """Every section, read through its declaration; missing optional sections take their defaults."""
+    known = [s.name for s in SECTIONS]
+    unknown = sorted(set(data) - set(known))
+    if unknown:
+        raise Invalid(f"(top level).{unknown[0]}", f"unknown key (allowed: {', '.join(known)})")
+    out: dict[str, Any] = {}
+    for section in SECTIONS:
+        raw = data.get(section.name)
+        if raw is None and section.required:
+            raise Invalid(section.name, "missing section")
+        if section.array:
+            out[section.name] = _read_array(section, [] if raw is None else raw)
+        else:
+            out[section.name] = read_table(section.cls, {} if raw is None else raw, section.name)
+    return out
+
+
+def _read_array(section: Section, raw: Any) -> tuple[Any, ...]:
+    if not isinstance(raw, list):
+        raise Invalid(section.name, f"must be an array of tables ([[{section.name}]])")
+    items = tuple(read_table(section.cls, item, f"{section.name}[{i}]") for i, item in enumerate(raw))
+    names = [getattr(item, "name") for item in items]
+    twice = sorted({n for n in names if names.count(n) > 1})
+    if twice:
+        raise Invalid(section.name, f"feature '{twice[0]}' is declared twice")
+    return items
+
+
+def _input_file(config_path: Path, name: str, key: str) -> Path:
     file = (config_path.parent / name).resolve()
     if file.suffix.lower() not in (".csv", ".parquet"):
-        raise r.fail(f"files.{key}", f"'{name}' must be a .csv or .parquet file")
+        raise Invalid(key, f"'{name}' must be a .csv or .parquet file")
     if not file.exists():
-        raise r.fail(f"files.{key}", f"file not found: {file}")
+        raise Invalid(key, f"file not found: {file}")
     return file
-
-
-def _columns(r: _Reader, data: Mapping[str, Any]) -> dict[str, str]:
-    roles = {**PARCEL_ROLES, **SALE_ROLES}
-    c = r.section(data, "columns", set(roles), required=True)
-    out: dict[str, str] = {}
-    for role, required in roles.items():
-        value = r.get(c, "columns", role, str, ... if required else None)
-        if value is not None:
-            if not value.strip():
-                raise r.fail(f"columns.{role}", "column name is empty")
-            out[role] = value
-    return out
-
-
-def _features(r: _Reader, data: Mapping[str, Any]) -> tuple[FeatureSpec, ...]:
-    raw = data.get("features", [])
-    if not isinstance(raw, list):
-        raise r.fail("features", "must be an array of tables ([[features]])")
-    specs: list[FeatureSpec] = []
-    for i, item in enumerate(raw):
-        key = f"features[{i}]"
-        if not isinstance(item, dict):
-            raise r.fail(key, "must be a table")
-        r.no_unknown(item, {"name", "column", "type", "log", "levels", "range"}, key)
-        name = r.get(item, key, "name", str)
-        if not NAME_PATTERN.match(name):
-            raise r.fail(f"{key}.name", f"'{name}' must be lower case letters, digits and _")
-        kind = r.get(item, key, "type", str)
-        if kind not in FEATURE_KINDS:
-            raise r.fail(f"{key}.type", f"'{kind}' is not one of {', '.join(FEATURE_KINDS)}")
-        levels = r.strings(item, key, "levels") or ()
-        if kind in ("ordinal", "categorical") and len(levels) < 2:
-            raise r.fail(f"{key}.levels", f"a {kind} feature needs its levels (at least two)")
-        if kind not in ("ordinal", "categorical") and levels:
-            raise r.fail(f"{key}.levels", f"levels only apply to ordinal and categorical features, not {kind}")
-        if len(set(levels)) != len(levels):
-            raise r.fail(f"{key}.levels", "levels repeat")
-        log = r.get(item, key, "log", bool, False)
-        rng = r.pair(item, key, "range")
-        if kind != "continuous" and (log or rng):
-            raise r.fail(f"{key}.{'log' if log else 'range'}", "only continuous features take log or range")
-        if log and rng and rng[0] < 0:
-            raise r.fail(f"{key}.range", "a log-transformed feature cannot have negative values")
-        specs.append(FeatureSpec(name, r.get(item, key, "column", str, name), kind, log, levels, rng))
-    names = [s.name for s in specs]
-    dupes = sorted({n for n in names if names.count(n) > 1})
-    if dupes:
-        raise r.fail("features", f"feature '{dupes[0]}' is declared twice")
-    return tuple(specs)
-
-
-def _sales_rules(r: _Reader, data: Mapping[str, Any]) -> SalesRules:
-    s = r.section(data, "sales", {"validity_codes_kept", "price_min", "price_max", "property_classes",
-                                  "exclude_multi_parcel"})
-    rules = SalesRules(
-        validity_codes_kept=r.strings(s, "sales", "validity_codes_kept"),
-        price_min=r.get(s, "sales", "price_min", float, None),
-        price_max=r.get(s, "sales", "price_max", float, None),
-        property_classes=r.strings(s, "sales", "property_classes"),
-        exclude_multi_parcel=r.get(s, "sales", "exclude_multi_parcel", bool, True),
-    )
-    if rules.price_min is not None and rules.price_max is not None and rules.price_min > rules.price_max:
-        raise r.fail("sales.price_min", "is above sales.price_max")
-    return rules
-
-
-def _time_settings(r: _Reader, data: Mapping[str, Any]) -> TimeSettings:
-    t = r.section(data, "time_adjustment", {"by_market_area", "min_sales_market_area", "n_basis"})
-    out = TimeSettings(
-        by_market_area=r.get(t, "time_adjustment", "by_market_area", bool, False),
-        min_sales_market_area=r.get(t, "time_adjustment", "min_sales_market_area", int, 400),
-        n_basis=r.get(t, "time_adjustment", "n_basis", int, 10),
-    )
-    if out.n_basis < 4:
-        raise r.fail("time_adjustment.n_basis", "needs at least 4 basis functions")
-    return out
-
-
-def _study_settings(r: _Reader, data: Mapping[str, Any]) -> StudySettings:
-    s = r.section(data, "study", {"trim_iqr_k", "confidence", "bootstrap", "seed"})
-    out = StudySettings(
-        trim_iqr_k=r.get(s, "study", "trim_iqr_k", float, None),
-        confidence=r.get(s, "study", "confidence", float, 0.95),
-        bootstrap=r.get(s, "study", "bootstrap", int, 1000),
-        seed=r.get(s, "study", "seed", int, 2026),
-    )
-    if not 0.5 < out.confidence < 1:
-        raise r.fail("study.confidence", "must be between 0.5 and 1")
-    if out.trim_iqr_k is not None and out.trim_iqr_k <= 0:
-        raise r.fail("study.trim_iqr_k", "must be positive (leave it out to keep every sale)")
-    if out.bootstrap < 0:
-        raise r.fail("study.bootstrap", "cannot be negative")
-    return out
-
-
-def _assessment(r: _Reader, data: Mapping[str, Any]) -> AssessmentSettings:
-    a = r.section(data, "assessment", {"level", "rounding", "land_schedule", "review_change_threshold", "caps"})
-    caps = a.get("caps", [])
-    if not isinstance(caps, list) or not all(isinstance(c, dict) for c in caps):
-        raise r.fail("assessment.caps", "must be an array of tables ([[assessment.caps]])")
-    for i, cap in enumerate(caps):
-        r.no_unknown(cap, {"property_classes", "max_increase"}, f"assessment.caps[{i}]")
-        r.get(cap, f"assessment.caps[{i}]", "max_increase", float)
-    out = AssessmentSettings(
-        level=r.get(a, "assessment", "level", float, 1.0),
-        rounding=r.get(a, "assessment", "rounding", float, 100.0),
-        land_schedule=r.get(a, "assessment", "land_schedule", str, None),
-        review_change_threshold=r.get(a, "assessment", "review_change_threshold", float, 0.25),
-        caps=tuple(caps),
-    )
-    if out.level <= 0:
-        raise r.fail("assessment.level", "must be positive")
-    return out

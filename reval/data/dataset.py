@@ -25,7 +25,8 @@ def feature_specs(store: Store) -> tuple[FeatureSpec, ...]:
     for row in store.frame("feature_list").itertuples():
         levels = tuple(row.levels) if isinstance(row.levels, (list, tuple, np.ndarray)) else ()
         rng = None if pd.isna(row.range_lo) else (float(row.range_lo), float(row.range_hi))
-        specs.append(FeatureSpec(row.name, row.name, row.kind, bool(row.log), levels, rng))
+        specs.append(FeatureSpec(name=row.name, column=row.name, kind=row.kind, log=bool(row.log), levels=levels,
+                                 range=rng))
     return tuple(specs)
 
 

@@ -1,8 +1,12 @@
-"""The commented starter reval.toml written by `reval init`."""
+"""The commented starter reval.toml written by `reval init`, rendered from the declared keys."""
 from __future__ import annotations
 
-from reval.model.settings import MODEL_TOML_COMMENTED
-from reval.stats.standards import STANDARDS_TOML_COMMENTED
+import textwrap
+from typing import Any
+
+from reval.config_keys import STARTER_WIDTH, Key, comment_line, declared_keys, toml_value
+from reval.data.config import SECTIONS, Section
+from reval.errors import UserError
 
 _HEAD = """\
 # reval project configuration. One folder = one revaluation: this file, the database
@@ -11,83 +15,12 @@ _HEAD = """\
 # Values that reval produces are estimates for review by a qualified assessor.
 # Assessment level, caps, exemptions, notices and appeals follow local law: the office
 # must set the [assessment] rules to match it.
-
-[jurisdiction]
-name = {name}
-valuation_date = 2026-01-01        # the date all values and time-adjusted prices refer to
-sale_window_months = 36            # sales from this many months before the valuation date
-
-[files]
-parcels = "parcels.csv"            # CSV or Parquet, one row per parcel
-sales = "sales.csv"                # one row per sale and parcel; leave out if the parcels file
-                                   # holds the sales too (one row per sold parcel, as in research data)
-# date_format = "%d/%m/%Y"         # sale date format if not YYYY-MM-DD
-
-# Your column names (right) for each role (left). Required: parcel_id, segment, and for
-# sales sale_date and sale_price. The others are optional.
-[columns]
-parcel_id = "parcel_id"
-segment = "neighbourhood"          # the unit a model is fitted for
-market_area = "market_area"        # the parent a thin segment borrows from
-property_class = "property_class"
-prior_value = "prior_value"        # value on the current roll
-sale_id = "sale_id"                # the same sale id on several parcels = a multi-parcel sale
-sale_date = "sale_date"
-sale_price = "sale_price"
-sale_validity = "validity"         # code telling arm's-length sales from others
-# latitude = "latitude"
-# longitude = "longitude"
-
-# Model features: type is continuous, ordinal (with its levels, lowest first), categorical
-# (with its levels) or binary (0/1, yes/no, true/false). Optional: column (if it differs
-# from name), log = true (model the logarithm), range = [low, high] (values outside are errors).
-[[features]]
-name = "living_area"
-type = "continuous"
-log = true
-range = [100, 20000]
-
-[[features]]
-name = "quality"
-type = "ordinal"
-levels = ["low", "average", "good", "excellent"]
-
-# Which sales qualify for models and ratio studies.
-[sales]
-validity_codes_kept = ["valid"]    # leave out to keep every code
-# price_min = 10000
-# price_max = 5000000
-# property_classes = ["single_family", "condominium"]
-exclude_multi_parcel = true
-
-# Market-trend estimation for time adjustment to the valuation date.
-[time_adjustment]
-# by_market_area = false           # a trend per market area where it has enough sales
-# min_sales_market_area = 400
-# n_basis = 10
-
-# Ratio studies.
-[study]
-# trim_iqr_k = 3.0                 # trim ratios outside Q1 - k*IQR .. Q3 + k*IQR (listed, never silent)
-# confidence = 0.95
-# bootstrap = 1000                 # resamples for the COD and PRD confidence intervals
-# seed = 2026
-
+#
+# Lines starting with # are comments: a commented key shows its default or an example;
+# remove the # to set it. Every key is listed in the README's table of config keys.
 """
 
-_TAIL = """
-# Rules from local law: the office sets these.
-[assessment]
-# level = 1.0                      # assessment level: assessed value = market value x level
-# rounding = 100                   # round assessed values to this unit
-# land_schedule = "land_schedule.csv"   # CSV: segment, base_<lot feature>, base_land_value, size_exponent;
-#                                  # land = base_land_value x (lot / base lot) ^ size_exponent
-# review_change_threshold = 0.25   # list parcels whose value changes by more than 25 %
-# A cap on the yearly increase for some property classes (repeat the table for more rules):
-# [[assessment.caps]]
-# property_classes = ["single_family"]
-# max_increase = 0.10              # assessed value at most prior value x 1.10
-#
+_TAIL = """\
 # reval review flags possible sales chasing where sold and unsold parcels' value changes differ:
 # Mann-Whitney U p < 0.01 and medians more than 0.05 apart (common practice; see the IAAO
 # Standard on Ratio Studies on sales chasing).
@@ -95,6 +28,36 @@ _TAIL = """
 
 
 def starter_config(name: str) -> str:
-    """The starter config text for a jurisdiction called `name`."""
-    quoted = '"' + name.replace("\\", "\\\\").replace('"', '\\"') + '"'
-    return _HEAD.format(name=quoted) + STANDARDS_TOML_COMMENTED + "\n" + MODEL_TOML_COMMENTED + _TAIL
+    """The starter config text for a jurisdiction called `name` (any text: it is written as a TOML string)."""
+    if any(0xD800 <= ord(ch) <= 0xDFFF for ch in name):   # bytes that were not UTF-8, as Python passes them on
+        raise UserError("The jurisdiction name is not valid text (is the terminal's encoding UTF-8?); "
+                        "give it as plain text.")
+    parts = [_HEAD] + [_section(s, {"jurisdiction.name": name}) for s in SECTIONS] + [_TAIL]
+    return "\n".join(parts)
+
+
+def _comment(text: str) -> list[str]:
+    return ["# " + line for line in textwrap.wrap(text, STARTER_WIDTH - 2)] if text else []
+
+
+def _section(section: Section, overrides: dict[str, Any]) -> str:
+    keys = declared_keys(section.cls)
+    lines = _comment(section.intro)
+    if section.array:
+        lines += [f"#   {k.name:<8} {k.spec.doc}" for k in keys]
+        for example in section.examples:
+            lines += ["", f"[[{section.name}]]"] + [f"{name} = {toml_value(value)}" for name, value in example.items()]
+        return "\n".join(lines) + "\n"
+    lines.append(f"[{section.name}]")
+    lines += [_key_line(k, overrides.get(f"{section.name}.{k.name}")) for k in keys if k.spec.starter is None]
+    for k in keys:
+        if k.spec.starter is not None:
+            lines += [""] + k.spec.starter()
+    return "\n".join(lines) + "\n"
+
+
+def _key_line(key: Key, override: Any) -> str:
+    """`key = value  # doc`, commented out unless the key is declared active."""
+    value = override if override is not None else key.spec.example if key.spec.example is not None else key.default
+    text = f"{key.name} = {toml_value(value)}"
+    return comment_line(text if key.spec.active else "# " + text, key.spec.doc)

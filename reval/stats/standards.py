@@ -6,99 +6,56 @@ common practice.  Local rules may differ: every limit can be set from the `[stan
 """
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
-from types import MappingProxyType
-from typing import TYPE_CHECKING, Any, Literal
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Literal
+
+from reval.config_keys import Declared, comment_line, setting, toml_value
 
 if TYPE_CHECKING:  # only for the type hint: ratio_stats loads SciPy, which config loading does not need
     from reval.stats.ratio_stats import RatioStudy
 
-_DEFAULT_COD_MAX: dict[str, float] = {
-    "single_family": 15.0,       # IAAO: single-family, older or more heterogeneous areas, 5.0-15.0
-    "townhouse": 15.0,           # common practice: judged as single-family residential
-    "condominium": 15.0,         # IAAO: residential condominiums are grouped with single-family
-    "residential": 15.0,         # IAAO: single-family residential, 5.0-15.0
-    "newer_residential": 10.0,   # IAAO: newer or more homogeneous residential areas, 5.0-10.0
-    "income": 20.0,              # IAAO: income-producing, smaller jurisdictions 5.0-20.0 (larger 5.0-15.0)
-    "vacant_land": 25.0,         # IAAO: vacant land, 5.0-25.0
+# Default COD limit by property class, with its source.
+_COD_MAX_SOURCES: dict[str, tuple[float, str]] = {
+    "single_family": (15.0, "IAAO: single-family, older or more heterogeneous areas, 5.0-15.0"),
+    "townhouse": (15.0, "common practice: judged as single-family residential"),
+    "condominium": (15.0, "IAAO: residential condominiums are judged with single-family"),
+    "residential": (15.0, "IAAO: single-family residential, 5.0-15.0"),
+    "newer_residential": (10.0, "IAAO: newer or more homogeneous residential areas, 5.0-10.0"),
+    "income": (20.0, "IAAO: income-producing, smaller jurisdictions 5.0-20.0 (larger ones 5.0-15.0)"),
+    "vacant_land": (25.0, "IAAO: vacant land, 5.0-25.0"),
 }
-_KEYS = ("median_ratio", "cod_max", "cod_max_default", "prd", "prb", "min_sales")
-
-STANDARDS_TOML_COMMENTED = """\
-# Ratio-study performance standards. "IAAO" marks a limit from the IAAO Standard on
-# Ratio Studies (2013); "common practice" marks a usual choice the standard does not fix.
-# Local rules (statute, the oversight agency) may differ and then take precedence.
-[standards]
-median_ratio = [0.90, 1.10]    # IAAO: level, median ratio within 0.90-1.10
-prd = [0.98, 1.03]             # IAAO: price-related differential within 0.98-1.03
-prb = [-0.05, 0.05]            # IAAO: price-related bias coefficient within -0.05 to 0.05
-min_sales = 10                 # common practice: fewer sales are reported as too few (IAAO sets no fixed minimum)
-cod_max_default = 15.0         # common practice: COD limit for a property class not listed below
-
-[standards.cod_max]            # highest acceptable COD by property class
-single_family = 15.0           # IAAO: single-family, older or more heterogeneous areas, 5.0-15.0
-townhouse = 15.0               # common practice: judged as single-family residential
-condominium = 15.0             # IAAO: residential condominiums are judged with single-family
-residential = 15.0             # IAAO: single-family residential, 5.0-15.0
-newer_residential = 10.0       # IAAO: newer or more homogeneous residential areas, 5.0-10.0
-income = 20.0                  # IAAO: income-producing, smaller jurisdictions 5.0-20.0 (larger ones 5.0-15.0)
-vacant_land = 25.0             # IAAO: vacant land, 5.0-25.0
-# IAAO: a COD below 5.0 can point to sales chasing or an unrepresentative sample; worth a look.
-"""
+_DEFAULT_COD_MAX = {cls: limit for cls, (limit, _) in _COD_MAX_SOURCES.items()}
 
 
-def _number(key: str, x: Any) -> float:
-    if isinstance(x, bool) or not isinstance(x, (int, float)) or not math.isfinite(x):
-        raise ValueError(f"{key} must be a finite number, got {x!r}")
-    return float(x)
-
-
-def _range(key: str, pair: Any) -> tuple[float, float]:
-    if isinstance(pair, (str, bytes)) or not isinstance(pair, (list, tuple)) or len(pair) != 2:
-        raise ValueError(f"{key} must be [low, high], got {pair!r}")
-    lo, hi = _number(key, pair[0]), _number(key, pair[1])
-    if lo > hi:
-        raise ValueError(f"{key} must be [low, high] with low <= high, got {pair!r}")
-    return lo, hi
-
-
-def _positive(key: str, x: Any) -> float:
-    value = _number(key, x)
-    if value <= 0:
-        raise ValueError(f"{key} must be greater than zero, got {x!r}")
-    return value
+def _cod_max_starter() -> list[str]:
+    """The [standards.cod_max] subtable of the starter: each default limit with its source."""
+    return ([comment_line("[standards.cod_max]", "highest acceptable COD by property class")]
+            + [comment_line(f"{cls} = {toml_value(limit)}", source) for cls, (limit, source) in _COD_MAX_SOURCES.items()]
+            + ["# IAAO: a COD below 5.0 can point to sales chasing or an unrepresentative sample; worth a look."])
 
 
 @dataclass(frozen=True)
-class Standards:
+class Standards(Declared):
     """Limits each ratio-study statistic is judged against (inclusive bounds)."""
 
-    median_ratio: tuple[float, float] = (0.90, 1.10)   # IAAO level standard
-    cod_max: Mapping[str, float] = field(default_factory=lambda: dict(_DEFAULT_COD_MAX))
-    cod_max_default: float = 15.0                      # common practice, for classes not in cod_max
-    prd: tuple[float, float] = (0.98, 1.03)            # IAAO
-    prb: tuple[float, float] = (-0.05, 0.05)           # IAAO
-    # Below this many sales every statistic is reported as too few sales.  Common practice: the IAAO
-    # standard discusses sample size (small samples give unreliable statistics, so report confidence
-    # intervals) but sets no fixed minimum count (from memory; its text could not be checked here).
-    min_sales: int = 10
-
-    def __post_init__(self) -> None:
-        for key in ("median_ratio", "prd", "prb"):
-            object.__setattr__(self, key, _range(key, getattr(self, key)))
-        if not isinstance(self.cod_max, Mapping):
-            raise ValueError(f"cod_max must be a table of property class = limit, got {self.cod_max!r}")
-        limits = {}
-        for cls, limit in self.cod_max.items():
-            if not isinstance(cls, str) or not cls:
-                raise ValueError(f"cod_max: property class must be a non-empty string, got {cls!r}")
-            limits[cls] = _positive(f"cod_max.{cls}", limit)
-        object.__setattr__(self, "cod_max", MappingProxyType(limits))
-        object.__setattr__(self, "cod_max_default", _positive("cod_max_default", self.cod_max_default))
-        if isinstance(self.min_sales, bool) or not isinstance(self.min_sales, int) or self.min_sales < 1:
-            raise ValueError(f"min_sales must be a whole number >= 1, got {self.min_sales!r}")
+    median_ratio: tuple[float, float] = setting(
+        (0.90, 1.10), "IAAO: level, the median ratio within [low, high] (0.90-1.10)", lo=0, lo_open=True, active=True)
+    prd: tuple[float, float] = setting(
+        (0.98, 1.03), "IAAO: price-related differential within [low, high] (0.98-1.03)", lo=0, lo_open=True,
+        active=True)
+    prb: tuple[float, float] = setting(
+        (-0.05, 0.05), "IAAO: price-related bias coefficient within [low, high] (-0.05 to 0.05)", lo=-1, hi=1,
+        active=True)
+    # The IAAO standard discusses sample size (small samples give unreliable statistics, so report
+    # confidence intervals) but sets no fixed minimum count (from memory; its text could not be checked here).
+    min_sales: int = setting(
+        10, "common practice: fewer sales are reported as too few (IAAO sets no fixed minimum)", lo=1, active=True)
+    cod_max_default: float = setting(
+        15.0, "common practice: COD limit for a property class not in cod_max", lo=0, lo_open=True, active=True)
+    cod_max: Mapping[str, float] = setting(
+        _DEFAULT_COD_MAX, "highest acceptable COD by property class (IAAO); classes given are added to these",
+        lo=0, lo_open=True, extends_default=True, starter=_cod_max_starter)
 
     def __hash__(self) -> int:
         return hash((self.median_ratio, tuple(sorted(self.cod_max.items())), self.cod_max_default,
@@ -107,19 +64,6 @@ class Standards:
     def cod_limit(self, property_class: str | None) -> float:
         """Maximum COD for a property class; cod_max_default when the class is None or not listed."""
         return self.cod_max.get(property_class, self.cod_max_default) if property_class else self.cod_max_default
-
-    @classmethod
-    def from_mapping(cls, d: Mapping[str, Any]) -> Standards:
-        """Build from a `[standards]` config table; classes in `cod_max` override the default limits."""
-        unknown = [k for k in d if k not in _KEYS]
-        if unknown:
-            raise ValueError(f"unknown key '{unknown[0]}' (allowed: {', '.join(_KEYS)})")
-        kw = dict(d)
-        if "cod_max" in kw:
-            if not isinstance(kw["cod_max"], Mapping):
-                raise ValueError(f"cod_max must be a table of property class = limit, got {kw['cod_max']!r}")
-            kw["cod_max"] = {**_DEFAULT_COD_MAX, **kw["cod_max"]}
-        return cls(**kw)
 
 
 @dataclass(frozen=True)
