@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import dataclasses
+import os
 import re
 import shutil
 import string
@@ -18,7 +19,7 @@ from reval.data.config import (DATE_DIRECTIVES, SECTIONS, AssessmentSettings, St
                                load_config)
 from reval.data.config_doc import BEGIN, END, config_table
 from reval.data.starter import starter_config
-from reval.errors import ConfigError
+from reval.errors import ConfigError, UserError
 from reval.model.settings import ModelSettings
 from reval.service.actions import init_project
 from reval.stats.standards import Standards
@@ -274,3 +275,54 @@ def test_settings_built_in_code_are_checked_by_the_same_declaration() -> None:
     with pytest.raises(ValueError, match="key 'jobs'"):
         dataclasses.replace(ModelSettings(), jobs=0)
     assert AssessmentSettings(rounding=50).rounding == 50.0 and isinstance(AssessmentSettings(rounding=50).rounding, float)
+
+
+# ---- reval init ---------------------------------------------------------------------------------------------
+
+NAMES = ['Borough of "Quoted"', "back\\slash \\n \\u0041", "two\nlines\r\nand\ttab", "'''\"\"\" [x] # not a comment",
+         "".join(chr(c) for c in range(0x300)), "Zürich – 東京 🏠", ""]
+
+
+@pytest.mark.parametrize("name", NAMES, ids=range(len(NAMES)))
+def test_init_writes_valid_toml_for_any_name(tmp_path: Path, name: str) -> None:
+    path = init_project(tmp_path / "new", name)
+    assert tomllib.loads(path.read_text(encoding="utf-8"))["jurisdiction"]["name"] == name
+    (tmp_path / "new" / "parcels.csv").write_text("parcel_id\n")
+    (tmp_path / "new" / "sales.csv").write_text("sale_id\n")
+    assert load_config(path).jurisdiction == name
+
+
+def test_init_through_the_command_line_round_trips_a_name_with_a_newline(tmp_path: Path) -> None:
+    done = run_reval("init", str(tmp_path / "p"), "--name", 'North\n"Ward" \\ 7')
+    assert done.returncode == 0, done.stderr
+    assert tomllib.loads((tmp_path / "p" / "reval.toml").read_text())["jurisdiction"]["name"] == 'North\n"Ward" \\ 7'
+
+
+def test_init_refuses_to_overwrite_or_write_where_it_cannot(tmp_path: Path) -> None:
+    path = init_project(tmp_path / "new", "First")
+    with pytest.raises(UserError, match="already exists"):
+        init_project(tmp_path / "new", "again")
+    assert "First" in path.read_text()
+    a_file = tmp_path / "notes.txt"
+    a_file.write_text("keep me")
+    cases = {str(tmp_path / "new"): "already exists", str(a_file): "is a file, not a folder",
+             str(a_file / "sub"): "Cannot write"}
+    for folder, fragment in cases.items():
+        done = run_reval("init", folder)
+        assert done.returncode == 1 and fragment in done.stderr and "Traceback" not in done.stderr, done.stderr
+    assert a_file.read_text() == "keep me" and "First" in path.read_text()
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root writes into read-only folders")
+def test_init_into_a_read_only_folder_is_a_message(tmp_path: Path) -> None:
+    locked = tmp_path / "locked"
+    locked.mkdir(mode=0o555)
+    done = run_reval("init", str(locked / "p"))
+    assert done.returncode == 1 and "Cannot write" in done.stderr and "Traceback" not in done.stderr
+
+
+def test_init_refuses_a_name_that_is_not_text(tmp_path: Path) -> None:
+    # Bytes that are not UTF-8 reach Python as lone surrogates, which no TOML (or UTF-8) file can hold.
+    done = run_reval("init", str(tmp_path / "p"), "--name", b"caf\xe9")
+    assert done.returncode == 1 and "jurisdiction name" in done.stderr and "Traceback" not in done.stderr
+    assert not (tmp_path / "p" / "reval.toml").exists()

@@ -35,10 +35,17 @@ def init_project(folder: Path, name: str) -> Path:
     from reval.data.starter import starter_config
 
     path = folder / CONFIG_NAME
-    if path.exists():
-        raise UserError(f"{path} already exists; reval init never overwrites a config")
-    folder.mkdir(parents=True, exist_ok=True)
-    path.write_text(starter_config(name), encoding="utf-8")
+    if folder.exists() and not folder.is_dir():
+        raise UserError(f"{folder} is a file, not a folder; name a new or existing folder for the project")
+    text = starter_config(name)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        with path.open("x", encoding="utf-8") as handle:   # "x": never replaces a file, even one made meanwhile
+            handle.write(text)
+    except FileExistsError:
+        raise UserError(f"{path} already exists; reval init never overwrites a config") from None
+    except OSError as exc:
+        raise UserError(f"Cannot write {path}: {exc.strerror or exc}") from None
     return path
 
 
