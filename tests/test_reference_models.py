@@ -8,21 +8,26 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
+from pygam import LinearGAM, f, s
 from sklearn.preprocessing import PolynomialFeatures, StandardScaler
 
 from reval.stats import ratio_stats
-from reval.model.references import (
+from reval.model.additive_reference import PlainGAM
+from reval.model.comparison import (
     ALL_SEGMENTS,
-    GradientBoosting,
-    HedonicOLS,
-    PRODUCT_CAP,
     accuracy_table,
     compare_models,
     cross_validated_predictions,
-    design_matrix,
-    learn_design,
     permutation_importance,
     reference_factories,
+)
+from reval.model.references import (
+    GradientBoosting,
+    HedonicOLS,
+    PRODUCT_CAP,
+    RandomForest,
+    design_matrix,
+    learn_design,
 )
 
 
@@ -254,7 +259,7 @@ def test_accuracy_table_matches_ratio_stats_on_the_pooled_rows():
     factories["gradient_boosting"] = lambda: GradientBoosting(SPECS, seed=0, max_iter=50)
     predictions, seconds = compare_models(factories, X, y, segment, folds)
     table = accuracy_table(y, predictions, segment, seconds, n_boot=50)
-    assert len(table) == 3 * 4                                      # 3 models x (all + 3 segments)
+    assert len(table) == 5 * 4                                      # 5 models x (all + 3 segments)
     for name, predicted in predictions.items():
         overall = table[(table["model"] == name) & (table["segment"] == ALL_SEGMENTS)].iloc[0]
         values, prices = np.exp(predicted), np.exp(y)
@@ -269,3 +274,106 @@ def test_accuracy_table_matches_ratio_stats_on_the_pooled_rows():
         assert overall["cv_seconds"] == seconds[name] > 0
         rows = table[(table["model"] == name) & (table["segment"] != ALL_SEGMENTS)]
         assert rows["n"].sum() == 600
+
+
+# ---------------------------------------------------------------- plain additive model (pygam) and random forest
+
+SEGMENT_LEVEL = {"Mill Lane": 0.0, "Reed Common": 0.25, "Saltgate": -0.2}
+
+
+def additive_truth(X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+    """A smooth additive log price: curves in log living area and age, level effects for quality, roof,
+    garage and the segment (no interactions, so an additive model can recover it)."""
+    quality = np.array([0.0, 0.05, 0.12, 0.25])[X[:, 2].astype(int)]
+    roof = np.array([0.0, 0.05, -0.03])[X[:, 3].astype(int)]
+    return (11 + 0.7 * np.log(X[:, 0] / 150) + 0.15 * np.sin(X[:, 1] / 15) + quality + roof + 0.07 * X[:, 4]
+            + pd.Series(segment).map(SEGMENT_LEVEL).to_numpy())
+
+
+def additive_sales(rng: np.random.Generator, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    X = make_sales(n, rng)
+    segment = rng.choice(list(SEGMENT_LEVEL), n)
+    truth = additive_truth(X, segment)
+    return X, truth + rng.normal(0, 0.05, n), segment, truth
+
+
+def direct_pygam_columns(X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+    """The same columns written by hand: log living area, age, the level codes and the segment's code."""
+    codes = np.searchsorted(np.array(sorted(SEGMENT_LEVEL)), segment)
+    return np.column_stack([np.log(X[:, 0]), X[:, 1], X[:, 2], X[:, 3], X[:, 4], codes])
+
+
+def test_plain_gam_recovers_an_additive_truth_and_equals_a_direct_pygam_fit():
+    # Reference library: pygam LinearGAM with s() for the curves and f() for the levels and the segment,
+    # smoothing chosen by its own gridsearch (GCV over its default grid). Same columns, same terms, same
+    # grid: the same fit, so predictions agree to floating-point order (1e-8).
+    rng = np.random.default_rng(13)
+    X, y, segment, _ = additive_sales(rng, 1500)
+    model = PlainGAM(SPECS).fit(X, y, segment)
+    direct = LinearGAM(s(0) + s(1) + f(2) + f(3) + f(4) + f(5))
+    scores = direct.gridsearch(direct_pygam_columns(X, segment), y, return_scores=True, progress=False)
+    fresh, _, fresh_segment, fresh_truth = additive_sales(np.random.default_rng(14), 500)
+    fresh[:, 0] = np.clip(fresh[:, 0], X[:, 0].min(), X[:, 0].max())   # inside the training range: no clamping
+    fresh[:, 1] = np.clip(fresh[:, 1], X[:, 1].min(), X[:, 1].max())
+    fresh_truth = additive_truth(fresh, fresh_segment)
+    np.testing.assert_allclose(model.predict(fresh, fresh_segment),
+                               direct.predict(direct_pygam_columns(fresh, fresh_segment)), atol=1e-8)
+    assert model.gam_.statistics_["GCV"] == pytest.approx(min(scores.values()), rel=1e-12)   # GCV's choice
+    # The truth is recovered: the error against the noise-free prices is a fraction of the noise (sd 0.05).
+    assert np.sqrt(np.mean((model.predict(fresh, fresh_segment) - fresh_truth) ** 2)) < 0.015
+
+
+def test_plain_gam_unseen_levels_get_the_mean_effect_and_missing_values_the_training_fill():
+    # Same rule as the OLS reference (common practice): an unseen segment gets the sales-weighted mean
+    # segment effect; a missing value takes the training median (numeric) or mode (categorical).
+    rng = np.random.default_rng(15)
+    X, y, segment, _ = additive_sales(rng, 1200)
+    model = PlainGAM(SPECS).fit(X, y, segment)
+    direct = LinearGAM(s(0) + s(1) + f(2) + f(3) + f(4) + f(5)).gridsearch(direct_pygam_columns(X, segment), y,
+                                                                        progress=False)
+    names = sorted(SEGMENT_LEVEL)
+    grid = np.zeros((3, 6))
+    grid[:, 5] = np.arange(3)
+    effect = direct.partial_dependence(term=5, X=grid)
+    counts = np.array([np.sum(segment == n) for n in names])
+    row = X[:4]
+    gap = model.predict(row, np.full(4, "Fenwick End")) - model.predict(row, np.full(4, names[0]))
+    np.testing.assert_allclose(gap, effect @ counts / counts.sum() - effect[0], atol=1e-8)
+    missing = row.copy()
+    missing[:, [1, 3]] = np.nan
+    filled = row.copy()
+    filled[:, 1] = np.median(X[:, 1])
+    filled[:, 3] = np.bincount(X[:, 3].astype(int)).argmax()
+    np.testing.assert_allclose(model.predict(missing, segment[:4]), model.predict(filled, segment[:4]), atol=1e-12)
+
+
+def test_random_forest_is_seeded_and_treats_unseen_levels_as_missing():
+    # scikit-learn RandomForestRegressor: random_state fixes the forest; since 1.4 it routes missing values.
+    rng = np.random.default_rng(16)
+    X, y, segment, _ = additive_sales(rng, 1000)
+    X[rng.random(1000) < 0.05, 1] = np.nan
+    first = RandomForest(SPECS, seed=3).fit(X, y, segment)
+    np.testing.assert_array_equal(first.predict(X, segment), RandomForest(SPECS, seed=3).fit(X, y, segment).predict(X, segment))
+    assert np.sqrt(np.mean((first.predict(X, segment) - y) ** 2)) < 0.1            # learned the signal (sd of y ~ 0.5)
+    seen = X[:, 3] != 2
+    model = RandomForest(SPECS, seed=3).fit(X[seen], y[seen], segment[seen])   # roof 'tile' never seen
+    tile, gap = X[:5].copy(), X[:5].copy()
+    tile[:, 3], gap[:, 3] = 2, np.nan
+    np.testing.assert_array_equal(model.predict(tile, segment[:5]), model.predict(gap, segment[:5]))
+    np.testing.assert_array_equal(model.predict(X[:5], np.full(5, "Fenwick End")),
+                                  model.predict(X[:5], np.full(5, "Quarry Hill")))
+
+
+@pytest.mark.parametrize("model", ["plain_gam", "random_forest"])
+def test_new_references_never_see_the_fold_they_predict(model: str):
+    # Definition of k-fold cross-validation (Hastie, Tibshirani & Friedman, ESL 7.10): changing the held-out
+    # fold's prices must leave that fold's predictions exactly as they were, and change the others'.
+    rng = np.random.default_rng(17)
+    X, y, segment, _ = additive_sales(rng, 600)
+    folds = rng.permutation(np.arange(600) % 5)
+    factory = reference_factories(SPECS, seed=0)[model]
+    before = cross_validated_predictions(factory, X, y, segment, folds)
+    changed = np.where(folds == 2, y + rng.normal(0, 1.0, 600), y)
+    after = cross_validated_predictions(factory, X, changed, segment, folds)
+    np.testing.assert_array_equal(after[folds == 2], before[folds == 2])
+    assert np.mean(np.abs(after[folds != 2] - before[folds != 2]) > 1e-9) > 0.9

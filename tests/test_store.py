@@ -48,3 +48,28 @@ def test_a_nested_transaction_joins_the_outer_one(tmp_path: Path) -> None:
             with store.transaction():
                 con.execute("INSERT INTO t VALUES (2)")
         assert store.con.execute("SELECT count(*) FROM t").fetchone() == (1,)
+
+
+def test_importance_stored_before_version_6_is_kept_as_gradient_boostings(tmp_path: Path) -> None:
+    """A project fitted before importance was stored per model: its rows came from gradient boosting, the
+    only reference that had it; after the upgrade every row must name its model."""
+    import pytest
+
+    from reval.data.store import sql_text
+
+    path = tmp_path / "old.duckdb"
+    con = duckdb.connect(str(path))
+    con.execute(sql_text("schema"))
+    for version, migration in migrations():
+        if version <= 5:
+            con.execute(migration.read_text(encoding="utf-8"))
+            con.execute("INSERT INTO schema_version (version) VALUES (?)", [version])
+    con.execute("INSERT INTO feature_importance VALUES ('run-old', 'living_area', 0.2, 0.01)")
+    con.close()
+    with Store(path) as store:
+        assert store.version() == latest_version() >= 6
+        assert store.records("feature_importance_rows", ["run-old"]) == [
+            {"model": "gradient_boosting", "feature": "living_area", "importance_mean": 0.2, "importance_std": 0.01}]
+        with pytest.raises(duckdb.ConstraintException):
+            store.con.execute("INSERT INTO feature_importance (run_id, feature, importance_mean, importance_std) "
+                              "VALUES ('run-new', 'lot_size', 0.1, 0.0)")

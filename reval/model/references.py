@@ -1,32 +1,29 @@
 """Reference models fitted on the same folds as the main model, to show what interpretability costs.
 
-Three comparisons: a log-linear hedonic regression per segment (OLS), the same with squares and
-pairwise products of the numeric terms, and gradient boosting over the whole jurisdiction with the
-segment as a categorical feature. Out-of-fold predictions and the ratio-study table put them side
-by side with the additive model. Segment intercepts are fitted by within-segment demeaning
-(Frisch-Waugh-Lovell theorem), so a pooled fit never builds an n x segments dummy matrix.
+A log-linear hedonic regression per segment (OLS), the same with squares and pairwise products of
+the numeric terms, gradient boosting and a random forest over the whole jurisdiction with the
+segment as one more feature (the plain additive model with pygam is in additive_reference.py; the
+comparison itself in comparison.py). All share one estimator shape, `ReferenceModel`. Segment
+intercepts are fitted by within-segment demeaning (Frisch-Waugh-Lovell theorem), so a pooled fit
+never builds an n x segments dummy matrix.
 """
 from __future__ import annotations
 
-import time
 import warnings
 from dataclasses import dataclass
-from typing import Callable, Mapping, Protocol, Sequence
+from typing import Protocol, Sequence
 
 import numpy as np
 import pandas as pd
 import statsmodels.api as sm
 from scipy import sparse
 from statsmodels.tools.sm_exceptions import SingularMatrixWarning
-from sklearn.ensemble import HistGradientBoostingRegressor
-from sklearn.inspection import permutation_importance as sklearn_permutation_importance
+from sklearn.ensemble import HistGradientBoostingRegressor, RandomForestRegressor
 
 from reval.model.design import PRODUCT_CAP, Feature
-from reval.stats import ratio_stats
 
 EXTRA_SALES = 10        # a segment gets its own OLS only if n_sales >= n_parameters + EXTRA_SALES
 MAX_CATEGORIES = 255    # HistGradientBoosting's limit on a categorical feature's levels (max_bins)
-ALL_SEGMENTS = "(all)"  # segment label of the overall rows of the accuracy table
 
 
 class ReferenceModel(Protocol):
@@ -73,7 +70,7 @@ def fill_values(X: np.ndarray, specs: Sequence[Feature]) -> np.ndarray:
     return fill
 
 
-def _transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: Sequence[Feature]) -> np.ndarray:
+def transformed(X: np.ndarray, fill: np.ndarray, log_floor: np.ndarray, specs: Sequence[Feature]) -> np.ndarray:
     """Imputed features, log-transformed where the spec says so (clamped at the training floor)."""
     Z = np.where(np.isnan(X), fill, X)
     logged = np.array([s.log for s in specs], dtype=bool)
@@ -97,7 +94,7 @@ def learn_design(X: np.ndarray, specs: Sequence[Feature], quadratic: bool) -> De
                 raise ValueError(f"log feature '{spec.name}' has no positive training values")
             log_floor[j] = positive.min()
     numeric = [j for j, s in enumerate(specs) if _is_numeric(s)]
-    terms = _transformed(X, fill, log_floor, specs)[:, numeric]
+    terms = transformed(X, fill, log_floor, specs)[:, numeric]
     scale = terms.std(axis=0)
     return Design(tuple(specs), fill, log_floor, terms.mean(axis=0), np.where(scale > 0, scale, 1.0), quadratic)
 
@@ -121,7 +118,7 @@ def design_names(design: Design) -> list[str]:
 def design_matrix(X: np.ndarray, design: Design) -> np.ndarray:
     """Regression columns (no intercept): linear terms, categorical dummies (first level dropped)
     and, for quadratic designs, squares and pairwise products of standardised capped numeric terms."""
-    Z = _transformed(X, design.fill, design.log_floor, design.specs)
+    Z = transformed(X, design.fill, design.log_floor, design.specs)
     blocks = []
     for j, spec in enumerate(design.specs):
         if spec.kind == "categorical":
@@ -187,7 +184,7 @@ def fit_group_ols(M: np.ndarray, y: np.ndarray, group: np.ndarray, n_groups: int
     return GroupOLS(columns, np.asarray(slopes), intercepts, np.bincount(group, minlength=n_groups))
 
 
-def _segment_groups(segment: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:
+def segment_groups(segment: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[np.ndarray]]:
     """Distinct segments, each row's segment index, and the row indices of each segment."""
     names, inverse = np.unique(np.asarray(segment).astype(str), return_inverse=True)
     order = np.argsort(inverse, kind="stable")
@@ -195,7 +192,7 @@ def _segment_groups(segment: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[n
     return names, inverse, [order[bounds[i]:bounds[i + 1]] for i in range(len(names))]
 
 
-def _check_inputs(X: np.ndarray, segment: np.ndarray, n_features: int, y: np.ndarray | None = None) -> None:
+def check_inputs(X: np.ndarray, segment: np.ndarray, n_features: int, y: np.ndarray | None = None) -> None:
     if X.ndim != 2 or X.shape[1] != n_features:
         raise ValueError(f"X must have {n_features} feature columns, got shape {X.shape}")
     if len(segment) != len(X) or (y is not None and len(y) != len(X)):
@@ -231,11 +228,11 @@ class HedonicOLS:
 
     def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "HedonicOLS":
         X, y = np.asarray(X, dtype=float), np.asarray(y, dtype=float)
-        _check_inputs(X, segment, len(self.specs), y)
+        check_inputs(X, segment, len(self.specs), y)
         self.design_ = learn_design(X, self.specs, self.quadratic)
         self.columns_ = design_names(self.design_)
         M = design_matrix(X, self.design_)
-        names, inverse, rows = _segment_groups(segment)
+        names, inverse, rows = segment_groups(segment)
         self.pooled_ = fit_group_ols(M, y, inverse, len(names))
         self.pooled_range_ = (M.min(axis=0), M.max(axis=0))
         self.segment_fits_: dict[str, GroupOLS] = {}
@@ -277,9 +274,9 @@ class HedonicOLS:
         if not hasattr(self, "pooled_"):
             raise RuntimeError("HedonicOLS is not fitted; call fit first")
         X = np.asarray(X, dtype=float)
-        _check_inputs(X, segment, len(self.specs))
+        check_inputs(X, segment, len(self.specs))
         out = np.empty(len(X))
-        names, _, rows = _segment_groups(segment)
+        names, _, rows = segment_groups(segment)
         for name, idx in zip(names, rows):
             fit, intercept = self._fit_for(name)
             # Clamp each column to the range its fit was trained on: a polynomial extrapolates wildly
@@ -293,9 +290,10 @@ class HedonicOLS:
 # ---------------------------------------------------------------- gradient boosting
 
 
-def segment_codes(segment: np.ndarray, y: np.ndarray) -> dict[str, int]:
-    """Integer code per training segment, ordered by mean log price (meaningful if used as numeric)."""
-    names, inverse = np.unique(np.asarray(segment).astype(str), return_inverse=True)
+def ranks_by_mean(labels: np.ndarray, y: np.ndarray) -> dict[str, int]:
+    """Rank of each distinct label (a segment, a level code) by its training mean log price, so the
+    rank is meaningful as a number."""
+    names, inverse = np.unique(np.asarray(labels).astype(str), return_inverse=True)
     means = np.bincount(inverse, weights=y) / np.bincount(inverse)
     return {str(names[i]): rank for rank, i in enumerate(np.argsort(means, kind="stable"))}
 
@@ -325,8 +323,8 @@ class GradientBoosting:
 
     def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "GradientBoosting":
         X, y = np.asarray(X, dtype=float), np.asarray(y, dtype=float)
-        _check_inputs(X, segment, len(self.specs), y)
-        self.segment_codes_ = segment_codes(segment, y)
+        check_inputs(X, segment, len(self.specs), y)
+        self.segment_codes_ = ranks_by_mean(segment, y)
         self.segment_as_categorical_ = len(self.segment_codes_) <= MAX_CATEGORIES
         categorical = [s.kind == "categorical" for s in self.specs] + [self.segment_as_categorical_]
         self.estimator_ = HistGradientBoostingRegressor(
@@ -341,95 +339,69 @@ class GradientBoosting:
         if not hasattr(self, "estimator_"):
             raise RuntimeError("GradientBoosting is not fitted; call fit first")
         X = np.asarray(X, dtype=float)
-        _check_inputs(X, segment, len(self.specs))
+        check_inputs(X, segment, len(self.specs))
         return self.estimator_.predict(self._matrix(X, segment))
 
 
-def permutation_importance(model: ReferenceModel, X: np.ndarray, y: np.ndarray, segment: np.ndarray,
-                           seed: int, n_repeats: int = 5) -> pd.DataFrame:
-    """Rise in RMSE of log price when one feature (or the segment) is shuffled, by
-    sklearn.inspection.permutation_importance; most important first."""
-    names = [s.name for s in model.specs]
-    frame = pd.DataFrame(np.asarray(X, dtype=float), columns=names)
-    frame["segment"] = np.asarray(segment).astype(str)
-
-    def score(fitted: ReferenceModel, data: pd.DataFrame, target: np.ndarray) -> float:
-        predicted = fitted.predict(data[names].to_numpy(dtype=float), data["segment"].to_numpy())
-        return -float(np.sqrt(np.mean((target - predicted) ** 2)))
-
-    result = sklearn_permutation_importance(model, frame, np.asarray(y, dtype=float), scoring=score,
-                                            n_repeats=n_repeats, random_state=seed)
-    table = pd.DataFrame({"feature": frame.columns, "importance_mean": result.importances_mean,
-                          "importance_std": result.importances_std})
-    return table.sort_values("importance_mean", ascending=False, ignore_index=True)
+# ---------------------------------------------------------------- random forest
 
 
-def reference_factories(specs: Sequence[Feature], seed: int = 0) -> dict[str, Callable[[], ReferenceModel]]:
-    """The three reference models by name, as factories for `cross_validated_predictions`."""
-    return {
-        "hedonic_ols": lambda: HedonicOLS(specs),
-        "hedonic_ols_quadratic": lambda: HedonicOLS(specs, quadratic=True),
-        "gradient_boosting": lambda: GradientBoosting(specs, seed=seed),
-    }
+def _level_ranks(codes: np.ndarray, y: np.ndarray, n_levels: int) -> np.ndarray:
+    """Per level code 0..n_levels-1: its rank by training mean log price, NaN for a level not seen."""
+    known = ~np.isnan(codes)
+    order = ranks_by_mean(codes[known].astype(int), y[known])
+    rank = np.full(n_levels, np.nan)
+    rank[np.array(list(order), dtype=int)] = list(order.values())
+    return rank
 
 
-# ---------------------------------------------------------------- same-fold comparison
+class RandomForest:
+    """scikit-learn RandomForestRegressor on the whole jurisdiction, the segment as one more feature.
 
+    Breiman's forest (Machine Learning 45, 2001): fully grown trees (scikit-learn's default leaf of
+    one sale) and a third of the features tried at each split (Breiman's and R randomForest's choice
+    for regression); scikit-learn's default 100 trees. Seeded, one thread. The segment and each
+    categorical feature enter as one code ordered by training mean log price: for a regression tree,
+    ordering the levels by mean response and splitting them as if ordered finds the best split into
+    two groups of levels (Breiman, Friedman, Olshen & Stone 1984, Classification and Regression
+    Trees; from memory); one global order only approximates that in each node. Missing values go to
+    the trees as missing (scikit-learn >= 1.4 forests route them), and so does a segment or level
+    unseen in training.
+    """
 
-def cross_validated_predictions(model_factory: Callable[[], ReferenceModel], X: np.ndarray, y: np.ndarray,
-                                segment: np.ndarray, folds: np.ndarray) -> np.ndarray:
-    """Out-of-fold predicted log price for every row: each fold is predicted by a fresh model
-    fitted on all the other folds."""
-    folds = np.asarray(folds)
-    if len(folds) != len(y):
-        raise ValueError("folds must give one fold id per row")
-    segment = np.asarray(segment)
-    out = np.empty(len(y))
-    for fold in np.unique(folds):
-        held = folds == fold
-        model = model_factory().fit(X[~held], y[~held], segment[~held])
-        out[held] = model.predict(X[held], segment[held])
-    return out
+    def __init__(self, specs: Sequence[Feature], *, seed: int = 0, n_estimators: int = 100,
+                 min_samples_leaf: int = 1, max_features: float = 1 / 3) -> None:
+        self.specs = specs
+        self.seed = seed
+        self.n_estimators = n_estimators
+        self.min_samples_leaf = min_samples_leaf
+        self.max_features = max_features
 
+    def _matrix(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        codes = pd.Series(np.asarray(segment).astype(str)).map(self.segment_codes_).to_numpy(dtype=float)
+        M = np.column_stack([X, codes])
+        for j, rank in self.level_ranks_.items():
+            known = ~np.isnan(X[:, j])
+            M[:, j] = np.nan
+            M[known, j] = rank[X[known, j].astype(int)]
+        return M
 
-def compare_models(factories: Mapping[str, Callable[[], ReferenceModel]], X: np.ndarray, y: np.ndarray,
-                   segment: np.ndarray, folds: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, float]]:
-    """Out-of-fold predictions of each model on the same folds, and the wall-clock seconds each took."""
-    predictions, seconds = {}, {}
-    for name, factory in factories.items():
-        start = time.perf_counter()
-        predictions[name] = cross_validated_predictions(factory, X, y, segment, folds)
-        seconds[name] = time.perf_counter() - start
-    return predictions, seconds
+    def fit(self, X: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "RandomForest":
+        X, y = np.asarray(X, dtype=float), np.asarray(y, dtype=float)
+        check_inputs(X, segment, len(self.specs), y)
+        self.segment_codes_ = ranks_by_mean(segment, y)
+        self.level_ranks_ = {j: _level_ranks(X[:, j], y, len(spec.levels))
+                             for j, spec in enumerate(self.specs) if spec.kind == "categorical"}
+        self.estimator_ = RandomForestRegressor(
+            n_estimators=self.n_estimators, min_samples_leaf=self.min_samples_leaf,
+            max_features=self.max_features, random_state=self.seed, n_jobs=1,
+        ).fit(self._matrix(X, segment), y)
+        return self
 
-
-def _accuracy_row(y: np.ndarray, predicted: np.ndarray, n_boot: int, seed: int) -> dict[str, float]:
-    study = ratio_stats.ratio_study(np.exp(predicted), np.exp(y), n_boot=n_boot, seed=seed)
-    return {
-        "n": study.n,
-        "rmse_log": float(np.sqrt(np.mean((predicted - y) ** 2))),
-        "median_ratio": study.median_ratio,
-        "cod": study.cod,
-        "cod_lo": study.cod_ci[0],
-        "cod_hi": study.cod_ci[1],
-        "prd": study.prd,
-        "prb": study.prb,
-    }
-
-
-def accuracy_table(y: np.ndarray, predictions: Mapping[str, np.ndarray], segment: np.ndarray,
-                   seconds: Mapping[str, float] | None = None, *, n_boot: int = 200,
-                   seed: int = 0) -> pd.DataFrame:
-    """Per model, one overall row ("(all)") and one row per segment: n, RMSE of log price and the
-    ratio study (reval.ratio_stats) of exp(prediction) / exp(y), with a seeded bootstrap CI for
-    the COD; `cv_seconds` is the model's cross-validation time when given."""
-    y = np.asarray(y, dtype=float)
-    names, _, rows = _segment_groups(segment)
-    records = []
-    for model, predicted in predictions.items():
-        predicted = np.asarray(predicted, dtype=float)
-        for name, idx in [(ALL_SEGMENTS, np.arange(len(y))), *zip(names, rows)]:
-            records.append({"model": model, "segment": str(name),
-                            **_accuracy_row(y[idx], predicted[idx], n_boot, seed),
-                            "cv_seconds": (seconds or {}).get(model, np.nan)})
-    return pd.DataFrame(records)
+    def predict(self, X: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        """Predicted log price."""
+        if not hasattr(self, "estimator_"):
+            raise RuntimeError("RandomForest is not fitted; call fit first")
+        X = np.asarray(X, dtype=float)
+        check_inputs(X, segment, len(self.specs))
+        return self.estimator_.predict(self._matrix(X, segment))

@@ -22,15 +22,16 @@ from reval.data.events import record_event
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
 from reval.model.settings import ModelSettings
-from reval.model.references import accuracy_table, compare_models, permutation_importance, reference_factories
+from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models, permutation_importance,
+                                    reference_factories)
+from reval.model.names import IMPORTANCE_MODELS, OURS, OURS_NO_INTERACTIONS, named
 from reval.data.store import Store
 from reval.plain import records
 from reval.stats.study import run_study
 from reval.results import FitSummary
 
 Progress = Callable[[str, int, int], None]
-LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "duckdb", "joblib")
-OURS, OURS_NO_INTERACTIONS = "additive_with_interactions", "additive_no_interactions"
+LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "pygam", "duckdb", "joblib")
 
 
 def _versions() -> dict[str, str]:
@@ -104,10 +105,10 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         for source in ("model_out_of_fold", "model_in_sample"):
             for by in ("segment", "market_area", "class", "all"):
                 run_study(store, config, source, by, run_id)
-    overall = accuracy[accuracy["segment"] == "(all)"] if len(accuracy) else accuracy
+    overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings,
-            "accuracy": records(overall.drop(columns=["segment"], errors="ignore"))}
+            "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
 
 
 def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
@@ -125,8 +126,9 @@ def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_are
     predictions = {OURS: oof, OURS_NO_INTERACTIONS: plain, **predictions}
     seconds = {OURS: timings["out_of_fold"], OURS_NO_INTERACTIONS: plain_seconds, **seconds}
     table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)
-    booster = factories["gradient_boosting"]().fit(sales.X, y, segment)
-    importance = permutation_importance(booster, sales.X, y, segment, seed=settings.seed)
+    importance = pd.concat([
+        permutation_importance(factories[name]().fit(sales.X, y, segment), sales.X, y, segment, seed=settings.seed)
+        .assign(model=name) for name in IMPORTANCE_MODELS], ignore_index=True)
     timings["references"] = time.perf_counter() - start
     if progress:
         progress("reference models", 2, 2)
