@@ -108,10 +108,12 @@ def copy_project(source: Path, target: Path) -> Path:
     return target
 
 
-def run_reval(*args: str | bytes, cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
-    """The `reval` command as a user runs it: a real subprocess with a bare environment."""
+def run_reval(*args: str | bytes, cwd: Path | None = None, columns: int | None = None) -> subprocess.CompletedProcess[str]:
+    """The `reval` command as a user runs it: a real subprocess with a bare environment (`columns`: the
+    terminal width rich lays its tables out for, so long names are not wrapped)."""
+    width = {"COLUMNS": str(columns)} if columns else {}
     return subprocess.run([sys.executable, "-m", "reval.cli", *args], capture_output=True, text=True, cwd=cwd,
-                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home()), "PYTHONPATH": str(ROOT)})
+                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home()), "PYTHONPATH": str(ROOT)} | width)
 
 
 # ---- reading a database ------------------------------------------------------------------------------------------

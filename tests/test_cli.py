@@ -50,3 +50,16 @@ def test_init_then_missing_files_is_a_user_error(tmp_path: Path) -> None:
     assert reval("init", str(tmp_path / "p")).returncode == 0
     done = reval("import", "--project", str(tmp_path / "p"))
     assert done.returncode == 1 and "files.parcels" in done.stderr
+
+
+def test_compare_lists_every_model_by_its_display_name(demo_project: Path) -> None:
+    shown = reval("compare", "--project", str(demo_project), columns=200)
+    assert shown.returncode == 0, shown.stderr
+    for name in ("reval: additive + interactions, pooled", "OLS per neighbourhood", "OLS with squares and products",
+                 "plain additive model (pygam)", "gradient boosting", "random forest"):
+        assert name in shown.stdout
+    assert "hedonic_ols" not in shown.stdout                         # ids are for the JSON
+    assert "What the random forest reference relies on" in shown.stdout
+    data = json.loads(reval("compare", "--project", str(demo_project), "--json").stdout)
+    assert {(r["model"], r["model_name"]) for r in data["rows"]} >= {("plain_gam", "plain additive model (pygam)"),
+                                                                     ("random_forest", "random forest")}

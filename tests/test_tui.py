@@ -24,6 +24,8 @@ from reval.service import actions, views
 from reval.data.config import load_config
 from reval.data.store import open_store
 from reval.stats.sources import SOURCE_LABELS
+from reval.model.names import MODEL_NAMES, model_name
+from reval.stats import ratio_stats
 from reval.stats.stored import load_study
 from tui import keys
 from tui.app import RevalApp
@@ -506,3 +508,38 @@ def test_braille_cells_follow_the_unicode_dot_numbering() -> None:
         mask[r, c] = True
         assert int(braille(mask)[0, 0]) == bit
     assert chr(0x2800 + int(braille(np.ones((4, 2), dtype=bool))[0, 0])) == "⣿"
+
+
+def test_reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_demo: Path) -> None:
+    asyncio.run(_reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_demo))
+
+
+async def _reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_demo: Path) -> None:
+    # The finding: the tab said "on the same folds" but scored reval on the ratio study's trimmed sales and
+    # the references on all of them (10.4 vs 13.0 COD on identical RMSE and median). Take the segment whose
+    # out-of-fold study trimmed the most sales, so trimmed and untrimmed figures must differ there.
+    segment = max(oof_study(fitted_demo)["groups"], key=lambda g: g["n_trimmed"])
+    assert segment["n_trimmed"] > 0
+    name = segment["group"]
+    sold = query_frame(fitted_demo, """SELECT m.oof_log, a.adjusted_price FROM sale_predictions m
+                                       JOIN adjusted_sales a USING (sale_id, parcel_id) JOIN parcels p USING (parcel_id)
+                                       WHERE m.run_id = ? AND p.segment = ?""", [PINNED_RUN, name])
+    # Independent figure: reval's out-of-fold values over every one of the segment's sales, no trimming,
+    # by the one implementation of COD (IAAO Standard on Ratio Studies definition).
+    ours = ratio_stats.cod(ratio_stats.ratios(np.exp(sold["oof_log"].to_numpy()), sold["adjusted_price"].to_numpy()))
+    stored = query_frame(fitted_demo, "SELECT model, cod FROM reference_accuracy WHERE run_id = ? AND segment = ?",
+                         [PINNED_RUN, name])
+    expected = sorted(f"{c:.1f}" for c in stored["cod"])
+    assert f"{ours:.1f}" in expected
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, name)
+        await pilot.press("enter")
+        await settle(pilot)
+        await pilot.press("6")
+        rows = [r for r in table_rows(app.screen.query_one("#reference-table", DataTable)) if r[1] == name]
+    # Every row: the same sales (n) and the COD its model earns on all of them.
+    assert {r[2] for r in rows} == {f"{len(sold):,}"}
+    assert sorted(r[5] for r in rows) == expected
+    assert [r[0] for r in rows] == [model_name(m) for m in MODEL_NAMES if m in set(stored["model"])]

@@ -111,23 +111,31 @@ def study(result: dict[str, Any], console: Console) -> None:
     console.print(CAUTION)
 
 
+def _by_name(rows: list[dict[str, Any]], *drop: str) -> list[dict[str, Any]]:
+    """Rows for a human reader: the model's display name stands for its id (the JSON keeps both)."""
+    return [{k: v for k, v in r.items() if k not in ("model", *drop)} for r in rows]
+
+
 def fit(result: dict[str, Any], console: Console) -> None:
     console.print(f"Run {result['run_id']}: {result['sales']:,} sales, {result['segments']} segments, "
                   f"{result['parcels']:,} parcels valued")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
-    records_table("Out-of-fold accuracy, whole jurisdiction (same folds for every model)", result["accuracy"],
-                  console)
+    records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
+                  _by_name(result["accuracy"]), console)
     console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)
 
 
 def compare(result: dict[str, Any], console: Console) -> None:
     rows = result["rows"]
     for segment in dict.fromkeys(r["segment"] for r in rows):
-        records_table(f"{segment}: out-of-fold accuracy by model (run {result['run_id']})",
-                      [{k: v for k, v in r.items() if k != "segment"} for r in rows if r["segment"] == segment],
+        records_table(f"{segment}: out-of-fold accuracy by model, same sales and folds, none trimmed "
+                      f"(run {result['run_id']})", _by_name([r for r in rows if r["segment"] == segment], "segment"),
                       console)
-    records_table("What the gradient-boosting reference relies on (permutation importance)",
-                  result["gradient_boosting_importance"], console)
+    for model, name in result["model_names"].items():
+        shown = _by_name([r for r in result["importance"] if r["model"] == model], "model_name")
+        if shown:
+            records_table(f"What the {name} reference relies on (permutation importance: rise in RMSE of log "
+                          "price when the feature is shuffled)", shown, console)
 
 
 # ---- the value roll --------------------------------------------------------------------------------------------

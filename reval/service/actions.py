@@ -103,15 +103,17 @@ def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None)
 
 
 def compare(folder: Path, run_id: str | None = None) -> CompareResult:
-    """The reference models' accuracy beside ours, per segment and overall, for a run."""
+    """Every model's out-of-fold accuracy on the same sales and folds, per segment and overall, with display
+    names, and the permutation importance of the references that store it, for a run."""
+    from reval.model.names import named
     from reval.roll.valuation import resolve_run
 
     with open_project(folder) as (_, store):
         run = resolve_run(store, run_id)
-        rows = store.records("reference_accuracy_rows", [run])
-        importance = store.records("feature_importance_rows", [run])
-    return {"run_id": run, "models": sorted({r["model"] for r in rows}), "rows": rows,
-            "gradient_boosting_importance": importance}
+        rows = named(store.records("reference_accuracy_rows", [run]), group="segment")
+        importance = named(store.records("feature_importance_rows", [run]))
+    return {"run_id": run, "models": list(dict.fromkeys(r["model"] for r in rows)),
+            "model_names": {r["model"]: r["model_name"] for r in rows}, "rows": rows, "importance": importance}
 
 
 # ---- the value roll --------------------------------------------------------------------------------------------

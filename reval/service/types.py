@@ -30,12 +30,14 @@ class DemoSummary(TypedDict):
 
 
 class CompareResult(TypedDict):
-    """Every model's out-of-fold accuracy on the same folds, per segment and overall, and what boosting uses."""
+    """Every model's out-of-fold accuracy on the same sales and folds, per segment and overall (rows carry the
+    model id and its display name), and each tree reference's permutation importance (rows per model)."""
 
     run_id: str
     models: list[str]
+    model_names: dict[str, str]
     rows: list[Record]
-    gradient_boosting_importance: list[Record]
+    importance: list[Record]
 
 
 class Event(TypedDict):
@@ -152,7 +154,6 @@ class SegmentDetail(TypedDict):
     equity: Equity
     value_change: ValueChange | None
     reference_accuracy: list[Record]
-    oof_accuracy: Record | None
     state: BatchState | None
     review: SegmentReview | None
 

@@ -16,6 +16,7 @@ from reval.data.config import Config
 from reval.data.store import Store
 from reval.errors import UserError
 from reval.model import BASE_TERM
+from reval.model.names import named
 from reval.roll import batch_states
 from reval.roll.batch_states import state_of
 from reval.roll.split import value_split
@@ -243,8 +244,7 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "marginal_effects": store.records("app_marginal_effects", [run_id, segment]) if run_id else [],
             "equity": _equity(store, run_id, study, segment, max_points),
             "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
-            "reference_accuracy": store.records("app_reference_accuracy", [run_id, segment]) if run_id else [],
-            "oof_accuracy": store.records("app_oof_accuracy", [run_id, segment])[0] if run_id else None,
+            "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
             "state": state, "review": _review(store, config, segment) if state else None,
         }
 

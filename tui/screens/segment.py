@@ -337,17 +337,12 @@ class SegmentScreen(DataScreen):
         if not d["reference_accuracy"]:
             title.update(NO_RUN if d["run_id"] is None else "No reference models were scored in this run.")
             return
-        title.update("Out-of-fold accuracy on the same folds: what the interpretable model costs or gains. "
-                     "RMSE is of log value (lower is better).")
+        n = d["reference_accuracy"][0]["n"]
+        title.update(f"Every model out of fold on the same sales ({n:,} here) and folds, none trimmed; the ratio "
+                     "study trims outliers, so its COD differs. RMSE is of log value: lower is better.")
         table.add_columns("Model", "Scope", "n", "RMSE log", "Median", "COD", "PRD", "PRB")
-        e, own = d["equity"]["stats"], d["oof_accuracy"] or {}
-        label = "this model" if d["equity"]["model_values"] else "prior values"
-        table.add_row(label, self.segment, f"{d['equity']['n']:,}", number(own.get("rmse_log"), ".3f"),
-                      number(e["median_ratio"]["value"], ".3f"),
-                      number(e["cod"]["value"], ".1f"), number(e["prd"]["value"], ".3f"),
-                      number(e["prb"]["value"], "+.3f"))
         for r in d["reference_accuracy"]:
-            table.add_row(r["model"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
+            table.add_row(r["model_name"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
                           number(r["median_ratio"], ".3f"), number(r["cod"], ".1f"), number(r["prd"], ".3f"),
                           number(r["prb"], "+.3f"))
 
