@@ -13,11 +13,15 @@ a segment the sales-chasing way (sold parcels at their time-adjusted price, unso
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 import json
+import os
 import shutil
 import subprocess
 import sys
 import textwrap
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -108,12 +112,45 @@ def copy_project(source: Path, target: Path) -> Path:
     return target
 
 
-def run_reval(*args: str | bytes, cwd: Path | None = None, columns: int | None = None) -> subprocess.CompletedProcess[str]:
-    """The `reval` command as a user runs it: a real subprocess with a bare environment (`columns`: the
-    terminal width rich lays its tables out for, so long names are not wrapped)."""
+# ---- other processes ---------------------------------------------------------------------------------------------
+
+CHILD_ENV = {"PATH": "/usr/bin:/bin", "HOME": str(Path.home()), "PYTHONPATH": str(ROOT)}
+
+
+def run_reval(*args: str | bytes, cwd: Path | None = None, columns: int | None = None,
+              env: dict[str, str] | None = None) -> subprocess.CompletedProcess[str]:
+    """The `reval` command as a user runs it: a real subprocess with a bare environment plus `env`
+    (`columns`: the terminal width rich lays its tables out for, so long names are not wrapped)."""
     width = {"COLUMNS": str(columns)} if columns else {}
     return subprocess.run([sys.executable, "-m", "reval.cli", *args], capture_output=True, text=True, cwd=cwd,
-                          env={"PATH": "/usr/bin:/bin", "HOME": str(Path.home()), "PYTHONPATH": str(ROOT)} | width)
+                          env={**CHILD_ENV, **width, **(env or {})})
+
+
+@contextmanager
+def held_by_child(folder: Path, write: bool = True, seconds: float = 120.0) -> Iterator[subprocess.Popen[str]]:
+    """A child process that opens the project (for writing, or read-only as the app does), pretending to be
+    `reval fit` / `reval tui`, and holds it for `seconds` or until the block ends."""
+    code = ("import sys, time; from pathlib import Path; from reval.service.project import open_project\n"
+            "folder, write, seconds = Path(sys.argv[1]), sys.argv[2] == 'w', float(sys.argv[3])\n"
+            "sys.argv = ['reval', 'fit' if write else 'tui']\n"
+            "with open_project(folder, write=write):\n"
+            "    print('held', flush=True); time.sleep(seconds)\n")
+    child = subprocess.Popen([sys.executable, "-c", code, str(folder), "w" if write else "r", str(seconds)],
+                             stdout=subprocess.PIPE, text=True, env=CHILD_ENV)
+    try:
+        assert child.stdout is not None and child.stdout.readline().strip() == "held"
+        yield child
+    finally:
+        if child.poll() is None:
+            child.kill()
+        child.wait()
+
+
+def sigkill(child: subprocess.Popen[Any]) -> None:
+    """Kill a child at once (SIGKILL: no clean-up runs) and reap it."""
+    if child.poll() is None:
+        os.kill(child.pid, 9)
+    child.wait()
 
 
 # ---- reading a database ------------------------------------------------------------------------------------------
@@ -138,6 +175,33 @@ def query_frame(folder: Path, sql: str, params: list | None = None):
         return con.execute(sql, params or []).df()
     finally:
         con.close()
+
+
+# ---- an exported roll ------------------------------------------------------------------------------------------------
+
+def roll_agrees(out: Path) -> bool:
+    """A reader's check: a roll is there only with its own manifest beside it (its sha256 named there)."""
+    manifest = out.with_name(out.stem + ".manifest.json")
+    if not out.exists():
+        return True
+    return manifest.exists() and json.loads(manifest.read_text())["sha256"] == hashlib.sha256(out.read_bytes()).hexdigest()
+
+
+def export_state(folder: Path, out: Path) -> str:
+    """'before' (nothing exported, nothing on disk) or 'after' (roll, manifest, event and batch states agree);
+    anything else fails the test. No publication is left pending and no temporary file is left over."""
+    manifest = out.with_name(out.stem + ".manifest.json")
+    exported = query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0]
+    marked = query_frame(folder, "SELECT count(*) AS n FROM events WHERE kind = 'batch_exported'")["n"][0]
+    events = query_frame(folder, "SELECT detail->>'$.sha256' AS sha FROM events WHERE kind = 'roll_exported'")
+    assert query_frame(folder, "SELECT count(*) AS n FROM publications")["n"][0] == 0
+    assert not list(out.parent.glob(".*.partial"))
+    if not out.exists() and not manifest.exists() and exported == 0 and events.empty:
+        return "before"
+    sha = hashlib.sha256(out.read_bytes()).hexdigest()
+    assert json.loads(manifest.read_text())["sha256"] == sha
+    assert events["sha"].tolist() == [sha] and exported == marked > 0
+    return "after"
 
 
 # ---- fixture runs ---------------------------------------------------------------------------------------------------

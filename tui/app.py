@@ -15,6 +15,7 @@ from textual.worker import Worker, WorkerState, get_current_worker
 
 from reval.service import UserError, actions, views
 from reval.service.types import Overview
+from reval.service.wording import shown
 
 from . import keys
 from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, Status
@@ -135,6 +136,7 @@ class RevalApp(App[None]):
 
     def report(self, text: str, severity: str = "information") -> None:
         """Show an outcome in the status bar (and as a notification), and keep it in the message log."""
+        text = shown(text, lines=True)
         self.messages.append((severity, text))
         self.status = Status(text, severity)
         if severity != "information":

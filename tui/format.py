@@ -1,11 +1,14 @@
 """How numbers and verdicts read on screen: never colour alone, always a symbol or word too."""
 from __future__ import annotations
 
+from typing import Any
+
+from rich.text import Text
 
 from reval.service.types import OverviewRow, StatCell
-from reval.service.wording import CAUTION, money, percent, signed_money
+from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown, signed_money
 
-__all__ = ["CAUTION", "money", "percent", "signed_money"]
+__all__ = ["CAUTION", "NAME_WIDTH", "money", "percent", "shown", "signed_money"]
 
 MARKS = {"pass": "✓", "fail": "✗ FAIL", "too_few_sales": "~ few"}
 SHORT_MARKS = {"pass": "✓", "fail": "✗", "too_few_sales": "~"}
@@ -66,3 +69,9 @@ def gate_detail(stats: dict[str, StatCell], model_values: bool) -> str:
     verdict = ("Not all pass: the core refuses approval without a note; with a note it approves over them "
                "and stores the note." if failing else "All pass: a note is optional.")
     return f"Out-of-fold statistics: {marks}. {verdict}"
+
+
+def cells(*values: Any) -> list[Any]:
+    """A DataTable row as the app shows it: each text a plain Text (DataTable reads a str as markup) with
+    control characters removed and cut to NAME_WIDTH cells (reval.service.wording.shown); styled Text kept."""
+    return [Text(shown(v, NAME_WIDTH), end="") if isinstance(v, str) else v for v in values]

@@ -12,7 +12,7 @@ from pathlib import Path
 from reval.cli import render
 from reval.errors import UserError
 from reval.service import actions
-from reval.service.wording import CAUTION
+from reval.service.wording import CAUTION, shown
 
 
 def _folder(args: argparse.Namespace) -> Path:
@@ -164,14 +164,19 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _say(text: str) -> None:
+    print("\n".join(f"reval: {shown(line)}" if i == 0 else shown(line)
+                    for i, line in enumerate(text.splitlines() or [""])), file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     try:
         args.func(args)
     except UserError as exc:
-        print(f"reval: {exc}", file=sys.stderr)
+        _say(str(exc))
         return 1
     except KeyboardInterrupt:
-        print("reval: interrupted; nothing was changed by the unfinished step", file=sys.stderr)
+        _say("interrupted; nothing was changed by the unfinished step")
         return 1
     return 0

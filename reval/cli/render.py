@@ -1,4 +1,8 @@
-"""How each command's result reads on a terminal (rich), and the JSON form of `--json`."""
+"""How each command's result reads on a terminal (rich), and the JSON form of `--json`.
+
+Data is never markup: the console interprets no markup at all (styled words are rich Text objects), and
+every name, id, note or path printed goes through `shown` (control characters removed, long names cut in
+tables)."""
 from __future__ import annotations
 
 import argparse
@@ -11,19 +15,31 @@ from typing import Any
 from rich.console import Console
 from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
+from rich.text import Text
 
-from reval.service.wording import CAUTION, money, percent
+from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
 
 
+def console(stderr: bool = False) -> Console:
+    """A console that never reads markup in what it prints."""
+    return Console(stderr=stderr, markup=False)
+
+
+def name(value: Any) -> str:
+    """A user-provided name as printed in a sentence or a table cell (reval.service.wording.shown)."""
+    return shown(value, NAME_WIDTH)
+
+
 def emit(args: argparse.Namespace, result: Any, render: Render) -> None:
-    """Print a command's result: JSON with --json, else the human rendering."""
+    """Print a command's result: JSON with --json (control characters escaped by JSON), else the human
+    rendering."""
     if getattr(args, "json", False):
         print(json.dumps(result, indent=2, default=str))
     else:
-        render(result, Console())
+        render(result, console())
 
 
 @contextmanager
@@ -33,7 +49,7 @@ def progress_bar(args: argparse.Namespace) -> Iterator[Callable[[str, int, int],
         yield None
         return
     with Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
-                  TimeElapsedColumn(), console=Console(stderr=True), transient=True) as bar:
+                  TimeElapsedColumn(), console=console(stderr=True), transient=True) as bar:
         tasks: dict[str, Any] = {}
 
         def update(step: str, done: int, total: int) -> None:
@@ -45,12 +61,12 @@ def progress_bar(args: argparse.Namespace) -> Iterator[Callable[[str, int, int],
 
 
 def table(title: str, columns: list[str], rows: list[list[str]], console: Console) -> None:
-    """A titled table, the first column left-aligned and the rest right-aligned."""
+    """A titled table, the first column left-aligned and the rest right-aligned; cells as `name` shows them."""
     out = Table(title=title)
-    for i, name in enumerate(columns):
-        out.add_column(name, justify="left" if i == 0 else "right")
+    for i, column in enumerate(columns):
+        out.add_column(column, justify="left" if i == 0 else "right")
     for row in rows:
-        out.add_row(*row)
+        out.add_row(*(name(cell) for cell in row))
     console.print(out)
 
 
@@ -61,9 +77,9 @@ def records_table(title: str, rows: list[dict[str, Any]], console: Console) -> N
         return
     out = Table(title=title)
     for key in rows[0]:
-        out.add_column(str(key), justify="right" if isinstance(rows[0][key], (int, float)) else "left")
+        out.add_column(name(key), justify="right" if isinstance(rows[0][key], (int, float)) else "left")
     for row in rows:
-        out.add_row(*("" if v is None else f"{v:,.4g}" if isinstance(v, float) else str(v) for v in row.values()))
+        out.add_row(*("" if v is None else f"{v:,.4g}" if isinstance(v, float) else name(v) for v in row.values()))
     console.print(out)
 
 
@@ -76,7 +92,7 @@ def imported(r: dict[str, Any], console: Console) -> None:
 
 
 def demo_summary(summary: dict[str, Any], console: Console) -> None:
-    console.print(f"[bold]{summary['jurisdiction']}[/bold] — project folder {summary['folder']}")
+    console.print(Text.assemble((name(summary["jurisdiction"]), "bold"), f" — project folder {shown(summary['folder'])}"))
     console.print(f"{summary['parcels']:,} parcels, {summary['sales']:,} sales, {summary['segments']} neighbourhoods "
                   f"in {summary['market_areas']} market areas")
     for step in summary.get("steps", []):
@@ -87,7 +103,7 @@ def demo_summary(summary: dict[str, Any], console: Console) -> None:
 def sales(result: dict[str, Any], console: Console) -> None:
     console.print(f"{result['qualified']:,} qualified sales; {result['excluded']:,} excluded:")
     for reason, n in sorted(result["excluded_by_reason"].items(), key=lambda kv: -kv[1]):
-        console.print(f"  {n:>6,}  {reason}")
+        console.print(f"  {n:>6,}  {shown(reason)}")
     records_table("Sales per segment", [{"segment": s["segment"], "qualified": s["qualified"],
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
 
@@ -97,7 +113,7 @@ def sales(result: dict[str, Any], console: Console) -> None:
 def study(result: dict[str, Any], console: Console) -> None:
     console.print(f"Ratio study of {result['values']}, by {result['by']}")
     if "warning" in result:
-        console.print(f"[bold]Warning:[/bold] {result['warning']}")
+        console.print(Text.assemble(("Warning:", "bold"), " ", shown(result["warning"])))
 
     def cell(g: dict[str, Any], stat: str, fmt: str) -> str:
         value, verdict = g[stat], g["verdicts"][stat]
@@ -117,7 +133,7 @@ def _by_name(rows: list[dict[str, Any]], *drop: str) -> list[dict[str, Any]]:
 
 
 def fit(result: dict[str, Any], console: Console) -> None:
-    console.print(f"Run {result['run_id']}: {result['sales']:,} sales, {result['segments']} segments, "
+    console.print(f"Run {name(result['run_id'])}: {result['sales']:,} sales, {result['segments']} segments, "
                   f"{result['parcels']:,} parcels valued")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
@@ -128,20 +144,20 @@ def fit(result: dict[str, Any], console: Console) -> None:
 def compare(result: dict[str, Any], console: Console) -> None:
     rows = result["rows"]
     for segment in dict.fromkeys(r["segment"] for r in rows):
-        records_table(f"{segment}: out-of-fold accuracy by model, same sales and folds, none trimmed "
-                      f"(run {result['run_id']})", _by_name([r for r in rows if r["segment"] == segment], "segment"),
+        records_table(f"{name(segment)}: out-of-fold accuracy by model, same sales and folds, none trimmed "
+                      f"(run {name(result['run_id'])})", _by_name([r for r in rows if r["segment"] == segment], "segment"),
                       console)
-    for model, name in result["model_names"].items():
-        shown = _by_name([r for r in result["importance"] if r["model"] == model], "model_name")
-        if shown:
-            records_table(f"What the {name} reference relies on (permutation importance: rise in RMSE of log "
-                          "price when the feature is shuffled)", shown, console)
+    for model, model_name in result["model_names"].items():
+        importance = _by_name([r for r in result["importance"] if r["model"] == model], "model_name")
+        if importance:
+            records_table(f"What the {model_name} reference relies on (permutation importance: rise in RMSE of "
+                          "log price when the feature is shuffled)", importance, console)
 
 
 # ---- the value roll --------------------------------------------------------------------------------------------
 
 def staged(r: dict[str, Any], console: Console) -> None:
-    console.print(f"Run {r['run_id']}: staged {len(r['staged'])} batch(es); "
+    console.print(f"Run {name(r['run_id'])}: staged {len(r['staged'])} batch(es); "
                   f"{len(r['unchanged'])} segment(s) already hold a batch of this run.")
     if r["land_schedule"] is None:
         console.print("No land schedule configured: land and improvement are not allocated.")
@@ -150,7 +166,7 @@ def staged(r: dict[str, Any], console: Console) -> None:
             "-" if s["replaced_batch_id"] is None else f"{s['replaced_batch_id']} ({s['replaced_state']})"]
            for s in r["staged"]], console)
     for flag, n in r["flags"].items():
-        console.print(f"  {n:>8,}  parcels flagged {flag}")
+        console.print(f"  {n:>8,}  parcels flagged {shown(flag)}")
 
 
 def review(r: dict[str, Any], console: Console) -> None:
@@ -165,31 +181,32 @@ def review(r: dict[str, Any], console: Console) -> None:
     for s in r["segments"]:
         chase = s["sales_chasing"]
         if chase["flagged"]:
-            console.print(f"[bold]{s['segment']}: possible sales chasing[/bold] — median change sold "
-                          f"{percent(chase['median_change_sold'])} vs unsold {percent(chase['median_change_unsold'])}, "
-                          f"Mann-Whitney U p = {chase['p_value']:.2g} ({chase['rule']}).")
+            console.print(Text.assemble((f"{name(s['segment'])}: possible sales chasing", "bold"),
+                                        f" — median change sold {percent(chase['median_change_sold'])} vs unsold "
+                                        f"{percent(chase['median_change_unsold'])}, Mann-Whitney U p = "
+                                        f"{chase['p_value']:.2g} ({chase['rule']})."))
         if s["beyond_threshold"] and len(r["segments"]) == 1:
-            table(f"{s['segment']}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
+            table(f"{name(s['segment'])}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
                   ["parcel", "class", "prior", "new", "change"],
                   [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
                     percent(p["change"])] for p in s["beyond_threshold"]], console)
 
 
 def decision(r: dict[str, Any], console: Console) -> None:
-    console.print(f"{r['segment']}: batch {r['batch_id']} (run {r['run_id']}) is now {r['state']}.")
+    console.print(f"{name(r['segment'])}: batch {r['batch_id']} (run {name(r['run_id'])}) is now {r['state']}.")
     if r.get("override"):
-        console.print(f"Approved over failing statistics ({'; '.join(r['failed'])}); note stored: {r['note']}")
+        console.print(f"Approved over failing statistics ({'; '.join(r['failed'])}); note stored: {shown(r['note'])}")
     elif r.get("note"):
-        console.print(f"Note stored: {r['note']}")
+        console.print(f"Note stored: {shown(r['note'])}")
 
 
 def exported(r: dict[str, Any], console: Console) -> None:
-    console.print(f"Wrote {r['rows']:,} parcels to {r['path']} (sha256 {r['sha256'][:16]}...); "
-                  f"manifest {r['manifest']}.")
+    console.print(f"Wrote {r['rows']:,} parcels to {shown(r['path'])} (sha256 {r['sha256'][:16]}...); "
+                  f"manifest {shown(r['manifest'])}.")
     if r["not_approved"]:
-        console.print(f"Partial roll: not approved and left out: {', '.join(r['not_approved'])}.")
+        console.print(f"Partial roll: not approved and left out: {', '.join(map(name, r['not_approved']))}.")
     if r["pending_newer_batches"]:
-        console.print(f"Newer batches await review in: {', '.join(r['pending_newer_batches'])}.")
+        console.print(f"Newer batches await review in: {', '.join(map(name, r['pending_newer_batches']))}.")
 
 
 def log(r: dict[str, Any], console: Console) -> None:

@@ -14,8 +14,9 @@ from reval.service import views
 from reval.service.types import Overview, OverviewRow
 
 from .. import keys
-from ..format import CAUTION, LEGEND, gate_detail, model_cell, percent, stat_cell
+from ..format import CAUTION, LEGEND, cells, gate_detail, model_cell, percent, shown, stat_cell
 from ..jobs import Loaded, StatusBar
+from ..plain import Plain
 from .base import DataScreen, footer
 
 # (sort key, header label); the table shows them in this order (the most used first, for 80 columns).
@@ -46,8 +47,8 @@ class OverviewScreen(DataScreen):
 
     def compose(self) -> ComposeResult:
         yield Header()
-        yield Static("Reading the project…", id="stats-header")
-        yield Static("", id="filters")
+        yield Plain("Reading the project…", id="stats-header")
+        yield Plain("", id="filters")
         yield Static(LEGEND, id="legend")
         yield DataTable(id="segments", cursor_type="row", zebra_stripes=True)
         yield Input(placeholder="segment name (Enter keeps it, Esc clears it)", id="search")
@@ -71,7 +72,7 @@ class OverviewScreen(DataScreen):
         if message.tag != "overview":
             return
         self.data = message.data
-        self.app.title = self.data["jurisdiction"]
+        self.app.title = shown(self.data["jurisdiction"], 80)
         self.app.sub_title = f"valuation date {self.data['valuation_date']}"
         run = self.data["run_id"]
         hint = "" if run else " · no model run yet — press f to fit"
@@ -97,7 +98,7 @@ class OverviewScreen(DataScreen):
         table.clear()
         colours = self.app.theme_variables
         for row in self.shown:
-            table.add_row(*self._cells(row, colours), key=row["segment"])
+            table.add_row(*cells(*self._cells(row, colours)), key=row["segment"])
         self._label_columns(table)
         if keep is not None and any(r["segment"] == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))

@@ -12,8 +12,9 @@ from reval.service import views
 from reval.service.types import ParcelDetail, Record
 
 from .. import keys
-from ..format import CAUTION, money, number, percent, signed_money
+from ..format import CAUTION, cells, money, number, percent, signed_money
 from ..jobs import Loaded, StatusBar
+from ..plain import Plain
 from .base import DataScreen, footer
 
 
@@ -36,18 +37,18 @@ class ParcelScreen(DataScreen):
 
     def compose(self) -> ComposeResult:
         yield Header()
-        yield Static(f"Parcel {self.parcel_id}: reading…", id="parcel-title", markup=False)
+        yield Plain(f"Parcel {self.parcel_id}: reading…", id="parcel-title")
         with VerticalScroll(id="parcel-body"):
             with Horizontal(id="parcel-top"):
                 yield DataTable(id="parcel-value", cursor_type="none", show_cursor=False)
                 yield DataTable(id="parcel-features", cursor_type="none", show_cursor=False)
             yield Static("Contributions", classes="section")
             yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
-            yield Static("", id="parcel-parts-note", markup=False)
+            yield Plain("", id="parcel-parts-note")
             yield Static("Sales", classes="section")
             yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
             yield Static("Flags", classes="section")
-            yield Static("", id="parcel-flags", markup=False)
+            yield Plain("", id="parcel-flags")
         yield Static(CAUTION, id="caution")
         yield StatusBar()
         yield footer()
@@ -74,7 +75,7 @@ class ParcelScreen(DataScreen):
         features.clear(columns=True)
         features.add_columns("Feature", "Value")
         for f in d["features"]:
-            features.add_row(f["name"], feature_text(f))
+            features.add_row(*cells(f["name"], feature_text(f)))
         self._parts(d)
         self._sales(d)
         flags = d["flags"]
@@ -86,15 +87,15 @@ class ParcelScreen(DataScreen):
         table.clear(columns=True)
         table.add_columns("Value", "Amount")
         estimate = d["estimate"]
-        table.add_row("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)")
-        table.add_row("Prior value", money(d["prior_value"]))
-        table.add_row("Change", percent(d["value_change"]))
+        table.add_row(*cells("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)"))
+        table.add_row(*cells("Prior value", money(d["prior_value"])))
+        table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
-            table.add_row("Model", f"{estimate['kind']}, run {d['run_id']}")
+            table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
         for r in d["roll"][:1]:
-            table.add_row(f"Roll: batch {r['batch_id']}", r["state"])
+            table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
             for name in ("market", "land", "improvement", "assessed"):
-                table.add_row(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"]))
+                table.add_row(*cells(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"])))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -105,13 +106,13 @@ class ParcelScreen(DataScreen):
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
         table.add_columns("Part", "Log value", "Value", "% of value")
-        table.add_row("base (the segment's average parcel)", number(split["base_log"], ".4f"),
-                      money(split["base"]), "")
+        table.add_row(*cells("base (the segment's average parcel)", number(split["base_log"], ".4f"),
+                      money(split["base"]), ""))
         for p in split["parts"]:
-            table.add_row(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
-                          percent(p["currency"] / split["value"]))
+            table.add_row(*cells(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
+                          percent(p["currency"] / split["value"])))
         total = split["base"] + sum(p["currency"] for p in split["parts"])
-        table.add_row("= value", number(estimate["log_value"], ".4f"), money(total), "")
+        table.add_row(*cells("= value", number(estimate["log_value"], ".4f"), money(total), ""))
         note.update(f"The parts add up to the value exactly ({money(total)}). The log parts add up to the "
                     "log value; the value beyond the base is shared in proportion to them.")
 
@@ -120,11 +121,11 @@ class ParcelScreen(DataScreen):
         table.clear(columns=True)
         table.add_columns("Sale", "Date", "Price", "Adjusted", "Qualified", "Ratio (out-of-fold)")
         for s in d["sales"]:
-            table.add_row(s["sale_id"], s["sale_date"], money(s["sale_price"]), money(s["adjusted_price"]),
+            table.add_row(*cells(s["sale_id"], s["sale_date"], money(s["sale_price"]), money(s["adjusted_price"]),
                           "yes" if s["qualified"] else f"no: {s['reason'] or 'not checked yet'}",
-                          number(s["oof_ratio"], ".3f"))
+                          number(s["oof_ratio"], ".3f")))
         if not d["sales"]:
-            table.add_row("no recorded sale", "", "", "", "", "")
+            table.add_row(*cells("no recorded sale", "", "", "", "", ""))
 
     def action_back(self) -> None:
         self.dismiss()

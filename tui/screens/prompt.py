@@ -10,6 +10,8 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Checkbox, Input, Label, Static
 
+from reval.service.wording import shown
+
 
 class PromptScreen(ModalScreen[str | None]):
     """Ask for one line; Enter returns it (refused when empty and required), Esc returns None."""
@@ -25,7 +27,7 @@ class PromptScreen(ModalScreen[str | None]):
 
     def compose(self) -> ComposeResult:
         with Vertical(id="dialog"):
-            yield Label(self.title_text, id="prompt-title")
+            yield Label(shown(self.title_text), id="prompt-title", markup=False)
             if self.detail:
                 yield Static(self.detail, id="prompt-detail", markup=False)
             yield Input(self.value, placeholder=self.placeholder, id="prompt-input")

@@ -14,13 +14,16 @@ from reval.service.types import Curve, SalesPage, SegmentDetail, SegmentReview
 
 from .. import keys
 from ..format import (
+    NAME_WIDTH,
     STAT_NAMES,
+    cells,
     ci_text,
     gate_detail,
     money,
     number,
     percent,
     short_money,
+    shown,
     signed_money,
     stat_cell,
 )
@@ -35,6 +38,7 @@ from ..plot import (
     LevelBars,
     percent_axis,
 )
+from ..plain import Plain
 from .base import DataScreen, footer
 
 TABS = ("curves", "effects", "equity", "change", "sales", "reference")
@@ -81,7 +85,7 @@ def level_bars(c: Curve) -> list[LevelBar]:
         i = int(x)
         name = labels[i] if i < len(labels) else axis_number(x)
         n = counts[i] if i < len(counts) else 0
-        out.append(LevelBar(f"{name} (n={n:,})", pct(e) or 0.0, pct(lo), pct(hi), pct(p)))
+        out.append(LevelBar(f"{shown(name, NAME_WIDTH // 2)} (n={n:,})", pct(e) or 0.0, pct(lo), pct(hi), pct(p)))
     return out
 
 
@@ -114,23 +118,23 @@ class SegmentScreen(DataScreen):
 
     def compose(self) -> ComposeResult:
         yield Header()
-        yield Static(f"Segment {self.segment}: reading…", id="segment-title", markup=False)
-        yield Static("", id="segment-model", markup=False)
+        yield Plain(f"Segment {self.segment}: reading…", id="segment-title")
+        yield Plain("", id="segment-model")
         with TabbedContent(id="tabs"):
             with TabPane("1 Curves", id="curves"):
-                yield Static("", id="curve-title", markup=False)
+                yield Plain("", id="curve-title")
                 yield Chart(id="curve-chart")
                 yield LevelBars(id="curve-levels")
             with TabPane("2 Effects", id="effects"):
                 with VerticalScroll():
                     yield Static("Selected interactions", classes="section")
                     yield DataTable(id="interactions", cursor_type="row")
-                    yield Static("", id="interaction-readings", markup=False)
+                    yield Plain("", id="interaction-readings")
                     yield Static("Marginal effects at the segment's typical parcel", classes="section")
                     yield DataTable(id="marginal", cursor_type="row")
             with TabPane("3 Equity", id="equity"):
                 with VerticalScroll():
-                    yield Static("", id="equity-title", markup=False)
+                    yield Plain("", id="equity-title")
                     yield DataTable(id="equity-table", cursor_type="row")
                     with Horizontal(id="equity-plots"):
                         with Vertical():
@@ -140,13 +144,13 @@ class SegmentScreen(DataScreen):
                             yield Static("Median ratio by price decile", classes="plot-title")
                             yield Chart(id="decile-chart")
             with TabPane("4 Value change", id="change"):
-                yield Static("", id="change-summary", markup=False)
+                yield Plain("", id="change-summary")
                 yield Bars(id="change-bars")
             with TabPane("5 Sales", id="sales"):
-                yield Static("", id="sales-title", markup=False)
+                yield Plain("", id="sales-title")
                 yield DataTable(id="sales-table", cursor_type="row", zebra_stripes=True)
             with TabPane("6 Reference models", id="reference"):
-                yield Static("", id="reference-title", markup=False)
+                yield Plain("", id="reference-title")
                 yield DataTable(id="reference-table", cursor_type="row")
         yield StatusBar()
         yield footer()
@@ -238,8 +242,8 @@ class SegmentScreen(DataScreen):
         else:
             table.add_columns("Term", "Coefficient", "SE", "p", "Both +1 SD")
             for r in d["interactions"]:
-                table.add_row(r["term"], number(r["coef"], "+.4f"), number(r["se"], ".4f"),
-                              number(r["p_value"], ".3g"), percent(math.expm1(r["coef"])))
+                table.add_row(*cells(r["term"], number(r["coef"], "+.4f"), number(r["se"], ".4f"),
+                              number(r["p_value"], ".3g"), percent(math.expm1(r["coef"]))))
             readings.update("\n".join(f"• {r['term']}: {r['reading']}" for r in d["interactions"])
                             or "No interaction was selected for this segment: its features act additively.")
         marginal = self.query_one("#marginal", DataTable)
@@ -247,7 +251,7 @@ class SegmentScreen(DataScreen):
         if d["marginal_effects"]:
             marginal.add_columns("Feature", "Value per unit", "Elasticity")
             for r in d["marginal_effects"]:
-                marginal.add_row(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f"))
+                marginal.add_row(*cells(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f")))
 
     # ---- equity ------------------------------------------------------------------------------------------
 
@@ -261,7 +265,7 @@ class SegmentScreen(DataScreen):
         table.add_columns("Statistic", "Value and verdict", f"{confidence}interval", "Standard")
         for stat in ("median_ratio", "cod", "prd", "prb"):
             cell = e["stats"][stat]
-            table.add_row(STAT_NAMES[stat], stat_cell(cell, stat), ci_text(cell, stat), cell["limit"] or "–")
+            table.add_row(*cells(STAT_NAMES[stat], stat_cell(cell, stat), ci_text(cell, stat), cell["limit"] or "–"))
         scatter = self.query_one("#ratio-scatter", Chart)
         if e["price"]:
             logs = [math.log10(p) for p in e["price"]]
@@ -315,9 +319,9 @@ class SegmentScreen(DataScreen):
         table.clear(columns=True)
         table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂")
         for r in s["rows"]:
-            table.add_row(r["sale_id"], r["parcel_id"], r["sale_date"], money(r["sale_price"]),
+            table.add_row(*cells(r["sale_id"], r["parcel_id"], r["sale_date"], money(r["sale_price"]),
                           money(r["adjusted_price"]), money(r["value"]), number(r["ratio"], ".3f"),
-                          "✂" if r["trimmed"] else "", key=f"{r['sale_id']}/{r['parcel_id']}")
+                          "✂" if r["trimmed"] else ""), key=f"{r['sale_id']}/{r['parcel_id']}")
 
     @on(DataTable.RowSelected, "#sales-table")
     def sale_chosen(self) -> None:
@@ -342,9 +346,9 @@ class SegmentScreen(DataScreen):
                      "study trims outliers, so its COD differs. RMSE is of log value: lower is better.")
         table.add_columns("Model", "Scope", "n", "RMSE log", "Median", "COD", "PRD", "PRB")
         for r in d["reference_accuracy"]:
-            table.add_row(r["model_name"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
+            table.add_row(*cells(r["model_name"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
                           number(r["median_ratio"], ".3f"), number(r["cod"], ".1f"), number(r["prd"], ".3f"),
-                          number(r["prb"], "+.3f"))
+                          number(r["prb"], "+.3f")))
 
     # ---- decisions ---------------------------------------------------------------------------------------
 
