@@ -135,6 +135,7 @@ class Manifest(TypedDict):
     config_sha256: str
     who: str
     when: str
+    text_cells: str
 
 
 class ExportResult(Manifest):

@@ -17,9 +17,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from helpers import SMALL_PARCELS, SMALL_SALES, copy_project, insert_prior_run, insert_run, query_frame, roll_project, write_project
+from helpers import (SMALL_PARCELS, SMALL_SALES, copy_project, export_state, insert_prior_run, insert_run, query_frame,
+                     roll_agrees, roll_project, write_project)
 from reval.service.actions import approve, event_log, export_roll, revoke, stage_values
 from reval.service.actions import import_data, prepare_sales
+from reval.service.project import open_project
 from reval.data.config import load_config
 from reval.errors import UserError
 from reval.data.store import open_store
@@ -133,12 +135,13 @@ def test_a_killed_export_leaves_no_roll_and_no_exported_state(approved: Path, tm
     assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 22
 
 
-def test_formula_like_cells_are_neutralised_and_leading_zeros_kept(tmp_path: Path) -> None:
+def test_formula_like_cells_are_neutralised_reversibly_and_leading_zeros_kept(tmp_path: Path) -> None:
     # OWASP "CSV Injection" (from memory): prefix cells starting with = + - @ tab or carriage return with a
-    # single quote so a spreadsheet treats them as text.
-    parcels = (SMALL_PARCELS.replace("00101,north", "=1+2,north").replace("00102,north", '"\tHYPER",north')
+    # single quote so a spreadsheet treats them as text. Issue finding: ids =1+1 and '=1+1 both exported as
+    # '=1+1; a cell already starting with a quote now gets one too, so removing one leading quote is exact.
+    parcels = (SMALL_PARCELS.replace("00101,north", "=1+2,north").replace("00102,north", "'=1+2,north")
                .replace("00103,south,A,single_family", "00103,@south,A,-cls"))
-    sales = SMALL_SALES.replace("S1,00101", "S1,=1+2").replace("S2,00102", 'S2,"\tHYPER"')
+    sales = SMALL_SALES.replace("S1,00101", "S1,=1+2").replace("S2,00102", "S2,'=1+2")
     folder = write_project(tmp_path / "p", parcels=parcels, sales=sales)
     import_data(folder)
     prepare_sales(folder)
@@ -149,7 +152,9 @@ def test_formula_like_cells_are_neutralised_and_leading_zeros_kept(tmp_path: Pat
     export_roll(folder, out)
     with out.open(newline="", encoding="utf-8") as handle:
         rows = {r["parcel_id"]: r for r in csv.DictReader(handle)}
-    assert set(rows) == {"'=1+2", "'\tHYPER", "00103", "00104", "00105"}
+    assert set(rows) == {"'=1+2", "''=1+2", "00103", "00104", "00105"}
+    stored = set(query_frame(folder, "SELECT parcel_id FROM parcels")["parcel_id"])
+    assert {i[1:] if i.startswith("'") else i for i in rows} == stored == {"=1+2", "'=1+2", "00103", "00104", "00105"}
     assert rows["00103"]["segment"] == "'@south" and rows["00103"]["property_class"] == "'-cls"
     assert rows["00104"]["change_pct"] == "-10.00"                   # numbers stay numbers
     assert rows["00105"]["prior_value"] == "" and rows["00105"]["market_value"] == "90000.00"
@@ -209,3 +214,119 @@ def test_cli_export_onto_the_database_exits_1_and_keeps_the_project(approved: Pa
     assert done.returncode == 1 and "Traceback" not in done.stderr, done.stderr
     assert "project's own" in done.stderr
     assert (folder / "reval.duckdb").read_bytes() == before
+
+
+# ---- kills at each step of the export protocol ---------------------------------------------------------------
+
+KILLING_EXPORT = """\
+import os, signal, sys
+from pathlib import Path
+import reval.data.publish as publish
+import reval.roll.export as export
+from reval.service.actions import export_roll
+
+folder, out, when, name, count, overwrite = sys.argv[1:7]
+owners = {"begin": publish, "commit": publish, "finish": publish, "_fsync": export, "replace": os}
+owner, seen = owners[name], [0]
+real = getattr(owner, name)
+
+def killing(*args, **kwargs):
+    seen[0] += 1
+    if when == "before" and seen[0] == int(count):
+        os.kill(os.getpid(), signal.SIGKILL)
+    result = real(*args, **kwargs)
+    if when == "after" and seen[0] == int(count):
+        os.kill(os.getpid(), signal.SIGKILL)
+    return result
+
+setattr(owner, name, killing)
+export_roll(Path(folder), Path(out), overwrite=overwrite == "1")
+"""
+
+
+@pytest.fixture(scope="module")
+def small_approved(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The small test township with a run valued at 0.9 x prior and its three segments approved."""
+    folder = write_project(tmp_path_factory.mktemp("small-approved") / "p")
+    import_data(folder)
+    prepare_sales(folder)
+    insert_prior_run(folder, "run-a", 0.9)
+    stage_values(folder)
+    _approve_all(folder)
+    return folder
+
+
+@pytest.mark.parametrize("when,name,count,expected", [
+    ("after", "begin", 1, "before"),      # the publication is recorded, no file written yet
+    ("after", "_fsync", 1, "before"),     # the roll's temporary file is written
+    ("after", "_fsync", 2, "before"),     # both temporary files are written
+    ("after", "commit", 1, "before"),     # inside the transaction, before it commits
+    ("before", "finish", 1, "after"),     # committed, nothing renamed yet
+    ("after", "replace", 1, "after"),     # between the two renames (issue finding: roll beside an older manifest)
+    ("after", "replace", 2, "after"),     # renamed, the publication not yet forgotten
+])
+def test_a_kill_at_each_step_of_the_export_leaves_before_or_after(
+        small_approved: Path, tmp_path: Path, caplog: pytest.LogCaptureFixture,
+        when: str, name: str, count: int, expected: str) -> None:
+    """Issue finding: killed exports left roll.csv and its manifest with the batches still approved and no
+    event, a roll beside an older manifest, and a stale .partial file. Each step of the protocol is killed
+    (SIGKILL, in a child process); a reader never sees a roll without its own manifest, and the next command
+    that opens the project for writing finishes or cleans the export and says so."""
+    folder = copy_project(small_approved, tmp_path / "p")
+    out = tmp_path / "roll.csv"
+    child = subprocess.run([sys.executable, "-c", KILLING_EXPORT, str(folder), str(out), when, name, str(count), "0"],
+                           cwd=ROOT, capture_output=True, text=True)
+    assert child.returncode == -signal.SIGKILL, child.stderr
+    assert roll_agrees(out)
+    with caplog.at_level("WARNING", logger="reval"), open_project(folder, write=True):
+        pass
+    assert export_state(folder, out) == expected
+    exported = query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0]
+    assert exported == (3 if expected == "after" else 0)
+    said = "finished an interrupted export" if expected == "after" else "nothing was exported"
+    assert said in caplog.text
+
+
+def test_an_overwriting_export_killed_between_renames_never_pairs_a_roll_with_another_manifest(
+        small_approved: Path, tmp_path: Path) -> None:
+    folder = copy_project(small_approved, tmp_path / "p")
+    out = tmp_path / "roll.csv"
+    first = export_roll(folder, out)
+    again = subprocess.run(
+        [sys.executable, "-c", KILLING_EXPORT, str(folder), str(out), "after", "replace", "1", "1"],
+        cwd=ROOT, capture_output=True, text=True)
+    assert again.returncode == -signal.SIGKILL
+    assert not out.exists() and roll_agrees(out)          # the old roll went first, the new manifest is in place
+    with open_project(folder, write=True):
+        pass
+    assert roll_agrees(out) and json.loads((tmp_path / "roll.manifest.json").read_text())["sha256"] == first["sha256"]
+    events = query_frame(folder, "SELECT detail->>'$.sha256' AS sha FROM events WHERE kind = 'roll_exported'")
+    assert events["sha"].tolist() == [first["sha256"], first["sha256"]]   # same batches, same roll, two exports
+
+
+def test_values_that_cannot_go_on_a_roll_are_refused_naming_the_parcels(small_approved: Path, tmp_path: Path) -> None:
+    """Issue finding: a prior value nan/inf was exported as nan/inf (and Infinity in the manifest). The
+    import now refuses them; a database holding one from before is refused at export, naming the parcel."""
+    folder = copy_project(small_approved, tmp_path / "p")
+    con = duckdb.connect(str(folder / "reval.duckdb"))
+    con.execute("UPDATE roll_values SET prior_value = 'inf'::DOUBLE WHERE parcel_id = '00102'")
+    con.execute("UPDATE roll_values SET prior_value = 'nan'::DOUBLE WHERE parcel_id = '00104'")
+    con.close()
+    out = tmp_path / "roll.csv"
+    with pytest.raises(UserError, match=r"Export refused: 2 parcel\(s\).*00104 \(east\): prior value nan.*"
+                                        r"00102 \(north\): prior value inf"):
+        export_roll(folder, out)
+    assert not out.exists() and not list(tmp_path.glob(".*partial"))
+    assert query_frame(folder, "SELECT count(*) AS n FROM batches WHERE state = 'exported'")["n"][0] == 0
+
+
+def test_the_manifest_is_strict_json(small_approved: Path, tmp_path: Path) -> None:
+    folder = copy_project(small_approved, tmp_path / "p")
+    export_roll(folder, tmp_path / "roll.csv")
+    text = (tmp_path / "roll.manifest.json").read_text()
+
+    def refuse(constant: str) -> None:
+        raise ValueError(constant)
+
+    manifest = json.loads(text, parse_constant=refuse)      # NaN, Infinity, -Infinity would raise here
+    assert manifest["rows"] == 5 and "remove one leading '" in manifest["text_cells"]

@@ -1,10 +1,13 @@
 """The `reval` command line: argparse over the service layer, one subcommand per action.
 
-Exit codes: 0 ok; 1 data or user error (one-paragraph message, no traceback); 2 usage error.
+Exit codes: 0 ok; 1 data or user error (one-paragraph message, no traceback), a project in use by another
+process, or output cut short (a closed pipe, e.g. `reval study --json | head`, ends quietly); 2 usage error.
+Notices the core logs (a stale lock removed, an interrupted export finished) go to stderr as "reval: ...".
 """
 from __future__ import annotations
 
 import argparse
+import logging
 import os
 import sys
 from pathlib import Path
@@ -164,6 +167,19 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+class _Notices(logging.Handler):
+    """The core's notices on stderr, one "reval: ..." line each, control characters removed."""
+
+    def emit(self, record: logging.LogRecord) -> None:
+        print(f"reval: {shown(record.getMessage())}", file=sys.stderr)
+
+
+def _show_notices() -> None:
+    logger = logging.getLogger("reval")
+    if not any(isinstance(h, _Notices) for h in logger.handlers):
+        logger.addHandler(_Notices())
+
+
 def _say(text: str) -> None:
     print("\n".join(f"reval: {shown(line)}" if i == 0 else shown(line)
                     for i, line in enumerate(text.splitlines() or [""])), file=sys.stderr)
@@ -171,12 +187,18 @@ def _say(text: str) -> None:
 
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
+    _show_notices()
     try:
         args.func(args)
+        sys.stdout.flush()
     except UserError as exc:
         _say(str(exc))
         return 1
     except KeyboardInterrupt:
         _say("interrupted; nothing was changed by the unfinished step")
+        return 1
+    except BrokenPipeError:
+        # the reader went away (e.g. `| head`): stop quietly; stdout to /dev/null so the exit flush is silent
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 1
     return 0

@@ -7,12 +7,14 @@ from __future__ import annotations
 
 import functools
 import re
+import time
 from contextlib import contextmanager
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Iterator, Sequence
 
 import duckdb
 
+from reval.data import lock, publish
 from reval.errors import UserError
 from reval.plain import scalar
 
@@ -46,19 +48,61 @@ def latest_version() -> int:
     return max([1, *(v for v, _ in migrations())])
 
 
-class Store:
-    """An open project database. Use `transaction()` around every step that writes."""
+def _connect(path: Path, read_only: bool, wait: float) -> duckdb.DuckDBPyConnection:
+    """A DuckDB connection, retried while another process holds DuckDB's own file lock (a reader during a
+    write, or a writer during a read) for up to `wait` seconds; then a UserError naming the holder."""
+    deadline = time.monotonic() + wait
+    while True:
+        try:
+            return duckdb.connect(str(path), read_only=read_only)
+        except duckdb.IOException as exc:
+            if "lock" not in str(exc).lower():
+                raise UserError(f"{path}: cannot open the database: {exc}") from None
+            if time.monotonic() >= deadline:
+                raise lock.in_use(path, wait) from None
+            time.sleep(lock.POLL)
 
-    def __init__(self, path: Path | str, read_only: bool = False) -> None:
+
+class Store:
+    """An open project database. Use `transaction()` around every step that writes.
+
+    A writing store holds the project's writer lock (reval.data.lock) until it is closed, brings the schema
+    up to date and finishes or cleans an interrupted export (reval.data.publish); a reader opens DuckDB
+    read-only. Both wait up to `wait` seconds (default: lock.wait_seconds()) for another process."""
+
+    def __init__(self, path: Path | str, read_only: bool = False, wait: float | None = None) -> None:
         self.path = Path(path)
-        self.con = duckdb.connect(str(self.path), read_only=read_only)
-        self._depth = 0
-        self.run("session_settings")
+        self.read_only = read_only
+        wait = lock.wait_seconds() if wait is None else wait
+        self._locked = False
         if not read_only:
-            self.upgrade()
+            lock.acquire(self.path, wait)
+            self._locked = True
+        try:
+            self.con = _connect(self.path, read_only, wait)
+        except BaseException:
+            self._unlock()
+            raise
+        self._depth = 0
+        try:
+            self.run("session_settings")
+            if not read_only:
+                self.upgrade()
+                publish.recover(self)
+        except BaseException:
+            self.close()
+            raise
 
     def close(self) -> None:
-        self.con.close()
+        try:
+            self.con.close()
+        finally:
+            self._unlock()
+
+    def _unlock(self) -> None:
+        if self._locked:
+            self._locked = False
+            lock.release(self.path)
 
     def __enter__(self) -> "Store":
         return self

@@ -1,10 +1,18 @@
-"""Export of the certified value roll: a CSV written by DuckDB, made durable, then put in place atomically.
+"""Export of the certified value roll: a CSV written by DuckDB and its manifest, published as a pair.
 
-The file is written to a hidden temporary file in the target folder, fsync'd, hashed, and moved over the
-target with os.replace; a manifest (row count, totals per segment, sha256 of the CSV, run ids, config
-hash, who, when) goes beside it the same way. Only then are the batches marked exported and the event
-recorded, in one transaction: a process that dies earlier leaves no roll file and no exported state (a
-stale temporary file is removed by the next export).
+The manifest holds the row count, totals per segment, the sha256 of the CSV, run ids, config hash, who and
+when; it is strict JSON. Both files are written to hidden temporary files in the target's folder and
+fsync'd; the transaction that marks the batches exported and records the events also commits the
+publication, and only then are the files renamed, the manifest first and the roll last (an overwritten
+roll is removed before its manifest is replaced). A reader therefore never finds a roll beside a manifest
+that is not its own, and a crash at any moment leaves either no export (the batches still approved, no
+event, temporary files that the next writing command removes) or a recorded export whose files the next
+writing command puts in place, saying so (reval.data.publish).
+
+Text cells that a spreadsheet would read as a formula (starting with = + - @, a tab or a carriage return)
+get a leading single quote, and so does a cell that already starts with one; removing one leading quote
+from any text cell that starts with one gives back the stored text exactly (OWASP "CSV Injection", from
+memory, recommends the quote; quoting the quote too keeps ids such as =1+1 and '=1+1 apart).
 """
 from __future__ import annotations
 
@@ -14,19 +22,23 @@ import os
 from pathlib import Path
 from typing import Any
 
-from reval.roll.batch_states import segment_states
-from reval.data.config import Config
-from reval.errors import UserError
-from reval.data.events import current_user, record_event
 from reval.clock import utc_now
+from reval.data import publish
+from reval.data.config import Config
+from reval.data.events import current_user, record_event
 from reval.data.importer import ERROR_REPORT
-from reval.roll.land import schedule_path
+from reval.data.lock import lock_path
 from reval.data.store import Store
+from reval.errors import UserError
 from reval.results import ExportResult, Manifest
-
+from reval.roll.batch_states import segment_states
+from reval.roll.land import schedule_path
+from reval.roll.valuation import refuse_bad_values
 
 PARTIAL_SUFFIX = ".partial"
 CHUNK = 1 << 20
+TEXT_CELLS = ("a text cell starting with = + - @ ' a tab or a carriage return was written with one more leading "
+              "single quote: remove one leading ' from a text cell that starts with one to read the stored text")
 
 
 def manifest_path(path: Path) -> Path:
@@ -36,13 +48,6 @@ def manifest_path(path: Path) -> Path:
 
 def _partial(path: Path) -> Path:
     return path.with_name(f".{path.name}.{os.getpid()}{PARTIAL_SUFFIX}")
-
-
-def _remove_stale_partials(path: Path) -> None:
-    """Temporary files a killed export left behind (only one export runs at a time: it holds the database)."""
-    for target in (path, manifest_path(path)):
-        for stale in target.parent.glob(f".{target.name}.*{PARTIAL_SUFFIX}"):
-            stale.unlink()
 
 
 def _fsync(path: Path) -> None:
@@ -79,8 +84,8 @@ def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str],
 def project_files(config: Config) -> set[Path]:
     """Files an export must never write over: the config, the database and its log, the inputs."""
     database = config.database.resolve()
-    owned = {config.path, database, database.with_name(database.name + ".wal"), config.parcels_file,
-             config.folder / ERROR_REPORT}
+    owned = {config.path, database, database.with_name(database.name + ".wal"), lock_path(database),
+             config.parcels_file, config.folder / ERROR_REPORT}
     owned |= {p for p in (config.sales_file, schedule_path(config)) if p is not None}
     return {p.resolve() for p in owned}
 
@@ -104,14 +109,29 @@ def check_target(config: Config, path: Path, overwrite: bool) -> None:
 
 def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
                 overwrite: bool = False) -> ExportResult:
-    """Write the roll of every certified batch to `path` (and its manifest); mark approved batches exported.
-    Never writes over the project's own files, nor over an existing file unless `overwrite`."""
+    """Write the roll of every certified batch to `path` with its manifest and mark approved batches exported,
+    as one recoverable publication. Never writes over the project's own files, nor over an existing file
+    unless `overwrite`; refuses values that are not finite and positive."""
     path = Path(path).resolve()
     check_target(config, path, overwrite)
     certified, missing, pending = _plan(store, partial)
     ids = [int(b["batch_id"]) for b in certified]
-    _remove_stale_partials(path)
+    refuse_bad_values(store, ids, "Export")
     tmp, tmp_manifest = _partial(path), _partial(manifest_path(path))
+    publication = publish.begin(store, path, tmp, manifest_path(path), tmp_manifest, overwrite)
+    try:
+        manifest = _write_files(store, config, path, tmp, tmp_manifest, ids, missing, pending)
+        _mark_exported(store, certified, manifest, path, publication)
+    except BaseException:
+        publish.abandon(store, publication)
+        raise
+    publish.finish(store, publication)
+    return {**manifest, "path": str(path), "manifest": str(manifest_path(path))}
+
+
+def _write_files(store: Store, config: Config, path: Path, tmp: Path, tmp_manifest: Path, ids: list[int],
+                 missing: list[str], pending: list[str]) -> Manifest:
+    """The roll and its manifest in their temporary files, fsync'd; returns the manifest."""
     store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
     _fsync(tmp)
     totals = store.records("export_totals", {"batch_ids": ids})
@@ -120,25 +140,22 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
         "segments": totals, "run_ids": sorted({t["run_id"] for t in totals}),
         "partial": bool(missing), "not_approved": missing, "pending_newer_batches": pending,
         "config_sha256": config.sha256, "who": current_user(),
-        "when": utc_now().isoformat(timespec="seconds") + "Z",
+        "when": utc_now().isoformat(timespec="seconds") + "Z", "text_cells": TEXT_CELLS,
     }
-    tmp_manifest.write_text(json.dumps(manifest, indent=2, sort_keys=True), encoding="utf-8")
+    tmp_manifest.write_text(json.dumps(manifest, indent=2, sort_keys=True, allow_nan=False), encoding="utf-8")
     _fsync(tmp_manifest)
-    os.replace(tmp, path)
-    os.replace(tmp_manifest, manifest_path(path))
-    _fsync(path.parent)
-    _mark_exported(store, certified, manifest, path)
-    return {**manifest, "path": str(path), "manifest": str(manifest_path(path))}
+    return manifest
 
 
-def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: Manifest, path: Path) -> None:
-    """Approved batches become exported and every export is an event; after the files are in place."""
+def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: Manifest, path: Path,
+                   publication: int) -> None:
+    """Approved batches become exported, every export is an event, and the publication of the files is
+    committed with them: one transaction."""
     at = utc_now()
     fresh = [b for b in certified if b["state"] == "approved"]
     with store.transaction() as con:
         if [b["batch_id"] for b in store.records("batch_certified")] != [b["batch_id"] for b in certified]:
-            raise UserError("Batches changed while exporting; the file was written but nothing is marked "
-                            "exported: export again.")
+            raise UserError("Batches changed while exporting; nothing was exported: export again.")
         store.run("batch_set_state", {"batch_ids": [b["batch_id"] for b in fresh], "state": "exported",
                                       "at": at, "note": None})
         for b in fresh:
@@ -148,3 +165,4 @@ def _mark_exported(store: Store, certified: list[dict[str, Any]], manifest: Mani
         record_event(con, "roll_exported", {"file": str(path), **{k: manifest[k] for k in (
             "rows", "sha256", "run_ids", "partial", "not_approved", "config_sha256")},
             "batch_ids": [b["batch_id"] for b in certified]})
+        publish.commit(store, publication)

@@ -6,6 +6,7 @@ limits the assessed value of its property classes (all classes when it names non
 prior value x (1 + max_increase), rounded down; the tightest cap of a class applies;
 land value from the land schedule (reval.land), never above the total; improvement = total - land.
 Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%").
+No value that is not finite, or not positive, is ever staged or exported (`refuse_bad_values`).
 """
 from __future__ import annotations
 
@@ -44,6 +45,19 @@ def _check_coverage(store: Store, run_id: str) -> None:
     if unknown:
         raise UserError(f"Run {run_id} values {unknown:,} parcel(s) that are no longer imported "
                         f"(e.g. {first_unknown}): run `reval fit` again.")
+
+
+def refuse_bad_values(store: Store, batch_ids: list[int], step: str) -> None:
+    """Refuse a step (staging, export) whose batches hold a value that cannot go on a roll: market and assessed
+    values must be finite and positive, prior, land and improvement values finite and not negative; the
+    message names the parcels."""
+    rows = store.records("roll_bad_values", {"batch_ids": batch_ids})
+    if not rows:
+        return
+    listed = "; ".join(f"parcel {r['parcel_id']} ({r['segment']}): {r['problem']}" for r in rows)
+    more = f" and {rows[0]['n'] - len(rows):,} more" if rows[0]["n"] > len(rows) else ""
+    raise UserError(f"{step} refused: {rows[0]['n']:,} parcel(s) have values that cannot go on a roll (values must be "
+                    f"finite and positive): {listed}{more}. Nothing was changed.")
 
 
 def cap_table(config: Config, classes: list[str]) -> pd.DataFrame:
@@ -110,6 +124,7 @@ def stage_values(store: Store, config: Config, run_id: str | None = None) -> Sta
             store.run("roll_insert_values", {"run": run, "batch_ids": new_ids, "level": config.assessment.level,
                                              "rounding": config.assessment.rounding,
                                              "allocate": schedule is not None, "lot_position": lot_position})
+            refuse_bad_values(store, new_ids, "Staging")
             _record_staging(con, run, basis, staged, replaced)
             flags = dict(store.rows("roll_flag_counts", {"batch_ids": new_ids}))
     finally:

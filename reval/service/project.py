@@ -5,28 +5,22 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-import duckdb
-
 from reval.data.config import Config, load_config
 from reval.data.store import Store, latest_version, open_store
-from reval.errors import UserError
 
 
 @contextmanager
 def open_project(folder: Path, *, write: bool = False) -> Iterator[tuple[Config, Store]]:
     """The project's config and its store; a reader gets a read-only store brought to the current schema
-    first (the forward migrations every writing step applies). A database held by another process is a
-    UserError, not a DuckDB traceback."""
+    first (the forward migrations every writing step applies). A writer holds the project's lock until the
+    block ends and first finishes or cleans an interrupted export; a project another process holds is waited
+    for (reval.data.lock), then a UserError naming that process, never a DuckDB traceback."""
     config = load_config(folder)
-    try:
-        store = open_store(config.database, read_only=not write)
-        if not write and store.version() < latest_version():
-            store.close()
-            open_store(config.database).close()
-            store = open_store(config.database, read_only=True)
-    except duckdb.IOException as exc:
-        raise UserError(f"{config.database} is in use by another reval process; try again when it ends "
-                        f"({exc})") from None
+    store = open_store(config.database, read_only=not write)
+    if not write and store.version() < latest_version():
+        store.close()
+        open_store(config.database).close()
+        store = open_store(config.database, read_only=True)
     try:
         yield config, store
     finally:
