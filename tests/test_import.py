@@ -76,7 +76,7 @@ BAD_CASES = [
     ("sales.csv", "2024-06-15,260000", "2024-06-15,-5", 3, "price", "must be positive"),
     ("sales.csv", "2024-06-15,260000", "2024-06-15,lots", 3, "price", "not a number"),
     ("sales.csv", "2024-03-01", "2024-13-01", 2, "date", "not a date"),
-    ("sales.csv", "2024-03-01", "2026-03-01", 2, "date", "in the future"),
+    ("sales.csv", "2024-03-01", "2025-09-01", 2, "date", "in the future"),
     ("sales.csv", "S4,00103,2024-09-01,155000", "S4,00103,2024-09-01,999000", 6, "sale_id", "disagree"),
     ("sales.csv", "S2,00102", "S1,00101", 3, "sale_id", "listed twice"),
 ]

@@ -29,7 +29,7 @@ def cmd_init(args: argparse.Namespace) -> None:
 
 def cmd_import(args: argparse.Namespace) -> None:
     with render.progress_bar(args) as progress:
-        result = actions.import_data(_folder(args), progress)
+        result = actions.import_data(_folder(args), progress, allow_empty=args.allow_empty)
     render.emit(args, result, render.imported)
 
 
@@ -94,6 +94,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=cmd_init)
 
     p = sub.add_parser("import", parents=[common], help="check and load the files named in reval.toml")
+    p.add_argument("--allow-empty", action="store_true", help="accept an input file without data rows (it empties "
+                   "the data set it holds)")
     p.set_defaults(func=cmd_import)
 
     p = sub.add_parser("demo", parents=[common], help="build the demo municipality's project and run every step")

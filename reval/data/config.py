@@ -70,6 +70,7 @@ class Files(Declared):
                                 active=True)
     date_format: str | None = setting(None, "sale date format if not YYYY-MM-DD (strptime directives; it must "
                                       "name a year)", example="%d/%m/%Y", check=_date_format, type_text="text")
+    max_amount: float = setting(1e10, "the largest sale price or prior value an import accepts", lo=0, lo_open=True)
 
 
 def _column(doc: str, example: str, required: bool = False, active: bool = True) -> Any:
@@ -262,6 +263,7 @@ class Config:
     standards: Standards = field(default_factory=Standards)
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
+    max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
     @property
@@ -318,6 +320,7 @@ def load_config(path: Path | str) -> Config:
         standards=sections["standards"],
         model=sections["model"],
         assessment=sections["assessment"],
+        max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )
 

@@ -1,7 +1,13 @@
 """Validated, all-or-nothing import of the parcels and sales files named in reval.toml.
 
-Every row is checked set-based in DuckDB; all problems are reported at once (file, line, column, reason)
-and written to `import_errors.csv` beside the database. On any problem the database is untouched.
+First each CSV file's structure is checked (reval.data.csv_scan: UTF-8, quotes, NUL bytes, unique column
+names, as many values on every row as in the header), and a file without data rows is refused unless
+allowed; then every cell is checked set-based in DuckDB (numbers finite and, for prices and prior values,
+at most [files] max_amount; ISO dates from 1800 to the valuation date plus a year; ...). All problems are
+reported at once (file, physical line, column, reason) and written to `import_errors.csv` beside the
+database. On any problem the database is untouched. Every cell is trimmed of surrounding white space
+(tabs and no-break spaces included), so " 00101" and "<tab>00101" are the parcel 00101 (and a second row
+for it is refused as a duplicate) rather than a second parcel.
 """
 from __future__ import annotations
 
@@ -17,9 +23,10 @@ from typing import Callable
 import pandas as pd
 
 from reval.data.config import PARCEL_ROLES, SALE_ROLES, Config
-from reval.errors import ConfigError, DataErrors, DataProblem
+from reval.data.csv_scan import CsvLayout, scan_csv
 from reval.data.events import record_event
 from reval.data.store import Store, open_store
+from reval.errors import ConfigError, DataErrors, DataProblem
 from reval.results import ImportSummary
 
 ERROR_REPORT = "import_errors.csv"
@@ -110,7 +117,32 @@ def _fingerprint(config: Config) -> dict[str, str]:
     return prints
 
 
-def _stage(store: Store, config: Config, roles: pd.DataFrame, progress: Progress | None) -> None:
+def _is_parquet(path: Path | str) -> bool:
+    return str(path).lower().endswith(".parquet")
+
+
+def _check_structure(store: Store, config: Config, allow_empty: bool, report: Path) -> dict[str, CsvLayout]:
+    """Each input file's structure (CSV) and data rows; raises DataErrors listing every problem."""
+    layouts: dict[str, CsvLayout] = {}
+    problems: list[DataProblem] = []
+    for path in dict.fromkeys(p for p in (config.parcels_file, config.sales_file) if p is not None):
+        if _is_parquet(path):
+            rows = int(store.rows("import_row_count_parquet", [str(path)])[0][0])
+        else:
+            layout = layouts[str(path)] = scan_csv(path)
+            problems += layout.problems
+            rows = -1 if layout.problems else layout.rows
+        if rows == 0 and not allow_empty:
+            problems.append(DataProblem(str(path), 2, "(line)", None, "no data rows after the header: importing it "
+                                        "would empty the data set; give --allow-empty if that is meant"))
+    if problems:
+        _write_report(problems, report)
+        raise DataErrors(problems, report)
+    return layouts
+
+
+def _stage(store: Store, config: Config, roles: pd.DataFrame, layouts: dict[str, CsvLayout],
+           progress: Progress | None) -> None:
     store.run("import_temp_tables")
     store.con.register("roles_frame", roles)
     store.con.execute("INSERT INTO import_roles SELECT * FROM roles_frame")
@@ -118,40 +150,54 @@ def _stage(store: Store, config: Config, roles: pd.DataFrame, progress: Progress
     paths = list(dict.fromkeys(roles["file"]))
     for i, file in enumerate(paths, 1):
         columns = sorted(set(roles.loc[roles["file"] == file, "col"]))
-        query = "import_stage_parquet" if file.lower().endswith(".parquet") else "import_stage_csv"
-        store.run(query, [file, file, columns])
+        store.run("import_stage_parquet" if _is_parquet(file) else "import_stage_csv", [file, file, columns])
+        lines = layouts[file].lines if file in layouts else None
+        if lines is not None:                     # rows after a quoted line break or a blank line
+            store.con.register("import_line_map", pd.DataFrame({"row": range(1, len(lines) + 1), "line": lines}))
+            store.run("import_fix_lines", {"file": file})
+            store.con.unregister("import_line_map")
         if progress:
             progress("reading files", i, len(paths))
     store.run("import_cells", [str(config.parcels_file), str(config.sales_source), config.date_format])
 
 
-def _write_report(problems: pd.DataFrame, path: Path) -> None:
+def _write_report(problems: list[DataProblem], path: Path) -> None:
     """Write the problem list atomically (temporary file, then rename)."""
     tmp = path.with_name(path.name + ".tmp")
     with tmp.open("w", newline="", encoding="utf-8") as handle:
         writer = csv.writer(handle)
         writer.writerow(["file", "line", "column", "value", "reason"])
-        writer.writerows(problems[["file", "line", "column", "value", "reason"]].itertuples(index=False))
+        writer.writerows((p.file, p.line, p.column, p.value, p.reason) for p in problems)
     os.replace(tmp, path)
 
 
-def run_import(config: Config, progress: Progress | None = None, today: dt.date | None = None) -> ImportResult:
-    """Check and load the configured files; all or nothing. Raises DataErrors listing every problem."""
+def _latest_date(config: Config) -> dt.date:
+    """The last sale date an import accepts: the valuation date plus a year."""
+    date = config.valuation_date
+    return date.replace(year=date.year + 1, day=28 if (date.month, date.day) == (2, 29) else date.day)
+
+
+def run_import(config: Config, progress: Progress | None = None, today: dt.date | None = None,
+               allow_empty: bool = False) -> ImportResult:
+    """Check and load the configured files; all or nothing. Raises DataErrors listing every problem; a file
+    without data rows is a problem unless `allow_empty`. Holds the project's writer lock (reval.data.store)."""
     today = today or dt.date.today()
     roles = _roles_frame(config)
     prints = _fingerprint(config)
     report = config.folder / ERROR_REPORT
     with open_store(config.database) as store:
-        _check_columns(config, roles, store)
         current = {role: sha for role, _, sha, _ in store.rows("dataset_files")}
         if current == prints:
             return _result(store, changed=False, prints=prints)
-        _stage(store, config, roles, progress)
-        problems = store.frame("import_problems", [today, config.date_format])
-        if len(problems):
+        layouts = _check_structure(store, config, allow_empty, report)
+        _check_columns(config, roles, store)
+        _stage(store, config, roles, layouts, progress)
+        found = store.frame("import_problems", {"today": today, "date_format": config.date_format,
+                                                "latest_date": _latest_date(config), "max_amount": config.max_amount})
+        if len(found):
+            problems = [DataProblem(r.file, int(r.line), r.column, r.value, r.reason) for r in found.itertuples()]
             _write_report(problems, report)
-            raise DataErrors([DataProblem(r.file, int(r.line), r.column, r.value, r.reason)
-                              for r in problems.itertuples()], report)
+            raise DataErrors(problems, report)
         store.run("import_build")
         with store.transaction() as con:
             store.run("import_replace")

@@ -49,12 +49,13 @@ def init_project(folder: Path, name: str) -> Path:
     return path
 
 
-def import_data(folder: Path, progress: Progress | None = None) -> ImportSummary:
-    """Check and load the project's input files (all or nothing)."""
+def import_data(folder: Path, progress: Progress | None = None, allow_empty: bool = False) -> ImportSummary:
+    """Check and load the project's input files (all or nothing); a file without data rows only with
+    allow_empty."""
     from reval.data.config import load_config
     from reval.data.importer import run_import
 
-    return run_import(load_config(folder), progress).as_dict()
+    return run_import(load_config(folder), progress, allow_empty=allow_empty).as_dict()
 
 
 def prepare_sales(folder: Path, progress: Progress | None = None) -> SalesCounts:

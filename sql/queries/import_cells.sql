@@ -1,7 +1,8 @@
 -- Typed view of the staged cells, used by the checks and the build.
 -- A "sale line" is a row of the sales file that carries a sale; in a combined file (parcels and sales in
 -- one file, as in research data) a row without sale date and price is an unsold parcel.
--- $1: parcels file key, $2: sales file key (equals $1 when one file holds both), $3: date format (NULL = ISO dates).
+-- $1: parcels file key, $2: sales file key (equals $1 when one file holds both), $3: date format (NULL = ISO
+-- dates, YYYY-MM-DD).
 CREATE OR REPLACE TEMP TABLE import_cells AS
 WITH joined AS (
     SELECT c.file, c.line, c.col, c.val, r.role, r.name, r.kind, r.position, r.levels, r.lo, r.hi, r.log
@@ -18,7 +19,8 @@ SELECT j.*,
        (s.line IS NOT NULL AND j.role IN ('parcel_id', 'sale_id', 'sale_date', 'sale_price', 'sale_validity'))
            AS is_sale_cell,
        TRY_CAST(j.val AS DOUBLE) AS num,
-       CASE WHEN $3 IS NULL THEN TRY_CAST(j.val AS DATE)
-            ELSE CAST(try_strptime(j.val, $3) AS DATE) END AS day
+       CASE WHEN $3 IS NOT NULL THEN CAST(try_strptime(j.val, $3) AS DATE)
+            WHEN regexp_full_match(j.val, '\d{4}-\d{1,2}-\d{1,2}') THEN TRY_CAST(j.val AS DATE)
+       END AS day   -- ISO dates only: DuckDB would also read 'epoch', 'infinity' and '-2023-01-01' (BC)
 FROM joined j
 LEFT JOIN sale_lines s ON s.file = j.file AND s.line = j.line;

@@ -1,4 +1,5 @@
--- Every problem in the staged input, one row each. $1: today's date.
+-- Every problem in the staged input, one row each. $today, $date_format (NULL = ISO dates), $latest_date (the
+-- valuation date plus a year), $max_amount (the largest price or prior value, [files] max_amount).
 WITH parcel_ids AS (
     SELECT file, line, val AS parcel_id FROM import_cells WHERE is_parcel_cell AND role = 'parcel_id'
 ),
@@ -25,6 +26,18 @@ problems AS (
       AND ((is_parcel_cell AND kind IN ('amount', 'latitude', 'longitude', 'continuous'))
            OR (is_sale_cell AND kind = 'price'))
     UNION ALL
+    SELECT file, line, col, val, 'not a finite number (NaN and infinity are not values)'
+    FROM import_cells
+    WHERE NOT isfinite(num)
+      AND ((is_parcel_cell AND kind IN ('amount', 'latitude', 'longitude', 'continuous'))
+           OR (is_sale_cell AND kind = 'price'))
+    UNION ALL
+    SELECT file, line, col, val, 'beyond the largest amount accepted, ' || $max_amount::VARCHAR
+                                 || ' ([files] max_amount in reval.toml)'
+    FROM import_cells
+    WHERE isfinite(num) AND abs(num) > $max_amount
+      AND ((is_parcel_cell AND kind = 'amount') OR (is_sale_cell AND kind = 'price'))
+    UNION ALL
     SELECT file, line, col, val, 'sale price must be positive'
     FROM import_cells WHERE is_sale_cell AND kind = 'price' AND num <= 0
     UNION ALL
@@ -32,17 +45,17 @@ problems AS (
     FROM import_cells WHERE is_parcel_cell AND kind = 'amount' AND num < 0
     UNION ALL
     SELECT file, line, col, val, 'latitude must be between -90 and 90'
-    FROM import_cells WHERE is_parcel_cell AND kind = 'latitude' AND abs(num) > 90
+    FROM import_cells WHERE is_parcel_cell AND kind = 'latitude' AND isfinite(num) AND abs(num) > 90
     UNION ALL
     SELECT file, line, col, val, 'longitude must be between -180 and 180'
-    FROM import_cells WHERE is_parcel_cell AND kind = 'longitude' AND abs(num) > 180
+    FROM import_cells WHERE is_parcel_cell AND kind = 'longitude' AND isfinite(num) AND abs(num) > 180
     UNION ALL
     SELECT file, line, col, val,
            'outside the declared range ' || lo::VARCHAR || ' to ' || hi::VARCHAR
-    FROM import_cells WHERE is_parcel_cell AND kind = 'continuous' AND (num < lo OR num > hi)
+    FROM import_cells WHERE is_parcel_cell AND kind = 'continuous' AND isfinite(num) AND (num < lo OR num > hi)
     UNION ALL
     SELECT file, line, col, val, 'a log-transformed feature needs a positive value'
-    FROM import_cells WHERE is_parcel_cell AND kind = 'continuous' AND log AND num <= 0
+    FROM import_cells WHERE is_parcel_cell AND kind = 'continuous' AND log AND isfinite(num) AND num <= 0
     UNION ALL
     SELECT file, line, col, val, 'unknown level (expected one of: ' || array_to_string(levels, ', ') || ')'
     FROM import_cells
@@ -55,12 +68,17 @@ problems AS (
       AND lower(val) NOT IN ('0', '1', 'true', 'false', 'yes', 'no', 'y', 'n', 't', 'f')
     UNION ALL
     -- dates
-    SELECT file, line, col, val, 'not a date' || CASE WHEN $2 IS NULL THEN ' (expected YYYY-MM-DD)'
-                                                      ELSE ' (expected ' || $2 || ')' END
+    SELECT file, line, col, val, 'not a date' || CASE WHEN $date_format IS NULL THEN ' (expected YYYY-MM-DD)'
+                                                      ELSE ' (expected ' || $date_format || ')' END
     FROM import_cells WHERE is_sale_cell AND kind = 'date' AND val IS NOT NULL AND day IS NULL
     UNION ALL
+    SELECT file, line, col, val, 'sale date outside 1800-01-01 to ' || $latest_date::DATE::VARCHAR
+                                 || ' (the valuation date plus a year)'
+    FROM import_cells
+    WHERE is_sale_cell AND kind = 'date' AND (day < DATE '1800-01-01' OR day > $latest_date::DATE)
+    UNION ALL
     SELECT file, line, col, val, 'sale date is in the future'
-    FROM import_cells WHERE is_sale_cell AND kind = 'date' AND day > $1
+    FROM import_cells WHERE is_sale_cell AND kind = 'date' AND day > $today::DATE AND day <= $latest_date::DATE
     UNION ALL
     -- parcel ids unique
     SELECT p.file, p.line, r.col, p.parcel_id,

@@ -1,6 +1,10 @@
 -- Staging for one import: temporary tables, never persisted, dropped with the connection.
+-- import_trim removes surrounding white space from every cell: spaces, tabs, line breaks, no-break spaces
+-- and stray byte-order marks, so an id written as " 00101" or with a leading tab is the parcel 00101.
 CREATE OR REPLACE TEMP TABLE raw_cells (file VARCHAR, line BIGINT, col VARCHAR, val VARCHAR);
 CREATE OR REPLACE TEMP TABLE import_roles (
     file VARCHAR, col VARCHAR, role VARCHAR, name VARCHAR, kind VARCHAR, position SMALLINT,
     levels VARCHAR[], lo DOUBLE, hi DOUBLE, log BOOLEAN
 );
+CREATE OR REPLACE TEMP MACRO import_trim(x) AS
+    trim(x, ' ' || chr(9) || chr(10) || chr(11) || chr(12) || chr(13) || chr(160) || chr(65279));
