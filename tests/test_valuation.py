@@ -128,3 +128,29 @@ def test_a_run_that_misses_a_parcel_is_refused(demo_project: Path, tmp_path: Pat
         stage_values(folder)
     with pytest.raises(UserError, match="No run 'nope'"):
         stage_values(folder, "nope")
+
+
+def test_staging_refuses_values_that_are_not_finite_and_positive(tmp_path: Path) -> None:
+    """Issue finding: 2,600 NaN rows (from `level = nan`) were staged, approved and exported. Whatever makes
+    a value NaN, infinite, zero or negative, staging refuses it, names the parcels and changes nothing."""
+    from helpers import database_content, insert_prior_run, write_project
+    from reval.service.actions import import_data, prepare_sales
+
+    folder = write_project(tmp_path / "p")
+    import_data(folder)
+    prepare_sales(folder)
+    insert_prior_run(folder, "run-a", 1.0)
+    con = duckdb.connect(str(folder / "reval.duckdb"))
+    for parcel, value in (("00101", "nan"), ("00103", "inf"), ("00104", "-500")):
+        con.execute("UPDATE parcel_estimates SET market_value = ?::DOUBLE WHERE parcel_id = ?", [value, parcel])
+    con.close()
+    def content() -> dict:  # the NaN estimate never equals itself: compare everything else
+        return {k: v for k, v in database_content(folder / "reval.duckdb").items() if k != "parcel_estimates"}
+
+    before = content()
+    with pytest.raises(UserError, match=r"Staging refused: 3 parcel\(s\).*finite and positive.*"
+                                        r"00104 \(east\): market value -500.0; assessed value -500.0.*"
+                                        r"00101 \(north\): market value nan.*"
+                                        r"00103 \(south\): market value inf"):
+        stage_values(folder)
+    assert content() == before
