@@ -2,6 +2,7 @@
 real child processes on real project folders."""
 from __future__ import annotations
 
+import asyncio
 import logging
 import os
 import subprocess
@@ -11,10 +12,11 @@ from pathlib import Path
 
 import pytest
 
-from helpers import CHILD_ENV, ROOT, database_content, held_by_child, run_reval, sigkill
+from helpers import CHILD_ENV, ROOT, database_content, held_by_child, insert_prior_run, run_reval, settle, sigkill
 from reval.data.lock import ProjectInUse, lock_path
 from reval.service import actions
 from reval.service.project import open_project
+from tui.app import RevalApp
 
 
 @pytest.fixture
@@ -74,6 +76,27 @@ def test_a_stale_lock_of_a_killed_writer_is_detected_and_removed(imported: Path,
         assert lock.exists()                                      # now ours
     assert f"removed a stale lock left by process {holder.pid} (reval fit)" in caplog.text
     assert not lock.exists()
+
+
+def test_the_app_shows_what_the_core_cleaned_up(imported: Path) -> None:
+    """A notice the core logs while the app works (here: a stale lock removed by the value step) reaches
+    the app's messages instead of the terminal under it."""
+    actions.prepare_sales(imported)
+    insert_prior_run(imported, "run-a", 1.0)
+    with held_by_child(imported, write=True) as holder:
+        sigkill(holder)
+    asyncio.run(_app_notice(imported, holder.pid))
+
+
+async def _app_notice(folder: Path, pid: int) -> None:
+    app = RevalApp(folder)
+    async with app.run_test() as pilot:
+        await settle(pilot)
+        await pilot.press("v")
+        await settle(pilot)
+        await pilot.pause()
+        assert any(severity == "warning" and f"removed a stale lock left by process {pid}" in text
+                   for severity, text in app.messages), app.messages
 
 
 def test_a_closed_pipe_ends_quietly(imported: Path) -> None:

@@ -1,6 +1,7 @@
 """The reval terminal app: screens over reval's service API, every read and write in a thread worker."""
 from __future__ import annotations
 
+import logging
 import threading
 from collections.abc import Callable
 from functools import partial
@@ -18,7 +19,8 @@ from reval.service.types import Overview
 from reval.service.wording import shown
 
 from . import keys
-from .jobs import JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, Status
+from .jobs import (CoreNotice, JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, NoticeRelay,
+                   Status)
 from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
@@ -50,7 +52,15 @@ class RevalApp(App[None]):
         self._reads: dict[Worker[Any], tuple[Screen[Any], str]] = {}
 
     def on_mount(self) -> None:
+        self._notices = NoticeRelay(self)
+        logging.getLogger("reval").addHandler(self._notices)
         self.push_screen(OverviewScreen())
+
+    def on_unmount(self) -> None:
+        logging.getLogger("reval").removeHandler(self._notices)
+
+    def on_core_notice(self, message: CoreNotice) -> None:
+        self.report(message.text, "warning")
 
     # ---- reading ---------------------------------------------------------------------------------------
 

@@ -4,10 +4,11 @@ Workers never touch widgets: they post these past-tense messages and the handler
 """
 from __future__ import annotations
 
+import logging
 from dataclasses import dataclass
 from typing import Any
 
-from textual.app import ComposeResult
+from textual.app import App, ComposeResult
 from textual.containers import Horizontal
 from textual.message import Message
 from textual.widget import Widget
@@ -59,6 +60,24 @@ class JobStopped(Message):
 
     kind: str
     summary: str
+
+
+@dataclass
+class CoreNotice(Message):
+    """Something the core logged while working (a stale lock removed, an interrupted export finished)."""
+
+    text: str
+
+
+class NoticeRelay(logging.Handler):
+    """Posts the core's log notices ("reval" logger) to the app as CoreNotice messages, from any thread."""
+
+    def __init__(self, app: App[Any]) -> None:
+        super().__init__(logging.WARNING)
+        self.app = app
+
+    def emit(self, record: logging.LogRecord) -> None:
+        self.app.post_message(CoreNotice(record.getMessage()))
 
 
 @dataclass(frozen=True)
