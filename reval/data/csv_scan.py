@@ -118,8 +118,12 @@ class _Scan:
         """Row ends (line breaks outside quotes), values per row, quote positions, and whether a quote is
         left open at the end; block by block, carrying the quote state across blocks. A byte is inside
         quotes when an odd number of quotes precede it (a doubled quote counts twice)."""
-        ends, values, quotes, newlines, nuls = [], [], [], [], []
-        odd, commas_before, nul_count = 0, 0, 0
+        ends: list[np.ndarray] = []
+        values: list[np.ndarray] = []
+        quotes: list[np.ndarray] = []
+        newlines: list[np.ndarray] = []
+        nuls: list[np.ndarray] = []
+        odd, commas_before, nul_count, nul_kept = 0, 0, 0, 0
         empty = np.empty(0, np.int64)
         for at in range(self.start, len(self.buf), BLOCK):
             block = self.buf[at:at + BLOCK]
@@ -136,8 +140,9 @@ class _Scan:
             odd, commas_before = (odd + len(quote)) % 2, commas_before + len(comma)
             nul = np.flatnonzero(block == 0)
             nul_count += len(nul)
-            if len(nul) and sum(map(len, nuls)) < SHOWN_PER_KIND:
+            if len(nul) and nul_kept < SHOWN_PER_KIND:
                 nuls.append(nul + at)
+                nul_kept += len(nul)
         self.newlines = np.concatenate(newlines) if newlines else empty
         self.nuls = (np.concatenate(nuls) if nuls else empty, nul_count)
         at_end = np.concatenate([*values, [commas_before]])
