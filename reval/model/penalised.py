@@ -1,6 +1,8 @@
-"""Penalised least squares with an offset, smoothing penalties chosen by GCV, and a shared-factorisation residualiser.
+"""Penalised least squares with an offset and row weights, smoothing penalties chosen by GCV, and a
+shared-factorisation residualiser.
 
-Minimises ||y - offset - X b||^2 + sum_j lam_j b' S_j b. Every quantity the search needs
+Minimises sum_i w_i (y_i - offset_i - x_i'b)^2 + sum_j lam_j b' S_j b (weights default to 1; with them every
+quantity below is that of the rows scaled by sqrt(w), as in Wood 2017, section 6.2.3). Every quantity the search needs
 (coefficients, residual sum of squares, effective degrees of freedom) is computed from the
 p x p Gram matrix X'X and X'(y - offset), so the search costs nothing per sale; one Cholesky
 factorisation scores a whole line of penalty values (see `_Problem`). GCV = n RSS / (n - gamma edf)^2 (Craven & Wahba 1979;
@@ -15,8 +17,9 @@ from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
-from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg import cho_factor, cho_solve, solve_triangular
 from scipy.linalg.lapack import dgesdd, dpotrf, dpstrf, dtrtrs
+from scipy.optimize import nnls
 
 from reval.model.design import Block
 
@@ -25,6 +28,7 @@ LINE_STEP = 1.0  # log10 step of the per-penalty line search
 LOG10_BOUNDS = (-6.0, 8.0)  # open interval the line search stays in
 JITTER = 1e-9  # relative ridge keeping X'X + S positive definite when a column is empty (e.g. an unsold level)
 TIE = 1e-9  # a smaller penalty must beat the current GCV by this relative margin, so ties favour smoothing
+CONSTRAINT_TOL = 1e-10  # relative to the size of the constrained differences: what counts as a violation
 
 
 @dataclass(frozen=True)
@@ -36,22 +40,35 @@ class Penalty:
     matrix: np.ndarray
 
 
-def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[Penalty]]:
-    """Design matrix, column slice per term, and the list of penalties of a list of blocks."""
+def column_slices(blocks: Sequence[Block]) -> tuple[dict[str, slice], int]:
+    """Column slice of each term in the stacked design, and its width."""
     slices: dict[str, slice] = {}
-    penalties: list[Penalty] = []
     start = 0
     for b in blocks:
-        cols = slice(start, start + b.columns.shape[1])
-        slices[b.term] = cols
-        penalties.extend(Penalty(b.term, cols, s) for s in b.penalties)
-        start = cols.stop
+        slices[b.term] = slice(start, start + b.columns.shape[1])
+        start += b.columns.shape[1]
+    return slices, start
+
+
+def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[Penalty]]:
+    """Design matrix, column slice per term, and the list of penalties of a list of blocks."""
+    slices, _ = column_slices(blocks)
+    penalties = [Penalty(b.term, slices[b.term], s) for b in blocks for s in b.penalties]
     return np.hstack([b.columns for b in blocks]), slices, penalties
 
 
+@dataclass(frozen=True)
+class LinearConstraint:
+    """Inequalities on the coefficients: matrix @ b + floor >= 0 (a shape rule, reval.model.shape). They act at
+    fixed smoothing penalties: GCV chooses the penalties of the unconstrained fit."""
+
+    matrix: np.ndarray
+    floor: np.ndarray
+
+
 class PenalisedLS:
-    """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV
-    (with edf inflated by `gamma`) picks them."""
+    """Penalised (weighted) least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else
+    GCV (with edf inflated by `gamma`) picks them."""
 
     def __init__(self, *, lambdas: Sequence[float] | np.ndarray | None = None, line_search_passes: int = 1,
                  gamma: float = 1.0) -> None:
@@ -59,41 +76,77 @@ class PenalisedLS:
         self.line_search_passes = line_search_passes
         self.gamma = gamma
 
-    def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None) -> PenalisedLS:
-        """Fit to y - offset; store coefficients, covariance, edf, GCV and the Cholesky factor."""
+    def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None,
+            weights: np.ndarray | None = None, constraint: LinearConstraint | None = None) -> PenalisedLS:
+        """Fit to y - offset, each row weighted by `weights` (X'WX and X'Wy; none = all 1), the coefficients held
+        to `constraint`; store coefficients, covariance, edf, GCV and the Cholesky factor."""
         X, slices, penalties = stack(blocks)
         y = np.asarray(y, dtype=float)
         target = y if offset is None else y - np.asarray(offset, dtype=float)
         n, p = X.shape
         if target.shape != (n,):
             raise ValueError(f"y has shape {target.shape}, the design has {n} rows")
-        gram = X.T @ X
-        xty = X.T @ target
-        scale = np.array([_penalty_scale(gram, pen) for pen in penalties])
-        jitter = JITTER * max(float(np.trace(gram)) / p, 1e-12) * np.eye(p)
-        problem = _Problem(gram, xty, float(target @ target), n, penalties, jitter, self.gamma)
+        w = _checked_weights(weights, n)
+        gram, xty, yty = _weighted_products(X, target, w)
+        jitter = JITTER * max(float(np.trace(gram)) / max(p, 1), 1e-12)
         if self.lambdas is None:
+            scale = np.array([_penalty_scale(gram, pen) for pen in penalties])
+            problem = _Problem(gram, xty, yty, n, penalties, jitter * np.eye(p), self.gamma)
             lambdas = scale * 10.0 ** _search(problem, scale, self.line_search_passes)
         else:
             lambdas = np.asarray(self.lambdas, dtype=float)
             if lambdas.shape != (len(penalties),):
                 raise ValueError(f"expected {len(penalties)} lambdas, got {lambdas.shape}")
-        chol = cho_factor(problem.system(lambdas), lower=True)
+        self.design_, self.target_, self.slices_, self.penalties_ = X, target, slices, penalties
+        self.constraint_ = constraint
+        return self._solve(w, gram, xty, lambdas)
+
+    def refit(self, weights: np.ndarray | None) -> PenalisedLS:
+        """The same design, target, penalties and constraint with new row weights (one factorisation, no GCV
+        search): a step of iteratively reweighted least squares."""
+        out = PenalisedLS(lambdas=self.lambdas_, line_search_passes=self.line_search_passes, gamma=self.gamma)
+        out.design_, out.target_, out.slices_, out.penalties_ = self.design_, self.target_, self.slices_, self.penalties_
+        out.constraint_ = self.constraint_
+        w = _checked_weights(weights, len(self.target_))
+        old = np.ones(len(self.target_)) if self.weights_ is None else self.weights_
+        change = (np.ones(len(old)) if w is None else w) - old
+        moved = np.flatnonzero(change)
+        if len(moved) > len(old) // 2:  # most rows moved: recompute X'WX and X'Wy
+            gram, xty, _ = _weighted_products(self.design_, self.target_, w)
+        else:  # IRLS moves few weights per step: update both by the rows that moved
+            rows = self.design_[moved]
+            scaled = rows * change[moved, None]
+            gram = self.gram_ + scaled.T @ rows
+            xty = self.xty_ + scaled.T @ self.target_[moved]
+        return out._solve(w, gram, xty, self.lambdas_)
+
+    def _solve(self, w: np.ndarray | None, gram: np.ndarray, xty: np.ndarray, lambdas: np.ndarray) -> PenalisedLS:
+        X, target, penalties = self.design_, self.target_, self.penalties_
+        n, p = X.shape
+        system = gram + JITTER * max(float(np.trace(gram)) / max(p, 1), 1e-12) * np.eye(p)
+        for lam, pen in zip(lambdas, penalties):
+            system[pen.cols, pen.cols] += lam * pen.matrix
+        chol = cho_factor(system, lower=True)
         coef = cho_solve(chol, xty)
+        if self.constraint_ is not None:
+            coef = _constrained(chol[0], coef, self.constraint_)
         inverse = cho_solve(chol, np.eye(p))
-        edf_cols = np.einsum("ij,ji->i", inverse, gram)  # diagonal of (X'X + S)^-1 X'X
+        edf_cols = np.einsum("ij,ji->i", inverse, gram)  # diagonal of (X'WX + S)^-1 X'WX
         resid = target - X @ coef
-        rss = float(resid @ resid)
+        rss = float(resid @ resid) if w is None else float(w @ resid**2)
         edf = float(edf_cols.sum())
         dof = n - edf
         self.coef_ = coef
         self.chol_ = chol
-        self.design_ = X
-        self.slices_ = slices
+        self.inverse_ = inverse
+        self.gram_ = gram
+        self.xty_ = xty
+        self.weights_ = w
+        self.resid_ = resid
         self.lambdas_ = lambdas
         self.penalty_terms_ = [pen.term for pen in penalties]
         self.edf_ = edf
-        self.edf_terms_ = {term: float(edf_cols[s].sum()) for term, s in slices.items()}
+        self.edf_terms_ = {term: float(edf_cols[s].sum()) for term, s in self.slices_.items()}
         self.rss_ = rss
         self.sigma2_ = rss / dof if dof > 0 else float("nan")
         gdof = n - self.gamma * edf
@@ -108,10 +161,66 @@ class PenalisedLS:
         out = X @ self.coef_
         return out if offset is None else out + offset
 
+    def leverage(self) -> np.ndarray:
+        """Diagonal of the hat matrix H = X (X'WX + S)^-1 X'W: how much each row's fitted value follows its own y."""
+        half = solve_triangular(self.chol_[0], self.design_.T, lower=True, check_finite=False)  # L^-1 X'
+        h = np.einsum("ij,ij->j", half, half)
+        return h if self.weights_ is None else h * self.weights_
+
     def residualise(self, Z: np.ndarray) -> np.ndarray:
-        """Z - H Z for every column of Z with the one stored factorisation, H = X (X'X + S)^-1 X'."""
+        """Z - H Z for every column of Z with the one stored factorisation, H = X (X'WX + S)^-1 X'W."""
         Z = np.asarray(Z, dtype=float)
-        return Z - self.design_ @ cho_solve(self.chol_, self.design_.T @ Z)
+        WZ = Z if self.weights_ is None else Z * self.weights_[:, None]
+        return Z - self.design_ @ cho_solve(self.chol_, self.design_.T @ WZ)
+
+
+def _constrained(chol: np.ndarray, free: np.ndarray, constraint: LinearConstraint) -> np.ndarray:
+    """The coefficients minimising the same objective subject to matrix @ b + floor >= 0.
+
+    With A = L L' the system matrix and b0 the free solution, z = L'(b - b0) turns the problem into least
+    distance programming: min ||z|| subject to (C L^-T) z >= -(C b0 + floor), solved by non-negative least
+    squares (Lawson & Hanson 1974, Solving Least Squares Problems, algorithm LDP of chapter 23). Only the
+    inequalities found violated so far enter (most hold anyway); the set grows until the solution violates none.
+    Should the inequalities contradict each other (they do not when the parent layers obey them), the free
+    solution is kept.
+    """
+    slack = constraint.matrix @ free + constraint.floor
+    tolerance = CONSTRAINT_TOL * max(float(np.abs(constraint.floor).max(initial=0.0)), float(np.abs(slack).max()), 1e-12)
+    working = slack < -tolerance
+    coef = free
+    while working.any():
+        rows = solve_triangular(chol, constraint.matrix[working].T, lower=True, check_finite=False)  # (C L^-T)'
+        system = np.vstack([rows, -slack[None, working]])
+        target = np.zeros(system.shape[0])
+        target[-1] = 1.0
+        u, _ = nnls(system, target, maxiter=50 * system.shape[1])
+        r = system @ u - target
+        if abs(r[-1]) < 1e-12:
+            return free
+        coef = free + solve_triangular(chol, -r[:-1] / r[-1], lower=True, trans="T", check_finite=False)
+        violated = constraint.matrix @ coef + constraint.floor < -tolerance
+        if not (violated & ~working).any():
+            break
+        working |= violated
+    return coef
+
+
+def _checked_weights(weights: np.ndarray | None, n: int) -> np.ndarray | None:
+    if weights is None:
+        return None
+    w = np.asarray(weights, dtype=float)
+    if w.shape != (n,) or not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError(f"weights must be {n} finite non-negative numbers")
+    return w
+
+
+def _weighted_products(X: np.ndarray, target: np.ndarray, w: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, float]:
+    """X'WX, X'Wy and y'Wy (W = diag(w); the identity when w is None)."""
+    if w is None:
+        return X.T @ X, X.T @ target, float(target @ target)
+    root = np.sqrt(w)
+    Xw, tw = X * root[:, None], target * root
+    return Xw.T @ Xw, Xw.T @ tw, float(tw @ tw)
 
 
 def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
