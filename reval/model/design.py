@@ -25,6 +25,7 @@ from typing import Protocol, Sequence
 import numpy as np
 
 from reval.model.splines import bspline_basis, difference_penalty
+from reval.states import FEATURE_SHAPES
 
 INTERCEPT = "(intercept)"
 PRODUCT_CAP = 2.5  # standardised values are capped at +/- this before forming products (docs/model.md, section 1, point 4)
@@ -45,6 +46,16 @@ class Feature(Protocol):
 
     @property
     def levels(self) -> tuple[str, ...]: ...
+
+
+def shape_of(feature: Feature) -> str:
+    """A feature's shape rule: its `shape` attribute when it has one (reval.config.FeatureSpec does), else free."""
+    shape = str(getattr(feature, "shape", "free"))
+    if shape not in FEATURE_SHAPES:
+        raise ValueError(f"feature {feature.name!r}: shape must be one of {', '.join(FEATURE_SHAPES)}, got {shape!r}")
+    if shape != "free" and feature.kind not in ("continuous", "ordinal"):
+        raise ValueError(f"feature {feature.name!r}: only continuous and ordinal features take a shape rule")
+    return shape
 
 
 @dataclass(frozen=True)
@@ -73,6 +84,7 @@ class FeatureTransform:
     mean: float
     sd: float
     constraint: np.ndarray  # orthonormal null-space basis Z of the sum-to-zero constraint (m x m-1)
+    shape: str = "free"  # "increasing", "decreasing" or "free" (reval.model.shape)
 
     @property
     def constant(self) -> bool:
@@ -234,6 +246,15 @@ class DesignSpec:
             out[:, i] = Z[:, self.index(a)] * Z[:, self.index(b)]
         return out
 
+    def shape_grid(self, feature: str, n_points: int) -> np.ndarray:
+        """Raw values where a shape rule is checked: evenly spaced on the modelling scale over the training range
+        (log features on the log scale), or every level of an ordinal feature."""
+        t = self.transforms[self.index(feature)]
+        if t.kind != "continuous":
+            return np.arange(t.n_levels, dtype=float)
+        points = np.linspace(t.lo, t.hi, n_points)
+        return np.exp(points) if t.log else points
+
     def grid(self, feature: str, n_points: int = 50) -> np.ndarray:
         """Raw values spanning the training range of a feature, for drawing its curve."""
         t = self.transforms[self.index(feature)]
@@ -275,7 +296,7 @@ def _learn_one(x: np.ndarray, f: Feature, n_basis: int,
     mean, scale = (like.mean, like.sd) if like is not None else (float(t.mean()), sd if sd > 0 else 1.0)
     partial = FeatureTransform(
         f.name, f.kind, log, n_levels, impute, log_floor, float(filled.min()), float(filled.max()),
-        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)),
+        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)), shape_of(f),
     )
     if sd == 0:
         width = n_basis if f.kind == "continuous" else max(n_levels, 1)
