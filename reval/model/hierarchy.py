@@ -14,11 +14,12 @@ and the segments that select their own share one more alpha (reval/model/interac
 built on our own P-splines rather than pygam because the selection, the deviations and the contributions
 need things pygam does not expose (docs/model.md, section 5).
 
-Outliers (reval/model/robust.py): every sale's starting weight comes from Huber's loss on the jurisdiction's
-main effects + segment levels + selected pairs (`_screen`); each layer is fitted at those weights, and each
-segment reweights its own sales on the whole model's residuals, so the stored weight is the segment's. A sale of
-weight below RANGE_WEIGHT spans no layer's curves (`_counted`). Shape rules (reval/model/shape.py) act on each
-layer with its parents' curves held fixed, so the total curve obeys them. All of it is redone inside every fold.
+Outliers (reval/model/robust.py): every sale's weight comes from Huber's loss on the jurisdiction's main effects
++ segment levels + selected pairs (`_screen`), and every layer is fitted at those weights; reweighting again in
+each segment, on its own deviation's leave-one-out residuals, was measured slightly worse and slower
+(docs/model.md, section 7). A sale of weight below RANGE_WEIGHT spans no layer's curves (`_counted`). Shape rules
+(reval/model/shape.py) act on each layer with its parents' curves held fixed, so the total curve obeys them. All
+of it is redone inside every fold.
 """
 
 from __future__ import annotations
@@ -37,7 +38,7 @@ from reval.model.interactions import candidate_pairs, select_interactions
 from reval.model.settings import ModelSettings
 from reval.model.penalised import PenalisedLS, column_slices, stack
 from reval.model.robust import Huber, Refined, refine
-from reval.model.shape import Curves, shape_constraint
+from reval.model.shape import Layer, shape_constraint
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
@@ -61,18 +62,15 @@ class LevelFit:
 
     @classmethod
     def fit(cls, spec: DesignSpec, pairs: Sequence[Pair], X: np.ndarray, y: np.ndarray, offset: np.ndarray | None,
-            weights: np.ndarray, *, parents: Sequence[Curves] = (), huber: Huber | None = None,
-            fixed: np.ndarray | None = None) -> tuple[LevelFit, Refined]:
-        """Fit with GCV-chosen penalties at the given row weights, then iterate the shape rules (of the total curve
-        over `parents` + this layer) and, with `huber`, the weights; the refined smoother serves selection."""
+            weights: np.ndarray, parents: Sequence[Layer] = ()) -> tuple[LevelFit, PenalisedLS]:
+        """Fit at the given row weights with GCV-chosen penalties, the total curve over `parents` + this layer held
+        to the shape rules; also return the smoother (its factorisation serves selection)."""
         blocks = spec.blocks(X, pairs)
         constraint = shape_constraint(spec, *column_slices(blocks), parents)
         smoother = PenalisedLS(gamma=GAMMA).fit(blocks, y, offset, weights, constraint)
-        refined = refine(smoother, huber, fixed=fixed)
-        smoother = refined.smoother
         level = cls(spec, tuple(pairs), smoother.coef_, smoother.cov_, smoother.slices_, smoother.lambdas_,
                     tuple(smoother.penalty_terms_), smoother.edf_, smoother.n_)
-        return level, refined
+        return level, smoother
 
     @property
     def n_columns(self) -> int:
@@ -84,6 +82,11 @@ class LevelFit:
 
     def contributions(self, X: np.ndarray) -> dict[str, np.ndarray]:
         return {b.term: b.columns @ self.coef[self.slices[b.term]] for b in self.spec.blocks(X, self.pairs)}
+
+    def curves_at(self, X: np.ndarray, names: Sequence[str]) -> dict[str, np.ndarray]:
+        """Effect of each named feature at raw rows X (features this layer holds constant are left out)."""
+        held = [name for name in names if name in self.slices]
+        return {name: cols @ self.coef[self.slices[name]] for name, cols in self.spec.feature_columns(X, held).items()}
 
     def curve(self, feature: str, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Effect of one feature at raw values x, and its posterior variance (zero if the layer lacks it)."""
@@ -117,7 +120,6 @@ class SegmentFit:
     kind: str  # "own" (own interactions), "pooled" (inherited interactions) or "parent_only"
     reason: str
     level: LevelFit | None
-    weights: Refined | None = None  # its sales' final weights and the residuals they were judged on
 
 
 @dataclass(frozen=True)
@@ -159,7 +161,7 @@ def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lam
         train = ~test
         if not train.any():
             continue
-        part = [Block(b.term, b.columns[train], b.penalties) for b in blocks]
+        part = [Block(b.term, b.columns[train], b.penalties, b.roots) for b in blocks]
         sub_offset = None if offset is None else offset[train]
         fitted = PenalisedLS(lambdas=lambdas * train.mean()).fit(part, y[train], sub_offset, weights[train])
         out[test] = design[test] @ fitted.coef_
@@ -169,14 +171,12 @@ def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lam
 def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offset: np.ndarray,
                  parent: DesignSpec, features: Sequence[Feature], candidates: Sequence[Pair],
                  inherited: tuple[Pair, ...], settings: ModelSettings, segment_alpha: float,
-                 weights: np.ndarray, parents: tuple[LevelFit, ...], huber: Huber | None,
-                 fixed: np.ndarray) -> SegmentFit:
+                 weights: np.ndarray, parents: tuple[LevelFit, ...]) -> SegmentFit:
     """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped.
 
     `segment_alpha` is the level of its own selection: settings.alpha shared (Bonferroni) among the segments
     that select their own, so all segments together add a false pair with probability at most alpha. The
-    sales start from the jurisdiction's weights; with `huber` the segment reweights them on its own residuals
-    (the whole model's), and `parents` hold the curves its shape rules add to."""
+    sales keep their weights from `_screen`; `parents` hold the curves its shape rules add to."""
     n = len(y)
     if n < settings.min_sales_own_deviation:
         reason = NO_SALES if n == 0 else f"only {n} qualified sale(s) (< {settings.min_sales_own_deviation})"
@@ -185,13 +185,12 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
                             scale_from=parent)
     own = n >= settings.min_sales_own_selection and settings.interaction_rule != "none"
     if own:
-        level, refined = LevelFit.fit(spec, (), X, y, offset, weights, parents=parents, huber=huber, fixed=fixed)
+        level, smoother = LevelFit.fit(spec, (), X, y, offset, weights, parents)
         varying = [(a, b) for a, b in candidates  # a pair with a feature constant here is no interaction here
                    if not (spec.transforms[spec.index(a)].constant or spec.transforms[spec.index(b)].constant)]
         pairs = tuple(select_interactions(
-            refined.smoother, y - offset, spec.products(X, varying), varying, rule=settings.interaction_rule,
+            smoother, y - offset, spec.products(X, varying), varying, rule=settings.interaction_rule,
             max_interactions=settings.max_interactions, alpha=segment_alpha))
-        weights = refined.weights
         reason = f"{n} sales >= {settings.min_sales_own_selection}: own interactions"
     else:
         pairs = inherited
@@ -199,8 +198,8 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
         reason = (f"{sales}: interaction rule 'none'" if settings.interaction_rule == "none"
                   else f"{sales} < {settings.min_sales_own_selection}: interactions inherited")
     if pairs or not own:  # an own selection of no pairs leaves the deviation already fitted
-        level, refined = LevelFit.fit(spec, pairs, X, y, offset, weights, parents=parents, huber=huber, fixed=fixed)
-    return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level, refined)
+        level, _ = LevelFit.fit(spec, pairs, X, y, offset, weights, parents)
+    return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
 
 
 def _counted(weights: np.ndarray) -> np.ndarray:
@@ -225,7 +224,7 @@ def _location_block(segment: np.ndarray) -> Block:
     indicators = np.zeros((len(codes), int(codes.max()) + 1))
     indicators[np.arange(len(codes)), codes] = 1.0
     z = sum_to_zero_basis(indicators.mean(axis=0))
-    return Block("(segment)", indicators @ z, (z.T @ z,))
+    return Block("(segment)", indicators @ z, (z.T @ z,), (z.T,))
 
 
 def _segment_market_areas(segment: np.ndarray, market_area: np.ndarray) -> dict[str, str]:
@@ -292,23 +291,23 @@ def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray
     products = spec.products(Xi, candidates)
     location = _location_block(segment)
     main = PenalisedLS(gamma=GAMMA).fit(spec.blocks(Xi) + [location], y)
-    weighted = main
-    chosen: list[tuple[Pair, ...]] = []
-    for _ in range(2):
-        pairs = tuple(select_interactions(
-            weighted, y, products, candidates, rule=settings.interaction_rule,
-            max_interactions=settings.max_interactions, alpha=settings.alpha))
-        if chosen and pairs == chosen[-1]:
-            break
-        chosen.append(pairs)
+
+    def select(smoother: PenalisedLS) -> tuple[Pair, ...]:
+        return tuple(select_interactions(smoother, y, products, candidates, rule=settings.interaction_rule,
+                                         max_interactions=settings.max_interactions, alpha=settings.alpha))
+
+    pairs = select(main)
+    if huber is None:
+        return pairs, Refined(main, np.ones(len(y)), main.resid_, float("nan"), 0)
+    for attempt in range(2):
         blocks = spec.blocks(Xi, pairs) + [location]
-        constraint = shape_constraint(spec, *column_slices(blocks))
-        full = PenalisedLS(lambdas=main.lambdas_).fit(blocks, y, constraint=constraint)
+        full = PenalisedLS(lambdas=main.lambdas_).fit(blocks, y, constraint=shape_constraint(spec, *column_slices(blocks)))
         screen = refine(full, huber, fixed=fixed)
-        if huber is None:
+        again = select(main.refit(screen.weights)) if attempt == 0 else pairs
+        if again == pairs:
             break
-        weighted = main.refit(screen.weights)
-    return chosen[-1], screen
+        pairs = again
+    return pairs, screen
 
 
 def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray, features: Sequence[Feature],
@@ -338,33 +337,27 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
     for name, rows in _rows_by(market_area).items():
         dev_spec = DesignSpec.learn(Xi[rows][_counted(weights[rows])], features, settings.n_basis_segment,
                                     deviation=True, scale_from=spec)
-        areas[name], _ = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows], weights[rows],
-                                      parents=(top,))
+        areas[name], _ = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows], weights[rows], (top,))
         area_offset[rows] = top_offset[rows] + offset_of(areas[name], rows, top_offset)
 
     seg_area = _segment_market_areas(segment, market_area)
     groups = _rows_by(segment)
     selecting = sum(len(rows) >= settings.min_sales_own_selection for rows in groups.values())
     segment_alpha = settings.alpha / max(selecting, 1)
-    segment_huber = None if huber is None else Huber(huber.k, scale=screen.scale)
     tasks = (delayed(_fit_segment)(name, seg_area[name], Xi[rows], y[rows], area_offset[rows], spec, features,
                                    candidates, pairs, settings, segment_alpha, weights[rows],
-                                   (top, areas[seg_area[name]]), segment_huber, fixed[rows])
+                                   (top, areas[seg_area[name]]))
              for name, rows in groups.items())
     fitted: dict[str, SegmentFit] = {}
-    sale_weight, sale_residual = weights.copy(), screen.residual.copy()
     for i, result in enumerate(Parallel(n_jobs=settings.jobs, return_as="generator")(tasks)):
         fitted[result.name] = result
-        if result.weights is not None:
-            sale_weight[groups[result.name]] = result.weights.weights
-            sale_residual[groups[result.name]] = result.weights.residual
         if progress is not None:
             progress(i + 1, len(groups))
     for name, area in (segments or {}).items():
         if name not in fitted:
             fitted[name] = SegmentFit(name, area, 0, "parent_only", NO_SALES, None)
     return FittedHierarchy(tuple(features), spec, top, areas, fitted,
-                           SaleWeights(sale_weight, sale_residual, screen.scale))
+                           SaleWeights(weights, screen.residual, screen.scale))
 
 
 def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,

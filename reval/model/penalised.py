@@ -14,6 +14,7 @@ of Wood (2017, section 6.10), which gives curve bands with good frequentist cove
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Sequence
 
 import numpy as np
@@ -33,11 +34,12 @@ CONSTRAINT_TOL = 1e-10  # relative to the size of the constrained differences: w
 
 @dataclass(frozen=True)
 class Penalty:
-    """One smoothing penalty: the block it acts on (as a column slice) and its matrix."""
+    """One smoothing penalty: the block it acts on (as a column slice), its matrix and, if known, a root of it."""
 
     term: str
     cols: slice
     matrix: np.ndarray
+    root: np.ndarray | None = None
 
 
 def column_slices(blocks: Sequence[Block]) -> tuple[dict[str, slice], int]:
@@ -53,7 +55,8 @@ def column_slices(blocks: Sequence[Block]) -> tuple[dict[str, slice], int]:
 def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[Penalty]]:
     """Design matrix, column slice per term, and the list of penalties of a list of blocks."""
     slices, _ = column_slices(blocks)
-    penalties = [Penalty(b.term, slices[b.term], s) for b in blocks for s in b.penalties]
+    penalties = [Penalty(b.term, slices[b.term], s, b.roots[i] if b.roots else None)
+                 for b in blocks for i, s in enumerate(b.penalties)]
     return np.hstack([b.columns for b in blocks]), slices, penalties
 
 
@@ -118,42 +121,64 @@ class PenalisedLS:
             scaled = rows * change[moved, None]
             gram = self.gram_ + scaled.T @ rows
             xty = self.xty_ + scaled.T @ self.target_[moved]
-        return out._solve(w, gram, xty, self.lambdas_)
+        return out._solve(w, gram, xty, self.lambdas_, self.active_)
 
-    def _solve(self, w: np.ndarray | None, gram: np.ndarray, xty: np.ndarray, lambdas: np.ndarray) -> PenalisedLS:
+    def _solve(self, w: np.ndarray | None, gram: np.ndarray, xty: np.ndarray, lambdas: np.ndarray,
+               active: np.ndarray | None = None) -> PenalisedLS:
+        """Coefficients and residuals at fixed penalties; the inverse, edf and covariance follow when first asked
+        for (a reweighting step needs none of them)."""
         X, target, penalties = self.design_, self.target_, self.penalties_
-        n, p = X.shape
+        p = X.shape[1]
         system = gram + JITTER * max(float(np.trace(gram)) / max(p, 1), 1e-12) * np.eye(p)
         for lam, pen in zip(lambdas, penalties):
             system[pen.cols, pen.cols] += lam * pen.matrix
         chol = cho_factor(system, lower=True)
         coef = cho_solve(chol, xty)
+        self.active_ = None
         if self.constraint_ is not None:
-            coef = _constrained(chol[0], coef, self.constraint_)
-        inverse = cho_solve(chol, np.eye(p))
-        edf_cols = np.einsum("ij,ji->i", inverse, gram)  # diagonal of (X'WX + S)^-1 X'WX
+            coef, self.active_ = _constrained(chol[0], coef, self.constraint_, active)
         resid = target - X @ coef
-        rss = float(resid @ resid) if w is None else float(w @ resid**2)
-        edf = float(edf_cols.sum())
-        dof = n - edf
         self.coef_ = coef
         self.chol_ = chol
-        self.inverse_ = inverse
         self.gram_ = gram
         self.xty_ = xty
         self.weights_ = w
         self.resid_ = resid
         self.lambdas_ = lambdas
         self.penalty_terms_ = [pen.term for pen in penalties]
-        self.edf_ = edf
-        self.edf_terms_ = {term: float(edf_cols[s].sum()) for term, s in self.slices_.items()}
-        self.rss_ = rss
-        self.sigma2_ = rss / dof if dof > 0 else float("nan")
-        gdof = n - self.gamma * edf
-        self.gcv_ = n * rss / gdof**2 if gdof > 0 else float("inf")
-        self.cov_ = self.sigma2_ * inverse
-        self.n_ = n
+        self.rss_ = float(resid @ resid) if w is None else float(w @ resid**2)
+        self.n_ = X.shape[0]
         return self
+
+    @cached_property
+    def inverse_(self) -> np.ndarray:
+        return np.asarray(cho_solve(self.chol_, np.eye(self.design_.shape[1])))
+
+    @cached_property
+    def _edf_columns(self) -> np.ndarray:
+        return np.einsum("ij,ji->i", self.inverse_, self.gram_)  # diagonal of (X'WX + S)^-1 X'WX
+
+    @property
+    def edf_(self) -> float:
+        return float(self._edf_columns.sum())
+
+    @property
+    def edf_terms_(self) -> dict[str, float]:
+        return {term: float(self._edf_columns[s].sum()) for term, s in self.slices_.items()}
+
+    @property
+    def sigma2_(self) -> float:
+        dof = self.n_ - self.edf_
+        return self.rss_ / dof if dof > 0 else float("nan")
+
+    @property
+    def gcv_(self) -> float:
+        gdof = self.n_ - self.gamma * self.edf_
+        return self.n_ * self.rss_ / gdof**2 if gdof > 0 else float("inf")
+
+    @property
+    def cov_(self) -> np.ndarray:
+        return self.sigma2_ * self.inverse_
 
     def predict(self, blocks: Sequence[Block], offset: np.ndarray | None = None) -> np.ndarray:
         """Fitted values for new rows built by the same design (plus their offset)."""
@@ -174,21 +199,25 @@ class PenalisedLS:
         return Z - self.design_ @ cho_solve(self.chol_, self.design_.T @ WZ)
 
 
-def _constrained(chol: np.ndarray, free: np.ndarray, constraint: LinearConstraint) -> np.ndarray:
-    """The coefficients minimising the same objective subject to matrix @ b + floor >= 0.
+def _constrained(chol: np.ndarray, free: np.ndarray, constraint: LinearConstraint,
+                 start: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """The coefficients minimising the same objective subject to matrix @ b + floor >= 0, and the inequalities used.
 
     With A = L L' the system matrix and b0 the free solution, z = L'(b - b0) turns the problem into least
     distance programming: min ||z|| subject to (C L^-T) z >= -(C b0 + floor), solved by non-negative least
     squares (Lawson & Hanson 1974, Solving Least Squares Problems, algorithm LDP of chapter 23). Only the
-    inequalities found violated so far enter (most hold anyway); the set grows until the solution violates none.
-    Should the inequalities contradict each other (they do not when the parent layers obey them), the free
-    solution is kept.
+    inequalities found violated so far (and those of `start`, a previous fit's) enter, since most hold anyway; the
+    set grows until the solution violates none. Should the inequalities contradict each other (they do not when
+    the parent layers obey them), the free solution is kept.
     """
     slack = constraint.matrix @ free + constraint.floor
     tolerance = CONSTRAINT_TOL * max(float(np.abs(constraint.floor).max(initial=0.0)), float(np.abs(slack).max()), 1e-12)
     working = slack < -tolerance
-    coef = free
-    while working.any():
+    if not working.any():
+        return free, working
+    if start is not None:
+        working |= start
+    while True:
         rows = solve_triangular(chol, constraint.matrix[working].T, lower=True, check_finite=False)  # (C L^-T)'
         system = np.vstack([rows, -slack[None, working]])
         target = np.zeros(system.shape[0])
@@ -196,13 +225,12 @@ def _constrained(chol: np.ndarray, free: np.ndarray, constraint: LinearConstrain
         u, _ = nnls(system, target, maxiter=50 * system.shape[1])
         r = system @ u - target
         if abs(r[-1]) < 1e-12:
-            return free
+            return free, np.zeros(len(slack), dtype=bool)
         coef = free + solve_triangular(chol, -r[:-1] / r[-1], lower=True, trans="T", check_finite=False)
         violated = constraint.matrix @ coef + constraint.floor < -tolerance
         if not (violated & ~working).any():
-            break
+            return coef, working
         working |= violated
-    return coef
 
 
 def _checked_weights(weights: np.ndarray | None, n: int) -> np.ndarray | None:
@@ -231,7 +259,12 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
 
 
 def _embedded_root(pen: Penalty, p: int) -> np.ndarray:
-    """E (p x rank) with E E' = the penalty placed in the p x p system (zero outside its block)."""
+    """E (p x rank) with E E' = the penalty placed in the p x p system (zero outside its block); the block's own
+    root when it has one (surplus columns are harmless: they add zero singular values to each line's SVD)."""
+    if pen.root is not None:
+        out = np.zeros((p, pen.root.shape[1]))
+        out[pen.cols] = pen.root
+        return out
     vals, vecs = np.linalg.eigh(pen.matrix)
     keep = vals > 1e-12 * max(float(vals.max(initial=0.0)), 1e-300)
     out = np.zeros((p, int(keep.sum())))

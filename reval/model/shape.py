@@ -36,27 +36,31 @@ GRID_POINTS = 64  # points per continuous curve where the rule is checked
 DIRECTION = {"increasing": 1.0, "decreasing": -1.0}
 
 
-class Curves(Protocol):
-    """A fitted parent layer: its effect of one feature at raw values (reval.model.hierarchy.LevelFit)."""
+class Layer(Protocol):
+    """A fitted parent layer: the effect of some features at given rows (reval.model.hierarchy.LevelFit)."""
 
-    def curve(self, feature: str, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]: ...
+    def curves_at(self, X: np.ndarray, names: Sequence[str]) -> dict[str, np.ndarray]: ...
 
 
 def shape_constraint(spec: DesignSpec, slices: dict[str, slice], n_columns: int,
-                     parents: Sequence[Curves] = ()) -> LinearConstraint | None:
+                     parents: Sequence[Layer] = ()) -> LinearConstraint | None:
     """The inequalities of every shaped, non-constant feature of a layer (None if it has none): matrix @ coef +
     floor >= 0 holds the signed differences of parents + this layer between neighbouring grid points."""
+    grid, shaped = spec.shape_grids(GRID_POINTS)
+    shaped = [(name, shape, used) for name, shape, used in shaped if name in slices]
+    if not shaped:
+        return None
+    names = [name for name, _, _ in shaped]
+    own = spec.feature_columns(grid, names)
+    above = [p.curves_at(grid, names) for p in parents]
     rows, floors = [], []
-    for t in spec.transforms:
-        if t.shape == "free" or t.name not in slices:
-            continue
-        sign = DIRECTION[t.shape]
-        x = spec.shape_grid(t.name, GRID_POINTS)
-        steps = np.zeros((len(x) - 1, n_columns))
-        steps[:, slices[t.name]] = sign * np.diff(spec.term_columns(t.name, x), axis=0)
-        parent = np.sum([p.curve(t.name, x)[0] for p in parents], axis=0) if parents else np.zeros(len(x))
+    for name, shape, used in shaped:
+        sign = DIRECTION[shape]
+        steps = np.zeros((used - 1, n_columns))
+        steps[:, slices[name]] = sign * np.diff(own[name][:used], axis=0)
+        parent = np.zeros(used)
+        for part in above:
+            parent += part.get(name, np.zeros(len(grid)))[:used]
         rows.append(steps)
         floors.append(sign * np.diff(parent))
-    if not rows:
-        return None
     return LinearConstraint(np.vstack(rows), np.concatenate(floors))

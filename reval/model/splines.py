@@ -53,9 +53,14 @@ def _cubic_basis(x: np.ndarray, lo: float, step: float, n_basis: int) -> np.ndar
     return out
 
 
-def difference_penalty(n_basis: int, order: int = 2) -> np.ndarray:
-    """Penalty D'D where D takes `order`-th differences of adjacent coefficients."""
+def difference_matrix(n_basis: int, order: int = 2) -> np.ndarray:
+    """D, which takes `order`-th differences of adjacent coefficients."""
     if order >= n_basis:
         raise ValueError(f"difference order {order} needs more than {order} coefficients, got {n_basis}")
-    d = np.diff(np.eye(n_basis), n=order, axis=0)
+    return np.diff(np.eye(n_basis), n=order, axis=0)
+
+
+def difference_penalty(n_basis: int, order: int = 2) -> np.ndarray:
+    """Penalty D'D (D from `difference_matrix`)."""
+    d = difference_matrix(n_basis, order)
     return d.T @ d
