@@ -67,7 +67,7 @@ def test_extreme_sales_are_down_weighted_and_shown_in_review_study_and_sales_tab
     assert len(stored) == n_qualified
     for sale in GROSS:
         weight, reason = stored[sale]
-        assert weight < 0.2 and "without this sale" in reason
+        assert weight < 0.2 and reason.startswith("price ") and "from the model's value" in reason
     assert all(r is None for w, r in stored.values() if w == 1.0)
     # reval review: each segment's down-weighted sales, lowest weight first.
     review = actions.review(demo_project, limit=500)
@@ -85,7 +85,7 @@ def test_extreme_sales_are_down_weighted_and_shown_in_review_study_and_sales_tab
     # The app's sales tab: the weight and why, beside the ratio.
     page = views.segment_sales(demo_project, "MARW", page=0, page_size=200)
     row = next(r for r in page["rows"] if r["sale_id"] == "S0000044")
-    assert row["weight"] < 0.2 and "without this sale" in row["weight_reason"]
+    assert row["weight"] < 0.2 and "from the model's value" in row["weight_reason"]
     assert page["downweighted"] == marw["n_downweighted"]
 
 

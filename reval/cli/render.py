@@ -139,7 +139,7 @@ def _by_name(rows: list[dict[str, Any]], *drop: str) -> list[dict[str, Any]]:
 def fit(result: dict[str, Any], console: Console) -> None:
     console.print(f"Run {result['run_id']}: {result['sales']:,} sales, {result['segments']} segments, "
                   f"{result['parcels']:,} parcels valued; {result['downweighted_sales']:,} sales down-weighted as far "
-                  "from the model's value without them")
+                  "from what the other sales say they are worth")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
                   _by_name(result["accuracy"]), console)

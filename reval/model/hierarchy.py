@@ -124,7 +124,8 @@ class SegmentFit:
 
 @dataclass(frozen=True)
 class SaleWeights:
-    """Each training sale's weight in the fit and the deleted residual (log) it was judged on, with the scale."""
+    """Each training sale's weight in the fit, the screening model's leave-one-out residual (log) it was judged on,
+    and the scale."""
 
     weight: np.ndarray
     residual: np.ndarray

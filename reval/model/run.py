@@ -93,7 +93,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     sale_predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"],
                                      "parcel_id": sales.frame["parcel_id"], "fold": folds.astype(np.int16),
                                      "insample_log": model.predict(sales.X, segment, market_area), "oof_log": oof})
-    weights = _sale_weights(model, sales, run_id)
+    weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy(), run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
         for table, frame in reports.items():
@@ -143,17 +143,16 @@ def _references(sales: SalesData, features: tuple[FeatureSpec, ...], y: np.ndarr
     return accuracy, importance
 
 
-def _sale_weights(model: FittedHierarchy, sales: SalesData, run_id: str) -> pd.DataFrame:
-    """Each sale's weight in the fit, the deleted residual it was judged on and the scale, for insert_sale_weights
-    (which writes the reasons)."""
+def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray, run_id: str) -> pd.DataFrame:
+    """Each sale's weight in the fit and its residual against the run's value (log), for insert_sale_weights
+    (which writes the reasons). The weight was judged on the screening model's leave-one-out residual, which
+    overstates a lone sale's distance where that model extrapolates; the run's own value is what a reviewer
+    compares the price with."""
     found = model.sale_weights
-    n = len(sales.frame)
-    weight = np.ones(n) if found is None else found.weight
-    residual = np.full(n, np.nan) if found is None else found.residual
-    scale = float("nan") if found is None else found.scale
+    weight = np.ones(len(sales.frame)) if found is None else found.weight
     return pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"], "parcel_id": sales.frame["parcel_id"],
-                         "weight": weight, "residual": residual, "scale": scale,
-                         "vouched": sales.frame["vouched"].to_numpy(bool), "analyst_reason": sales.frame["analyst_reason"]})
+                         "weight": weight, "residual": residual, "vouched": sales.frame["vouched"].to_numpy(bool),
+                         "analyst_reason": sales.frame["analyst_reason"]})
 
 
 def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:

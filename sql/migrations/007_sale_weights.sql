@@ -1,8 +1,7 @@
 -- Version 7: each sale's weight in a run's robust fit, and the analyst's decisions on single sales.
 
--- Each qualified sale's weight in a run's fit (1 = full; reval/model/robust.py), the residual it was judged on
--- (log adjusted price minus the log value the model gives the sale without it) and why, when below full weight
--- or fixed by the analyst.
+-- Each qualified sale's weight in a run's fit (1 = full; reval/model/robust.py), its residual (log adjusted price
+-- minus the run's log value for it) and why, when below full weight or fixed by the analyst.
 CREATE TABLE sale_weights (
     run_id    VARCHAR NOT NULL,
     sale_id   VARCHAR NOT NULL,
