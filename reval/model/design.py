@@ -94,12 +94,15 @@ class FeatureTransform:
 
 
 def sum_to_zero_basis(column_means: np.ndarray) -> np.ndarray:
-    """Orthonormal basis of {b : c'b = 0}, from the QR decomposition of c (Wood 2017, section 1.8.1)."""
-    c = np.asarray(column_means, dtype=float)[:, None]
+    """Orthonormal basis of {b : c'b = 0}, from the QR decomposition of c (Wood 2017, section 1.8.1): for one
+    column the Q factor is the Householder reflection H = I - 2 v v' / v'v, v = c + sign(c_1) ||c|| e_1, whose
+    first column is parallel to c, so its other columns are the basis (built directly, without LAPACK's QR)."""
+    c = np.asarray(column_means, dtype=float)
     if not np.any(c):
         return np.zeros((c.shape[0], 0))
-    q, _ = np.linalg.qr(c, mode="complete")
-    return q[:, 1:]
+    v = c.copy()
+    v[0] += np.copysign(np.linalg.norm(c), c[0])
+    return np.eye(len(c))[:, 1:] - np.outer(v, v[1:]) * (2.0 / (v @ v))
 
 
 def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
