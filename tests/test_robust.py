@@ -9,7 +9,7 @@ import statsmodels.api as sm
 
 from reval.model.design import Block, DesignSpec
 from reval.model.penalised import PenalisedLS
-from reval.model.robust import Huber, huber_weights, judged_residual, mad_scale, refine
+from reval.model.robust import Huber, huber_weights, mad_scale, own_weight_leverage, refine
 
 
 def linear_data(seed: int = 6, n: int = 300) -> tuple[np.ndarray, np.ndarray]:
@@ -58,13 +58,30 @@ def test_deleted_residuals_equal_leave_one_out_refits() -> None:
     spec = DesignSpec.learn(x[:, None], [feature], n_basis=12)
     blocks = spec.blocks(x[:, None])
     fitted = PenalisedLS(lambdas=[3.0]).fit(blocks, y, weights=w)
-    deleted = judged_residual(fitted, leverage=True)
+    deleted = fitted.resid_ / (1.0 - fitted.leverage())
     for i in (0, 17, int(np.argmax(x)), int(np.argmin(x))):
         keep = np.arange(n) != i
         without = PenalisedLS(lambdas=[3.0]).fit([Block(b.term, b.columns[keep], b.penalties) for b in blocks],
                                                   y[keep], weights=w[keep])
         prediction = without.predict([Block(b.term, b.columns[i:i + 1], b.penalties) for b in blocks])[0]
         assert deleted[i] == pytest.approx(y[i] - prediction, rel=1e-6)
+
+
+def test_the_leverage_after_one_weight_moves_is_exact() -> None:
+    # Sherman-Morrison (textbook): moving one row's weight changes (X'WX + S) by a rank-one term, so its own
+    # leverage after the move follows from its leverage factor before it; checked against a refit.
+    rng = np.random.default_rng(4)
+    x = rng.uniform(0.0, 10.0, 120)
+    y = np.sin(x) + rng.normal(0.0, 0.2, 120)
+    feature = SimpleNamespace(name="x", kind="continuous", log=False, levels=())
+    spec = DesignSpec.learn(x[:, None], [feature], n_basis=12)
+    before = PenalisedLS(lambdas=[2.0]).fit(spec.blocks(x[:, None]), y)
+    for i, w in ((int(np.argmax(x)), 0.05), (7, 0.4)):
+        weights = np.ones(len(y))
+        weights[i] = w
+        after = before.refit(weights)
+        predicted = own_weight_leverage(before.leverage_factors(), np.ones(len(y)), weights)
+        assert predicted[i] == pytest.approx(after.leverage()[i], rel=1e-9)
 
 
 def edge_error_data() -> tuple[np.ndarray, np.ndarray, int]:

@@ -188,9 +188,13 @@ class PenalisedLS:
 
     def leverage(self) -> np.ndarray:
         """Diagonal of the hat matrix H = X (X'WX + S)^-1 X'W: how much each row's fitted value follows its own y."""
-        half = solve_triangular(self.chol_[0], self.design_.T, lower=True, check_finite=False)  # L^-1 X'
-        h = np.einsum("ij,ij->j", half, half)
+        h = self.leverage_factors()
         return h if self.weights_ is None else h * self.weights_
+
+    def leverage_factors(self) -> np.ndarray:
+        """x_i' (X'WX + S)^-1 x_i for every row: its leverage before its own weight is applied."""
+        half = solve_triangular(self.chol_[0], self.design_.T, lower=True, check_finite=False)  # L^-1 X'
+        return np.einsum("ij,ij->j", half, half)
 
     def residualise(self, Z: np.ndarray) -> np.ndarray:
         """Z - H Z for every column of Z with the one stored factorisation, H = X (X'WX + S)^-1 X'W."""
