@@ -25,7 +25,7 @@ from threadpoolctl import threadpool_limits
 from data_samples.ames_data import write_ames_csv
 from reval.service.actions import DEMO_FILES, DEMO_SOURCE
 from reval.data.config import load_config
-from reval.data.dataset import qualified_sales
+from reval.data.dataset import qualified_sales, with_shapes
 from reval.model.design import Feature
 from reval.model.hierarchy import fold_ids, out_of_fold
 from reval.data.importer import run_import
@@ -90,9 +90,10 @@ def run(name: str) -> pd.DataFrame:
     segment, market_area = frame["segment"].to_numpy(str), frame["market_area"].to_numpy(str)
     settings = config.model
     folds = fold_ids(len(y), segment, settings.seed, settings.folds)
+    features = with_shapes(sales.features, config.features)  # the config's shape rules, as `reval fit` uses them
     with threadpool_limits(limits=1):
         start = time.perf_counter()
-        ours = out_of_fold(X, y, segment, market_area, sales.features, settings)
+        ours = out_of_fold(X, y, segment, market_area, features, settings)
         ours_seconds = time.perf_counter() - start
         factories = dict(reference_factories(sales.features, seed=settings.seed))
         factories["lightgbm"] = lambda: LightGBMModel(sales.features, settings.seed)

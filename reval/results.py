@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Literal, TypedDict
 
-from reval.states import BatchState
+from reval.states import BatchState, SaleChoice
 
 
 class ImportSummary(TypedDict):
@@ -34,6 +34,18 @@ class SalesCounts(TypedDict):
     segments: list[SegmentSales]
 
 
+class SaleDecision(TypedDict):
+    """The analyst's decision on one sale and where it leaves the sale (qualified is None before `reval sales`)."""
+
+    sale_id: str
+    decision: SaleChoice
+    reason: str
+    parcels: list[str]
+    segment: str
+    qualified: bool | None
+    qualification: str | None
+
+
 class FitSummary(TypedDict):
     """What a run stored: its id, counts, seconds per stage and the whole jurisdiction's accuracy per model."""
 
@@ -42,6 +54,7 @@ class FitSummary(TypedDict):
     parcels: int
     segments: int
     timings: dict[str, float]
+    downweighted_sales: int
     accuracy: list[dict[str, Any]]
 
 
@@ -98,6 +111,8 @@ class SegmentReview(TypedDict):
     change_ratio_quantiles: dict[str, float | None] | None
     n_beyond_threshold: int
     beyond_threshold: list[dict[str, Any]]
+    n_downweighted: int
+    downweighted: list[dict[str, Any]]
     sales_chasing: SalesChasing
 
 

@@ -13,8 +13,12 @@ VerdictStatus = Literal["pass", "fail", "too_few_sales"]
 Grouping = Literal["segment", "market_area", "class", "all"]
 FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
 InteractionRule = Literal["lasso", "significance", "none"]
+Loss = Literal["huber", "squared"]                                     # the fit's loss on log price
+FeatureShape = Literal["increasing", "decreasing", "free"]               # a feature's shape rule
+SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
 FEATURE_KINDS: tuple[FeatureKind, ...] = get_args(FeatureKind)
 INTERACTION_RULES: tuple[InteractionRule, ...] = get_args(InteractionRule)
+FEATURE_SHAPES: tuple[FeatureShape, ...] = get_args(FeatureShape)
 VALUES_SOURCES: tuple[ValuesSource, ...] = get_args(ValuesSource)

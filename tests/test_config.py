@@ -41,6 +41,15 @@ def test_small_config_loads(small_project: Path) -> None:
     assert str(config.sale_window_start) == "2023-01-01"
 
 
+def test_shape_rules_and_the_loss_are_read(tmp_path: Path) -> None:
+    config = SMALL_CONFIG.replace("range = [200, 8000]", 'range = [200, 8000]\nshape = "increasing"', 1)
+    config = config.replace('levels = ["low", "average", "good"]', 'levels = ["low", "average", "good"]\nshape = "decreasing"')
+    loaded = load_config(write_project(tmp_path / "p", config=config + '\n[model]\nloss = "squared"\nhuber_k = 2\n'))
+    assert [f.shape for f in loaded.features] == ["increasing", "decreasing", "free"]
+    assert loaded.model.loss == "squared" and loaded.model.huber_k == 2.0
+    assert load_config(write_project(tmp_path / "q")).model.loss == "huber"  # the default
+
+
 @pytest.mark.parametrize("old,new,key,fragment", [
     ('name = "Test township"', 'name = "T"\ncolour = "blue"', "jurisdiction.colour", "unknown key"),
     ('segment = "nbhd"\n', "", "columns.segment", "missing"),
@@ -58,6 +67,8 @@ def test_small_config_loads(small_project: Path) -> None:
     ("[columns]", "[colums]", "(top level).colums", "unknown key"),
     ("range = [200, 8000]", "range = [8000, 200]", "features[0].range", "low <= high"),
     ("range = [200, 8000]", "range = [200, inf]", "features[0].range", "finite"),
+    ("range = [200, 8000]", 'range = [200, 8000]\nshape = "rising"', "features[0].shape", "must be one of"),
+    ('type = "binary"', 'type = "binary"\nshape = "increasing"', "features[2].shape", "only continuous and ordinal"),
 ])
 def test_config_errors_name_file_and_key(tmp_path: Path, old: str, new: str, key: str, fragment: str) -> None:
     assert old in SMALL_CONFIG
@@ -103,6 +114,8 @@ BOUNDS = [
     ('[model]\ninteraction_rule = "ridge"', "model.interaction_rule", 'one of "lasso"'),
     ('[model]\ninteraction_candidates = [["a", "a"]]', "model.interaction_candidates", "pairs"),
     ("[model]\ncolour = 1", "model.colour", "unknown key"),
+    ('[model]\nloss = "absolute"', "model.loss", 'one of "huber"'),
+    ("[model]\nhuber_k = 0", "model.huber_k", "greater than 0"),
     ("[standards]\ncod_limit = 3", "standards.cod_limit", "unknown key"),
     ("[standards]\nprd = [1.03, 0.98]", "standards.prd", "low <= high"),
     ("[standards]\nmedian_ratio = [0.9, inf]", "standards.median_ratio", "finite"),

@@ -34,6 +34,16 @@ def test_basis_reproduces_scipy_spline_evaluation() -> None:
     np.testing.assert_allclose(bspline_basis(x, -2.0, 5.0, 12) @ coef, BSpline(knots, coef, 3)(x), atol=1e-12)
 
 
+@pytest.mark.parametrize("n_basis", [4, 5, 8, 12, 20])
+def test_closed_form_cubic_basis_equals_scipys_design_matrix(n_basis: int) -> None:
+    # Reference library: scipy.interpolate.BSpline.design_matrix on the same knots, at random points, at every
+    # knot and at both ends (the right end belongs to the last interval).
+    knots = equal_knots(-1.0, 3.0, n_basis)
+    x = np.r_[np.random.default_rng(3).uniform(-1.0, 3.0, 400), knots[3:-3], -1.0, 3.0]
+    reference = BSpline.design_matrix(x, knots, 3, extrapolate=False).toarray()
+    np.testing.assert_allclose(bspline_basis(x, -1.0, 3.0, n_basis), reference, atol=1e-13)
+
+
 def test_values_outside_the_range_are_clamped_to_the_boundary() -> None:
     # docs/model.md, section 1, point 4: a parcel outside the training range gets the boundary value, no extrapolation.
     B = bspline_basis(np.array([-10.0, 0.0, 1.0, 40.0]), 0.0, 1.0, n_basis=9)

@@ -108,6 +108,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", action="store_true", help="show the stored counts without recomputing")
     p.set_defaults(func=cmd_sales)
 
+    p = sub.add_parser("sale", parents=[common], help="exclude one sale from models and studies, or include it at full "
+                       "weight in the fit, with a reason (re-qualifies the sales; the next fit honours it)")
+    p.add_argument("sale_id", help="the sale's id (all its parcels)")
+    p.add_argument("decision", choices=["exclude", "include"])
+    p.add_argument("--reason", required=True, help="why; kept in the audit log and shown with the sale")
+    p.set_defaults(func=lambda a: render.emit(a, actions.decide_sale(_folder(a), a.sale_id, a.decision, a.reason),
+                                              render.sale_decision))
+
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
     p.add_argument("--by", choices=["segment", "market_area", "class", "all"], default="segment")

@@ -21,6 +21,7 @@ from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
+LISTED = 10  # down-weighted sales listed under a study or a review
 
 
 def console(stderr: bool = False) -> Console:
@@ -108,6 +109,16 @@ def sales(result: dict[str, Any], console: Console) -> None:
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
 
 
+def sale_decision(r: dict[str, Any], console: Console) -> None:
+    what = "excluded from models and ratio studies" if r["decision"] == "exclude" else "included at full weight"
+    console.print(f"Sale {r['sale_id']} ({', '.join(r['parcels'])}, segment {r['segment']}) {what}: {r['reason']}")
+    if r["qualified"] is None:
+        console.print("It takes effect at `reval sales`; then `reval fit`.")
+    else:
+        state = "qualified" if r["qualified"] else f"not qualified ({r['qualification']})"
+        console.print(f"Sales re-qualified: this sale is now {state}. Run `reval fit` for a run that honours it.")
+
+
 # ---- studies and models ----------------------------------------------------------------------------------------
 
 def study(result: dict[str, Any], console: Console) -> None:
@@ -120,10 +131,19 @@ def study(result: dict[str, Any], console: Console) -> None:
         shown = "-" if value is None else format(value, fmt)
         return f"{shown} {MARKS[verdict['status']]}"
 
+    model = result["values_source"] != "prior"
     rows = [{"group": g["group"], "n": g["n"], "trimmed": g["n_trimmed"],
+             **({"down-weighted": len(g.get("downweighted", []))} if model else {}),
              "median": cell(g, "median_ratio", ".3f"), "COD": cell(g, "cod", ".1f"),
              "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
     records_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
+    if model:
+        light = sorted((s for g in result["groups"] for s in g.get("downweighted", [])), key=lambda s: s["weight"])
+        if light:
+            console.print("Down-weighted = sales the run's fit gave less than full weight (they still count in these "
+                          f"statistics); the {min(len(light), LISTED)} lowest:")
+            for s in light[:LISTED]:
+                console.print(f"  {s['sale_id']} (parcel {s['parcel_id']}): {s['reason']}")
     console.print(CAUTION)
 
 
@@ -134,7 +154,8 @@ def _by_name(rows: list[dict[str, Any]], *drop: str) -> list[dict[str, Any]]:
 
 def fit(result: dict[str, Any], console: Console) -> None:
     console.print(f"Run {name(result['run_id'])}: {result['sales']:,} sales, {result['segments']} segments, "
-                  f"{result['parcels']:,} parcels valued")
+                  f"{result['parcels']:,} parcels valued; {result['downweighted_sales']:,} sales down-weighted as far "
+                  "from what the other sales say they are worth")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
                   _by_name(result["accuracy"]), console)
@@ -175,9 +196,12 @@ def review(r: dict[str, Any], console: Console) -> None:
         q = s["change_ratio_quantiles"] or {}
         rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}", percent(s["total_change"]),
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
-                     f"{s['n_beyond_threshold']:,}", s["sales_chasing"]["status"].replace("_", " ")])
-    table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%",
-          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "sales chasing"], rows, console)
+                     f"{s['n_beyond_threshold']:,}", f"{s['n_downweighted']:,}",
+                     s["sales_chasing"]["status"].replace("_", " ")])
+    table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
+          "down-weighted = sales the fit gave less than full weight",
+          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted", "sales chasing"],
+          rows, console)
     for s in r["segments"]:
         chase = s["sales_chasing"]
         if chase["flagged"]:
@@ -185,6 +209,11 @@ def review(r: dict[str, Any], console: Console) -> None:
                                         f" — median change sold {percent(chase['median_change_sold'])} vs unsold "
                                         f"{percent(chase['median_change_unsold'])}, Mann-Whitney U p = "
                                         f"{chase['p_value']:.2g} ({chase['rule']})."))
+        if s["downweighted"] and len(r["segments"]) == 1:
+            table(f"{name(s['segment'])}: sales the fit down-weighted, lowest weight first "
+                  f"({s['n_downweighted']:,} in all)", ["sale", "parcel", "weight", "why"],
+                  [[d["sale_id"], d["parcel_id"], f"{d['weight']:.2f}", d["reason"] or ""]
+                   for d in s["downweighted"]], console)
         if s["beyond_threshold"] and len(r["segments"]) == 1:
             table(f"{name(s['segment'])}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
                   ["parcel", "class", "prior", "new", "change"],

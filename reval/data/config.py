@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind
+from reval.states import FeatureKind, FeatureShape
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -104,7 +104,8 @@ PARCEL_ROLES: dict[str, bool] = {r: required for r, required in ROLES.items() if
 
 @dataclass(frozen=True, kw_only=True)
 class FeatureSpec(Declared):
-    """One model feature (a [[features]] table): its name, the user's column, its type, transform and range."""
+    """One model feature (a [[features]] table): its name, the user's column, its type, transform, range and shape
+    rule."""
 
     name: str = setting(REQUIRED, "the feature's name in reval", pattern=(r"^[a-z][a-z0-9_]*$",
                         "lower case letters, digits and _, starting with a letter"))
@@ -114,6 +115,9 @@ class FeatureSpec(Declared):
     log: bool = setting(False, "model the logarithm (continuous only)")
     levels: tuple[str, ...] = setting((), "the levels, lowest first (ordinal and categorical only)")
     range: tuple[float, float] | None = setting(None, "values outside [low, high] are errors (continuous only)")
+    shape: FeatureShape = setting("free", '"increasing" or "decreasing" for a continuous or ordinal feature whose '
+                                  "direction the market never reverses: its curve in every segment then never turns "
+                                  'the other way, not even at the thin edges of the data; "free" lets the sales decide')
 
     def check(self) -> None:
         if not self.column:
@@ -129,6 +133,8 @@ class FeatureSpec(Declared):
             raise Invalid("log" if self.log else "range", "only continuous features take log or range")
         if self.log and self.range and self.range[0] < 0:
             raise Invalid("range", "a log-transformed feature cannot have negative values")
+        if self.shape != "free" and self.kind not in ("continuous", "ordinal"):
+            raise Invalid("shape", f"only continuous and ordinal features take a shape rule, not {self.kind}")
 
 
 @dataclass(frozen=True)
@@ -231,8 +237,10 @@ SECTIONS: tuple[Section, ...] = (
             "and for sales sale_date and sale_price. The others are optional.", required=True),
     Section("features", FeatureSpec, "Model features: type is continuous, ordinal (with its levels, lowest first), "
             "categorical (with its levels) or binary (0/1, yes/no, true/false).", array=True,
-            examples=({"name": "living_area", "type": "continuous", "log": True, "range": [100, 20000]},
-                      {"name": "quality", "type": "ordinal", "levels": ["low", "average", "good", "excellent"]})),
+            examples=({"name": "living_area", "type": "continuous", "log": True, "range": [100, 20000],
+                       "shape": "increasing"},
+                      {"name": "quality", "type": "ordinal", "levels": ["low", "average", "good", "excellent"],
+                       "shape": "increasing"})),
     Section("sales", SalesRules, "Which sales qualify for models and ratio studies."),
     Section("time_adjustment", TimeSettings, "Market-trend estimation for time adjustment to the valuation date."),
     Section("study", StudySettings, "Ratio studies."),

@@ -1,7 +1,8 @@
 """Reading the imported data set as arrays: sales and parcels with a dense feature matrix."""
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import Sequence
 
 import numpy as np
 import pandas as pd
@@ -28,6 +29,13 @@ def feature_specs(store: Store) -> tuple[FeatureSpec, ...]:
         specs.append(FeatureSpec(name=row.name, column=row.name, kind=row.kind, log=bool(row.log), levels=levels,
                                  range=rng))
     return tuple(specs)
+
+
+def with_shapes(features: tuple[FeatureSpec, ...], declared: Sequence[FeatureSpec]) -> tuple[FeatureSpec, ...]:
+    """The imported features with the shape rules the config declares now: a modelling choice, read at fit
+    time, so changing one needs no re-import."""
+    shapes = {f.name: f.shape for f in declared}
+    return tuple(replace(f, shape=shapes.get(f.name, "free")) for f in features)
 
 
 def dense_matrix(values: np.ndarray | pd.Series, n_features: int) -> np.ndarray:

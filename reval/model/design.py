@@ -24,7 +24,8 @@ from typing import Protocol, Sequence
 
 import numpy as np
 
-from reval.model.splines import bspline_basis, difference_penalty
+from reval.model.splines import bspline_basis, difference_matrix
+from reval.states import FEATURE_SHAPES
 
 INTERCEPT = "(intercept)"
 PRODUCT_CAP = 2.5  # standardised values are capped at +/- this before forming products (docs/model.md, section 1, point 4)
@@ -47,13 +48,25 @@ class Feature(Protocol):
     def levels(self) -> tuple[str, ...]: ...
 
 
+def shape_of(feature: Feature) -> str:
+    """A feature's shape rule: its `shape` attribute when it has one (reval.config.FeatureSpec does), else free."""
+    shape = str(getattr(feature, "shape", "free"))
+    if shape not in FEATURE_SHAPES:
+        raise ValueError(f"feature {feature.name!r}: shape must be one of {', '.join(FEATURE_SHAPES)}, got {shape!r}")
+    if shape != "free" and feature.kind not in ("continuous", "ordinal"):
+        raise ValueError(f"feature {feature.name!r}: only continuous and ordinal features take a shape rule")
+    return shape
+
+
 @dataclass(frozen=True)
 class Block:
-    """One model term: its columns and the penalty matrices that act on its coefficients (none = unpenalised)."""
+    """One model term: its columns and the penalty matrices that act on its coefficients (none = unpenalised), with
+    a square root R of each (R R' = the matrix) when the design knows one, which spares the fit a decomposition."""
 
     term: str
     columns: np.ndarray
     penalties: tuple[np.ndarray, ...]
+    roots: tuple[np.ndarray, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -73,6 +86,7 @@ class FeatureTransform:
     mean: float
     sd: float
     constraint: np.ndarray  # orthonormal null-space basis Z of the sum-to-zero constraint (m x m-1)
+    shape: str = "free"  # "increasing", "decreasing" or "free" (reval.model.shape)
 
     @property
     def constant(self) -> bool:
@@ -80,12 +94,15 @@ class FeatureTransform:
 
 
 def sum_to_zero_basis(column_means: np.ndarray) -> np.ndarray:
-    """Orthonormal basis of {b : c'b = 0}, from the QR decomposition of c (Wood 2017, section 1.8.1)."""
-    c = np.asarray(column_means, dtype=float)[:, None]
+    """Orthonormal basis of {b : c'b = 0}, from the QR decomposition of c (Wood 2017, section 1.8.1): for one
+    column the Q factor is the Householder reflection H = I - 2 v v' / v'v, v = c + sign(c_1) ||c|| e_1, whose
+    first column is parallel to c, so its other columns are the basis (built directly, without LAPACK's QR)."""
+    c = np.asarray(column_means, dtype=float)
     if not np.any(c):
         return np.zeros((c.shape[0], 0))
-    q, _ = np.linalg.qr(c, mode="complete")
-    return q[:, 1:]
+    v = c.copy()
+    v[0] += np.copysign(np.linalg.norm(c), c[0])
+    return np.eye(len(c))[:, 1:] - np.outer(v, v[1:]) * (2.0 / (v @ v))
 
 
 def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
@@ -95,10 +112,10 @@ def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
     return out
 
 
-def _null_space_projector(penalty: np.ndarray) -> np.ndarray:
+def _null_space(penalty: np.ndarray) -> np.ndarray:
+    """Orthonormal basis N of the null space of a penalty; N N' is the projector the double penalty uses."""
     vals, vecs = np.linalg.eigh(penalty)
-    null = vecs[:, vals < 1e-9 * max(vals.max(), 1.0)]
-    return null @ null.T
+    return vecs[:, vals < 1e-9 * max(vals.max(), 1.0)]
 
 
 @dataclass(frozen=True)
@@ -183,38 +200,52 @@ class DesignSpec:
             x = np.log(np.maximum(x, t.log_floor))
         return _raw_columns([t], x[:, None], self.n_basis)[0] @ t.constraint
 
+    def feature_columns(self, X: np.ndarray, names: Sequence[str]) -> dict[str, np.ndarray]:
+        """The block columns of some non-constant features for raw rows X (one basis evaluation for all)."""
+        used = [self.index(name) for name in names]
+        T = self.transformed(X)[:, used]
+        raw = _raw_columns([self.transforms[j] for j in used], T, self.n_basis)
+        return {self.transforms[j].name: cols @ self.transforms[j].constraint for j, cols in zip(used, raw)}
+
     def blocks(self, X: np.ndarray, pairs: Sequence[Pair] = ()) -> list[Block]:
         """The intercept, one block per non-constant feature, then one product column per pair."""
         T = self.transformed(X)
         n = T.shape[0]
-        ridge = (np.eye(1),)
-        out = [Block(INTERCEPT, np.ones((n, 1)), ridge if self.deviation else ())]
+        ridge = (np.eye(1),) if self.deviation else ()
+        out = [Block(INTERCEPT, np.ones((n, 1)), ridge, ridge)]
         used = [j for j, t in enumerate(self.transforms) if not t.constant]
         raw = _raw_columns([self.transforms[j] for j in used], T[:, used], self.n_basis)
         for j, cols in zip(used, raw):
             t = self.transforms[j]
-            out.append(Block(t.name, cols @ t.constraint, self._penalties[j]))
+            penalties = self._penalties[j]
+            out.append(Block(t.name, cols @ t.constraint, tuple(m for m, _ in penalties), tuple(r for _, r in penalties)))
         if len(pairs):
             prods = self.products(X, pairs)
             for i, (a, b) in enumerate(pairs):
-                out.append(Block(f"{a}:{b}", prods[:, i : i + 1], ridge if self.deviation else ()))
+                out.append(Block(f"{a}:{b}", prods[:, i : i + 1], ridge, ridge))
         return out
 
     @cached_property
-    def _penalties(self) -> tuple[tuple[np.ndarray, ...], ...]:
-        """Penalty matrices of every feature's block, built once per spec (blocks are built per fit and per prediction)."""
+    def _penalties(self) -> tuple[tuple[tuple[np.ndarray, np.ndarray], ...], ...]:
+        """(matrix, root) of every penalty of every feature's block, built once per spec (blocks are built per fit
+        and per prediction)."""
         return tuple(() if t.constant else self._feature_penalties(t) for t in self.transforms)
 
-    def _feature_penalties(self, t: FeatureTransform) -> tuple[np.ndarray, ...]:
+    def _feature_penalties(self, t: FeatureTransform) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
         z = t.constraint
         if t.kind == "continuous":
-            wiggle = z.T @ difference_penalty(self.n_basis, 2) @ z
-            return (wiggle, _null_space_projector(wiggle)) if self.deviation else (wiggle,)
+            root = z.T @ difference_matrix(self.n_basis, 2).T  # Z'D', so root root' = Z'D'DZ
+            wiggle = root @ root.T
+            if not self.deviation:
+                return ((wiggle, root),)
+            null = _null_space(wiggle)
+            return ((wiggle, root), (null @ null.T, null))
         if t.kind == "ordinal":
-            return (z.T @ difference_penalty(t.n_levels, 1) @ z,)
+            root = z.T @ difference_matrix(t.n_levels, 1).T
+            return ((root @ root.T, root),)
         if t.kind == "categorical":
-            return (z.T @ z,)
-        return (np.eye(1),) if self.deviation else ()
+            return ((z.T @ z, z.T),)
+        return ((np.eye(1), np.eye(1)),) if self.deviation else ()
 
     def standardised(self, X: np.ndarray) -> np.ndarray:
         """Features standardised with the training mean and sd on the modelling scale, capped at +/-2.5."""
@@ -233,6 +264,24 @@ class DesignSpec:
                     raise ValueError(f"interaction {a}:{b}: categorical feature {name!r} has no product term")
             out[:, i] = Z[:, self.index(a)] * Z[:, self.index(b)]
         return out
+
+    def shape_grids(self, n_points: int) -> tuple[np.ndarray, list[tuple[str, str, int]]]:
+        """Raw rows where the shape rules are checked, one column per feature, and the shaped features as (name,
+        shape, points used). A shaped curve's column runs evenly over its training range on the modelling scale
+        (log features on the log scale), an ordinal feature's over its levels (the first n_levels rows); other
+        columns hold the imputation value."""
+        grid = np.tile(np.array([t.impute for t in self.transforms]), (n_points, 1))
+        shaped = []
+        for j, t in enumerate(self.transforms):
+            if t.shape == "free" or t.constant:
+                continue
+            if t.kind == "continuous":
+                points = np.linspace(t.lo, t.hi, n_points)
+                grid[:, j], used = (np.exp(points) if t.log else points), n_points
+            else:
+                grid[:, j], used = np.minimum(np.arange(n_points), t.n_levels - 1), min(t.n_levels, n_points)
+            shaped.append((t.name, t.shape, used))
+        return grid, shaped
 
     def grid(self, feature: str, n_points: int = 50) -> np.ndarray:
         """Raw values spanning the training range of a feature, for drawing its curve."""
@@ -275,7 +324,7 @@ def _learn_one(x: np.ndarray, f: Feature, n_basis: int,
     mean, scale = (like.mean, like.sd) if like is not None else (float(t.mean()), sd if sd > 0 else 1.0)
     partial = FeatureTransform(
         f.name, f.kind, log, n_levels, impute, log_floor, float(filled.min()), float(filled.max()),
-        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)),
+        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)), shape_of(f),
     )
     if sd == 0:
         width = n_basis if f.kind == "continuous" else max(n_levels, 1)

@@ -13,6 +13,13 @@ rows); cross-fitted offsets (`offset_folds`) were measured and were equal or wor
 and the segments that select their own share one more alpha (reval/model/interactions.py). The model is
 built on our own P-splines rather than pygam because the selection, the deviations and the contributions
 need things pygam does not expose (docs/model.md, section 5).
+
+Outliers (reval/model/robust.py): every sale's weight comes from Huber's loss on the jurisdiction's main effects
++ segment levels + selected pairs (`_screen`), and every layer is fitted at those weights; reweighting again in
+each segment, on its own deviation's leave-one-out residuals, was measured slightly worse and slower
+(docs/model.md, section 7). A sale of weight below RANGE_WEIGHT spans no layer's curves (`_counted`). Shape rules
+(reval/model/shape.py) act on each layer with its parents' curves held fixed, so the total curve obeys them. All
+of it is redone inside every fold.
 """
 
 from __future__ import annotations
@@ -29,10 +36,13 @@ from threadpoolctl import threadpool_limits
 from reval.model.design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis, typical_value
 from reval.model.interactions import candidate_pairs, select_interactions
 from reval.model.settings import ModelSettings
-from reval.model.penalised import PenalisedLS, stack
+from reval.model.penalised import PenalisedLS, column_slices, stack
+from reval.model.robust import Huber, Refined, refine
+from reval.model.shape import Layer, shape_constraint
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
+RANGE_WEIGHT = 0.5  # sales of lower weight do not stretch a layer's curves (see `_counted`)
 Progress = Callable[[int, int], None]
 
 
@@ -51,10 +61,13 @@ class LevelFit:
     n: int
 
     @classmethod
-    def fit(cls, spec: DesignSpec, pairs: Sequence[Pair], X: np.ndarray, y: np.ndarray,
-            offset: np.ndarray | None) -> tuple[LevelFit, PenalisedLS]:
-        """Fit with GCV-chosen penalties; also return the smoother (its factorisation serves selection)."""
-        smoother = PenalisedLS(gamma=GAMMA).fit(spec.blocks(X, pairs), y, offset)
+    def fit(cls, spec: DesignSpec, pairs: Sequence[Pair], X: np.ndarray, y: np.ndarray, offset: np.ndarray | None,
+            weights: np.ndarray, parents: Sequence[Layer] = ()) -> tuple[LevelFit, PenalisedLS]:
+        """Fit at the given row weights with GCV-chosen penalties, the total curve over `parents` + this layer held
+        to the shape rules; also return the smoother (its factorisation serves selection)."""
+        blocks = spec.blocks(X, pairs)
+        constraint = shape_constraint(spec, *column_slices(blocks), parents)
+        smoother = PenalisedLS(gamma=GAMMA).fit(blocks, y, offset, weights, constraint)
         level = cls(spec, tuple(pairs), smoother.coef_, smoother.cov_, smoother.slices_, smoother.lambdas_,
                     tuple(smoother.penalty_terms_), smoother.edf_, smoother.n_)
         return level, smoother
@@ -69,6 +82,11 @@ class LevelFit:
 
     def contributions(self, X: np.ndarray) -> dict[str, np.ndarray]:
         return {b.term: b.columns @ self.coef[self.slices[b.term]] for b in self.spec.blocks(X, self.pairs)}
+
+    def curves_at(self, X: np.ndarray, names: Sequence[str]) -> dict[str, np.ndarray]:
+        """Effect of each named feature at raw rows X (features this layer holds constant are left out)."""
+        held = [name for name in names if name in self.slices]
+        return {name: cols @ self.coef[self.slices[name]] for name, cols in self.spec.feature_columns(X, held).items()}
 
     def curve(self, feature: str, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Effect of one feature at raw values x, and its posterior variance (zero if the layer lacks it)."""
@@ -104,6 +122,16 @@ class SegmentFit:
     level: LevelFit | None
 
 
+@dataclass(frozen=True)
+class SaleWeights:
+    """Each training sale's weight in the fit, the screening model's leave-one-out residual (log) it was judged on,
+    and the scale."""
+
+    weight: np.ndarray
+    residual: np.ndarray
+    scale: float
+
+
 def fold_ids(n: int, segment: np.ndarray, seed: int, k: int) -> np.ndarray:
     """Fold id 0..k-1 per row: a seeded permutation dealt round-robin within each segment from a random start.
 
@@ -125,7 +153,7 @@ def fold_ids(n: int, segment: np.ndarray, seed: int, k: int) -> np.ndarray:
 
 
 def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lambdas: np.ndarray,
-              folds: np.ndarray) -> np.ndarray:
+              folds: np.ndarray, weights: np.ndarray) -> np.ndarray:
     """Out-of-fold fitted values (offset excluded) with the penalties held fixed, rescaled to each training size."""
     out = np.zeros(len(y))
     design, _, _ = stack(blocks)
@@ -134,30 +162,35 @@ def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lam
         train = ~test
         if not train.any():
             continue
-        part = [Block(b.term, b.columns[train], b.penalties) for b in blocks]
+        part = [Block(b.term, b.columns[train], b.penalties, b.roots) for b in blocks]
         sub_offset = None if offset is None else offset[train]
-        fitted = PenalisedLS(lambdas=lambdas * train.mean()).fit(part, y[train], sub_offset)
+        fitted = PenalisedLS(lambdas=lambdas * train.mean()).fit(part, y[train], sub_offset, weights[train])
         out[test] = design[test] @ fitted.coef_
     return out
 
 
 def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offset: np.ndarray,
                  parent: DesignSpec, features: Sequence[Feature], candidates: Sequence[Pair],
-                 inherited: tuple[Pair, ...], settings: ModelSettings, segment_alpha: float) -> SegmentFit:
+                 inherited: tuple[Pair, ...], settings: ModelSettings, segment_alpha: float,
+                 weights: np.ndarray, parents: tuple[LevelFit, ...]) -> SegmentFit:
     """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped.
 
     `segment_alpha` is the level of its own selection: settings.alpha shared (Bonferroni) among the segments
-    that select their own, so all segments together add a false pair with probability at most alpha."""
+    that select their own, so all segments together add a false pair with probability at most alpha. The
+    sales keep their weights from `_screen`; `parents` hold the curves its shape rules add to."""
     n = len(y)
     if n < settings.min_sales_own_deviation:
         reason = NO_SALES if n == 0 else f"only {n} qualified sale(s) (< {settings.min_sales_own_deviation})"
         return SegmentFit(name, market_area, n, "parent_only", reason, None)
-    spec = DesignSpec.learn(X, features, settings.n_basis_segment, deviation=True, scale_from=parent)
+    spec = DesignSpec.learn(X[_counted(weights)], features, settings.n_basis_segment, deviation=True,
+                            scale_from=parent)
     own = n >= settings.min_sales_own_selection and settings.interaction_rule != "none"
     if own:
-        level, smoother = LevelFit.fit(spec, (), X, y, offset)
+        level, smoother = LevelFit.fit(spec, (), X, y, offset, weights, parents)
+        varying = [(a, b) for a, b in candidates  # a pair with a feature constant here is no interaction here
+                   if not (spec.transforms[spec.index(a)].constant or spec.transforms[spec.index(b)].constant)]
         pairs = tuple(select_interactions(
-            smoother, y - offset, spec.products(X, candidates), candidates, rule=settings.interaction_rule,
+            smoother, y - offset, spec.products(X, varying), varying, rule=settings.interaction_rule,
             max_interactions=settings.max_interactions, alpha=segment_alpha))
         reason = f"{n} sales >= {settings.min_sales_own_selection}: own interactions"
     else:
@@ -166,8 +199,20 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
         reason = (f"{sales}: interaction rule 'none'" if settings.interaction_rule == "none"
                   else f"{sales} < {settings.min_sales_own_selection}: interactions inherited")
     if pairs or not own:  # an own selection of no pairs leaves the deviation already fitted
-        level, _ = LevelFit.fit(spec, pairs, X, y, offset)
+        level, _ = LevelFit.fit(spec, pairs, X, y, offset, weights, parents)
     return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
+
+
+def _counted(weights: np.ndarray) -> np.ndarray:
+    """The sales a layer learns its design from (ranges, centring): those of weight at least RANGE_WEIGHT (all,
+    if none is).
+
+    A sale the fit all but ignores must not stretch a curve's range: beyond the range of the sales it
+    rests on, a curve is clamped flat, where it would otherwise continue the spline's trend over ground
+    no weighted sale covers (a condominium keyed at 8,010 sq ft did that in the demo).
+    """
+    counted = weights >= RANGE_WEIGHT
+    return counted if counted.any() else np.ones(len(weights), dtype=bool)
 
 
 def _location_block(segment: np.ndarray) -> Block:
@@ -180,7 +225,7 @@ def _location_block(segment: np.ndarray) -> Block:
     indicators = np.zeros((len(codes), int(codes.max()) + 1))
     indicators[np.arange(len(codes)), codes] = 1.0
     z = sum_to_zero_basis(indicators.mean(axis=0))
-    return Block("(segment)", indicators @ z, (z.T @ z,))
+    return Block("(segment)", indicators @ z, (z.T @ z,), (z.T,))
 
 
 def _segment_market_areas(segment: np.ndarray, market_area: np.ndarray) -> dict[str, str]:
@@ -205,12 +250,13 @@ def _check_inputs(X: np.ndarray, segment: np.ndarray, market_area: np.ndarray, k
 def fit_hierarchy(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
                   features: Sequence[Feature], settings: ModelSettings, *,
                   segments: Mapping[str, str] | None = None, offset_folds: int = 0,
-                  progress: Progress | None = None) -> FittedHierarchy:
+                  trusted: np.ndarray | None = None, progress: Progress | None = None) -> FittedHierarchy:
     """Fit jurisdiction, market-area and segment layers on sales (y = log time-adjusted price).
 
     `segments` maps every segment on the roll to its market area, so segments without sales are
     recorded as taking their parent's model. `offset_folds` = k > 1 fits children on k-fold
     cross-fitted parent predictions instead of in-sample ones (the measured alternative, see above).
+    `trusted` marks sales an analyst has vouched for: they keep full weight under the robust loss.
     BLAS runs on one thread: the work is thousands of small (p ~ 100) factorisations, where
     threading costs more than it gains; parallelism is across segments (`settings.jobs`).
     """
@@ -220,8 +266,11 @@ def fit_hierarchy(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area
         raise ValueError("y must be one finite log price per row of X")
     if offset_folds == 1 or offset_folds < 0:
         raise ValueError(f"offset_folds must be 0 (in-sample offsets) or at least 2, got {offset_folds}")
+    fixed = np.zeros(len(y), dtype=bool) if trusted is None else np.asarray(trusted, dtype=bool)
+    if fixed.shape != y.shape:
+        raise ValueError("trusted needs one entry per row of X")
     with threadpool_limits(limits=1, user_api="blas"):
-        return _fit(X, y, segment, market_area, features, settings, segments, offset_folds, progress)
+        return _fit(X, y, segment, market_area, features, settings, segments, offset_folds, fixed, progress)
 
 
 def _rows_by(labels: np.ndarray) -> dict[str, np.ndarray]:
@@ -231,17 +280,48 @@ def _rows_by(labels: np.ndarray) -> dict[str, np.ndarray]:
     return dict(zip(names.tolist(), np.split(order, np.cumsum(np.bincount(codes, minlength=len(names)))[:-1])))
 
 
+def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray, candidates: Sequence[Pair],
+            settings: ModelSettings, huber: Huber | None, fixed: np.ndarray) -> tuple[tuple[Pair, ...], Refined]:
+    """The jurisdiction's interactions and every sale's starting weight, from the main effects + segment levels.
+
+    Weights judged on a model without a true interaction would down-weight exactly the sales that show it
+    (on the demo, the large waterfront lots), so pairs are selected first, the weights come from main effects +
+    segment levels + those pairs (at the main effects' penalties), and the selection is repeated with the weights
+    until the pairs settle (twice at most).
+    """
+    products = spec.products(Xi, candidates)
+    location = _location_block(segment)
+    main = PenalisedLS(gamma=GAMMA).fit(spec.blocks(Xi) + [location], y)
+
+    def select(smoother: PenalisedLS) -> tuple[Pair, ...]:
+        return tuple(select_interactions(smoother, y, products, candidates, rule=settings.interaction_rule,
+                                         max_interactions=settings.max_interactions, alpha=settings.alpha))
+
+    pairs = select(main)
+    if huber is None:
+        return pairs, Refined(main, np.ones(len(y)), main.resid_, float("nan"), 0)
+    for attempt in range(2):
+        blocks = spec.blocks(Xi, pairs) + [location]
+        full = PenalisedLS(lambdas=main.lambdas_).fit(blocks, y, constraint=shape_constraint(spec, *column_slices(blocks)))
+        screen = refine(full, huber, fixed=fixed)
+        again = select(main.refit(screen.weights)) if attempt == 0 else pairs
+        if again == pairs:
+            break
+        pairs = again
+    return pairs, screen
+
+
 def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray, features: Sequence[Feature],
-         settings: ModelSettings, segments: Mapping[str, str] | None, offset_folds: int,
+         settings: ModelSettings, segments: Mapping[str, str] | None, offset_folds: int, fixed: np.ndarray,
          progress: Progress | None) -> FittedHierarchy:
-    spec = DesignSpec.learn(X, features, settings.n_basis_parent)
-    Xi = spec.impute(X)
+    first = DesignSpec.learn(X, features, settings.n_basis_parent)
     candidates = candidate_pairs(features, settings.interaction_candidates)
-    main = PenalisedLS(gamma=GAMMA).fit(spec.blocks(Xi) + [_location_block(segment)], y)
-    pairs = tuple(select_interactions(
-        main, y, spec.products(Xi, candidates), candidates, rule=settings.interaction_rule,
-        max_interactions=settings.max_interactions, alpha=settings.alpha))
-    top, _ = LevelFit.fit(spec, pairs, Xi, y, None)
+    huber = Huber(settings.huber_k) if settings.loss == "huber" else None
+    pairs, screen = _screen(first, first.impute(X), y, segment, candidates, settings, huber, fixed)
+    weights = screen.weights
+    spec = DesignSpec.learn(X[_counted(weights)], features, settings.n_basis_parent) if huber else first
+    Xi = spec.impute(X)
+    top, _ = LevelFit.fit(spec, pairs, Xi, y, None, weights)
     inner = fold_ids(len(y), segment, settings.seed + 1, offset_folds) if offset_folds else None
 
     def offset_of(level: LevelFit, rows: np.ndarray, base: np.ndarray | None) -> np.ndarray:
@@ -249,14 +329,16 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
         if inner is None:
             return level.predict(Xi[rows])
         blocks = level.spec.blocks(Xi[rows], level.pairs)
-        return _crossfit(blocks, y[rows], None if base is None else base[rows], level.lambdas, inner[rows])
+        return _crossfit(blocks, y[rows], None if base is None else base[rows], level.lambdas, inner[rows],
+                         weights[rows])
 
     top_offset = offset_of(top, np.arange(len(y)), None)
     area_offset = np.empty(len(y))
     areas: dict[str, LevelFit] = {}
     for name, rows in _rows_by(market_area).items():
-        dev_spec = DesignSpec.learn(Xi[rows], features, settings.n_basis_segment, deviation=True, scale_from=spec)
-        areas[name], _ = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows])
+        dev_spec = DesignSpec.learn(Xi[rows][_counted(weights[rows])], features, settings.n_basis_segment,
+                                    deviation=True, scale_from=spec)
+        areas[name], _ = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows], weights[rows], (top,))
         area_offset[rows] = top_offset[rows] + offset_of(areas[name], rows, top_offset)
 
     seg_area = _segment_market_areas(segment, market_area)
@@ -264,7 +346,9 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
     selecting = sum(len(rows) >= settings.min_sales_own_selection for rows in groups.values())
     segment_alpha = settings.alpha / max(selecting, 1)
     tasks = (delayed(_fit_segment)(name, seg_area[name], Xi[rows], y[rows], area_offset[rows], spec, features,
-                                   candidates, pairs, settings, segment_alpha) for name, rows in groups.items())
+                                   candidates, pairs, settings, segment_alpha, weights[rows],
+                                   (top, areas[seg_area[name]]))
+             for name, rows in groups.items())
     fitted: dict[str, SegmentFit] = {}
     for i, result in enumerate(Parallel(n_jobs=settings.jobs, return_as="generator")(tasks)):
         fitted[result.name] = result
@@ -273,21 +357,24 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
     for name, area in (segments or {}).items():
         if name not in fitted:
             fitted[name] = SegmentFit(name, area, 0, "parent_only", NO_SALES, None)
-    return FittedHierarchy(tuple(features), spec, top, areas, fitted)
+    return FittedHierarchy(tuple(features), spec, top, areas, fitted,
+                           SaleWeights(weights, screen.residual, screen.scale))
 
 
 def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
                 features: Sequence[Feature], settings: ModelSettings, *, offset_folds: int = 0,
-                progress: Progress | None = None) -> np.ndarray:
-    """Out-of-fold log predictions for every sale, the whole procedure (selection, penalties) redone per fold."""
+                trusted: np.ndarray | None = None, progress: Progress | None = None) -> np.ndarray:
+    """Out-of-fold log predictions for every sale, the whole procedure (selection, penalties, robust weights and
+    shape rules) redone per fold."""
     X, segment, market_area = _check_inputs(X, segment, market_area, len(features))
     y = np.asarray(y, dtype=float)
     folds = fold_ids(len(y), segment, settings.seed, settings.folds)
+    fixed = np.zeros(len(y), dtype=bool) if trusted is None else np.asarray(trusted, dtype=bool)
     out = np.empty(len(y))
     for k in range(settings.folds):
         test = folds == k
         model = fit_hierarchy(X[~test], y[~test], segment[~test], market_area[~test], features, settings,
-                              offset_folds=offset_folds)
+                              offset_folds=offset_folds, trusted=fixed[~test])
         out[test] = model.predict(X[test], segment[test], market_area[test])
         if progress is not None:
             progress(k + 1, settings.folds)
@@ -303,6 +390,7 @@ class FittedHierarchy:
     jurisdiction: LevelFit
     market_areas: dict[str, LevelFit]
     segments: dict[str, SegmentFit]
+    sale_weights: SaleWeights | None = None  # the training sales' weights (None for a model built by hand)
 
     # ---------------------------------------------------------------- routing
     def _chain(self, segment: str, market_area: str) -> tuple[list[LevelFit], str]:

@@ -55,8 +55,12 @@ def candidate_pairs(features: Sequence[Feature], candidates: str | Sequence[Sequ
 
 
 def double_residuals(smoother: PenalisedLS, target: np.ndarray, products: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Residuals of the target and of every candidate product on the main-effect smoother."""
+    """Residuals of the target and of every candidate product on the main-effect smoother, scaled by the root
+    of the smoother's row weights, so OLS on them is the weighted fit (Frisch-Waugh-Lovell for weighted least
+    squares: the theorem applied to the rows scaled by sqrt(w))."""
     both = smoother.residualise(np.column_stack([target, products]))
+    if smoother.weights_ is not None:
+        both *= np.sqrt(smoother.weights_)[:, None]
     return both[:, 0], both[:, 1:]
 
 

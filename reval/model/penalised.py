@@ -1,6 +1,8 @@
-"""Penalised least squares with an offset, smoothing penalties chosen by GCV, and a shared-factorisation residualiser.
+"""Penalised least squares with an offset and row weights, smoothing penalties chosen by GCV, and a
+shared-factorisation residualiser.
 
-Minimises ||y - offset - X b||^2 + sum_j lam_j b' S_j b. Every quantity the search needs
+Minimises sum_i w_i (y_i - offset_i - x_i'b)^2 + sum_j lam_j b' S_j b (weights default to 1; with them every
+quantity below is that of the rows scaled by sqrt(w), as in Wood 2017, section 6.2.3). Every quantity the search needs
 (coefficients, residual sum of squares, effective degrees of freedom) is computed from the
 p x p Gram matrix X'X and X'(y - offset), so the search costs nothing per sale; one Cholesky
 factorisation scores a whole line of penalty values (see `_Problem`). GCV = n RSS / (n - gamma edf)^2 (Craven & Wahba 1979;
@@ -12,11 +14,13 @@ of Wood (2017, section 6.10), which gives curve bands with good frequentist cove
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Sequence
 
 import numpy as np
-from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg import cho_factor, cho_solve, solve_triangular
 from scipy.linalg.lapack import dgesdd, dpotrf, dpstrf, dtrtrs
+from scipy.optimize import nnls
 
 from reval.model.design import Block
 
@@ -25,33 +29,49 @@ LINE_STEP = 1.0  # log10 step of the per-penalty line search
 LOG10_BOUNDS = (-6.0, 8.0)  # open interval the line search stays in
 JITTER = 1e-9  # relative ridge keeping X'X + S positive definite when a column is empty (e.g. an unsold level)
 TIE = 1e-9  # a smaller penalty must beat the current GCV by this relative margin, so ties favour smoothing
+CONSTRAINT_TOL = 1e-10  # relative to the size of the constrained differences: what counts as a violation
 
 
 @dataclass(frozen=True)
 class Penalty:
-    """One smoothing penalty: the block it acts on (as a column slice) and its matrix."""
+    """One smoothing penalty: the block it acts on (as a column slice), its matrix and, if known, a root of it."""
 
     term: str
     cols: slice
     matrix: np.ndarray
+    root: np.ndarray | None = None
+
+
+def column_slices(blocks: Sequence[Block]) -> tuple[dict[str, slice], int]:
+    """Column slice of each term in the stacked design, and its width."""
+    slices: dict[str, slice] = {}
+    start = 0
+    for b in blocks:
+        slices[b.term] = slice(start, start + b.columns.shape[1])
+        start += b.columns.shape[1]
+    return slices, start
 
 
 def stack(blocks: Sequence[Block]) -> tuple[np.ndarray, dict[str, slice], list[Penalty]]:
     """Design matrix, column slice per term, and the list of penalties of a list of blocks."""
-    slices: dict[str, slice] = {}
-    penalties: list[Penalty] = []
-    start = 0
-    for b in blocks:
-        cols = slice(start, start + b.columns.shape[1])
-        slices[b.term] = cols
-        penalties.extend(Penalty(b.term, cols, s) for s in b.penalties)
-        start = cols.stop
+    slices, _ = column_slices(blocks)
+    penalties = [Penalty(b.term, slices[b.term], s, b.roots[i] if b.roots else None)
+                 for b in blocks for i, s in enumerate(b.penalties)]
     return np.hstack([b.columns for b in blocks]), slices, penalties
 
 
+@dataclass(frozen=True)
+class LinearConstraint:
+    """Inequalities on the coefficients: matrix @ b + floor >= 0 (a shape rule, reval.model.shape). They act at
+    fixed smoothing penalties: GCV chooses the penalties of the unconstrained fit."""
+
+    matrix: np.ndarray
+    floor: np.ndarray
+
+
 class PenalisedLS:
-    """Penalised least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else GCV
-    (with edf inflated by `gamma`) picks them."""
+    """Penalised (weighted) least-squares smoother; `lambdas` fixes the penalties (one per penalty matrix), else
+    GCV (with edf inflated by `gamma`) picks them."""
 
     def __init__(self, *, lambdas: Sequence[float] | np.ndarray | None = None, line_search_passes: int = 1,
                  gamma: float = 1.0) -> None:
@@ -59,48 +79,106 @@ class PenalisedLS:
         self.line_search_passes = line_search_passes
         self.gamma = gamma
 
-    def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None) -> PenalisedLS:
-        """Fit to y - offset; store coefficients, covariance, edf, GCV and the Cholesky factor."""
+    def fit(self, blocks: Sequence[Block], y: np.ndarray, offset: np.ndarray | None = None,
+            weights: np.ndarray | None = None, constraint: LinearConstraint | None = None) -> PenalisedLS:
+        """Fit to y - offset, each row weighted by `weights` (X'WX and X'Wy; none = all 1), the coefficients held
+        to `constraint`; store coefficients, covariance, edf, GCV and the Cholesky factor."""
         X, slices, penalties = stack(blocks)
         y = np.asarray(y, dtype=float)
         target = y if offset is None else y - np.asarray(offset, dtype=float)
         n, p = X.shape
         if target.shape != (n,):
             raise ValueError(f"y has shape {target.shape}, the design has {n} rows")
-        gram = X.T @ X
-        xty = X.T @ target
-        scale = np.array([_penalty_scale(gram, pen) for pen in penalties])
-        jitter = JITTER * max(float(np.trace(gram)) / p, 1e-12) * np.eye(p)
-        problem = _Problem(gram, xty, float(target @ target), n, penalties, jitter, self.gamma)
+        w = _checked_weights(weights, n)
+        gram, xty, yty = _weighted_products(X, target, w)
+        jitter = JITTER * max(float(np.trace(gram)) / max(p, 1), 1e-12)
         if self.lambdas is None:
+            scale = np.array([_penalty_scale(gram, pen) for pen in penalties])
+            problem = _Problem(gram, xty, yty, n, penalties, jitter * np.eye(p), self.gamma)
             lambdas = scale * 10.0 ** _search(problem, scale, self.line_search_passes)
         else:
             lambdas = np.asarray(self.lambdas, dtype=float)
             if lambdas.shape != (len(penalties),):
                 raise ValueError(f"expected {len(penalties)} lambdas, got {lambdas.shape}")
-        chol = cho_factor(problem.system(lambdas), lower=True)
+        self.design_, self.target_, self.slices_, self.penalties_ = X, target, slices, penalties
+        self.constraint_ = constraint
+        return self._solve(w, gram, xty, lambdas)
+
+    def refit(self, weights: np.ndarray | None) -> PenalisedLS:
+        """The same design, target, penalties and constraint with new row weights (one factorisation, no GCV
+        search): a step of iteratively reweighted least squares."""
+        out = PenalisedLS(lambdas=self.lambdas_, line_search_passes=self.line_search_passes, gamma=self.gamma)
+        out.design_, out.target_, out.slices_, out.penalties_ = self.design_, self.target_, self.slices_, self.penalties_
+        out.constraint_ = self.constraint_
+        w = _checked_weights(weights, len(self.target_))
+        old = np.ones(len(self.target_)) if self.weights_ is None else self.weights_
+        change = (np.ones(len(old)) if w is None else w) - old
+        moved = np.flatnonzero(change)
+        if len(moved) > len(old) // 2:  # most rows moved: recompute X'WX and X'Wy
+            gram, xty, _ = _weighted_products(self.design_, self.target_, w)
+        else:  # IRLS moves few weights per step: update both by the rows that moved
+            rows = self.design_[moved]
+            scaled = rows * change[moved, None]
+            gram = self.gram_ + scaled.T @ rows
+            xty = self.xty_ + scaled.T @ self.target_[moved]
+        return out._solve(w, gram, xty, self.lambdas_, self.active_)
+
+    def _solve(self, w: np.ndarray | None, gram: np.ndarray, xty: np.ndarray, lambdas: np.ndarray,
+               active: np.ndarray | None = None) -> PenalisedLS:
+        """Coefficients and residuals at fixed penalties; the inverse, edf and covariance follow when first asked
+        for (a reweighting step needs none of them)."""
+        X, target, penalties = self.design_, self.target_, self.penalties_
+        p = X.shape[1]
+        system = gram + JITTER * max(float(np.trace(gram)) / max(p, 1), 1e-12) * np.eye(p)
+        for lam, pen in zip(lambdas, penalties):
+            system[pen.cols, pen.cols] += lam * pen.matrix
+        chol = cho_factor(system, lower=True)
         coef = cho_solve(chol, xty)
-        inverse = cho_solve(chol, np.eye(p))
-        edf_cols = np.einsum("ij,ji->i", inverse, gram)  # diagonal of (X'X + S)^-1 X'X
+        self.active_ = None
+        if self.constraint_ is not None:
+            coef, self.active_ = _constrained(chol[0], coef, self.constraint_, active)
         resid = target - X @ coef
-        rss = float(resid @ resid)
-        edf = float(edf_cols.sum())
-        dof = n - edf
         self.coef_ = coef
         self.chol_ = chol
-        self.design_ = X
-        self.slices_ = slices
+        self.gram_ = gram
+        self.xty_ = xty
+        self.weights_ = w
+        self.resid_ = resid
         self.lambdas_ = lambdas
         self.penalty_terms_ = [pen.term for pen in penalties]
-        self.edf_ = edf
-        self.edf_terms_ = {term: float(edf_cols[s].sum()) for term, s in slices.items()}
-        self.rss_ = rss
-        self.sigma2_ = rss / dof if dof > 0 else float("nan")
-        gdof = n - self.gamma * edf
-        self.gcv_ = n * rss / gdof**2 if gdof > 0 else float("inf")
-        self.cov_ = self.sigma2_ * inverse
-        self.n_ = n
+        self.rss_ = float(resid @ resid) if w is None else float(w @ resid**2)
+        self.n_ = X.shape[0]
         return self
+
+    @cached_property
+    def inverse_(self) -> np.ndarray:
+        return np.asarray(cho_solve(self.chol_, np.eye(self.design_.shape[1])))
+
+    @cached_property
+    def _edf_columns(self) -> np.ndarray:
+        return np.einsum("ij,ji->i", self.inverse_, self.gram_)  # diagonal of (X'WX + S)^-1 X'WX
+
+    @property
+    def edf_(self) -> float:
+        return float(self._edf_columns.sum())
+
+    @property
+    def edf_terms_(self) -> dict[str, float]:
+        return {term: float(self._edf_columns[s].sum()) for term, s in self.slices_.items()}
+
+    @property
+    def sigma2_(self) -> float:
+        dof = self.n_ - self.edf_
+        return self.rss_ / dof if dof > 0 else float("nan")
+
+    @property
+    def gcv_(self) -> float:
+        gdof = self.n_ - self.gamma * self.edf_
+        return self.n_ * self.rss_ / gdof**2 if gdof > 0 else float("inf")
+
+    @property
+    def cov_(self) -> np.ndarray:
+        return self.sigma2_ * self.inverse_
 
     def predict(self, blocks: Sequence[Block], offset: np.ndarray | None = None) -> np.ndarray:
         """Fitted values for new rows built by the same design (plus their offset)."""
@@ -108,10 +186,73 @@ class PenalisedLS:
         out = X @ self.coef_
         return out if offset is None else out + offset
 
+    def leverage(self) -> np.ndarray:
+        """Diagonal of the hat matrix H = X (X'WX + S)^-1 X'W: how much each row's fitted value follows its own y."""
+        h = self.leverage_factors()
+        return h if self.weights_ is None else h * self.weights_
+
+    def leverage_factors(self) -> np.ndarray:
+        """x_i' (X'WX + S)^-1 x_i for every row: its leverage before its own weight is applied."""
+        half = solve_triangular(self.chol_[0], self.design_.T, lower=True, check_finite=False)  # L^-1 X'
+        return np.einsum("ij,ij->j", half, half)
+
     def residualise(self, Z: np.ndarray) -> np.ndarray:
-        """Z - H Z for every column of Z with the one stored factorisation, H = X (X'X + S)^-1 X'."""
+        """Z - H Z for every column of Z with the one stored factorisation, H = X (X'WX + S)^-1 X'W."""
         Z = np.asarray(Z, dtype=float)
-        return Z - self.design_ @ cho_solve(self.chol_, self.design_.T @ Z)
+        WZ = Z if self.weights_ is None else Z * self.weights_[:, None]
+        return Z - self.design_ @ cho_solve(self.chol_, self.design_.T @ WZ)
+
+
+def _constrained(chol: np.ndarray, free: np.ndarray, constraint: LinearConstraint,
+                 start: np.ndarray | None) -> tuple[np.ndarray, np.ndarray]:
+    """The coefficients minimising the same objective subject to matrix @ b + floor >= 0, and the inequalities used.
+
+    With A = L L' the system matrix and b0 the free solution, z = L'(b - b0) turns the problem into least
+    distance programming: min ||z|| subject to (C L^-T) z >= -(C b0 + floor), solved by non-negative least
+    squares (Lawson & Hanson 1974, Solving Least Squares Problems, algorithm LDP of chapter 23). Only the
+    inequalities found violated so far (and those of `start`, a previous fit's) enter, since most hold anyway; the
+    set grows until the solution violates none. Should the inequalities contradict each other (they do not when
+    the parent layers obey them), the free solution is kept.
+    """
+    slack = constraint.matrix @ free + constraint.floor
+    tolerance = CONSTRAINT_TOL * max(float(np.abs(constraint.floor).max(initial=0.0)), float(np.abs(slack).max()), 1e-12)
+    working = slack < -tolerance
+    if not working.any():
+        return free, working
+    if start is not None:
+        working |= start
+    while True:
+        rows = solve_triangular(chol, constraint.matrix[working].T, lower=True, check_finite=False)  # (C L^-T)'
+        system = np.vstack([rows, -slack[None, working]])
+        target = np.zeros(system.shape[0])
+        target[-1] = 1.0
+        u, _ = nnls(system, target, maxiter=50 * system.shape[1])
+        r = system @ u - target
+        if abs(r[-1]) < 1e-12:
+            return free, np.zeros(len(slack), dtype=bool)
+        coef = free + solve_triangular(chol, -r[:-1] / r[-1], lower=True, trans="T", check_finite=False)
+        violated = constraint.matrix @ coef + constraint.floor < -tolerance
+        if not (violated & ~working).any():
+            return coef, working
+        working |= violated
+
+
+def _checked_weights(weights: np.ndarray | None, n: int) -> np.ndarray | None:
+    if weights is None:
+        return None
+    w = np.asarray(weights, dtype=float)
+    if w.shape != (n,) or not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError(f"weights must be {n} finite non-negative numbers")
+    return w
+
+
+def _weighted_products(X: np.ndarray, target: np.ndarray, w: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, float]:
+    """X'WX, X'Wy and y'Wy (W = diag(w); the identity when w is None)."""
+    if w is None:
+        return X.T @ X, X.T @ target, float(target @ target)
+    root = np.sqrt(w)
+    Xw, tw = X * root[:, None], target * root
+    return Xw.T @ Xw, Xw.T @ tw, float(tw @ tw)
 
 
 def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
@@ -122,7 +263,12 @@ def _penalty_scale(gram: np.ndarray, pen: Penalty) -> float:
 
 
 def _embedded_root(pen: Penalty, p: int) -> np.ndarray:
-    """E (p x rank) with E E' = the penalty placed in the p x p system (zero outside its block)."""
+    """E (p x rank) with E E' = the penalty placed in the p x p system (zero outside its block); the block's own
+    root when it has one (surplus columns are harmless: they add zero singular values to each line's SVD)."""
+    if pen.root is not None:
+        out = np.zeros((p, pen.root.shape[1]))
+        out[pen.cols] = pen.root
+        return out
     vals, vecs = np.linalg.eigh(pen.matrix)
     keep = vals > 1e-12 * max(float(vals.max(initial=0.0)), 1e-300)
     out = np.zeros((p, int(keep.sum())))

@@ -15,8 +15,8 @@ import numpy as np
 import pandas as pd
 from threadpoolctl import threadpool_limits
 
-from reval.data.config import Config
-from reval.data.dataset import SalesData, all_parcels, qualified_sales
+from reval.data.config import Config, FeatureSpec
+from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_shapes
 from reval.errors import UserError
 from reval.data.events import record_event
 from reval.model import BASE_TERM
@@ -41,7 +41,7 @@ def _versions() -> dict[str, str]:
 def _data_hash(sales: SalesData, y: np.ndarray) -> str:
     digest = hashlib.sha256()
     for part in (np.ascontiguousarray(sales.X), y, sales.frame["segment"].to_numpy(str).astype("U"),
-                 sales.frame["market_area"].to_numpy(str).astype("U")):
+                 sales.frame["market_area"].to_numpy(str).astype("U"), sales.frame["vouched"].to_numpy(bool)):
         digest.update(np.ascontiguousarray(part).tobytes())
     return digest.hexdigest()
 
@@ -61,23 +61,25 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     segment = sales.frame["segment"].to_numpy(str)
     market_area = sales.frame["market_area"].to_numpy(str)
     roll_segments = dict(store.rows("segment_market_areas"))
+    features = with_shapes(sales.features, config.features)
+    trusted = sales.frame["vouched"].to_numpy(bool)
     timings: dict[str, float] = {}
 
     start = time.perf_counter()
-    model = fit_hierarchy(sales.X, y, segment, market_area, sales.features, settings, segments=roll_segments,
-                          progress=_step(progress, "fitting segments"))
+    model = fit_hierarchy(sales.X, y, segment, market_area, features, settings, segments=roll_segments,
+                          trusted=trusted, progress=_step(progress, "fitting segments"))
     timings["fit"] = time.perf_counter() - start
     start = time.perf_counter()
-    oof = out_of_fold(sales.X, y, segment, market_area, sales.features, settings,
+    oof = out_of_fold(sales.X, y, segment, market_area, features, settings, trusted=trusted,
                       progress=_step(progress, "out-of-fold folds"))
     timings["out_of_fold"] = time.perf_counter() - start
     folds = fold_ids(len(y), segment, settings.seed, settings.folds)
     with threadpool_limits(limits=1):  # OpenMP/BLAS threads thrash on small fits; measured 7x slower on 2 cores
-        accuracy, importance = (_references(sales, y, segment, market_area, settings, folds, oof, timings, progress)
+        accuracy, importance = (_references(sales, features, y, trusted, settings, folds, oof, timings, progress)
                                 if references else (pd.DataFrame(), pd.DataFrame()))
 
     start = time.perf_counter()
-    parcels, X_all = all_parcels(store, sales.features)
+    parcels, X_all = all_parcels(store, features)
     estimates, contributions = _value_parcels(model, parcels, X_all)
     timings["value_parcels"] = time.perf_counter() - start
 
@@ -91,33 +93,37 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     sale_predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"],
                                      "parcel_id": sales.frame["parcel_id"], "fold": folds.astype(np.int16),
                                      "insample_log": model.predict(sales.X, segment, market_area), "oof_log": oof})
+    weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy(), run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
         for table, frame in reports.items():
             store.insert(f"insert_{table}", frame)
         store.insert("insert_sale_predictions", sale_predictions)
+        store.insert("insert_sale_weights", weights)
         store.insert("insert_parcel_estimates", estimates.assign(run_id=run_id))
         store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
+        downweighted = int((weights["weight"] < 1).sum())
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
-                                  "config_sha256": config.sha256}, run_id=run_id)
+                                  "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
         for source in ("model_out_of_fold", "model_in_sample"):
             for by in ("segment", "market_area", "class", "all"):
                 run_study(store, config, source, by, run_id)
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
-            "segments": len(reports["segment_models"]), "timings": timings,
+            "segments": len(reports["segment_models"]), "timings": timings, "downweighted_sales": downweighted,
             "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
 
 
-def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
+def _references(sales: SalesData, features: tuple[FeatureSpec, ...], y: np.ndarray, trusted: np.ndarray,
                 settings: ModelSettings, folds: np.ndarray, oof: np.ndarray, timings: dict[str, float],
                 progress: Progress | None) -> tuple[pd.DataFrame, pd.DataFrame]:
     """The reference models and the additive model without interactions, on the same folds."""
     start = time.perf_counter()
-    plain = out_of_fold(sales.X, y, segment, market_area, sales.features,
-                        dataclasses.replace(settings, interaction_rule="none"))
+    segment = sales.frame["segment"].to_numpy(str)
+    plain = out_of_fold(sales.X, y, segment, sales.frame["market_area"].to_numpy(str), features,
+                        dataclasses.replace(settings, interaction_rule="none"), trusted=trusted)
     plain_seconds = time.perf_counter() - start
     if progress:
         progress("reference models", 1, 2)
@@ -135,6 +141,18 @@ def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_are
     accuracy = table.rename(columns={"cv_seconds": "seconds"})[
         ["model", "segment", "n", "rmse_log", "median_ratio", "cod", "prd", "prb", "seconds"]]
     return accuracy, importance
+
+
+def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray, run_id: str) -> pd.DataFrame:
+    """Each sale's weight in the fit and its residual against the run's value (log), for insert_sale_weights
+    (which writes the reasons). The weight was judged on the screening model's leave-one-out residual, which
+    overstates a lone sale's distance where that model extrapolates; the run's own value is what a reviewer
+    compares the price with."""
+    found = model.sale_weights
+    weight = np.ones(len(sales.frame)) if found is None else found.weight
+    return pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"], "parcel_id": sales.frame["parcel_id"],
+                         "weight": weight, "residual": residual, "vouched": sales.frame["vouched"].to_numpy(bool),
+                         "analyst_reason": sales.frame["analyst_reason"]})
 
 
 def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:

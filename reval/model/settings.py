@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from reval.config_keys import Declared, Invalid, setting, toml_value
-from reval.states import InteractionRule
+from reval.states import InteractionRule, Loss
 
 Pairs = tuple[tuple[str, str], ...]
 
@@ -47,3 +47,7 @@ class ModelSettings(Declared):
     min_sales_own_deviation: int = setting(1, "fewer sales: the segment takes its market area's model unchanged",
                                            lo=1)
     jobs: int = setting(1, "worker processes for fitting segments in parallel (1 = in this process)", lo=1, hi=256)
+    loss: Loss = setting("huber", '"huber": sales far from what the other sales say they are worth weigh less '
+                         '(reval/model/robust.py); "squared": every sale counts fully')
+    huber_k: float = setting(1.345, "Huber's constant: residuals beyond this many robust standard deviations are "
+                             "down-weighted", lo=0, lo_open=True)

@@ -1,4 +1,5 @@
-"""Review of staged values per segment: how values move against the prior roll, and a sales-chasing check.
+"""Review of staged values per segment: how values move against the prior roll, the sales the fit down-weighted,
+and a sales-chasing check.
 
 Value change = new market value / prior value (parcels with a prior value). The report gives its
 quantiles, the totals, and the parcels beyond +/- `assessment.review_change_threshold`.
@@ -59,8 +60,10 @@ def review(store: Store, config: Config, segment: str | None = None, limit: int 
     summary = store.frame("review_summary", {"batch_ids": ids, "threshold": threshold}).set_index("batch_id")
     beyond = store.frame("review_beyond", {"batch_ids": ids, "threshold": threshold, "limit": limit})
     changes = store.frame("review_changes", {"batch_ids": ids})
+    light = store.frame("review_downweighted", {"batch_ids": ids, "limit": limit})
     by_batch = dict(list(changes.groupby("batch_id")))
     listed = dict(list(beyond.groupby("batch_id")))
+    lightest = dict(list(light.groupby("batch_id")))
     empty = changes.iloc[0:0]
     segments: list[SegmentReview] = []
     for b in batches.itertuples():
@@ -76,6 +79,8 @@ def review(store: Store, config: Config, segment: str | None = None, limit: int 
             if quantiles is not None else None,
             "n_beyond_threshold": int(s["n_beyond"]),
             "beyond_threshold": records(listed.get(b.batch_id, beyond.iloc[0:0]).drop(columns="batch_id")),
+            "n_downweighted": int(lightest[b.batch_id]["n"].iloc[0]) if b.batch_id in lightest else 0,
+            "downweighted": records(lightest.get(b.batch_id, light.iloc[0:0]).drop(columns=["batch_id", "n"])),
             "sales_chasing": sales_chasing(moved["ratio"].to_numpy(float), moved["sold"].to_numpy(bool),
                                            config.standards.min_sales),
         })

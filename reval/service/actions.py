@@ -15,13 +15,13 @@ from typing import TYPE_CHECKING
 from reval.data.config import CONFIG_NAME
 from reval.errors import UserError
 from reval.service.project import open_project
-from reval.states import Grouping, ValuesSource
+from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
     from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
-                                     ExportResult, FitSummary, ImportSummary, ReviewReport, SalesCounts,
-                                     StageResult, StudyResult)
+                                     ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
+                                     SalesCounts, StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -64,6 +64,15 @@ def prepare_sales(folder: Path, progress: Progress | None = None) -> SalesCounts
 
     with open_project(folder, write=True) as (config, store):
         return prepare(store, config, progress).as_dict()
+
+
+def decide_sale(folder: Path, sale_id: str, decision: SaleChoice, reason: str) -> SaleDecision:
+    """Exclude one sale from models and ratio studies, or include it at full weight in the fit, with a reason;
+    the sales are re-qualified at once, so the next fit honours it."""
+    from reval.data.decisions import decide_sale as decide
+
+    with open_project(folder, write=True) as (config, store):
+        return decide(store, config, sale_id, decision, reason)
 
 
 def sales_report(folder: Path) -> SalesCounts:

@@ -6,8 +6,8 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SalesCounts,
-                           SegmentReview, StageResult)
+from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
+                           SalesCounts, SegmentReview, StageResult)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
@@ -15,7 +15,7 @@ from reval.stats.stored import StudyGroup, StudyResult
 
 __all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
            "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SalesCounts", "SalesPage", "SegmentDetail", "StageResult", "StatCell", "StudyGroup",
+           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StageResult", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
 
 
@@ -165,6 +165,7 @@ class SalesPage(TypedDict):
     total: int
     rows: list[Record]
     values: str
+    downweighted: int
 
 
 class ParcelDetail(TypedDict):

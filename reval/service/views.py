@@ -258,7 +258,8 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
-    """One page of a segment's sales (largest ratio deviations first) with the values under study."""
+    """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
+    weight in the latest run's fit with why it is below 1."""
     with open_project(folder) as (_, store):
         run_id = latest_run(store)
         study, _ = _study(store, run_id)
@@ -268,11 +269,12 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
         pages = max(1, math.ceil(total / page_size))
         page = min(max(page, 0), pages - 1)
         rows = store.records("app_segment_sales",
-                        [run_id if model else None, segment, sid, page_size, page * page_size])
+                             [run_id if model else None, segment, sid, page_size, page * page_size, run_id])
         for r in rows:
             r["sale_date"] = r["sale_date"].isoformat()
+        light = int(store.rows("app_segment_downweighted", [run_id, segment])[0][0]) if run_id else 0
         return {"segment": segment, "page": page, "pages": pages, "total": total, "rows": rows,
-                "values": "out-of-fold model values" if model else "prior roll values"}
+                "values": "out-of-fold model values" if model else "prior roll values", "downweighted": light}
 
 
 # ---- one parcel ----------------------------------------------------------------------------------------

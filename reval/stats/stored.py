@@ -27,6 +27,13 @@ class TrimmedSale(TypedDict):
     ratio: float
 
 
+class DownweightedSale(TypedDict):
+    sale_id: str
+    parcel_id: str
+    weight: float
+    reason: str | None
+
+
 class StudyGroup(TypedDict):
     """One group's statistics, confidence intervals ([lo, hi], None where undefined) and verdicts."""
 
@@ -48,6 +55,7 @@ class StudyGroup(TypedDict):
     verdicts: dict[str, VerdictEntry]
     values_source: ValuesSource
     trimmed: NotRequired[list[TrimmedSale]]
+    downweighted: NotRequired[list[DownweightedSale]]
 
 
 class StudyResult(TypedDict):
@@ -88,7 +96,8 @@ def stored_groups(store: Store, sid: str, values_source: ValuesSource) -> list[S
 
 
 def load_study(store: Store, values_source: ValuesSource, grouping: Grouping, run_id: str | None = None) -> StudyResult:
-    """A stored study with every group's trimmed sales (the shape `reval study --json` prints)."""
+    """A stored study with every group's trimmed sales and, for model values, the sales its run's fit gave less
+    than full weight (the shape `reval study --json` prints)."""
     sid = study_id(values_source, run_id, grouping)
     header = store.records("study_header", [sid])
     if not header:
@@ -99,9 +108,14 @@ def load_study(store: Store, values_source: ValuesSource, grouping: Grouping, ru
     for t in store.records("study_trimmed_rows", [sid]):
         trimmed.setdefault(t["group_name"], []).append(
             {"sale_id": t["sale_id"], "parcel_id": t["parcel_id"], "ratio": float(t["ratio"])})
+    light: dict[str, list[DownweightedSale]] = {}
+    for d in store.records("study_downweighted_rows", [sid]):
+        light.setdefault(d["group_name"], []).append(
+            {"sale_id": d["sale_id"], "parcel_id": d["parcel_id"], "weight": float(d["weight"]), "reason": d["reason"]})
     groups = stored_groups(store, sid, h["values_source"])
     for g in groups:
         g["trimmed"] = trimmed.get(g["group"], [])
+        g["downweighted"] = light.get(g["group"], [])
     out: StudyResult = {"study_id": sid, "values_source": h["values_source"], "values": SOURCE_LABELS[h["values_source"]],
                         "run_id": h["run_id"], "by": h["grouping"], "trim_iqr_k": number(h["trim_iqr_k"]),
                         "confidence": float(h["confidence"]), "groups": groups}

@@ -25,7 +25,8 @@ GROUP_COLUMNS: dict[str, str | None] = {"segment": "segment", "market_area": "ma
 
 
 def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.DataFrame:
-    """Sales with columns sale_id, parcel_id, price (time-adjusted), value, segment, market_area, property_class."""
+    """Sales with columns sale_id, parcel_id, price (time-adjusted), value, segment, market_area, property_class;
+    for model values also the sale's weight in the run's fit and why it is below 1."""
     if store.rows("count_adjusted_sales")[0][0] == 0:
         raise UserError("No prepared sales yet: run `reval sales` first.")
     if values_source == "prior":
@@ -62,7 +63,7 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     groups = [("all", sales)] if column is None else list(sales.groupby(column, sort=True))
     sid = study_id(values_source, run_id, grouping)
     opts = config.study
-    rows, trimmed = [], []
+    rows, trimmed, downweighted = [], [], []
     for name, frame in groups:
         s = ratio_study(frame["value"].to_numpy(float), frame["price"].to_numpy(float), confidence=opts.confidence,
                         n_boot=opts.bootstrap, seed=opts.seed, trim_iqr_k=opts.trim_iqr_k)
@@ -71,12 +72,19 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
         cut = frame.loc[s.trimmed]
         trimmed.append(pd.DataFrame({"study_id": sid, "group_name": str(name), "sale_id": cut["sale_id"],
                                      "parcel_id": cut["parcel_id"], "ratio": cut["value"] / cut["price"]}))
+        if "weight" in frame:
+            light = frame[frame["weight"] < 1]
+            downweighted.append(pd.DataFrame({"study_id": sid, "group_name": str(name), "sale_id": light["sale_id"],
+                                              "parcel_id": light["parcel_id"], "weight": light["weight"],
+                                              "reason": light["weight_reason"]}))
     groups_frame = pd.DataFrame(rows)
     trimmed_frame = pd.concat(trimmed, ignore_index=True) if trimmed else pd.DataFrame()
+    downweighted_frame = pd.concat(downweighted, ignore_index=True) if downweighted else pd.DataFrame()
     with store.transaction():
         store.run("delete_study", [sid])
         store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
                                    opts.confidence, opts.bootstrap, opts.seed, config.sha256])
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
+        store.insert("insert_study_downweighted", downweighted_frame)
     return load_study(store, values_source, grouping, run_id)

@@ -1,5 +1,7 @@
--- One page of a segment's qualified sales with the value under study and its ratio, extremes first.
--- $1 run id (NULL: prior values), $2 segment, $3 study id (for the trimmed mark), $4 page size, $5 offset.
+-- One page of a segment's qualified sales with the value under study and its ratio, extremes first, and each
+-- sale's weight in the latest run's fit (NULL without a run) and why it is below 1.
+-- $1 run id of the values (NULL: prior values), $2 segment, $3 study id (for the trimmed mark), $4 page size,
+-- $5 offset, $6 the latest run id (for the weights).
 WITH s AS (
     SELECT a.sale_id, a.parcel_id, x.sale_date, x.sale_price, a.adjusted_price,
            CASE WHEN $1 IS NULL THEN p.prior_value ELSE exp(m.oof_log) END AS value, m.fold
@@ -10,9 +12,10 @@ WITH s AS (
     WHERE p.segment = $2
 )
 SELECT s.sale_id, s.parcel_id, s.sale_date, s.sale_price, s.adjusted_price, s.value, s.fold,
-       s.value / s.adjusted_price AS ratio, t.sale_id IS NOT NULL AS trimmed
+       s.value / s.adjusted_price AS ratio, t.sale_id IS NOT NULL AS trimmed, w.weight, w.reason AS weight_reason
 FROM s
 LEFT JOIN study_trimmed t ON t.study_id = $3 AND t.group_name = $2 AND t.sale_id = s.sale_id
                           AND t.parcel_id = s.parcel_id
+LEFT JOIN sale_weights w ON w.run_id = $6 AND w.sale_id = s.sale_id AND w.parcel_id = s.parcel_id
 ORDER BY abs(ln(s.value / s.adjusted_price)) DESC NULLS LAST, s.sale_id, s.parcel_id
 LIMIT $4 OFFSET $5;

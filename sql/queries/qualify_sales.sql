@@ -1,6 +1,7 @@
 -- Qualify every sale by the [sales] rules; the first failing rule is the reason.
 -- $1 window start, $2 valuation date, $3 kept validity codes (NULL = all), $4 exclude multi-parcel,
 -- $5 property classes kept (NULL = all), $6 price min (NULL = none), $7 price max (NULL = none).
+-- After the rules, the analyst's exclusions (sale_decisions).
 INSERT INTO sale_qualification
 WITH multi AS (SELECT sale_id FROM sales GROUP BY sale_id HAVING count(*) > 1)
 SELECT s.sale_id, s.parcel_id, reason IS NULL, reason
@@ -16,6 +17,8 @@ FROM (
                    THEN 'property class ' || p.property_class || ' not included'
                WHEN $6 IS NOT NULL AND s.sale_price < $6 THEN 'price below the minimum'
                WHEN $7 IS NOT NULL AND s.sale_price > $7 THEN 'price above the maximum'
+               WHEN d.decision = 'exclude' THEN 'excluded by analyst: ' || d.reason
            END AS reason
     FROM sales s JOIN parcels p USING (parcel_id)
+    LEFT JOIN sale_decisions d ON d.sale_id = s.sale_id
 ) s;

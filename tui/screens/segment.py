@@ -314,14 +314,17 @@ class SegmentScreen(DataScreen):
         self.sales_page = s["page"]
         self.query_one("#sales-title", Static).update(
             f"{s['total']:,} sales, ratios of {s['values']}, farthest from 1 first · page {s['page'] + 1}/"
-            f"{s['pages']} (] [) · ✂ trimmed · Enter: parcel")
+            f"{s['pages']} (] [) · ✂ trimmed · {s['downweighted']:,} down-weighted by the fit (weight < 1, "
+            "why at the right) · Enter: parcel")
         table = self.query_one("#sales-table", DataTable)
         table.clear(columns=True)
-        table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂")
+        table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂", "Weight", "Why")
         for r in s["rows"]:
+            weight = r["weight"]
             table.add_row(*cells(r["sale_id"], r["parcel_id"], r["sale_date"], money(r["sale_price"]),
                           money(r["adjusted_price"]), money(r["value"]), number(r["ratio"], ".3f"),
-                          "✂" if r["trimmed"] else ""), key=f"{r['sale_id']}/{r['parcel_id']}")
+                          "✂" if r["trimmed"] else "", "" if weight is None or weight >= 1 else f"{weight:.2f}",
+                          r["weight_reason"] or ""), key=f"{r['sale_id']}/{r['parcel_id']}")
 
     @on(DataTable.RowSelected, "#sales-table")
     def sale_chosen(self) -> None:
