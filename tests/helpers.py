@@ -186,18 +186,24 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     return run_id
 
 
-def set_assessment(folder: Path, lines: str) -> None:
-    """Replace the config's [assessment] section (and its [[assessment.caps]]) with `lines`, so a test states
-    every assessment rule it relies on, whatever the shipped demo config holds."""
+def set_section(folder: Path, section: str, lines: str) -> None:
+    """Replace the config's [section] (and its sub-tables) with `lines`, so a test states every rule of that
+    section it relies on, whatever the shipped demo config holds."""
     path = folder / "reval.toml"
     kept, inside = [], False
     for line in path.read_text(encoding="utf-8").splitlines():
         header = line.strip().startswith("[")
         if header:
-            inside = line.strip() in ("[assessment]", "[[assessment.caps]]")
+            name = line.strip().strip("[]")
+            inside = name == section or name.startswith(section + ".")
         if not inside:
             kept.append(line)
-    path.write_text("\n".join(kept) + f"\n\n[assessment]\n{lines}", encoding="utf-8")
+    path.write_text("\n".join(kept) + f"\n\n[{section}]\n{lines}", encoding="utf-8")
+
+
+def set_assessment(folder: Path, lines: str) -> None:
+    """Replace the config's [assessment] section (and its [[assessment.caps]]) with `lines`."""
+    set_section(folder, "assessment", lines)
 
 
 def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0, missing_prior: float = 100_000.0) -> str:

@@ -14,9 +14,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reval.service.actions import approve, batch_states, event_log, export_roll, hold, revoke, stage_values
+from reval.service.actions import (approve, batch_states, event_log, export_roll, hold, revoke, stage_values,
+                                   study)
+from reval.service.views import overview
 from reval.errors import UserError
-from helpers import insert_run, query_frame, roll_project
+from helpers import insert_run, query_frame, roll_project, set_section
 
 FAILING, PASSING = "CORV", "FENL"
 
@@ -172,3 +174,43 @@ def test_the_command_line_reports_json_and_refuses_plainly(staged: Path, tmp_pat
     assert code == 1 and "not approved" in err and not (tmp_path / "roll.csv").exists()
     code, out, _ = run("export", str(tmp_path / "roll.csv"), "--partial", "--json")
     assert code == 0 and json.loads(out)["rows"] == states[PASSING]["certified"]["n_parcels"]
+
+
+def _prb(v: np.ndarray, p: np.ndarray) -> float:
+    """IAAO PRB: slope of (ratio - median) / median on log2 of the value proxy 0.5 value / median + 0.5 price."""
+    r = v / p
+    med = np.median(r)
+    return float(np.polyfit(np.log2(0.5 * v / med + 0.5 * p), (r - med) / med, 1)[0])
+
+
+def test_approval_is_judged_under_the_standards_in_force_not_a_stored_study(staged: Path) -> None:
+    # Finding: after tightening [standards] prb, approve passed on the study stored under the old limits and
+    # the event kept the old "pass". The gate now recomputes and the event stores what it judged.
+    prb = _prb(*_oof_ratios(staged, PASSING))
+    assert 0.004 < abs(prb) < 0.05                          # premise: passes +/-0.05, fails a tighter limit
+    limit = round(abs(prb) / 2, 4)
+    stored = study(staged, "model", "segment")             # stored under the default limits: a pass
+    assert next(g for g in stored["groups"] if g["group"] == PASSING)["verdicts"]["prb"]["status"] == "pass"
+    set_section(staged, "standards", f"prb = [{-limit}, {limit}]\n")
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*fail.*standard -{limit} to {limit}"):
+        approve(staged, PASSING)
+    assert _batch(staged, PASSING, "staged") is not None
+    approve(staged, PASSING, "PRB reviewed against the price deciles")
+    event = [e for e in event_log(staged, PASSING)["events"] if e["kind"] == "batch_approved"][-1]["detail"]
+    assert event["override"] is True and event["statistics"]["verdicts"]["prb"]["status"] == "fail"
+    assert event["statistics"]["prb"] == pytest.approx(prb, abs=1e-9)
+    assert event["statistics"]["judged_under"]["standards"]["prb"] == [-limit, limit]
+
+
+def test_a_change_of_standards_after_approval_shows_on_the_batch(staged: Path) -> None:
+    approve(staged, PASSING)
+    run = len(query_frame(staged, "SELECT run_id FROM runs"))   # run-a is the newest run: its number is the count
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["summary"] == f"approved, run {run}" and not shown[PASSING]["other_standards"]
+    set_section(staged, "standards", "prd = [0.99, 1.02]\n")
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["other_standards"]
+    assert shown[PASSING]["summary"] == f"approved under other standards, run {run}"
+    assert shown[FAILING]["summary"] == f"staged, run {run}"    # nothing approved there: nothing to mark
+    row = next(r for r in overview(staged)["segments"] if r["segment"] == PASSING)
+    assert row["batches"] == f"approved under other standards, run {run}"

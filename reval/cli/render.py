@@ -202,5 +202,6 @@ def batch_states(r: dict[str, Any], console: Console) -> None:
     def show(b: dict[str, Any] | None) -> str:
         return "-" if b is None else f"{b['batch_id']} {b['state']} (run {b['run_id']})"
 
-    table("Batches", ["segment", "open batch", "certified batch"],
-          [[s["segment"], show(s["open"]), show(s["certified"])] for s in r["segments"]], console)
+    table("Batches: the certified values (those an export writes) beside the pending ones",
+          ["segment", "state", "certified batch", "open batch"],
+          [[s["segment"], s["summary"], show(s["certified"]), show(s["open"])] for s in r["segments"]], console)

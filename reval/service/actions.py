@@ -180,9 +180,10 @@ def event_log(folder: Path, segment: str | None = None) -> EventLog:
 def batch_states(folder: Path) -> BatchStates:
     """Each segment's open batch (staged or held) and certified batch (approved or exported)."""
     from reval.roll.batch_states import segment_states
+    from reval.stats.judging import judging_sha256
 
-    with open_project(folder) as (_, store):
-        return {"segments": segment_states(store)}
+    with open_project(folder) as (config, store):
+        return {"segments": segment_states(store, judging_sha256(config))}
 
 
 # ---- the demo ----------------------------------------------------------------------------------------------------

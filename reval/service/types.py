@@ -85,6 +85,7 @@ class OverviewRow(TypedDict):
     n: int
     failing: bool
     state: BatchState | None
+    batches: str                 # certified and open batch side by side, e.g. "approved, run 3 · run 4 pending"
 
 
 class Overview(TypedDict):
@@ -155,6 +156,7 @@ class SegmentDetail(TypedDict):
     value_change: ValueChange | None
     reference_accuracy: list[Record]
     state: BatchState | None
+    batches: str
     review: SegmentReview | None
 
 

@@ -18,12 +18,13 @@ from reval.errors import UserError
 from reval.model import BASE_TERM
 from reval.model.names import named
 from reval.roll import batch_states
-from reval.roll.batch_states import state_of
+from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
 from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
                                  SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
+from reval.stats.judging import judging_sha256
 from reval.stats.sources import SOURCE_LABELS
 from reval.states import ValuesSource
 from reval.stats.stored import STATS, StudyGroup, stored_groups
@@ -94,15 +95,19 @@ def _stat_cells(group: StudyGroup | None) -> dict[str, StatCell]:
     return cells
 
 
-def segment_states(store: Store) -> dict[str, BatchState | None]:
-    """Each segment's state in one word (reval.roll.batch_states, the one rule)."""
-    return {entry["segment"]: state_of(entry) for entry in batch_states.segment_states(store)}
+def segment_states(store: Store, config: Config) -> dict[str, SegmentBatches]:
+    """Each segment's open and certified batch (reval.roll.batch_states, the one rule)."""
+    return {entry["segment"]: entry for entry in batch_states.segment_states(store, judging_sha256(config))}
+
+
+def _state(entry: SegmentBatches | None) -> BatchState | None:
+    return None if entry is None else state_of(entry)
 
 
 def overview(folder: Path) -> Overview:
     """One row per segment with counts, model kind, ratio statistics and verdicts, value change and state."""
     with open_project(folder) as (config, store):
-        states = segment_states(store)
+        states = segment_states(store, config)
         run_id = latest_run(store)
         study, note = _study(store, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
@@ -115,7 +120,8 @@ def overview(folder: Path) -> Overview:
                          "reason": r["reason"], "value_change": r["value_change"], "stats": stats,
                          "n": group["n"] if group else 0,
                          "failing": any(c["status"] == "fail" for c in stats.values()),
-                         "state": states.get(r["segment"])})
+                         "state": _state(states.get(r["segment"])),
+                         "batches": states[r["segment"]]["summary"] if r["segment"] in states else "no batch"})
         return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
                 "folder": str(config.folder), "run_id": run_id,
                 "stats_source": study["values_source"] if study else None,
@@ -233,7 +239,8 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
         run_id = latest_run(store)
         study, note = _study(store, run_id)
         model = store.records("app_segment_model", [run_id, segment]) if run_id else []
-        state = segment_states(store).get(segment)
+        entry = segment_states(store, config).get(segment)
+        state = _state(entry)
         return {
             "segment": segment, "market_area": info[0]["market_area"], "parcels": info[0]["parcels"],
             "sales": info[0]["sales"], "run_id": run_id,
@@ -245,7 +252,8 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "equity": _equity(store, run_id, study, segment, max_points),
             "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
-            "state": state, "review": _review(store, config, segment) if state else None,
+            "state": state, "batches": entry["summary"] if entry else "no batch",
+            "review": _review(store, config, segment) if state else None,
         }
 
 

@@ -1,7 +1,8 @@
 """Ratio studies per group, stored so the app reads them without recomputing.
 
 The statistics are reval.ratio_stats (one implementation); this module groups sales, judges each group
-against the standards, labels what the values were, and stores and reads the results.
+against the standards, labels what the values were, and stores and reads the results. The approval gate
+judges one segment with the same code, now, under the current standards (`segment_judgement`).
 """
 from __future__ import annotations
 
@@ -13,12 +14,13 @@ import pandas as pd
 
 from reval.data.config import Config
 from reval.errors import UserError
+from reval.stats.judging import judging_sha256
 from reval.stats.ratio_stats import RatioStudy, ratio_study
 from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
 from reval.states import Grouping, ValuesSource
-from reval.stats.stored import StudyResult, load_study, study_id
+from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, study_id
 
 GROUP_COLUMNS: dict[str, str | None] = {"segment": "segment", "market_area": "market_area",
                                         "class": "property_class", "all": None}
@@ -54,6 +56,18 @@ def _group_row(sid: str, name: str, cls: str | None, s: RatioStudy, verdicts: di
                                     for k, v in verdicts.items()})}
 
 
+def _judged(frame: pd.DataFrame, sid: str, name: str, config: Config) -> tuple[dict[str, Any], pd.DataFrame]:
+    """One group's stored row (statistics and verdicts) and its trimmed sales."""
+    opts = config.study
+    s = ratio_study(frame["value"].to_numpy(float), frame["price"].to_numpy(float), confidence=opts.confidence,
+                    n_boot=opts.bootstrap, seed=opts.seed, trim_iqr_k=opts.trim_iqr_k)
+    cls = _group_class(frame)
+    cut = frame.loc[s.trimmed]
+    trimmed = pd.DataFrame({"study_id": sid, "group_name": name, "sale_id": cut["sale_id"],
+                            "parcel_id": cut["parcel_id"], "ratio": cut["value"] / cut["price"]})
+    return _group_row(sid, name, cls, s, judge(s, config.standards, cls)), trimmed
+
+
 def run_study(store: Store, config: Config, values_source: ValuesSource = "prior", grouping: Grouping = "segment",
               run_id: str | None = None) -> StudyResult:
     """Compute, store (replacing the same study) and return a ratio study."""
@@ -62,21 +76,24 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     groups = [("all", sales)] if column is None else list(sales.groupby(column, sort=True))
     sid = study_id(values_source, run_id, grouping)
     opts = config.study
-    rows, trimmed = [], []
-    for name, frame in groups:
-        s = ratio_study(frame["value"].to_numpy(float), frame["price"].to_numpy(float), confidence=opts.confidence,
-                        n_boot=opts.bootstrap, seed=opts.seed, trim_iqr_k=opts.trim_iqr_k)
-        cls = _group_class(frame)
-        rows.append(_group_row(sid, str(name), cls, s, judge(s, config.standards, cls)))
-        cut = frame.loc[s.trimmed]
-        trimmed.append(pd.DataFrame({"study_id": sid, "group_name": str(name), "sale_id": cut["sale_id"],
-                                     "parcel_id": cut["parcel_id"], "ratio": cut["value"] / cut["price"]}))
-    groups_frame = pd.DataFrame(rows)
-    trimmed_frame = pd.concat(trimmed, ignore_index=True) if trimmed else pd.DataFrame()
+    judged = [_judged(frame, sid, str(name), config) for name, frame in groups]
+    groups_frame = pd.DataFrame([row for row, _ in judged])
+    cut = [t for _, t in judged]
+    trimmed_frame = pd.concat(cut, ignore_index=True) if cut else pd.DataFrame()
     with store.transaction():
         store.run("delete_study", [sid])
         store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
-                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256])
+                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config)])
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
     return load_study(store, values_source, grouping, run_id)
+
+
+def segment_judgement(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
+                      segment: str) -> StudyGroup:
+    """One segment's ratio statistics and verdicts computed now under the current standards and study
+    settings (nothing stored): what the approval gate judges."""
+    sales = sales_for_study(store, values_source, run_id)
+    mine = sales[sales["segment"] == segment]
+    row, _ = _judged(mine, study_id(values_source, run_id, "segment"), segment, config)
+    return group_from_row(row, values_source)

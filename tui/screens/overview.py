@@ -110,7 +110,7 @@ class OverviewScreen(DataScreen):
             return Text(stat_cell(row["stats"][stat], stat, short=True), style=Style(color=colour) if colour else "")
 
         return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
-                verdict("prb"), percent(row["value_change"]), row["state"] or "–", f"{row['sales']:,}",
+                verdict("prb"), percent(row["value_change"]), row["batches"], f"{row['sales']:,}",
                 f"{row['parcels']:,}", row["market_area"]]
 
     def _label_columns(self, table: DataTable[Any]) -> None:

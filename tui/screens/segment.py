@@ -173,7 +173,7 @@ class SegmentScreen(DataScreen):
         super().on_load_failed(message)
 
     def show_segment(self, d: SegmentDetail) -> None:
-        state = f" · batch {d['state']}" if d.get("state") else ""
+        state = f" · {d['batches']}" if d.get("state") else ""
         self.query_one("#segment-title", Static).update(
             f"Segment {d['segment']} · market area {d['market_area']} · {d['parcels']:,} parcels · "
             f"{d['sales']:,} qualified sales{state}")

@@ -1,0 +1,4 @@
+-- Version 7: decisions that hold. A study and an approval record the judging basis (reval/stats/judging.py:
+-- the standards and study settings) they were judged under, so a change of standards afterwards shows.
+ALTER TABLE batches ADD COLUMN judged_sha256 VARCHAR;   -- set when approved: the basis the gate judged under
+ALTER TABLE studies ADD COLUMN judged_sha256 VARCHAR;
