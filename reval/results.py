@@ -58,12 +58,36 @@ class LandScheduleUsed(TypedDict):
     sha256: str
 
 
+class StandingDecision(TypedDict):
+    """A held or approved batch that a re-stage of its segment would set aside, and what would happen to it."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: str
+    note: str | None
+    on_restage: str
+
+
+class StagePlan(TypedDict):
+    """What `reval value` would do (the app's confirmation): segments to stage, already staged from this run,
+    decisions kept standing, and decisions a re-stage with replace sets aside."""
+
+    run_id: str
+    stage: list[str]
+    unchanged: list[str]
+    kept: list[StandingDecision]
+    set_aside: list[StandingDecision]
+
+
 class StageResult(TypedDict):
-    """What `reval value` staged: the run, the new batches (and what each replaced), the flag counts."""
+    """What `reval value` staged: the run, the new batches (and what each replaced), the segments left as
+    they were (already staged from this run, or kept for a standing decision), the flag counts."""
 
     run_id: str
     staged: list[StagedBatch]
     unchanged: list[str]
+    kept: list[StandingDecision]
     land_schedule: LandScheduleUsed | None
     flags: dict[str, int]
 
@@ -121,8 +145,18 @@ class Decision(TypedDict, total=False):
     superseded: list[int]
 
 
+class PendingBatch(TypedDict):
+    """A newer open batch of a certified segment, left out of an export: its values are not the roll's."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: str
+
+
 class Manifest(TypedDict):
-    """What travels beside a roll file: its rows, hash, per-segment totals, runs and provenance."""
+    """What travels beside a roll file: its rows, hash, per-segment totals (each with the run and batch its
+    values come from), runs, newer batches left out, and provenance."""
 
     file: str
     rows: int
@@ -132,6 +166,7 @@ class Manifest(TypedDict):
     partial: bool
     not_approved: list[str]
     pending_newer_batches: list[str]
+    pending_batches: list[PendingBatch]
     config_sha256: str
     who: str
     when: str

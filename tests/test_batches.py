@@ -83,7 +83,14 @@ def test_hold_needs_a_reason_and_only_a_new_run_stages_it_again(staged: Path) ->
     assert stage_values(staged)["staged"] == []          # the same run and basis stage nothing
     assert _batch(staged, PASSING, "held")["batch_id"] == held["batch_id"]
     insert_run(staged, "run-b", 2, order=1)
-    stage_values(staged)
+    result = stage_values(staged)                         # a new run: the hold stands unless asked
+    assert PASSING not in {s["segment"] for s in result["staged"]}
+    assert [d["segment"] for d in result["kept"]] == [PASSING]
+    assert _batch(staged, PASSING, "held")["batch_id"] == held["batch_id"]
+    with pytest.raises(UserError, match=rf"Not staged: {PASSING} is held .*--replace"):
+        stage_values(staged, segments=[PASSING])
+    result = stage_values(staged, segments=[PASSING], replace=True)   # the held segment alone
+    assert [s["segment"] for s in result["staged"]] == [PASSING]
     assert _batch(staged, PASSING, "staged")["run_id"] == "run-b"
     assert query_frame(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(held["batch_id"])])["state"][0] \
         == "replaced"
@@ -111,7 +118,9 @@ def test_a_refit_after_approval_leaves_approved_values_alone(staged: Path) -> No
     before = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     insert_run(staged, "run-b", 2, order=1)
     result = stage_values(staged)
-    assert result["run_id"] == "run-b" and len(result["staged"]) == 22
+    assert result["run_id"] == "run-b" and len(result["staged"]) == 21 and result["kept"][0]["segment"] == PASSING
+    result = stage_values(staged, segments=[PASSING], replace=True)
+    assert [s["segment"] for s in result["staged"]] == [PASSING]
     after = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     pd.testing.assert_frame_equal(before, after)
     assert _batch(staged, PASSING, "approved")["changed_at"] == approved["changed_at"]
@@ -214,3 +223,44 @@ def test_a_change_of_standards_after_approval_shows_on_the_batch(staged: Path) -
     assert shown[FAILING]["summary"] == f"staged, run {run}"    # nothing approved there: nothing to mark
     row = next(r for r in overview(staged)["segments"] if r["segment"] == PASSING)
     assert row["batches"] == f"approved under other standards, run {run}"
+
+
+def test_a_restage_after_a_new_run_keeps_approvals_and_holds(staged: Path, tmp_path: Path) -> None:
+    # Finding: `reval value` re-staged all 22 segments, an approval and a hold disappeared without a word, the
+    # overview showed the approved segment as "staged" while the export wrote its older approved values.
+    approve(staged, PASSING)
+    hold(staged, "ASKR", "lot sizes to check")
+    approved, held = _batch(staged, PASSING, "approved"), _batch(staged, "ASKR", "held")
+    insert_run(staged, "run-b", 2, order=1)
+    runs = len(query_frame(staged, "SELECT run_id FROM runs"))   # run-b is the newest: its number is the count
+    result = stage_values(staged)
+    assert {d["segment"]: d["state"] for d in result["kept"]} == {PASSING: "approved", "ASKR": "held"}
+    assert len(result["staged"]) == 20 and {PASSING, "ASKR"}.isdisjoint(s["segment"] for s in result["staged"])
+    assert _batch(staged, PASSING, "approved")["batch_id"] == approved["batch_id"]
+    assert _batch(staged, "ASKR", "held")["batch_id"] == held["batch_id"]
+    # staged on purpose, the approval stays certified beside the pending batch, and the export says so
+    stage_values(staged, segments=[PASSING], replace=True)
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["summary"] == f"approved, run {runs - 1} · run {runs} pending"
+    assert shown["ASKR"]["summary"] == f"held, run {runs - 1}"
+    row = next(r for r in overview(staged)["segments"] if r["segment"] == PASSING)
+    assert row["batches"] == shown[PASSING]["summary"]
+    manifest = export_roll(staged, tmp_path / "roll.csv", partial=True)
+    assert [(s["segment"], s["run_id"]) for s in manifest["segments"]] == [(PASSING, "run-a")]
+    assert manifest["pending_batches"] == [{"segment": PASSING, "batch_id": int(_batch(staged, PASSING, "staged")["batch_id"]),
+                                            "run_id": "run-b", "state": "staged"}]
+    roll = pd.read_csv(tmp_path / "roll.csv", dtype=str)
+    assert set(roll["run_id"]) == {"run-a"}
+
+
+def test_naming_an_unknown_segment_or_a_decided_one_changes_nothing(staged: Path) -> None:
+    approve(staged, PASSING)
+    insert_run(staged, "run-b", 2, order=1)
+    before = query_frame(staged, "SELECT * FROM batches ORDER BY batch_id")
+    with pytest.raises(UserError, match="No segment named 'NOPE'"):
+        stage_values(staged, segments=["NOPE", FAILING])
+    with pytest.raises(UserError, match=rf"{PASSING} is approved .*the approval stays in force"):
+        stage_values(staged, segments=[FAILING, PASSING])
+    pd.testing.assert_frame_equal(before, query_frame(staged, "SELECT * FROM batches ORDER BY batch_id"))
+    result = stage_values(staged, segments=[FAILING])
+    assert [s["segment"] for s in result["staged"]] == [FAILING] and result["kept"] == []

@@ -16,7 +16,7 @@ from typing import Any
 
 import duckdb
 import numpy as np
-from helpers import PINNED_RUN, ROOT, query_frame, settle, table_rows, type_text
+from helpers import PINNED_RUN, ROOT, insert_run, query_frame, settle, table_rows, type_text
 from textual.pilot import Pilot
 from textual.widgets import DataTable, Static
 
@@ -34,6 +34,7 @@ from tui.plot import braille
 from tui.screens.help import HelpScreen, keys_table
 from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
+from tui.screens.prompt import ConfirmScreen
 from tui.screens.segment import SegmentScreen
 
 SIZE = (100, 32)
@@ -249,6 +250,57 @@ async def _approval_gate_refuses_failing_statistics_without_a_note(demo_copy: Pa
     approved = [e for e in actions.event_log(demo_copy, failing)["events"] if e["kind"] == "batch_approved"]
     assert approved[-1]["detail"]["override"] is True
     assert approved[-1]["detail"]["note"] == "thin segment accepted"
+
+
+def test_staging_asks_first_and_keeps_decisions_unless_told(demo_copy: Path) -> None:
+    asyncio.run(_staging_asks_first_and_keeps_decisions_unless_told(demo_copy))
+
+
+def _confirm_text(app: RevalApp) -> str:
+    assert isinstance(app.screen, ConfirmScreen)
+    return "\n".join(app.screen.lines)
+
+
+async def _staging_asks_first_and_keeps_decisions_unless_told(demo_copy: Path) -> None:
+    # Finding: `v` re-staged every segment and an approval and a hold disappeared without a word.
+    failing, passing = failing_and_passing(demo_copy)
+    actions.approve(demo_copy, passing)
+    actions.hold(demo_copy, failing, "recheck lot sizes")
+    approved, held = states(demo_copy)[passing]["certified"], states(demo_copy)[failing]["open"]
+    insert_run(demo_copy, "run-b", 3, order=1)
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("v")
+        await settle(pilot)
+        text = _confirm_text(app)
+        assert f"Kept: {passing} approved (batch {approved['batch_id']}" in text
+        assert f"Kept: {failing} held (batch {held['batch_id']}" in text and "Sets aside" not in text
+        await pilot.press("enter")
+        await settle(pilot)
+        after = states(demo_copy)
+        assert after[passing]["certified"]["batch_id"] == approved["batch_id"] and after[passing]["open"] is None
+        assert after[failing]["open"]["batch_id"] == held["batch_id"]
+        assert all(e["open"]["run_id"] == "run-b" for s, e in after.items() if s not in (passing, failing))
+        await pilot.press("v")                      # everything else is staged: only the kept decisions remain
+        await settle(pilot)
+        await pilot.press("r")                      # re-stage them too? the confirmation lists what it sets aside
+        await settle(pilot)
+        text = _confirm_text(app)
+        assert f"Sets aside: {failing} held (batch {held['batch_id']}, run {PINNED_RUN}, 'recheck lot sizes')" in text
+        assert f"Sets aside: {passing} approved" in text and "stays in force" in text
+        await pilot.press("escape")                 # cancelled: nothing changed
+        await settle(pilot)
+        assert states(demo_copy) == after
+        await go_to(pilot, failing)                 # the held segment alone, after the new run
+        await pilot.press("V")
+        await settle(pilot)
+        assert f"Sets aside: {failing} held" in _confirm_text(app) and passing not in _confirm_text(app)
+        await pilot.press("enter")
+        await settle(pilot)
+    final = states(demo_copy)
+    assert final[failing]["open"]["run_id"] == "run-b" and final[failing]["open"]["state"] == "staged"
+    assert final[passing]["certified"]["batch_id"] == approved["batch_id"] and final[passing]["open"] is None
 
 
 def test_revoke_then_partial_export_names_its_manifest(demo_copy: Path) -> None:

@@ -120,9 +120,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--run", default=None, help="run id (default: the latest)")
     p.set_defaults(func=lambda a: render.emit(a, actions.compare(_folder(a), a.run), render.compare))
 
-    p = sub.add_parser("value", parents=[common], help="value every parcel from a run and stage a batch per segment")
+    p = sub.add_parser("value", parents=[common], help="value parcels from a run and stage a batch per segment")
+    p.add_argument("segments", nargs="*", metavar="SEGMENT",
+                   help="segments to stage (default: every segment without a held or approved batch)")
     p.add_argument("--run", help="run id (default: the newest run)")
-    p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run), render.staged))
+    p.add_argument("--replace", action="store_true", help="also re-stage segments with a held batch (replaced) or "
+                   "an approved one (it stays certified until the new batch is decided)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run, a.segments, a.replace),
+                                              render.staged))
 
     p = sub.add_parser("review", parents=[common], help="value changes, large changes and the sales-chasing check")
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")

@@ -143,6 +143,9 @@ def compare(result: dict[str, Any], console: Console) -> None:
 def staged(r: dict[str, Any], console: Console) -> None:
     console.print(f"Run {r['run_id']}: staged {len(r['staged'])} batch(es); "
                   f"{len(r['unchanged'])} segment(s) already hold a batch of this run.")
+    for d in r["kept"]:
+        console.print(f"  kept: {d['segment']} is {d['state']} (batch {d['batch_id']}, run {d['run_id']}); "
+                      f"`reval value {d['segment']} --replace` stages it ({d['on_restage']}).")
     if r["land_schedule"] is None:
         console.print("No land schedule configured: land and improvement are not allocated.")
     table("Staged batches", ["segment", "batch", "parcels", "replaced"],
@@ -188,8 +191,12 @@ def exported(r: dict[str, Any], console: Console) -> None:
                   f"manifest {r['manifest']}.")
     if r["not_approved"]:
         console.print(f"Partial roll: not approved and left out: {', '.join(r['not_approved'])}.")
-    if r["pending_newer_batches"]:
-        console.print(f"Newer batches await review in: {', '.join(r['pending_newer_batches'])}.")
+    table("Where each segment's values come from", ["segment", "run", "batch", "parcels"],
+          [[t["segment"], t["run_id"], f"{t['batch_id']} ({t['state']})", f"{t['rows']:,}"] for t in r["segments"]],
+          console)
+    for p in r["pending_batches"]:
+        console.print(f"{p['segment']}: a newer batch {p['batch_id']} of run {p['run_id']} is {p['state']} and was "
+                      "not exported (the certified values were).")
 
 
 def log(r: dict[str, Any], console: Console) -> None:

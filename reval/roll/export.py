@@ -22,7 +22,7 @@ from reval.clock import utc_now
 from reval.data.importer import ERROR_REPORT
 from reval.roll.land import schedule_path
 from reval.data.store import Store
-from reval.results import ExportResult, Manifest
+from reval.results import ExportResult, Manifest, PendingBatch
 
 
 PARTIAL_SUFFIX = ".partial"
@@ -61,8 +61,8 @@ def _sha256(path: Path) -> str:
     return digest.hexdigest()
 
 
-def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str], list[str]]:
-    """The certified batches to export, the segments without one, and segments with an open newer batch."""
+def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str], list[PendingBatch]]:
+    """The certified batches to export, the segments without one, and the open newer batches left out."""
     states = segment_states(store)
     missing = [s["segment"] for s in states if s["certified"] is None]
     if missing and not partial:
@@ -72,7 +72,9 @@ def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str],
     certified = [s["certified"] for s in states if s["certified"] is not None]
     if not certified:
         raise UserError("Nothing to export: no segment is approved.")
-    pending = [s["segment"] for s in states if s["certified"] is not None and s["open"] is not None]
+    pending: list[PendingBatch] = [
+        {"segment": s["segment"], "batch_id": int(s["open"]["batch_id"]), "run_id": str(s["open"]["run_id"]),
+         "state": s["open"]["state"]} for s in states if s["certified"] is not None and s["open"] is not None]
     return certified, missing, pending
 
 
@@ -118,7 +120,8 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
     manifest: Manifest = {
         "file": path.name, "rows": sum(t["rows"] for t in totals), "sha256": _sha256(tmp),
         "segments": totals, "run_ids": sorted({t["run_id"] for t in totals}),
-        "partial": bool(missing), "not_approved": missing, "pending_newer_batches": pending,
+        "partial": bool(missing), "not_approved": missing,
+        "pending_newer_batches": [p["segment"] for p in pending], "pending_batches": pending,
         "config_sha256": config.sha256, "who": current_user(),
         "when": utc_now().isoformat(timespec="seconds") + "Z",
     }

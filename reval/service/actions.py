@@ -21,7 +21,7 @@ if TYPE_CHECKING:  # the results' types only; their modules load when the action
     from reval.plain import Record
     from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
                                      ExportResult, FitSummary, ImportSummary, ReviewReport, SalesCounts,
-                                     StageResult, StudyResult)
+                                     StagePlan, StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -118,12 +118,24 @@ def compare(folder: Path, run_id: str | None = None) -> CompareResult:
 
 # ---- the value roll --------------------------------------------------------------------------------------------
 
-def stage_values(folder: Path, run_id: str | None = None) -> StageResult:
-    """Value every parcel from a run (default: the newest) and stage one batch per segment."""
+def stage_values(folder: Path, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StageResult:
+    """Value the parcels of the named segments (default: every segment without a held or approved batch)
+    from a run (default: the newest) and stage one batch per segment; `replace` also re-stages segments with
+    a standing decision."""
     from reval.roll import valuation
 
     with open_project(folder, write=True) as (config, store):
-        return valuation.stage_values(store, config, run_id)
+        return valuation.stage_values(store, config, run_id, segments or None, replace)
+
+
+def staging_plan(folder: Path, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StagePlan:
+    """What `stage_values` with the same arguments would stage, keep and set aside (nothing is written)."""
+    from reval.roll import valuation
+
+    with open_project(folder) as (config, store):
+        return valuation.plan_staging(store, config, run_id, segments or None, replace)
 
 
 def review(folder: Path, segment: str | None = None, limit: int = 20) -> ReviewReport:

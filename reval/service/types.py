@@ -7,7 +7,7 @@ from typing import Any, TypedDict
 
 from reval.plain import Record
 from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SalesCounts,
-                           SegmentReview, StageResult)
+                           SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
@@ -15,7 +15,8 @@ from reval.stats.stored import StudyGroup, StudyResult
 
 __all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
            "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SalesCounts", "SalesPage", "SegmentDetail", "StageResult", "StatCell", "StudyGroup",
+           "ReviewReport", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
+           "StandingDecision", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
 
 

@@ -249,5 +249,10 @@ class OverviewScreen(DataScreen):
         stats = row["stats"]
         self.reval.decide(kind, segment, gate_detail(stats, model) if kind == "approve" else "")
 
+    def action_restage(self) -> None:
+        segment = self.current_segment()
+        if segment is not None:
+            self.reval.restage([segment], replace=True)
+
     def action_refresh(self) -> None:
         self.reload()
