@@ -93,7 +93,8 @@ class StageResult(TypedDict):
 
 
 class SalesChasing(TypedDict):
-    """The sales-chasing check of one segment: sold vs unsold value changes and the verdict."""
+    """The sales-chasing check of one segment (reval/roll/review.py): sold vs unsold value changes in level
+    and distribution, the roll's values on the sales against out-of-fold values, the reasons to flag."""
 
     n_sold: int
     n_unsold: int
@@ -101,7 +102,20 @@ class SalesChasing(TypedDict):
     median_change_unsold: float | None
     median_gap: float | None
     u_statistic: float | None
-    p_value: float | None
+    p_value: float | None              # Mann-Whitney U, two-sided
+    ks_statistic: float | None         # Kolmogorov-Smirnov D
+    ks_p_value: float | None
+    iqr_change_sold: float | None
+    iqr_change_unsold: float | None
+    n_sales: int                       # qualified sales of the segment's parcels
+    roll_cod: float | None             # COD of roll value / time-adjusted price
+    oof_cod: float | None              # COD of out-of-fold value / time-adjusted price, same sales
+    cod_share: float | None            # roll_cod / oof_cod
+    cod_min: float                     # the low-COD limit applied
+    n_at_price: int | None             # roll values within the band of their own sale price
+    expected_at_price: float | None    # how many out-of-fold values put there
+    at_price_p_value: float | None     # one-sided binomial
+    reasons: list[str]
     rule: str
     status: Literal["pass", "flagged", "too_few_sales"]
     flagged: bool

@@ -47,7 +47,7 @@ def test_starter_section_is_valid_and_holds_the_defaults():
     assert all("IAAO" in doc or "common practice" in doc for doc in docs), docs
     section = starter_config("Test").split("[standards]")[1].split("[model]")[0]
     body = [ln for ln in section.splitlines() if "=" in ln and not ln.startswith("#")]
-    assert len(body) == 12 and all("# IAAO" in ln or "# common practice" in ln for ln in body), body
+    assert len(body) == 13 and all("# IAAO" in ln or "# common practice" in ln for ln in body), body
     assert "may differ" in starter_config("Test").split("[standards]")[0].rsplit("\n\n", 1)[1]
 
 

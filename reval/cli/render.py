@@ -162,20 +162,27 @@ def review(r: dict[str, Any], console: Console) -> None:
         q = s["change_ratio_quantiles"] or {}
         rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}", percent(s["total_change"]),
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
-                     f"{s['n_beyond_threshold']:,}", s["sales_chasing"]["status"].replace("_", " ")])
+                     f"{s['n_beyond_threshold']:,}", _cods(s["sales_chasing"]),
+                     s["sales_chasing"]["status"].replace("_", " ")])
     table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%",
-          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "sales chasing"], rows, console)
+          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "COD roll / out of fold",
+           "sales chasing"], rows, console)
     for s in r["segments"]:
         chase = s["sales_chasing"]
         if chase["flagged"]:
-            console.print(f"[bold]{s['segment']}: possible sales chasing[/bold] — median change sold "
-                          f"{percent(chase['median_change_sold'])} vs unsold {percent(chase['median_change_unsold'])}, "
-                          f"Mann-Whitney U p = {chase['p_value']:.2g} ({chase['rule']}).")
+            console.print(f"[bold]{s['segment']}: possible sales chasing[/bold]:", markup=True)
+            for reason in chase["reasons"]:
+                console.print(f"  - {reason}", markup=False)
         if s["beyond_threshold"] and len(r["segments"]) == 1:
             table(f"{s['segment']}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
                   ["parcel", "class", "prior", "new", "change"],
                   [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
                     percent(p["change"])] for p in s["beyond_threshold"]], console)
+
+
+def _cods(chase: dict[str, Any]) -> str:
+    roll, oof = chase["roll_cod"], chase["oof_cod"]
+    return "-" if roll is None else f"{roll:.1f}" + ("" if oof is None else f" / {oof:.1f}")
 
 
 def decision(r: dict[str, Any], console: Console) -> None:

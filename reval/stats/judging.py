@@ -12,10 +12,13 @@ from typing import Any
 
 from reval.data.config import Config
 
+NOT_JUDGED = ("cod_min",)   # standards that flag (the sales-chasing check) but never change a verdict
+
 
 def judging_basis(config: Config) -> dict[str, Any]:
     """The standards and study settings a verdict is judged under, as plain JSON values."""
-    standards = {f.name: getattr(config.standards, f.name) for f in fields(config.standards)}
+    standards = {f.name: getattr(config.standards, f.name) for f in fields(config.standards)
+                 if f.name not in NOT_JUDGED}
     standards = {k: dict(sorted(v.items())) if isinstance(v, Mapping) else v for k, v in standards.items()}
     study = config.study
     return {"standards": standards, "trim_iqr_k": study.trim_iqr_k, "confidence": study.confidence,

@@ -31,8 +31,7 @@ _DEFAULT_COD_MAX = {cls: limit for cls, (limit, _) in _COD_MAX_SOURCES.items()}
 def _cod_max_starter() -> list[str]:
     """The [standards.cod_max] subtable of the starter: each default limit with its source."""
     return ([comment_line("[standards.cod_max]", "highest acceptable COD by property class")]
-            + [comment_line(f"{cls} = {toml_value(limit)}", source) for cls, (limit, source) in _COD_MAX_SOURCES.items()]
-            + ["# IAAO: a COD below 5.0 can point to sales chasing or an unrepresentative sample; worth a look."])
+            + [comment_line(f"{cls} = {toml_value(limit)}", source) for cls, (limit, source) in _COD_MAX_SOURCES.items()])
 
 
 @dataclass(frozen=True)
@@ -56,10 +55,15 @@ class Standards(Declared):
     cod_max: Mapping[str, float] = setting(
         _DEFAULT_COD_MAX, "highest acceptable COD by property class (IAAO); classes given are added to these",
         lo=0, lo_open=True, extends_default=True, starter=_cod_max_starter)
+    # A COD of the roll's values on the sales below this is a sign of sales chasing (IAAO Standard on Ratio
+    # Studies 2013: CODs below about 5.0 can point to sales chasing or an unrepresentative sample; from memory).
+    cod_min: float = setting(
+        5.0, "IAAO: a COD below this can point to sales chasing; `reval review` flags roll values below it",
+        lo=0, active=True)
 
     def __hash__(self) -> int:
         return hash((self.median_ratio, tuple(sorted(self.cod_max.items())), self.cod_max_default,
-                     self.prd, self.prb, self.min_sales))
+                     self.prd, self.prb, self.min_sales, self.cod_min))
 
     def cod_limit(self, property_class: str | None) -> float:
         """Maximum COD for a property class; cod_max_default when the class is None or not listed."""

@@ -92,9 +92,19 @@ def chasing_line(review: SegmentReview | None) -> str:
     c = review["sales_chasing"]
     verdicts = {"pass": "✓ no sign of sales chasing", "flagged": "✗ FLAGGED: possible sales chasing",
                 "too_few_sales": "~ too few sales to judge"}
-    p = "" if c["p_value"] is None else f", Mann-Whitney U p = {c['p_value']:.2g}"
+    figures = []
+    if c["p_value"] is not None and c["ks_p_value"] is not None:
+        figures.append(f"changes sold vs unsold: Mann-Whitney p = {c['p_value']:.2g}, Kolmogorov-Smirnov p = "
+                       f"{c['ks_p_value']:.2g}")
+    if c["roll_cod"] is not None:
+        figures.append(f"COD of the roll on the sales {c['roll_cod']:.1f}"
+                       + ("" if c["oof_cod"] is None else f" vs {c['oof_cod']:.1f} out of fold"))
+    if c["n_at_price"] is not None and c["expected_at_price"] is not None:
+        figures.append(f"{c['n_at_price']} valued at their sale price ({c['expected_at_price']:.1f} expected)")
+    why = "".join(f" ✗ {reason}." for reason in c["reasons"])
+    shown = f" ({'; '.join(figures)})" if figures else ""
     return (f"Sales-chasing check (batch {review['batch_id']}, {review['state']}): "
-            f"{verdicts.get(c['status'], c['status'])}{p} ({c['rule']}); {review['n_beyond_threshold']:,} "
+            f"{verdicts.get(c['status'], c['status'])}{shown}.{why} {review['n_beyond_threshold']:,} "
             "parcels change beyond the review threshold.")
 
 
