@@ -9,12 +9,14 @@ CERTIFIED_STATES: tuple[BatchState, ...] = ("approved", "exported")  # in force 
 
 ModelKind = Literal["own", "pooled", "parent_only"]                  # how a segment's model was made
 ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold"]
-VerdictStatus = Literal["pass", "fail", "too_few_sales"]
-Grouping = Literal["segment", "market_area", "class", "all"]
+VerdictStatus = Literal["pass", "fail", "inconclusive", "too_few_sales", "no_sales"]
+VerdictRule = Literal["point", "interval"]                          # judge the point estimate, or its interval
+Grouping = Literal["segment", "market_area", "class", "segment_class", "all"]
 FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
 InteractionRule = Literal["lasso", "significance", "none"]
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
+VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)
 FEATURE_KINDS: tuple[FeatureKind, ...] = get_args(FeatureKind)
 INTERACTION_RULES: tuple[InteractionRule, ...] = get_args(InteractionRule)
 VALUES_SOURCES: tuple[ValuesSource, ...] = get_args(ValuesSource)

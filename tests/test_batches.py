@@ -264,3 +264,25 @@ def test_naming_an_unknown_segment_or_a_decided_one_changes_nothing(staged: Path
     pd.testing.assert_frame_equal(before, query_frame(staged, "SELECT * FROM batches ORDER BY batch_id"))
     result = stage_values(staged, segments=[FAILING])
     assert [s["segment"] for s in result["staged"]] == [FAILING] and result["kept"] == []
+
+
+def test_a_segment_of_mixed_classes_is_judged_per_class(staged: Path) -> None:
+    # Finding: a mixed-class segment was judged by the COD limit of its most common class. FENL is mostly
+    # single-family with some townhouses; a townhouse COD limit of 3 fails its townhouses alone.
+    classes = query_frame(staged, """SELECT p.property_class, count(*) AS n FROM adjusted_sales a
+                                     JOIN parcels p USING (parcel_id) WHERE p.segment = ? GROUP BY 1""", [PASSING])
+    counts = dict(zip(classes["property_class"], classes["n"]))
+    assert counts["single_family"] > counts["townhouse"] >= 10      # premise: enough townhouse sales to judge
+    set_section(staged, "standards", "[standards.cod_max]\ntownhouse = 3.0\n")
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*{PASSING} / townhouse: cod .*fail; standard <= 3"):
+        approve(staged, PASSING)
+    result = approve(staged, PASSING, "townhouse dispersion reviewed")
+    townhouse = next(g for g in result["statistics"]["classes"] if g["group"] == f"{PASSING} / townhouse")
+    assert townhouse["property_class"] == "townhouse" and townhouse["verdicts"]["cod"]["limit"] == "<= 3"
+    assert result["statistics"]["verdicts"]["cod"]["status"] == "pass"    # the segment as a whole: single-family's 15
+
+
+def test_under_the_interval_rule_an_unsure_segment_needs_a_note(staged: Path) -> None:
+    set_section(staged, "standards", 'verdict_rule = "interval"\nprb = [-0.01, 0.01]\n')
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*\(inconclusive; standard -0.01 to 0.01\)"):
+        approve(staged, PASSING)

@@ -123,3 +123,33 @@ def test_a_handful_of_sales_still_gets_an_index_with_an_honest_band(small_projec
     assert adjusted == 3 and rows
     assert all(np.isfinite(i) for i, _, _ in rows)
     assert all((lo is None and hi is None) or (lo <= i <= hi) for i, lo, hi in rows)
+
+
+def test_every_segment_is_a_group_and_those_without_sales_say_so(demo_writable: Path) -> None:
+    # Finding: segments with no qualified sale were missing from the study. TORV (Torvel Hollow) has none by
+    # construction (data_samples/demo_town.py).
+    con = _con(demo_writable)
+    segments = [r[0] for r in con.execute("SELECT segment FROM segments ORDER BY 1").fetchall()]
+    pairs = con.execute("SELECT DISTINCT segment, property_class FROM parcels ORDER BY ALL").fetchall()
+    con.close()
+    by_segment = study(demo_writable, "prior", "segment")
+    assert [g["group"] for g in by_segment["groups"]] == segments
+    torv = next(g for g in by_segment["groups"] if g["group"] == "TORV")
+    assert torv["n"] == 0 and {v["status"] for v in torv["verdicts"].values()} == {"no_sales"}
+    by_class = study(demo_writable, "prior", "segment_class")
+    assert [g["group"] for g in by_class["groups"]] == [f"{s} / {c}" for s, c in pairs]
+    assert all(g["property_class"] == g["group"].split(" / ")[1] for g in by_class["groups"])  # each class's own limit
+    assert {v["status"] for v in next(g for g in by_class["groups"] if g["group"].startswith("TORV"))["verdicts"].values()} \
+        == {"no_sales"}
+
+
+def test_value_proxy_deciles_are_stored_beside_price_deciles(demo_project: Path) -> None:
+    # Finding: out-of-fold medians ran 1.033 -> 0.963 by price decile but 1.013 -> 0.984 by the value proxy:
+    # sorting by price alone exaggerates regressivity (prices high by chance sort to the top).
+    config = load_config(demo_project)
+    with open_store(config.database, read_only=True) as store:
+        run = store.rows("roll_latest_run")[0][0]
+        whole = load_study(store, "model_out_of_fold", "all", run)["groups"][0]
+    by_price, by_proxy = whole["decile_median_ratios"], whole["proxy_decile_median_ratios"]
+    assert len(by_proxy) == 10 and None not in by_proxy
+    assert by_price[0] - by_price[9] > 1.5 * abs(by_proxy[0] - by_proxy[9])

@@ -61,7 +61,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("overview.sort_reverse", "r", "sort_reverse", "overview", "Reverse", "Reverse the sort order",
               show=False),
     KeyAction("overview.failing", "F", "toggle_failing", "overview", "Failing",
-              "Show only segments failing a standard (again: all)"),
+              "Show only segments that cannot be approved without a note: a standard failed or inconclusive, "
+              "too few or no sales (again: all)"),
     KeyAction("overview.area", "m", "cycle_area", "overview", "Area", "Filter by market area (cycles)",
               show=False),
     KeyAction("overview.state", "t", "cycle_state", "overview", "State", "Filter by batch state (cycles)",

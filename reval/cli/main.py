@@ -13,6 +13,7 @@ from reval.cli import render
 from reval.errors import UserError
 from reval.service import actions
 from reval.service.wording import CAUTION
+from reval.states import GROUPINGS
 
 
 def _folder(args: argparse.Namespace) -> Path:
@@ -105,7 +106,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
-    p.add_argument("--by", choices=["segment", "market_area", "class", "all"], default="segment")
+    p.add_argument("--by", choices=list(GROUPINGS), default="segment",
+                   help="groups: segment, market area, property class, segment x class, or all sales")
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")

@@ -15,7 +15,7 @@ from rich.table import Table
 from reval.service.wording import CAUTION, money, percent
 
 Render = Callable[[Any, Console], None]
-MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
+MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 
 
 def emit(args: argparse.Namespace, result: Any, render: Render) -> None:
@@ -107,7 +107,8 @@ def study(result: dict[str, Any], console: Console) -> None:
     rows = [{"group": g["group"], "n": g["n"], "trimmed": g["n_trimmed"],
              "median": cell(g, "median_ratio", ".3f"), "COD": cell(g, "cod", ".1f"),
              "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
-    records_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
+    records_table("Ratio statistics (ok = meets the standard, FAIL = does not, ? = inconclusive: the confidence "
+                  "interval straddles a limit, few = too few sales)", rows, console)
     console.print(CAUTION)
 
 

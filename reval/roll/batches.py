@@ -17,8 +17,7 @@ from reval.clock import utc_now
 from reval.data.config import Config
 from reval.errors import UserError
 from reval.data.events import record_event
-from reval.stats.judging import judging_basis, judging_sha256
-from reval.stats.standards import Verdict, passes
+from reval.stats.judging import failures, judging_basis, judging_sha256
 from reval.data.store import Store
 from reval.roll.batch_states import live_batches
 from reval.states import BatchState, ValuesSource
@@ -36,19 +35,9 @@ def _known(store: Store, segment: str) -> None:
 def segment_statistics(store: Store, config: Config, run_id: str, segment: str) -> dict[str, Any]:
     """The segment's out-of-fold ratio statistics of a run, computed now under the current standards and
     study settings, with the basis they were judged under (what an event stores)."""
-    group = segment_judgement(store, config, OUT_OF_FOLD, run_id, segment)
-    return {"run_id": run_id, **group, "judged_sha256": judging_sha256(config), "judged_under": judging_basis(config)}
-
-
-def failures(statistics: dict[str, Any]) -> list[str]:
-    """Why the statistics do not pass the standards (empty when they pass)."""
-    verdicts = {k: Verdict(v["status"], v["limit"], v["value"]) for k, v in statistics["verdicts"].items()}
-    if not verdicts or statistics["n"] == 0:
-        return ["no qualified sales in the segment"]
-    if passes(verdicts):
-        return []
-    return [f"{name} {'-' if v.value is None else f'{v.value:.3f}'} ({v.status.replace('_', ' ')}; standard {v.limit})"
-            for name, v in verdicts.items() if v.status != "pass"]
+    group, classes = segment_judgement(store, config, OUT_OF_FOLD, run_id, segment)
+    return {"run_id": run_id, **group, "classes": classes, "judged_sha256": judging_sha256(config),
+            "judged_under": judging_basis(config)}
 
 
 def _transition(store: Store, batch: dict[str, Any], to: str, kind: str, note: str | None,

@@ -84,7 +84,7 @@ class OverviewRow(TypedDict):
     value_change: float | None
     stats: dict[str, StatCell]   # by statistic: median_ratio, cod, prd, prb
     n: int
-    failing: bool
+    failing: bool                # cannot be approved without a note: a verdict not a pass, or no study
     state: BatchState | None
     batches: str                 # certified and open batch side by side, e.g. "approved, run 3 · run 4 pending"
 
@@ -123,7 +123,8 @@ class Equity(TypedDict):
     confidence: float | None
     mean_ratio: float | None
     weighted_mean_ratio: float | None
-    decile_median_ratios: list[float | None]
+    decile_median_ratios: list[float | None]         # by price decile
+    proxy_decile_median_ratios: list[float | None]   # by decile of the IAAO value proxy
     price: list[float]
     ratio: list[float]
 

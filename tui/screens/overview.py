@@ -23,7 +23,7 @@ COLUMNS = (("segment", "Segment"), ("model", "Model (borrowed)"), ("median_ratio
            ("prd", "PRD"), ("prb", "PRB"), ("value_change", "Change"), ("state", "State"),
            ("sales", "Sales"), ("parcels", "Parcels"), ("market_area", "Market area"))
 SORT_ORDER = tuple(key for key, _ in COLUMNS)
-VERDICT_COLOURS = {"pass": "success", "fail": "error", "too_few_sales": "warning"}
+VERDICT_COLOURS = {"pass": "success", "fail": "error", "inconclusive": "warning", "too_few_sales": "warning"}
 
 
 class OverviewScreen(DataScreen):
@@ -125,7 +125,7 @@ class OverviewScreen(DataScreen):
         assert self.data is not None
         parts = [f"{len(self.shown)} of {len(self.data['segments'])} segments",
                  f"sorted by {dict(COLUMNS)[self.sort_key]} {'descending' if self.descending else 'ascending'}"]
-        active = [name for name, on_ in (("failing only", self.failing_only),
+        active = [name for name, on_ in (("cannot be approved", self.failing_only),
                                          (f"market area {self.area}", self.area is not None),
                                          (f"state {self.state}", self.state is not None),
                                          (f"name contains '{self.search_text}'", bool(self.search_text))) if on_]

@@ -147,7 +147,8 @@ class SegmentScreen(DataScreen):
                             yield Static("Ratio by sale price", classes="plot-title")
                             yield Chart(id="ratio-scatter")
                         with Vertical():
-                            yield Static("Median ratio by price decile", classes="plot-title")
+                            yield Static("Median ratio by decile of price and of value proxy",
+                                         classes="plot-title")
                             yield Chart(id="decile-chart")
             with TabPane("4 Value change", id="change"):
                 yield Static("", id="change-summary", markup=False)
@@ -284,14 +285,19 @@ class SegmentScreen(DataScreen):
         else:
             scatter.show(None)
         deciles = [v for v in e["decile_median_ratios"] if v is not None]
+        proxy = [v for v in e["proxy_decile_median_ratios"] if v is not None]
         chart = self.query_one("#decile-chart", Chart)
         if deciles:
             xs = list(range(1, len(deciles) + 1))
+            # sorting by price alone puts sales priced high by chance at the top: the value proxy (IAAO, half
+            # value, half price) shows the regressivity of the values themselves
             chart.show(ChartData((Layer("hline", y=(1.0,), style="reference", label="1.0"),
-                                  Layer("line", xs, deciles, style="line", label="median"),
-                                  Layer("points", xs, deciles, style="alt")),
+                                  Layer("line", xs, deciles, style="line", label="by price"),
+                                  Layer("points", xs, deciles, style="alt"),
+                                  Layer("line", list(range(1, len(proxy) + 1)), proxy, style="parent",
+                                        label="by value proxy")),
                                  x_range=(0.5, len(deciles) + 0.5),
-                                 x_format=lambda v: "low prices" if v < 1 else "high prices" if v > 10 else "",
+                                 x_format=lambda v: "low" if v < 1 else "high" if v > 10 else "",
                                  y_format=lambda v: f"{v:.2f}"))
         else:
             chart.show(None)
