@@ -68,8 +68,9 @@ def prepare_sales(store: Store, config: Config, progress: Progress | None = None
 def _time_adjust(store: Store, config: Config, data: SalesData) -> None:
     frame = data.frame
     months = month_offsets(frame["sale_date"].to_numpy(dtype="datetime64[D]"), config.valuation_date)
-    trends = estimate_trends(months, np.log(frame["sale_price"].to_numpy(dtype=float)), data.X, data.features,
-                             frame["segment"].to_numpy(), frame["market_area"].to_numpy(),
+    fit = data.in_fit(config.sales.multi_parcel_in_fit)   # the trend is estimated on the sales the model fits
+    trends = estimate_trends(months[fit], np.log(data.fit_price("sale_price")[fit]), data.X[fit], data.features,
+                             frame["segment"].to_numpy()[fit], frame["market_area"].to_numpy()[fit],
                              window_months=config.sale_window_months, by_market_area=config.time.by_market_area,
                              min_sales_market_area=config.time.min_sales_market_area, n_basis=config.time.n_basis)
     trend_frame = pd.concat([pd.DataFrame({"area": t.area, "month_offset": t.months.astype(int),

@@ -55,10 +55,15 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
             references: bool = True) -> FitSummary:
     """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary."""
     settings: ModelSettings = config.model if jobs is None else dataclasses.replace(config.model, jobs=jobs)
-    sales = qualified_sales(store)
-    if len(sales.frame) == 0 or sales.frame["adjusted_price"].isna().any():
+    qualified = qualified_sales(store)
+    if len(qualified.frame) == 0 or qualified.frame["adjusted_price"].isna().any():
         raise UserError("No prepared sales: run `reval sales` before `reval fit`.")
-    y = np.log(sales.frame["adjusted_price"].to_numpy(float))
+    in_fit = qualified.in_fit(config.sales.multi_parcel_in_fit)
+    if not in_fit.any():
+        raise UserError("Every qualified sale covers several parcels; set [sales] multi_parcel_in_fit = true to fit "
+                        "them at their share of the package price.")
+    sales = qualified.rows(in_fit)
+    y = np.log(sales.fit_price("adjusted_price"))
     segment = sales.frame["segment"].to_numpy(str)
     market_area = sales.frame["market_area"].to_numpy(str)
     roll_segments = dict(store.rows("segment_market_areas"))
@@ -89,9 +94,8 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         "settings": json.dumps(dataclasses.asdict(settings), default=list), "library_versions": json.dumps(_versions()),
         "timings": json.dumps(timings)}])
     reports = _segment_reports(model, parcels, X_all, run_id)
-    sale_predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"],
-                                     "parcel_id": sales.frame["parcel_id"], "fold": folds.astype(np.int16),
-                                     "insample_log": model.predict(sales.X, segment, market_area), "oof_log": oof})
+    sale_predictions = pd.concat([_predictions(run_id, sales, model, folds, oof),
+                                  _predictions(run_id, qualified.rows(~in_fit), model)], ignore_index=True)
     with store.transaction() as con:
         store.insert("insert_runs", header)
         for table, frame in reports.items():
@@ -110,6 +114,17 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings,
             "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
+
+
+def _predictions(run_id: str, sales: SalesData, model: FittedHierarchy, folds: np.ndarray | None = None,
+                 oof: np.ndarray | None = None) -> pd.DataFrame:
+    """Each sale's in-sample and out-of-fold log value. Sales left out of the fit (multi-parcel packages) get
+    fold -1 and the full model's value twice: no model saw them."""
+    segment, market_area = sales.frame["segment"].to_numpy(str), sales.frame["market_area"].to_numpy(str)
+    insample = model.predict(sales.X, segment, market_area) if len(sales.frame) else np.empty(0)
+    return pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"], "parcel_id": sales.frame["parcel_id"],
+                         "fold": (np.full(len(insample), -1) if folds is None else folds).astype(np.int16),
+                         "insample_log": insample, "oof_log": insample if oof is None else oof})
 
 
 def _references(sales: SalesData, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,

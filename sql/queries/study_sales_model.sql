@@ -1,8 +1,13 @@
--- Qualified, time-adjusted sales with a run's in-sample and out-of-fold model values. $1 run id.
-SELECT a.sale_id, a.parcel_id, a.adjusted_price AS price,
-       exp(m.oof_log) AS oof_value, exp(m.insample_log) AS insample_value,
-       p.segment, p.market_area, p.property_class
+-- Qualified, time-adjusted sales with a run's in-sample and out-of-fold model values, one row per sale: a
+-- multi-parcel sale compares its parcels' summed values with its one price and counts in the groups of
+-- its most valuable parcel (named by it). $1 run id.
+SELECT a.sale_id, arg_max(a.parcel_id, exp(m.oof_log)) AS parcel_id,
+       arg_max(a.adjusted_price, exp(m.oof_log)) AS price,
+       sum(exp(m.oof_log)) AS oof_value, sum(exp(m.insample_log)) AS insample_value,
+       arg_max(p.segment, exp(m.oof_log)) AS segment, arg_max(p.market_area, exp(m.oof_log)) AS market_area,
+       arg_max(p.property_class, exp(m.oof_log)) AS property_class
 FROM adjusted_sales a
 JOIN sale_predictions m ON m.sale_id = a.sale_id AND m.parcel_id = a.parcel_id AND m.run_id = $1
 JOIN parcels p ON p.parcel_id = a.parcel_id
-ORDER BY a.sale_id, a.parcel_id;
+GROUP BY a.sale_id
+ORDER BY a.sale_id;
