@@ -32,6 +32,7 @@ class SalesCounts(TypedDict):
     excluded: int
     excluded_by_reason: dict[str, int]
     segments: list[SegmentSales]
+    trend_notes: list[str]     # no trend (sales span under two months), thin recent months, a wide band
 
 
 class FitSummary(TypedDict):

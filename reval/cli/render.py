@@ -90,6 +90,8 @@ def sales(result: dict[str, Any], console: Console) -> None:
         console.print(f"  {n:>6,}  {reason}")
     records_table("Sales per segment", [{"segment": s["segment"], "qualified": s["qualified"],
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
+    for note in result["trend_notes"]:
+        console.print(f"Market trend: {note}.", markup=False, highlight=False)
 
 
 # ---- studies and models ----------------------------------------------------------------------------------------

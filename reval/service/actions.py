@@ -67,10 +67,10 @@ def prepare_sales(folder: Path, progress: Progress | None = None) -> SalesCounts
 
 def sales_report(folder: Path) -> SalesCounts:
     """The stored qualification counts."""
-    from reval.data.sales import SalesSummary
+    from reval.data.sales import stored_summary
 
     with open_project(folder) as (_, store):
-        return SalesSummary(store.frame("sales_counts")).as_dict()
+        return stored_summary(store).as_dict()
 
 
 def segment_overview(folder: Path) -> list[Record]:
@@ -216,6 +216,7 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     steps = ["import" + ("" if imported["changed"] else " (unchanged)")]
     sales = prepare_sales(folder, progress)
     steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
+    steps += [f"market trend: {note}" for note in sales["trend_notes"]]
     for by in ("market_area", "class", "all", "segment"):
         prior = study(folder, "prior", by)
     steps.append(_failing("ratio study of prior values", prior))

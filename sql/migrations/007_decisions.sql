@@ -5,3 +5,5 @@ ALTER TABLE studies ADD COLUMN judged_sha256 VARCHAR;
 -- Median ratio by decile of the IAAO value proxy, beside those by price (regressivity read without the
 -- bias of sorting by price).
 ALTER TABLE study_groups ADD COLUMN proxy_decile_medians DOUBLE[];
+-- Sales are placed by day: a sale's month offset from the valuation date is fractional.
+ALTER TABLE adjusted_sales ALTER COLUMN month_offset SET DATA TYPE DOUBLE;
