@@ -31,6 +31,7 @@ from reval.model.hierarchy import fold_ids, out_of_fold
 from reval.data.importer import run_import
 from reval.model.comparison import accuracy_table, compare_models, reference_factories
 from reval.model.names import OURS, model_name
+from reval.model.run import fold_targets
 from reval.data.sales import prepare_sales
 from reval.data.store import open_store
 
@@ -82,22 +83,24 @@ def run(name: str) -> pd.DataFrame:
         with open_store(config.database) as store:
             prepare_sales(store, config)
             sales = qualified_sales(store)
-    keep = np.ones(len(sales.frame), dtype=bool)
+    keep = sales.in_fit(config.sales.multi_parcel_in_fit)
     if name == "ames":  # De Cock (2011): leave out houses over 4,000 sq ft of living area
-        keep = sales.X[:, [f.name for f in sales.features].index("living_area")] < 4000
-    X, frame = sales.X[keep], sales.frame[keep]
-    y = np.log(frame["adjusted_price"].to_numpy(float))
+        keep &= sales.X[:, [f.name for f in sales.features].index("living_area")] < 4000
+    sales = sales.rows(keep)
+    X, frame = sales.X, sales.frame
+    y = np.log(sales.fit_price("adjusted_price"))
     segment, market_area = frame["segment"].to_numpy(str), frame["market_area"].to_numpy(str)
     settings = config.model
     folds = fold_ids(len(y), segment, settings.seed, settings.folds)
     features = with_shapes(sales.features, config.features)  # the config's shape rules, as `reval fit` uses them
+    targets = fold_targets(config, sales, folds)   # each fold's own market trend, as `reval fit` does
     with threadpool_limits(limits=1):
         start = time.perf_counter()
-        ours = out_of_fold(X, y, segment, market_area, features, settings)
+        ours = out_of_fold(X, y, segment, market_area, features, settings, fold_targets=targets)
         ours_seconds = time.perf_counter() - start
         factories = dict(reference_factories(sales.features, seed=settings.seed))
         factories["lightgbm"] = lambda: LightGBMModel(sales.features, settings.seed)
-        predictions, seconds = compare_models(factories, X, y, segment, folds)
+        predictions, seconds = compare_models(factories, X, y, segment, folds, targets)
     predictions = {OURS: ours, **predictions}
     seconds = {OURS: ours_seconds, **seconds}
     table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)

@@ -32,6 +32,7 @@ class SalesCounts(TypedDict):
     excluded: int
     excluded_by_reason: dict[str, int]
     segments: list[SegmentSales]
+    trend_notes: list[str]     # no trend (sales span under two months), thin recent months, a wide band
 
 
 class SaleDecision(TypedDict):
@@ -71,18 +72,43 @@ class LandScheduleUsed(TypedDict):
     sha256: str
 
 
+class StandingDecision(TypedDict):
+    """A held or approved batch that a re-stage of its segment would set aside, and what would happen to it."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: str
+    note: str | None
+    on_restage: str
+
+
+class StagePlan(TypedDict):
+    """What `reval value` would do (the app's confirmation): segments to stage, already staged from this run,
+    decisions kept standing, and decisions a re-stage with replace sets aside."""
+
+    run_id: str
+    stage: list[str]
+    unchanged: list[str]
+    kept: list[StandingDecision]
+    set_aside: list[StandingDecision]
+
+
 class StageResult(TypedDict):
-    """What `reval value` staged: the run, the new batches (and what each replaced), the flag counts."""
+    """What `reval value` staged: the run, the new batches (and what each replaced), the segments left as
+    they were (already staged from this run, or kept for a standing decision), the flag counts."""
 
     run_id: str
     staged: list[StagedBatch]
     unchanged: list[str]
+    kept: list[StandingDecision]
     land_schedule: LandScheduleUsed | None
     flags: dict[str, int]
 
 
 class SalesChasing(TypedDict):
-    """The sales-chasing check of one segment: sold vs unsold value changes and the verdict."""
+    """The sales-chasing check of one segment (reval/roll/review.py): sold vs unsold value changes in level
+    and distribution, the roll's values on the sales against out-of-fold values, the reasons to flag."""
 
     n_sold: int
     n_unsold: int
@@ -90,7 +116,20 @@ class SalesChasing(TypedDict):
     median_change_unsold: float | None
     median_gap: float | None
     u_statistic: float | None
-    p_value: float | None
+    p_value: float | None              # Mann-Whitney U, two-sided
+    ks_statistic: float | None         # Kolmogorov-Smirnov D
+    ks_p_value: float | None
+    iqr_change_sold: float | None
+    iqr_change_unsold: float | None
+    n_sales: int                       # qualified sales of the segment's parcels
+    roll_cod: float | None             # COD of roll value / time-adjusted price
+    oof_cod: float | None              # COD of out-of-fold value / time-adjusted price, same sales
+    cod_share: float | None            # roll_cod / oof_cod
+    cod_min: float                     # the low-COD limit applied
+    n_at_price: int | None             # roll values within the band of their own sale price
+    expected_at_price: float | None    # how many out-of-fold values put there
+    at_price_p_value: float | None     # one-sided binomial
+    reasons: list[str]
     rule: str
     status: Literal["pass", "flagged", "too_few_sales"]
     flagged: bool
@@ -136,8 +175,18 @@ class Decision(TypedDict, total=False):
     superseded: list[int]
 
 
+class PendingBatch(TypedDict):
+    """A newer open batch of a certified segment, left out of an export: its values are not the roll's."""
+
+    segment: str
+    batch_id: int
+    run_id: str
+    state: str
+
+
 class Manifest(TypedDict):
-    """What travels beside a roll file: its rows, hash, per-segment totals, runs and provenance."""
+    """What travels beside a roll file: its rows, hash, per-segment totals (each with the run and batch its
+    values come from), runs, newer batches left out, and provenance."""
 
     file: str
     rows: int
@@ -147,6 +196,7 @@ class Manifest(TypedDict):
     partial: bool
     not_approved: list[str]
     pending_newer_batches: list[str]
+    pending_batches: list[PendingBatch]
     config_sha256: str
     who: str
     when: str

@@ -9,8 +9,9 @@ CERTIFIED_STATES: tuple[BatchState, ...] = ("approved", "exported")  # in force 
 
 ModelKind = Literal["own", "pooled", "parent_only"]                  # how a segment's model was made
 ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold"]
-VerdictStatus = Literal["pass", "fail", "too_few_sales"]
-Grouping = Literal["segment", "market_area", "class", "all"]
+VerdictStatus = Literal["pass", "fail", "inconclusive", "too_few_sales", "no_sales"]
+VerdictRule = Literal["point", "interval"]                          # judge the point estimate, or its interval
+Grouping = Literal["segment", "market_area", "class", "segment_class", "all"]
 FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
 InteractionRule = Literal["lasso", "significance", "none"]
 Loss = Literal["huber", "squared"]                                     # the fit's loss on log price
@@ -18,6 +19,7 @@ FeatureShape = Literal["increasing", "decreasing", "free"]               # a fea
 SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
+VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)
 FEATURE_KINDS: tuple[FeatureKind, ...] = get_args(FeatureKind)
 INTERACTION_RULES: tuple[InteractionRule, ...] = get_args(InteractionRule)
 FEATURE_SHAPES: tuple[FeatureShape, ...] = get_args(FeatureShape)

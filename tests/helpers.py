@@ -8,7 +8,8 @@ Each parcel's estimate is its TRUE market value from the demo generator (data_sa
 true_log_value of its recorded features) times lognormal noise; a qualified sale's in-sample log value is
 its parcel's log estimate and its out-of-fold log value adds more noise, as a held-out model's would.
 Options bend the run for tests: `scale` multiplies a segment's estimates (a level failure), `chase` values
-a segment the sales-chasing way (sold parcels at their time-adjusted price, unsold left at prior value).
+a segment the sales-chasing way: a share `chase_share` of its sold parcels (drawn at random) is valued at
+its time-adjusted price, every other parcel keeps its honest estimate.
 """
 from __future__ import annotations
 
@@ -213,7 +214,8 @@ def _created(order: int) -> dt.datetime:
 
 
 def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, oof_sd: float = 0.04,
-               scale: dict[str, float] | None = None, chase: tuple[str, ...] = (), order: int = 0) -> str:
+               scale: dict[str, float] | None = None, chase: tuple[str, ...] = (), chase_share: float = 1.0,
+               order: int = 0) -> str:
     """Insert runs, parcel_estimates and sale_predictions rows for `run_id`; `order` spaces creation times."""
     rng = np.random.default_rng(seed)
     parcels = pd.read_csv(folder / "parcels.csv", dtype={"parcel_id": str})
@@ -225,17 +227,20 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
         log_value = true_log_value(frame) + rng.normal(0.0, noise_sd, len(frame))
         for segment, factor in (scale or {}).items():
             log_value[(frame["segment"] == segment).to_numpy()] += np.log(factor)
-        chased = frame["segment"].isin(chase).to_numpy()
+        honest = log_value.copy()   # what the model says: out-of-fold values are drawn around it
         price = sales.groupby("parcel_id")["adjusted_price"].mean()
         sold_price = frame["parcel_id"].map(price).to_numpy(float)
-        log_value[chased] = np.log(np.where(np.isnan(sold_price), frame["prior_value"], sold_price))[chased]
+        drawn = rng.random(len(frame)) < chase_share if chase else np.zeros(len(frame), dtype=bool)
+        chased = frame["segment"].isin(chase).to_numpy() & ~np.isnan(sold_price) & drawn
+        log_value[chased] = np.log(sold_price[chased])
         estimates = pd.DataFrame({"run_id": run_id, "parcel_id": frame["parcel_id"], "segment": frame["segment"],
                                   "log_value": log_value, "market_value": np.exp(log_value)})
         insample = sales["parcel_id"].map(dict(zip(frame["parcel_id"], log_value))).to_numpy(float)
+        model = sales["parcel_id"].map(dict(zip(frame["parcel_id"], honest))).to_numpy(float)
         predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales["sale_id"], "parcel_id": sales["parcel_id"],
                                     "fold": rng.integers(0, 5, len(sales)).astype(np.int16),
                                     "insample_log": insample,
-                                    "oof_log": insample + rng.normal(0.0, oof_sd, len(sales))})
+                                    "oof_log": model + rng.normal(0.0, oof_sd, len(sales))})
         con.begin()
         con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', ?, 5, '{}', ?, '{}')",
                     [run_id, _created(order), seed,
@@ -250,18 +255,24 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     return run_id
 
 
-def set_assessment(folder: Path, lines: str) -> None:
-    """Replace the config's [assessment] section (and its [[assessment.caps]]) with `lines`, so a test states
-    every assessment rule it relies on, whatever the shipped demo config holds."""
+def set_section(folder: Path, section: str, lines: str) -> None:
+    """Replace the config's [section] (and its sub-tables) with `lines`, so a test states every rule of that
+    section it relies on, whatever the shipped demo config holds."""
     path = folder / "reval.toml"
     kept, inside = [], False
     for line in path.read_text(encoding="utf-8").splitlines():
         header = line.strip().startswith("[")
         if header:
-            inside = line.strip() in ("[assessment]", "[[assessment.caps]]")
+            name = line.strip().strip("[]")
+            inside = name == section or name.startswith(section + ".")
         if not inside:
             kept.append(line)
-    path.write_text("\n".join(kept) + f"\n\n[assessment]\n{lines}", encoding="utf-8")
+    path.write_text("\n".join(kept) + f"\n\n[{section}]\n{lines}", encoding="utf-8")
+
+
+def set_assessment(folder: Path, lines: str) -> None:
+    """Replace the config's [assessment] section (and its [[assessment.caps]]) with `lines`."""
+    set_section(folder, "assessment", lines)
 
 
 def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0, missing_prior: float = 100_000.0) -> str:

@@ -14,9 +14,11 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reval.service.actions import approve, batch_states, event_log, export_roll, hold, revoke, stage_values
+from reval.service.actions import (approve, batch_states, event_log, export_roll, hold, revoke, stage_values,
+                                   study)
+from reval.service.views import overview
 from reval.errors import UserError
-from helpers import insert_run, query_frame, roll_project
+from helpers import insert_run, query_frame, roll_project, set_section
 
 FAILING, PASSING = "CORV", "FENL"
 
@@ -81,7 +83,14 @@ def test_hold_needs_a_reason_and_only_a_new_run_stages_it_again(staged: Path) ->
     assert stage_values(staged)["staged"] == []          # the same run and basis stage nothing
     assert _batch(staged, PASSING, "held")["batch_id"] == held["batch_id"]
     insert_run(staged, "run-b", 2, order=1)
-    stage_values(staged)
+    result = stage_values(staged)                         # a new run: the hold stands unless asked
+    assert PASSING not in {s["segment"] for s in result["staged"]}
+    assert [d["segment"] for d in result["kept"]] == [PASSING]
+    assert _batch(staged, PASSING, "held")["batch_id"] == held["batch_id"]
+    with pytest.raises(UserError, match=rf"Not staged: {PASSING} is held .*--replace"):
+        stage_values(staged, segments=[PASSING])
+    result = stage_values(staged, segments=[PASSING], replace=True)   # the held segment alone
+    assert [s["segment"] for s in result["staged"]] == [PASSING]
     assert _batch(staged, PASSING, "staged")["run_id"] == "run-b"
     assert query_frame(staged, "SELECT state FROM batches WHERE batch_id = ?", [int(held["batch_id"])])["state"][0] \
         == "replaced"
@@ -109,7 +118,9 @@ def test_a_refit_after_approval_leaves_approved_values_alone(staged: Path) -> No
     before = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     insert_run(staged, "run-b", 2, order=1)
     result = stage_values(staged)
-    assert result["run_id"] == "run-b" and len(result["staged"]) == 22
+    assert result["run_id"] == "run-b" and len(result["staged"]) == 21 and result["kept"][0]["segment"] == PASSING
+    result = stage_values(staged, segments=[PASSING], replace=True)
+    assert [s["segment"] for s in result["staged"]] == [PASSING]
     after = query_frame(staged, "SELECT * FROM roll_values WHERE batch_id = ? ORDER BY parcel_id", [int(approved["batch_id"])])
     pd.testing.assert_frame_equal(before, after)
     assert _batch(staged, PASSING, "approved")["changed_at"] == approved["changed_at"]
@@ -172,3 +183,106 @@ def test_the_command_line_reports_json_and_refuses_plainly(staged: Path, tmp_pat
     assert code == 1 and "not approved" in err and not (tmp_path / "roll.csv").exists()
     code, out, _ = run("export", str(tmp_path / "roll.csv"), "--partial", "--json")
     assert code == 0 and json.loads(out)["rows"] == states[PASSING]["certified"]["n_parcels"]
+
+
+def _prb(v: np.ndarray, p: np.ndarray) -> float:
+    """IAAO PRB: slope of (ratio - median) / median on log2 of the value proxy 0.5 value / median + 0.5 price."""
+    r = v / p
+    med = np.median(r)
+    return float(np.polyfit(np.log2(0.5 * v / med + 0.5 * p), (r - med) / med, 1)[0])
+
+
+def test_approval_is_judged_under_the_standards_in_force_not_a_stored_study(staged: Path) -> None:
+    # Finding: after tightening [standards] prb, approve passed on the study stored under the old limits and
+    # the event kept the old "pass". The gate now recomputes and the event stores what it judged.
+    prb = _prb(*_oof_ratios(staged, PASSING))
+    assert 0.004 < abs(prb) < 0.05                          # premise: passes +/-0.05, fails a tighter limit
+    limit = round(abs(prb) / 2, 4)
+    stored = study(staged, "model", "segment")             # stored under the default limits: a pass
+    assert next(g for g in stored["groups"] if g["group"] == PASSING)["verdicts"]["prb"]["status"] == "pass"
+    set_section(staged, "standards", f"prb = [{-limit}, {limit}]\n")
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*fail.*standard -{limit} to {limit}"):
+        approve(staged, PASSING)
+    assert _batch(staged, PASSING, "staged") is not None
+    approve(staged, PASSING, "PRB reviewed against the price deciles")
+    event = [e for e in event_log(staged, PASSING)["events"] if e["kind"] == "batch_approved"][-1]["detail"]
+    assert event["override"] is True and event["statistics"]["verdicts"]["prb"]["status"] == "fail"
+    assert event["statistics"]["prb"] == pytest.approx(prb, abs=1e-9)
+    assert event["statistics"]["judged_under"]["standards"]["prb"] == [-limit, limit]
+
+
+def test_a_change_of_standards_after_approval_shows_on_the_batch(staged: Path) -> None:
+    approve(staged, PASSING)
+    run = len(query_frame(staged, "SELECT run_id FROM runs"))   # run-a is the newest run: its number is the count
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["summary"] == f"approved, run {run}" and not shown[PASSING]["other_standards"]
+    set_section(staged, "standards", "prd = [0.99, 1.02]\n")
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["other_standards"]
+    assert shown[PASSING]["summary"] == f"approved under other standards, run {run}"
+    assert shown[FAILING]["summary"] == f"staged, run {run}"    # nothing approved there: nothing to mark
+    row = next(r for r in overview(staged)["segments"] if r["segment"] == PASSING)
+    assert row["batches"] == f"approved under other standards, run {run}"
+
+
+def test_a_restage_after_a_new_run_keeps_approvals_and_holds(staged: Path, tmp_path: Path) -> None:
+    # Finding: `reval value` re-staged all 22 segments, an approval and a hold disappeared without a word, the
+    # overview showed the approved segment as "staged" while the export wrote its older approved values.
+    approve(staged, PASSING)
+    hold(staged, "ASKR", "lot sizes to check")
+    approved, held = _batch(staged, PASSING, "approved"), _batch(staged, "ASKR", "held")
+    insert_run(staged, "run-b", 2, order=1)
+    runs = len(query_frame(staged, "SELECT run_id FROM runs"))   # run-b is the newest: its number is the count
+    result = stage_values(staged)
+    assert {d["segment"]: d["state"] for d in result["kept"]} == {PASSING: "approved", "ASKR": "held"}
+    assert len(result["staged"]) == 20 and {PASSING, "ASKR"}.isdisjoint(s["segment"] for s in result["staged"])
+    assert _batch(staged, PASSING, "approved")["batch_id"] == approved["batch_id"]
+    assert _batch(staged, "ASKR", "held")["batch_id"] == held["batch_id"]
+    # staged on purpose, the approval stays certified beside the pending batch, and the export says so
+    stage_values(staged, segments=[PASSING], replace=True)
+    shown = {s["segment"]: s for s in batch_states(staged)["segments"]}
+    assert shown[PASSING]["summary"] == f"approved, run {runs - 1} · run {runs} pending"
+    assert shown["ASKR"]["summary"] == f"held, run {runs - 1}"
+    row = next(r for r in overview(staged)["segments"] if r["segment"] == PASSING)
+    assert row["batches"] == shown[PASSING]["summary"]
+    manifest = export_roll(staged, tmp_path / "roll.csv", partial=True)
+    assert [(s["segment"], s["run_id"]) for s in manifest["segments"]] == [(PASSING, "run-a")]
+    assert manifest["pending_batches"] == [{"segment": PASSING, "batch_id": int(_batch(staged, PASSING, "staged")["batch_id"]),
+                                            "run_id": "run-b", "state": "staged"}]
+    roll = pd.read_csv(tmp_path / "roll.csv", dtype=str)
+    assert set(roll["run_id"]) == {"run-a"}
+
+
+def test_naming_an_unknown_segment_or_a_decided_one_changes_nothing(staged: Path) -> None:
+    approve(staged, PASSING)
+    insert_run(staged, "run-b", 2, order=1)
+    before = query_frame(staged, "SELECT * FROM batches ORDER BY batch_id")
+    with pytest.raises(UserError, match="No segment named 'NOPE'"):
+        stage_values(staged, segments=["NOPE", FAILING])
+    with pytest.raises(UserError, match=rf"{PASSING} is approved .*the approval stays in force"):
+        stage_values(staged, segments=[FAILING, PASSING])
+    pd.testing.assert_frame_equal(before, query_frame(staged, "SELECT * FROM batches ORDER BY batch_id"))
+    result = stage_values(staged, segments=[FAILING])
+    assert [s["segment"] for s in result["staged"]] == [FAILING] and result["kept"] == []
+
+
+def test_a_segment_of_mixed_classes_is_judged_per_class(staged: Path) -> None:
+    # Finding: a mixed-class segment was judged by the COD limit of its most common class. FENL is mostly
+    # single-family with some townhouses; a townhouse COD limit of 3 fails its townhouses alone.
+    classes = query_frame(staged, """SELECT p.property_class, count(*) AS n FROM adjusted_sales a
+                                     JOIN parcels p USING (parcel_id) WHERE p.segment = ? GROUP BY 1""", [PASSING])
+    counts = dict(zip(classes["property_class"], classes["n"]))
+    assert counts["single_family"] > counts["townhouse"] >= 10      # premise: enough townhouse sales to judge
+    set_section(staged, "standards", "[standards.cod_max]\ntownhouse = 3.0\n")
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*{PASSING} / townhouse: cod .*fail; standard <= 3"):
+        approve(staged, PASSING)
+    result = approve(staged, PASSING, "townhouse dispersion reviewed")
+    townhouse = next(g for g in result["statistics"]["classes"] if g["group"] == f"{PASSING} / townhouse")
+    assert townhouse["property_class"] == "townhouse" and townhouse["verdicts"]["cod"]["limit"] == "<= 3"
+    assert result["statistics"]["verdicts"]["cod"]["status"] == "pass"    # the segment as a whole: single-family's 15
+
+
+def test_under_the_interval_rule_an_unsure_segment_needs_a_note(staged: Path) -> None:
+    set_section(staged, "standards", 'verdict_rule = "interval"\nprb = [-0.01, 0.01]\n')
+    with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*\(inconclusive; standard -0.01 to 0.01\)"):
+        approve(staged, PASSING)

@@ -94,6 +94,8 @@ async def _app_notice(folder: Path, pid: int) -> None:
         await settle(pilot)
         await pilot.press("v")
         await settle(pilot)
+        await pilot.press("enter")                  # stage, as the confirmation offers
+        await settle(pilot)
         await pilot.pause()
         assert any(severity == "warning" and f"removed a stale lock left by process {pid}" in text
                    for severity, text in app.messages), app.messages

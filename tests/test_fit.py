@@ -138,3 +138,30 @@ def test_fit_before_sales_preparation_is_a_user_error(small_project: Path) -> No
     run_import(config)
     with open_store(config.database) as store, pytest.raises(UserError, match="reval sales"):
         fit_run(store, config)
+
+
+def test_each_fold_adjusts_prices_by_the_trend_of_its_training_sales_alone(demo_project: Path) -> None:
+    # Finding: the market trend was fitted on all sales before the folds, so a held-out sale helped set the
+    # adjustment its own out-of-fold ratio is judged by. Fold k's target now comes from the trend of the other
+    # folds' sales: tripling fold 0's prices leaves fold 0's targets unchanged on every other row and moves its
+    # own rows by exactly log 3 (their factor is unchanged), while every other fold's trend sees the change.
+    from reval.data.dataset import qualified_sales
+    from reval.data.sales import trend_factors
+    from reval.model.hierarchy import fold_ids
+    from reval.model.run import fold_targets
+
+    config = load_config(demo_project)
+    with open_store(config.database, read_only=True) as store:
+        sales = qualified_sales(store)
+    sales = sales.rows(sales.in_fit(False))
+    folds = fold_ids(len(sales.frame), sales.frame["segment"].to_numpy(str), config.model.seed, config.model.folds)
+    targets = fold_targets(config, sales, folds)
+    factor0, _ = trend_factors(config, sales, folds != 0)
+    np.testing.assert_allclose(targets[0], np.log(sales.frame["sale_price"].to_numpy(float) * factor0), rtol=1e-12)
+    stored = np.log(sales.frame["adjusted_price"].to_numpy(float))
+    assert np.abs(targets[0] - stored)[folds == 0].max() > 1e-4          # the all-sales trend differs
+    tripled = sales.frame.assign(sale_price=np.where(folds == 0, 3.0, 1.0) * sales.frame["sale_price"])
+    moved = fold_targets(config, type(sales)(tripled, sales.X, sales.features), folds)
+    np.testing.assert_allclose(moved[0][folds != 0], targets[0][folds != 0], rtol=0, atol=1e-12)
+    np.testing.assert_allclose(moved[0][folds == 0], targets[0][folds == 0] + np.log(3.0), rtol=0, atol=1e-12)
+    assert np.abs(moved[1] - targets[1])[folds != 0].max() > 1e-6

@@ -235,3 +235,20 @@ def test_ames_out_of_fold_ratio_study_meets_the_iaao_standard() -> None:
     ratio = np.exp(pred - y)
     assert cod(ratio) <= 15.0
     assert 0.90 <= np.median(ratio) <= 1.10
+
+
+def test_fold_targets_fit_each_fold_on_its_own_adjustment_and_return_ratios_against_it() -> None:
+    # Each fold may be fitted on its own time-adjusted prices (fold_targets). A constant shift of a fold's
+    # target is absorbed by the unpenalised intercept exactly (the residuals, hence every penalty GCV picks, do
+    # not change), so predictions against y come out unchanged: out = prediction + (y - target).
+    X, y, seg, ma = simulate({"s1a": 160, "s2a": 120, "s3b": 140}, seed=31)
+    settings = dataclasses.replace(FAST, interaction_rule="none")
+    plain = out_of_fold(X, y, seg, ma, FEATURES, settings)
+    shifted = out_of_fold(X, y, seg, ma, FEATURES, settings, fold_targets={k: y + 0.1 * (k + 1) for k in range(5)})
+    np.testing.assert_allclose(shifted, plain, rtol=0, atol=1e-7)
+    # a fold's target raised on its held-out rows alone trains nothing (held-out rows never train) and only
+    # lowers their ratios: the held-out sale is judged against its price as its fold adjusts it
+    folds = fold_ids(len(y), seg, settings.seed, settings.folds)
+    own = {k: np.where(folds == k, y + 5.0, y) for k in range(5)}
+    np.testing.assert_allclose(out_of_fold(X, y, seg, ma, FEATURES, settings, fold_targets=own) + 5.0, plain,
+                               rtol=0, atol=1e-7)

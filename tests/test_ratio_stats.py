@@ -15,7 +15,7 @@ import statsmodels.api as sm
 from scipy import stats
 
 from reval.stats.ratio_stats import (
-    bootstrap_cod_prd, cod, decile_medians, iqr_fences, median_ci, median_ci_ranks, prb, prd,
+    bootstrap_cod_prd, cod, decile_medians, iqr_fences, median_ci, median_ci_ranks, prb, prd, value_proxy,
     ratio_study, ratios, weighted_mean_ratio,
 )
 
@@ -318,3 +318,18 @@ def test_bad_inputs_raise_clear_errors(bad):
         ratios(np.array([1.0, 2.0]), np.array([1.0]))
     with pytest.raises(ValueError, match="confidence"):
         ratio_study(np.array([1.0]), np.array([1.0]), confidence=1.0)
+
+
+def test_proxy_decile_medians_hand_worked():
+    # Hand-worked (IAAO value proxy = 0.5 value / median ratio + 0.5 price, as in the PRB): ten sales with prices
+    # 100..1000 and ratio 1 except the first (1.5) and the last (0.3). The median ratio is 1, so the proxies are
+    # 125, 200, ..., 900 for the first nine and 0.5 * 300 + 0.5 * 1000 = 650 for the last: by proxy the low
+    # ratio sits in the 7th decile, not the 10th where sorting by price puts it.
+    prices = np.arange(1.0, 11.0) * 100
+    ratios = np.r_[1.5, np.ones(8), 0.3]
+    values = ratios * prices
+    s = ratio_study(values, prices, n_boot=10)
+    assert s.median_ratio == 1.0
+    np.testing.assert_allclose(s.decile_median_ratios, [1.5, 1, 1, 1, 1, 1, 1, 1, 1, 0.3], rtol=0, atol=TOL)
+    np.testing.assert_allclose(s.proxy_decile_median_ratios, [1.5, 1, 1, 1, 1, 1, 0.3, 1, 1, 1], rtol=0, atol=TOL)
+    np.testing.assert_allclose(value_proxy(values, prices, 1.0)[[0, 9]], [125.0, 650.0], rtol=0, atol=TOL)

@@ -41,14 +41,18 @@ def test_every_excluded_sale_keeps_its_reason(demo_project: Path) -> None:
 
 
 def test_adjusted_prices_use_the_stored_index(demo_project: Path) -> None:
+    # A sale placed by day between two stored months takes the index interpolated linearly between them.
     con = _con(demo_project)
-    rows = con.execute("""SELECT a.factor, a.adjusted_price, s.sale_price, t.log_index
-                          FROM adjusted_sales a JOIN sales s USING (sale_id, parcel_id)
-                          JOIN market_trend t ON t.area = a.trend_area AND t.month_offset = a.month_offset""").fetchall()
+    sales = con.execute("""SELECT a.factor, a.adjusted_price, s.sale_price, a.month_offset, a.trend_area
+                           FROM adjusted_sales a JOIN sales s USING (sale_id, parcel_id)""").df()
+    trend = con.execute("SELECT area, month_offset, log_index FROM market_trend ORDER BY area, month_offset").df()
     con.close()
-    factor, adjusted, price, log_index = map(np.array, zip(*rows))
-    np.testing.assert_allclose(factor, np.exp(-log_index), rtol=1e-12)
-    np.testing.assert_allclose(adjusted, price * factor, rtol=1e-12)
+    assert (sales["month_offset"] != np.round(sales["month_offset"])).mean() > 0.9   # by day, not by month
+    for area, rows in sales.groupby("trend_area"):
+        index = trend[trend["area"] == area]
+        expected = np.exp(-np.interp(rows["month_offset"], index["month_offset"], index["log_index"]))
+        np.testing.assert_allclose(rows["factor"], expected, rtol=1e-12)
+    np.testing.assert_allclose(sales["adjusted_price"], sales["sale_price"] * sales["factor"], rtol=1e-12)
 
 
 def test_study_json_has_the_promised_shape_and_matches_ratio_stats(demo_writable: Path) -> None:
@@ -123,3 +127,56 @@ def test_a_handful_of_sales_still_gets_an_index_with_an_honest_band(small_projec
     assert adjusted == 3 and rows
     assert all(np.isfinite(i) for i, _, _ in rows)
     assert all((lo is None and hi is None) or (lo <= i <= hi) for i, lo, hi in rows)
+
+
+def test_every_segment_is_a_group_and_those_without_sales_say_so(demo_writable: Path) -> None:
+    # Finding: segments with no qualified sale were missing from the study. TORV (Torvel Hollow) has none by
+    # construction (data_samples/demo_town.py).
+    con = _con(demo_writable)
+    segments = [r[0] for r in con.execute("SELECT segment FROM segments ORDER BY 1").fetchall()]
+    pairs = con.execute("SELECT DISTINCT segment, property_class FROM parcels ORDER BY ALL").fetchall()
+    con.close()
+    by_segment = study(demo_writable, "prior", "segment")
+    assert [g["group"] for g in by_segment["groups"]] == segments
+    torv = next(g for g in by_segment["groups"] if g["group"] == "TORV")
+    assert torv["n"] == 0 and {v["status"] for v in torv["verdicts"].values()} == {"no_sales"}
+    by_class = study(demo_writable, "prior", "segment_class")
+    assert [g["group"] for g in by_class["groups"]] == [f"{s} / {c}" for s, c in pairs]
+    assert all(g["property_class"] == g["group"].split(" / ")[1] for g in by_class["groups"])  # each class's own limit
+    assert {v["status"] for v in next(g for g in by_class["groups"] if g["group"].startswith("TORV"))["verdicts"].values()} \
+        == {"no_sales"}
+
+
+def test_value_proxy_deciles_are_stored_beside_price_deciles(demo_project: Path) -> None:
+    # Finding: out-of-fold medians ran 1.033 -> 0.963 by price decile but 1.013 -> 0.984 by the value proxy:
+    # sorting by price alone exaggerates regressivity (prices high by chance sort to the top).
+    config = load_config(demo_project)
+    with open_store(config.database, read_only=True) as store:
+        run = store.rows("roll_latest_run")[0][0]
+        whole = load_study(store, "model_out_of_fold", "all", run)["groups"][0]
+    by_price, by_proxy = whole["decile_median_ratios"], whole["proxy_decile_median_ratios"]
+    assert len(by_proxy) == 10 and None not in by_proxy
+    assert by_price[0] - by_price[9] > 1.5 * abs(by_proxy[0] - by_proxy[9])
+
+
+def test_the_sales_step_says_when_no_trend_is_estimated(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # Every sale within one month: no trend, every factor 1, the band unknown; `reval sales` says so, the
+    # event keeps it and `reval sales --report` repeats it.
+    from helpers import SMALL_CONFIG, SMALL_PARCELS, write_project
+    from reval.cli.main import main
+    from reval.data.importer import run_import
+
+    sales = ("sale_id,pid,date,price,code\nS1,00101,2024-09-01,180000,valid\nS2,00102,2024-09-15,260000,valid\n"
+             "S3,00104,2024-09-30,140000,valid\n")
+    folder = write_project(tmp_path / "p", SMALL_CONFIG, SMALL_PARCELS, sales)
+    run_import(load_config(folder))
+    assert main(["sales", "--project", str(folder)]) == 0
+    out = " ".join(capsys.readouterr().out.split())   # rich wraps lines at the terminal's width
+    assert "Market trend: jurisdiction: the sales span 1.0 months (under 2): no market trend is estimated" in out
+    con = _con(folder)
+    assert con.execute("SELECT DISTINCT factor FROM adjusted_sales").fetchall() == [(1.0,)]
+    assert con.execute("SELECT count(*) FROM market_trend WHERE lo IS NOT NULL OR hi IS NOT NULL").fetchone()[0] == 0
+    con.close()
+    assert main(["sales", "--report", "--json", "--project", str(folder)]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert len(report["trend_notes"]) == 1 and "factor 1" in report["trend_notes"][0]

@@ -101,15 +101,21 @@ def test_sales_outside_the_window_are_ignored() -> None:
     np.testing.assert_allclose(wild.log_index, base.log_index, atol=1e-12)
 
 
-def test_month_offsets_against_hand_worked_dates() -> None:
-    # Hand-worked calendar arithmetic: (year * 12 + month) of the sale minus that of the valuation date.
+def test_month_offsets_place_each_sale_by_its_day() -> None:
+    # Hand-worked calendar arithmetic: whole months between the months, plus the share of the month gone by on
+    # the sale's day ((day - 1) / days in its month) minus that of the valuation date. Finding: sales were
+    # placed by whole calendar month, so a sale on the 31st counted as the 1st.
     dates = np.array(
-        ["2025-12-31", "2026-01-01", "2026-01-31", "2023-01-01", "2022-12-31", "2026-02-01", "2024-02-29"],
+        ["2025-12-31", "2026-01-01", "2026-01-31", "2023-01-01", "2022-12-31", "2026-02-01", "2024-02-29",
+         "2025-12-16"],
         dtype="datetime64[D]",
     )
     got = month_offsets(dates, dt.date(2026, 1, 1))
-    np.testing.assert_array_equal(got, [-1, 0, 0, -36, -37, 1, -23])
-    assert np.issubdtype(got.dtype, np.integer)
+    np.testing.assert_allclose(got, [-1 + 30 / 31, 0, 30 / 31, -36, -37 + 30 / 31, 1, -23 + 28 / 29, -1 + 15 / 31],
+                               rtol=0, atol=1e-12)
+    # valuation date mid-month (16 January: 15/31 of the month gone): the 16th of December is one month before
+    mid = month_offsets(np.array(["2025-12-16", "2026-01-01"], dtype="datetime64[D]"), dt.date(2026, 1, 16))
+    np.testing.assert_allclose(mid, [-1 + 15 / 31 - 15 / 31, -15 / 31], rtol=0, atol=1e-12)
 
 
 def small_trend(area: str, slope: float) -> MarketTrend:
@@ -156,10 +162,9 @@ def test_market_area_trends_only_for_areas_with_enough_sales_in_the_window() -> 
 
 
 def test_demo_town_index_recovers_its_true_market_trend() -> None:
-    # Truth: the demo generator's true_log_index (prices carry it exactly, plus noise sd 0.10). The
-    # index estimates the average level in each month relative to the valuation month (January 2026),
-    # so the truth is true_log_index averaged over each month's days, minus that of the valuation month
-    # (0.0025 above its value on 2026-01-01). Tolerance 0.02 in log over months with sales for the
+    # Truth: the demo generator's true_log_index (prices carry it exactly, plus noise sd 0.10). Sales are
+    # placed by day, so the index at month offset m is the level on the first day of that month relative to
+    # the valuation date (2026-01-01, where true_log_index is 0). Tolerance 0.02 in log over months with sales for the
     # jurisdiction (its posterior sd is 0.018 at the window start); the market-area trends (530-1450
     # sales, posterior sd 0.02-0.05 at the window start) get 0.05, and every band must cover the
     # truth at >= 85% of those months. Sales qualified by the demo's [sales] rules.
@@ -187,12 +192,9 @@ def test_demo_town_index_recovers_its_true_market_trend() -> None:
         n_basis=config.time.n_basis,
     )
     months = trends["jurisdiction"].months
-    starts = np.datetime64(config.valuation_date, "M") + months
-    daily = np.arange(starts[0].astype("datetime64[D]"), (starts[-1] + 1).astype("datetime64[D]"))
-    which = (daily.astype("datetime64[M]") - starts[0]).astype(np.int64)
-    level = np.bincount(which, weights=demo_town.true_log_index(daily)) / np.bincount(which)
-    truth = level - level[-1]
-    with_sales = np.isin(months, month)
+    starts = (np.datetime64(config.valuation_date, "M") + months).astype("datetime64[D]")
+    truth = demo_town.true_log_index(starts)
+    with_sales = np.isin(months, np.floor(month).astype(int))
     assert with_sales.sum() == 36
     errors = {area: np.abs(t.log_index - truth)[with_sales].max() for area, t in trends.items()}
     assert set(errors) == {"jurisdiction", "centre", "orrimead", "ymberwater", "falvenby"}
@@ -200,3 +202,37 @@ def test_demo_town_index_recovers_its_true_market_trend() -> None:
     assert max(errors.values()) <= 0.05
     for t in trends.values():
         assert np.mean(((t.lo <= truth) & (truth <= t.hi))[with_sales]) >= 0.85
+
+
+def test_sales_spanning_under_two_months_get_no_trend_and_say_so() -> None:
+    # Finding: with every sale on one date the stored band was +/-1,460 in log units and nothing warned. Under
+    # two months of sales no trend is estimated: the index is flat (factor 1), its band unknown, a note says so.
+    rng = np.random.default_rng(3)
+    X = np.column_stack([np.exp(rng.normal(7.4, 0.3, 300)), rng.integers(0, 5, 300)])
+    log_price = 12 + rng.normal(0, 0.1, 300)
+    for month in (np.full(300, -7.0), -7.0 + rng.uniform(0, 1.9, 300)):
+        trend = estimate_trend(month, log_price, X, FEATURES, np.zeros(300), window_months=WINDOW)
+        assert (trend.log_index == 0).all() and np.isnan(trend.lo).all() and np.isnan(trend.hi).all()
+        np.testing.assert_array_equal(trend.factor(month), 1.0)
+        assert len(trend.notes) == 1 and "no market trend is estimated" in trend.notes[0]
+        assert "factor 1" in trend.notes[0] and "under 2" in trend.notes[0]
+    wider = estimate_trend(-7.0 + rng.uniform(0, 2.5, 300), log_price, X, FEATURES, np.zeros(300), window_months=WINDOW)
+    assert np.isfinite(wider.hi).all() and not any("no market trend" in n for n in wider.notes)
+
+
+def test_thin_months_before_the_valuation_date_are_named_with_the_band_width() -> None:
+    # Finding: with few sales in the months before the valuation date the index near it rests on the curve's
+    # shape (flattened -0.139 against a true -0.180 at -36 months) and nothing warned. Evenly spread sales get
+    # no note; the same sales without the last 8 months get one naming the count and the band's width.
+    month, log_price, X, segment = simulated_sales(3000, seed=21)
+    even = estimate_trend(month, log_price, X, FEATURES, segment, window_months=WINDOW)
+    assert even.notes == ()
+    keep = (month < -8) | (np.arange(month.size) % 20 == 0)                    # 1 in 20 of the last 8 months kept
+    thin = estimate_trend(month[keep], log_price[keep], X[keep], FEATURES, segment[keep], window_months=WINDOW)
+    recent = int((month[keep] > -6).sum())
+    assert len(thin.notes) == 1
+    note = thin.notes[0]
+    assert f"only {recent} of {int(keep.sum())} sales fall in the 6 months before the valuation date" in note
+    widest = int(np.argmax(thin.hi - thin.log_index))
+    assert f"band is ±{(thin.hi - thin.log_index)[widest]:.3f} in log units" in note and f"at {thin.months[widest]} months" in note
+    assert (thin.hi - thin.log_index).max() > (even.hi - even.log_index).max()   # the band says what the note says

@@ -15,7 +15,7 @@ from textual.screen import Screen
 from textual.worker import Worker, WorkerState, get_current_worker
 
 from reval.service import UserError, actions, views
-from reval.service.types import Overview
+from reval.service.types import Overview, StagePlan
 from reval.service.wording import shown
 
 from . import keys
@@ -24,8 +24,9 @@ from .jobs import (CoreNotice, JobCancelled, JobFinished, JobProgressed, JobStop
 from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
-from .screens.prompt import ExportScreen, PromptScreen
-from .outcomes import DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values
+from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
+from .outcomes import (DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values,
+                       staging_lines)
 
 
 def error_text(error: BaseException) -> str:
@@ -199,8 +200,37 @@ class RevalApp(App[None]):
                        describe=describe_fit)
 
     def action_value(self) -> None:
-        self.start_job("value", "Staging values from the latest run", actions.stage_values, self.folder,
-                       describe=describe_values)
+        """Stage the segments without a standing decision, after a confirmation that lists the decisions kept
+        (and, if asked, those a re-stage of every segment would set aside)."""
+        self.restage(None, replace=False)
+
+    def restage(self, segments: list[str] | None, replace: bool) -> None:
+        """Read what staging would do, then ask before doing it (nothing is written until confirmed)."""
+        if self.job_running:
+            self.report("Another job is running: wait for it to finish or cancel it (Ctrl+K).", "warning")
+            return
+        self._plan_staging(segments, replace)
+
+    @work(thread=True, exclusive=True, group="plan", exit_on_error=False, name="staging plan")
+    def _plan_staging(self, segments: list[str] | None, replace: bool) -> None:
+        with self.db_lock:
+            plan = actions.staging_plan(self.folder, None, segments, replace)
+        self.call_from_thread(self._confirm_staging, plan, segments, replace)
+
+    def _confirm_staging(self, plan: StagePlan, segments: list[str] | None, replace: bool) -> None:
+        extra = ("r", "replace", "re-stage these too") if plan["kept"] and not replace else None
+
+        def answered(answer: str | None) -> None:
+            if answer == "replace":
+                self.restage(segments, replace=True)
+            elif answer == "yes":
+                self.start_job("value", f"Staging values from run {plan['run_id']}", actions.stage_values,
+                               self.folder, None, segments, replace, describe=describe_values)
+            else:
+                self.report("Staging cancelled; nothing changed.", "warning")
+
+        title = "Re-stage, setting decisions aside" if plan["set_aside"] else "Stage values for review"
+        self.push_screen(ConfirmScreen(title, staging_lines(plan), extra=extra), answered)
 
     def action_export(self) -> None:
         def chosen(answer: tuple[Path, bool] | None) -> None:

@@ -10,12 +10,12 @@ from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown, si
 
 __all__ = ["CAUTION", "NAME_WIDTH", "money", "percent", "shown", "signed_money"]
 
-MARKS = {"pass": "✓", "fail": "✗ FAIL", "too_few_sales": "~ few"}
-SHORT_MARKS = {"pass": "✓", "fail": "✗", "too_few_sales": "~"}
+MARKS = {"pass": "✓", "fail": "✗ FAIL", "inconclusive": "? unsure", "too_few_sales": "~ few", "no_sales": "– none"}
+SHORT_MARKS = {"pass": "✓", "fail": "✗", "inconclusive": "?", "too_few_sales": "~", "no_sales": "–"}
 STAT_FORMATS = {"median_ratio": ".3f", "cod": ".1f", "prd": ".3f", "prb": "+.3f"}
 STAT_NAMES = {"median_ratio": "Median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
-VERDICT_STYLES = {"pass": "$success", "fail": "$error", "too_few_sales": "$warning"}
-LEGEND = "✓ meets the standard · ✗ FAIL: does not · ~ too few sales to judge"
+VERDICT_STYLES = {"pass": "$success", "fail": "$error", "inconclusive": "$warning", "too_few_sales": "$warning"}
+LEGEND = "✓ meets the standard · ✗ FAIL: does not · ? inconclusive · ~ too few sales to judge"
 
 
 def stat_cell(cell: StatCell, stat: str, short: bool = False) -> str:

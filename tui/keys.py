@@ -40,7 +40,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("app.quit", "q", "app.quit", "app", "Quit", "Leave the app"),
     KeyAction("app.parcel", "o", "app.find_parcel", "app", "Parcel", "Open a parcel by its id"),
     KeyAction("app.fit", "f", "app.fit", "app", "Fit", "Fit the models of every segment (a new run)"),
-    KeyAction("app.value", "v", "app.value", "app", "Value", "Stage values of every segment from the latest run",
+    KeyAction("app.value", "v", "app.value", "app", "Value",
+              "Stage values from the latest run for every segment without a held or approved batch (asks first)",
               show=False),
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
@@ -60,7 +61,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("overview.sort_reverse", "r", "sort_reverse", "overview", "Reverse", "Reverse the sort order",
               show=False),
     KeyAction("overview.failing", "F", "toggle_failing", "overview", "Failing",
-              "Show only segments failing a standard (again: all)"),
+              "Show only segments that cannot be approved without a note: a standard failed or inconclusive, "
+              "too few or no sales (again: all)"),
     KeyAction("overview.area", "m", "cycle_area", "overview", "Area", "Filter by market area (cycles)",
               show=False),
     KeyAction("overview.state", "t", "cycle_state", "overview", "State", "Filter by batch state (cycles)",
@@ -73,6 +75,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("overview.hold", "h", "hold", "overview", "Hold", "Hold the segment's batch (with a reason)"),
     KeyAction("overview.revoke", "R", "revoke", "overview", "Revoke",
               "Revoke the segment's approval before export (with a note)", show=False),
+    KeyAction("overview.restage", "V", "restage", "overview", "Re-stage",
+              "Re-stage the segment from the latest run, setting its hold or approval aside (asks first)", show=False),
     KeyAction("overview.refresh", "ctrl+r", "refresh", "overview", "Refresh", "Read the database again",
               show=False),
     # segment drill-in

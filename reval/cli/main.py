@@ -16,6 +16,7 @@ from reval.cli import render
 from reval.errors import UserError
 from reval.service import actions
 from reval.service.wording import CAUTION, shown
+from reval.states import GROUPINGS
 
 
 def _folder(args: argparse.Namespace) -> Path:
@@ -118,7 +119,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
-    p.add_argument("--by", choices=["segment", "market_area", "class", "all"], default="segment")
+    p.add_argument("--by", choices=list(GROUPINGS), default="segment",
+                   help="groups: segment, market area, property class, segment x class, or all sales")
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
@@ -133,9 +135,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--run", default=None, help="run id (default: the latest)")
     p.set_defaults(func=lambda a: render.emit(a, actions.compare(_folder(a), a.run), render.compare))
 
-    p = sub.add_parser("value", parents=[common], help="value every parcel from a run and stage a batch per segment")
+    p = sub.add_parser("value", parents=[common], help="value parcels from a run and stage a batch per segment")
+    p.add_argument("segments", nargs="*", metavar="SEGMENT",
+                   help="segments to stage (default: every segment without a held or approved batch)")
     p.add_argument("--run", help="run id (default: the newest run)")
-    p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run), render.staged))
+    p.add_argument("--replace", action="store_true", help="also re-stage segments with a held batch (replaced) or "
+                   "an approved one (it stays certified until the new batch is decided)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run, a.segments, a.replace),
+                                              render.staged))
 
     p = sub.add_parser("review", parents=[common], help="value changes, large changes and the sales-chasing check")
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")

@@ -20,7 +20,7 @@ from rich.text import Text
 from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
 
 Render = Callable[[Any, Console], None]
-MARKS = {"pass": "ok", "fail": "FAIL", "too_few_sales": "few"}
+MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 LISTED = 10  # down-weighted sales listed under a study or a review
 
 
@@ -107,6 +107,8 @@ def sales(result: dict[str, Any], console: Console) -> None:
         console.print(f"  {n:>6,}  {shown(reason)}")
     records_table("Sales per segment", [{"segment": s["segment"], "qualified": s["qualified"],
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
+    for note in result["trend_notes"]:
+        console.print(f"Market trend: {shown(note)}.", highlight=False)
 
 
 def sale_decision(r: dict[str, Any], console: Console) -> None:
@@ -136,14 +138,15 @@ def study(result: dict[str, Any], console: Console) -> None:
              **({"down-weighted": len(g.get("downweighted", []))} if model else {}),
              "median": cell(g, "median_ratio", ".3f"), "COD": cell(g, "cod", ".1f"),
              "PRD": cell(g, "prd", ".3f"), "PRB": cell(g, "prb", "+.3f")} for g in result["groups"]]
-    records_table("Ratio statistics (ok = meets the standard, FAIL = does not, few = too few sales)", rows, console)
+    records_table("Ratio statistics (ok = meets the standard, FAIL = does not, ? = inconclusive: the confidence "
+                  "interval straddles a limit, few = too few sales)", rows, console)
     if model:
         light = sorted((s for g in result["groups"] for s in g.get("downweighted", [])), key=lambda s: s["weight"])
         if light:
             console.print("Down-weighted = sales the run's fit gave less than full weight (they still count in these "
                           f"statistics); the {min(len(light), LISTED)} lowest:")
             for s in light[:LISTED]:
-                console.print(f"  {s['sale_id']} (parcel {s['parcel_id']}): {s['reason']}")
+                console.print(f"  {name(s['sale_id'])} (parcel {name(s['parcel_id'])}): {s['reason']}")
     console.print(CAUTION)
 
 
@@ -180,6 +183,9 @@ def compare(result: dict[str, Any], console: Console) -> None:
 def staged(r: dict[str, Any], console: Console) -> None:
     console.print(f"Run {name(r['run_id'])}: staged {len(r['staged'])} batch(es); "
                   f"{len(r['unchanged'])} segment(s) already hold a batch of this run.")
+    for d in r["kept"]:
+        console.print(f"  kept: {d['segment']} is {d['state']} (batch {d['batch_id']}, run {d['run_id']}); "
+                      f"`reval value {d['segment']} --replace` stages it ({d['on_restage']}).")
     if r["land_schedule"] is None:
         console.print("No land schedule configured: land and improvement are not allocated.")
     table("Staged batches", ["segment", "batch", "parcels", "replaced"],
@@ -196,19 +202,18 @@ def review(r: dict[str, Any], console: Console) -> None:
         q = s["change_ratio_quantiles"] or {}
         rows.append([s["segment"], f"{s['batch_id']} {s['state']}", f"{s['n_parcels']:,}", percent(s["total_change"]),
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
-                     f"{s['n_beyond_threshold']:,}", f"{s['n_downweighted']:,}",
+                     f"{s['n_beyond_threshold']:,}", f"{s['n_downweighted']:,}", _cods(s["sales_chasing"]),
                      s["sales_chasing"]["status"].replace("_", " ")])
     table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
           "down-weighted = sales the fit gave less than full weight",
-          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted", "sales chasing"],
-          rows, console)
+          ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted",
+           "COD roll / out of fold", "sales chasing"], rows, console)
     for s in r["segments"]:
         chase = s["sales_chasing"]
         if chase["flagged"]:
-            console.print(Text.assemble((f"{name(s['segment'])}: possible sales chasing", "bold"),
-                                        f" — median change sold {percent(chase['median_change_sold'])} vs unsold "
-                                        f"{percent(chase['median_change_unsold'])}, Mann-Whitney U p = "
-                                        f"{chase['p_value']:.2g} ({chase['rule']})."))
+            console.print(Text(f"{name(s['segment'])}: possible sales chasing:", style="bold"))
+            for reason in chase["reasons"]:
+                console.print(f"  - {reason}")
         if s["downweighted"] and len(r["segments"]) == 1:
             table(f"{name(s['segment'])}: sales the fit down-weighted, lowest weight first "
                   f"({s['n_downweighted']:,} in all)", ["sale", "parcel", "weight", "why"],
@@ -219,6 +224,11 @@ def review(r: dict[str, Any], console: Console) -> None:
                   ["parcel", "class", "prior", "new", "change"],
                   [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
                     percent(p["change"])] for p in s["beyond_threshold"]], console)
+
+
+def _cods(chase: dict[str, Any]) -> str:
+    roll, oof = chase["roll_cod"], chase["oof_cod"]
+    return "-" if roll is None else f"{roll:.1f}" + ("" if oof is None else f" / {oof:.1f}")
 
 
 def decision(r: dict[str, Any], console: Console) -> None:
@@ -234,8 +244,12 @@ def exported(r: dict[str, Any], console: Console) -> None:
                   f"manifest {shown(r['manifest'])}.")
     if r["not_approved"]:
         console.print(f"Partial roll: not approved and left out: {', '.join(map(name, r['not_approved']))}.")
-    if r["pending_newer_batches"]:
-        console.print(f"Newer batches await review in: {', '.join(map(name, r['pending_newer_batches']))}.")
+    table("Where each segment's values come from", ["segment", "run", "batch", "parcels"],
+          [[t["segment"], t["run_id"], f"{t['batch_id']} ({t['state']})", f"{t['rows']:,}"] for t in r["segments"]],
+          console)
+    for p in r["pending_batches"]:
+        console.print(f"{name(p['segment'])}: a newer batch {p['batch_id']} of run {name(p['run_id'])} is "
+                      f"{p['state']} and was not exported (the certified values were).")
 
 
 def log(r: dict[str, Any], console: Console) -> None:
@@ -248,5 +262,6 @@ def batch_states(r: dict[str, Any], console: Console) -> None:
     def show(b: dict[str, Any] | None) -> str:
         return "-" if b is None else f"{b['batch_id']} {b['state']} (run {b['run_id']})"
 
-    table("Batches", ["segment", "open batch", "certified batch"],
-          [[s["segment"], show(s["open"]), show(s["certified"])] for s in r["segments"]], console)
+    table("Batches: the certified values (those an export writes) beside the pending ones",
+          ["segment", "state", "certified batch", "open batch"],
+          [[s["segment"], s["summary"], show(s["certified"]), show(s["open"])] for s in r["segments"]], console)

@@ -148,7 +148,10 @@ class SalesRules(Declared):
                                       example=5000000)
     property_classes: tuple[str, ...] | None = setting(None, "only sales of these classes (leave out: every class)",
                                                        example=("single_family", "condominium"))
-    exclude_multi_parcel: bool = setting(True, "leave out sales that cover several parcels", active=True)
+    exclude_multi_parcel: bool = setting(True, "leave out sales that cover several parcels (false: studies compare "
+                                         "a package's summed values with its one price)", active=True)
+    multi_parcel_in_fit: bool = setting(False, "when multi-parcel sales qualify, also fit each parcel at its share "
+                                        "of the price (by prior value)")
 
     def check(self) -> None:
         if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:

@@ -19,6 +19,19 @@ class SalesData:
     X: np.ndarray
     features: tuple[FeatureSpec, ...]
 
+    def in_fit(self, multi_parcel: bool) -> np.ndarray:
+        """Rows a model (and the market trend) is fitted on: single-parcel sales, and the parcels of
+        multi-parcel sales only when asked (`[sales] multi_parcel_in_fit`): a package price is not the
+        price of one of its parcels."""
+        return multi_parcel | (self.frame["n_parcels"].to_numpy() == 1)
+
+    def fit_price(self, column: str) -> np.ndarray:
+        """A price column as the fit reads it: each parcel of a package gets its share of the one price."""
+        return self.frame[column].to_numpy(float) * self.frame["price_share"].to_numpy(float)
+
+    def rows(self, keep: np.ndarray) -> SalesData:
+        return SalesData(self.frame[keep].reset_index(drop=True), self.X[keep], self.features)
+
 
 def feature_specs(store: Store) -> tuple[FeatureSpec, ...]:
     """The features as imported (the database, not the config, is the truth for stored codes)."""

@@ -35,9 +35,11 @@ def reference_factories(specs: Sequence[Feature], seed: int = 0) -> dict[str, Ca
 
 
 def cross_validated_predictions(model_factory: Callable[[], ReferenceModel], X: np.ndarray, y: np.ndarray,
-                                segment: np.ndarray, folds: np.ndarray) -> np.ndarray:
+                                segment: np.ndarray, folds: np.ndarray,
+                                fold_targets: Mapping[int, np.ndarray] | None = None) -> np.ndarray:
     """Out-of-fold predicted log price for every row: each fold is predicted by a fresh model
-    fitted on all the other folds."""
+    fitted on all the other folds (on `fold_targets[fold]` when given: the fold's own time adjustment,
+    predictions returned against y as in reval.model.hierarchy.out_of_fold)."""
     folds = np.asarray(folds)
     if len(folds) != len(y):
         raise ValueError("folds must give one fold id per row")
@@ -45,18 +47,20 @@ def cross_validated_predictions(model_factory: Callable[[], ReferenceModel], X: 
     out = np.empty(len(y))
     for fold in np.unique(folds):
         held = folds == fold
-        model = model_factory().fit(X[~held], y[~held], segment[~held])
-        out[held] = model.predict(X[held], segment[held])
+        target = y if fold_targets is None else np.asarray(fold_targets[int(fold)], dtype=float)
+        model = model_factory().fit(X[~held], target[~held], segment[~held])
+        out[held] = model.predict(X[held], segment[held]) + (y - target)[held]
     return out
 
 
 def compare_models(factories: Mapping[str, Callable[[], ReferenceModel]], X: np.ndarray, y: np.ndarray,
-                   segment: np.ndarray, folds: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, float]]:
+                   segment: np.ndarray, folds: np.ndarray, fold_targets: Mapping[int, np.ndarray] | None = None
+                   ) -> tuple[dict[str, np.ndarray], dict[str, float]]:
     """Out-of-fold predictions of each model on the same folds, and the wall-clock seconds each took."""
     predictions, seconds = {}, {}
     for name, factory in factories.items():
         start = time.perf_counter()
-        predictions[name] = cross_validated_predictions(factory, X, y, segment, folds)
+        predictions[name] = cross_validated_predictions(factory, X, y, segment, folds, fold_targets)
         seconds[name] = time.perf_counter() - start
     return predictions, seconds
 

@@ -363,9 +363,14 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
 
 def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
                 features: Sequence[Feature], settings: ModelSettings, *, offset_folds: int = 0,
-                trusted: np.ndarray | None = None, progress: Progress | None = None) -> np.ndarray:
+                trusted: np.ndarray | None = None, fold_targets: Mapping[int, np.ndarray] | None = None,
+                progress: Progress | None = None) -> np.ndarray:
     """Out-of-fold log predictions for every sale, the whole procedure (selection, penalties, robust weights and
-    shape rules) redone per fold."""
+    shape rules) redone per fold.
+
+    `fold_targets[k]`, when given, is y as fold k's training sales alone make it (their own market trend):
+    fold k is fitted on it, and its predictions are returned against y, so that exp(prediction - y) is the
+    ratio of the held-out value to the held-out sale's price adjusted by the fold's own trend."""
     X, segment, market_area = _check_inputs(X, segment, market_area, len(features))
     y = np.asarray(y, dtype=float)
     folds = fold_ids(len(y), segment, settings.seed, settings.folds)
@@ -373,9 +378,10 @@ def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: 
     out = np.empty(len(y))
     for k in range(settings.folds):
         test = folds == k
-        model = fit_hierarchy(X[~test], y[~test], segment[~test], market_area[~test], features, settings,
+        target = y if fold_targets is None else np.asarray(fold_targets[k], dtype=float)
+        model = fit_hierarchy(X[~test], target[~test], segment[~test], market_area[~test], features, settings,
                               offset_folds=offset_folds, trusted=fixed[~test])
-        out[test] = model.predict(X[test], segment[test], market_area[test])
+        out[test] = model.predict(X[test], segment[test], market_area[test]) + (y - target)[test]
         if progress is not None:
             progress(k + 1, settings.folds)
     return out

@@ -17,6 +17,7 @@ from threadpoolctl import threadpool_limits
 
 from reval.data.config import Config, FeatureSpec
 from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_shapes
+from reval.data.sales import trend_factors
 from reval.errors import UserError
 from reval.data.events import record_event
 from reval.model import BASE_TERM
@@ -29,6 +30,7 @@ from reval.data.store import Store
 from reval.plain import records
 from reval.stats.study import run_study
 from reval.results import FitSummary
+from reval.states import GROUPINGS
 
 Progress = Callable[[str, int, int], None]
 LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "pygam", "duckdb", "joblib")
@@ -54,10 +56,15 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
             references: bool = True) -> FitSummary:
     """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary."""
     settings: ModelSettings = config.model if jobs is None else dataclasses.replace(config.model, jobs=jobs)
-    sales = qualified_sales(store)
-    if len(sales.frame) == 0 or sales.frame["adjusted_price"].isna().any():
+    qualified = qualified_sales(store)
+    if len(qualified.frame) == 0 or qualified.frame["adjusted_price"].isna().any():
         raise UserError("No prepared sales: run `reval sales` before `reval fit`.")
-    y = np.log(sales.frame["adjusted_price"].to_numpy(float))
+    in_fit = qualified.in_fit(config.sales.multi_parcel_in_fit)
+    if not in_fit.any():
+        raise UserError("Every qualified sale covers several parcels; set [sales] multi_parcel_in_fit = true to fit "
+                        "them at their share of the package price.")
+    sales = qualified.rows(in_fit)
+    y = np.log(sales.fit_price("adjusted_price"))
     segment = sales.frame["segment"].to_numpy(str)
     market_area = sales.frame["market_area"].to_numpy(str)
     roll_segments = dict(store.rows("segment_market_areas"))
@@ -66,16 +73,21 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     timings: dict[str, float] = {}
 
     start = time.perf_counter()
+    folds = fold_ids(len(y), segment, settings.seed, settings.folds)
+    targets = fold_targets(config, sales, folds)
+    timings["fold_trends"] = time.perf_counter() - start
+
+    start = time.perf_counter()
     model = fit_hierarchy(sales.X, y, segment, market_area, features, settings, segments=roll_segments,
                           trusted=trusted, progress=_step(progress, "fitting segments"))
     timings["fit"] = time.perf_counter() - start
     start = time.perf_counter()
-    oof = out_of_fold(sales.X, y, segment, market_area, features, settings, trusted=trusted,
+    oof = out_of_fold(sales.X, y, segment, market_area, features, settings, trusted=trusted, fold_targets=targets,
                       progress=_step(progress, "out-of-fold folds"))
     timings["out_of_fold"] = time.perf_counter() - start
-    folds = fold_ids(len(y), segment, settings.seed, settings.folds)
     with threadpool_limits(limits=1):  # OpenMP/BLAS threads thrash on small fits; measured 7x slower on 2 cores
-        accuracy, importance = (_references(sales, features, y, trusted, settings, folds, oof, timings, progress)
+        accuracy, importance = (_references(sales, features, y, trusted, settings, folds, oof, targets, timings,
+                                            progress)
                                 if references else (pd.DataFrame(), pd.DataFrame()))
 
     start = time.perf_counter()
@@ -90,10 +102,9 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         "settings": json.dumps(dataclasses.asdict(settings), default=list), "library_versions": json.dumps(_versions()),
         "timings": json.dumps(timings)}])
     reports = _segment_reports(model, parcels, X_all, run_id)
-    sale_predictions = pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"],
-                                     "parcel_id": sales.frame["parcel_id"], "fold": folds.astype(np.int16),
-                                     "insample_log": model.predict(sales.X, segment, market_area), "oof_log": oof})
-    weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy(), run_id)
+    sale_predictions = pd.concat([_predictions(run_id, sales, model, folds, oof),
+                                  _predictions(run_id, qualified.rows(~in_fit), model)], ignore_index=True)
+    weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy()[: len(y)], run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
         for table, frame in reports.items():
@@ -108,7 +119,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
         for source in ("model_out_of_fold", "model_in_sample"):
-            for by in ("segment", "market_area", "class", "all"):
+            for by in GROUPINGS:
                 run_study(store, config, source, by, run_id)
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
@@ -116,19 +127,42 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
             "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
 
 
+def fold_targets(config: Config, sales: SalesData, folds: np.ndarray) -> dict[int, np.ndarray]:
+    """Per fold: the log prices adjusted by the market trend of the fold's training sales alone, so no
+    held-out sale informs the adjustment its own ratio is judged by (the whole procedure per fold)."""
+    targets = {}
+    for k in np.unique(folds):
+        factor, _ = trend_factors(config, sales, folds != k)
+        targets[int(k)] = np.log(sales.fit_price("sale_price") * factor)
+    return targets
+
+
+def _predictions(run_id: str, sales: SalesData, model: FittedHierarchy, folds: np.ndarray | None = None,
+                 oof: np.ndarray | None = None) -> pd.DataFrame:
+    """Each sale's in-sample and out-of-fold log value. Sales left out of the fit (multi-parcel packages) get
+    fold -1 and the full model's value twice: no model saw them."""
+    segment, market_area = sales.frame["segment"].to_numpy(str), sales.frame["market_area"].to_numpy(str)
+    insample = model.predict(sales.X, segment, market_area) if len(sales.frame) else np.empty(0)
+    return pd.DataFrame({"run_id": run_id, "sale_id": sales.frame["sale_id"], "parcel_id": sales.frame["parcel_id"],
+                         "fold": (np.full(len(insample), -1) if folds is None else folds).astype(np.int16),
+                         "insample_log": insample, "oof_log": insample if oof is None else oof})
+
+
 def _references(sales: SalesData, features: tuple[FeatureSpec, ...], y: np.ndarray, trusted: np.ndarray,
-                settings: ModelSettings, folds: np.ndarray, oof: np.ndarray, timings: dict[str, float],
-                progress: Progress | None) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The reference models and the additive model without interactions, on the same folds."""
+                settings: ModelSettings, folds: np.ndarray, oof: np.ndarray, fold_targets: dict[int, np.ndarray],
+                timings: dict[str, float], progress: Progress | None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The reference models and the additive model without interactions, on the same folds and the same
+    per-fold time adjustment."""
     start = time.perf_counter()
     segment = sales.frame["segment"].to_numpy(str)
     plain = out_of_fold(sales.X, y, segment, sales.frame["market_area"].to_numpy(str), features,
-                        dataclasses.replace(settings, interaction_rule="none"), trusted=trusted)
+                        dataclasses.replace(settings, interaction_rule="none"), trusted=trusted,
+                        fold_targets=fold_targets)
     plain_seconds = time.perf_counter() - start
     if progress:
         progress("reference models", 1, 2)
     factories = reference_factories(sales.features, seed=settings.seed)
-    predictions, seconds = compare_models(factories, sales.X, y, segment, folds)
+    predictions, seconds = compare_models(factories, sales.X, y, segment, folds, fold_targets)
     predictions = {OURS: oof, OURS_NO_INTERACTIONS: plain, **predictions}
     seconds = {OURS: timings["out_of_fold"], OURS_NO_INTERACTIONS: plain_seconds, **seconds}
     table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)

@@ -1,10 +1,13 @@
 """Batch states and their transitions: approve, hold, revoke; each one transaction and one event.
 
-staged -> approved | held; held -> staged again only through a new value step (`reval value` after a new
-run or a changed basis); approved -> exported (reval.export), or back to staged when revoked before export
-(to 'replaced' when a newer open batch already exists). Approval needs the segment's out-of-fold ratio
-statistics of the batch's run to pass the standards, or an override note, which is stored. Approving a
-newer batch marks the segment's earlier approved one 'superseded'. Approved values never change.
+staged -> approved | held; held -> staged again only through a new value step (`reval value SEGMENT
+--replace` after a new run or a changed basis); approved -> exported (reval.export), or back to staged when
+revoked before export (to 'replaced' when a newer open batch already exists). Approval needs the segment's
+out-of-fold ratio statistics of the batch's run, computed at that moment under the current standards and
+study settings (never a stored study's older verdicts), to pass, or an override note, which is stored.
+The event keeps that snapshot and the batch the fingerprint of the standards it was judged under
+(reval/stats/judging.py). Approving a newer batch marks the segment's earlier approved one 'superseded'.
+Approved values never change.
 """
 from __future__ import annotations
 
@@ -14,12 +17,11 @@ from reval.clock import utc_now
 from reval.data.config import Config
 from reval.errors import UserError
 from reval.data.events import record_event
-from reval.stats.standards import Verdict, passes
+from reval.stats.judging import failures, judging_basis, judging_sha256
 from reval.data.store import Store
 from reval.roll.batch_states import live_batches
 from reval.states import BatchState, ValuesSource
-from reval.stats.stored import load_study, study_id
-from reval.stats.study import run_study
+from reval.stats.study import segment_judgement
 from reval.results import Decision
 
 OUT_OF_FOLD: ValuesSource = "model_out_of_fold"
@@ -31,27 +33,11 @@ def _known(store: Store, segment: str) -> None:
 
 
 def segment_statistics(store: Store, config: Config, run_id: str, segment: str) -> dict[str, Any]:
-    """The segment's out-of-fold ratio statistics for a run (computed and stored when missing), without the
-    list of trimmed sales; a segment without sales gets n = 0 and no verdicts."""
-    if not store.rows("study_header", [study_id(OUT_OF_FOLD, run_id, "segment")]):
-        run_study(store, config, OUT_OF_FOLD, "segment", run_id)
-    study = load_study(store, OUT_OF_FOLD, "segment", run_id)
-    group = next((g for g in study["groups"] if g["group"] == segment), None)
-    if group is None:
-        return {"study_id": study_id(OUT_OF_FOLD, run_id, "segment"), "n": 0, "verdicts": {}}
-    return {"study_id": study_id(OUT_OF_FOLD, run_id, "segment"),
-            **{k: v for k, v in group.items() if k != "trimmed"}}
-
-
-def failures(statistics: dict[str, Any]) -> list[str]:
-    """Why the statistics do not pass the standards (empty when they pass)."""
-    verdicts = {k: Verdict(v["status"], v["limit"], v["value"]) for k, v in statistics["verdicts"].items()}
-    if not verdicts:
-        return ["no qualified sales in the segment"]
-    if passes(verdicts):
-        return []
-    return [f"{name} {'-' if v.value is None else f'{v.value:.3f}'} ({v.status.replace('_', ' ')}; standard {v.limit})"
-            for name, v in verdicts.items() if v.status != "pass"]
+    """The segment's out-of-fold ratio statistics of a run, computed now under the current standards and
+    study settings, with the basis they were judged under (what an event stores)."""
+    group, classes = segment_judgement(store, config, OUT_OF_FOLD, run_id, segment)
+    return {"run_id": run_id, **group, "classes": classes, "judged_sha256": judging_sha256(config),
+            "judged_under": judging_basis(config)}
 
 
 def _transition(store: Store, batch: dict[str, Any], to: str, kind: str, note: str | None,
@@ -98,6 +84,7 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
             _transition(store, old, "superseded", "batch_superseded", None, {"by_batch_id": batch["batch_id"]})
         _transition(store, batch, "approved", "batch_approved", note,
                     {"override": bool(reasons), "failed": reasons, "statistics": statistics, "totals": totals})
+        store.run("batch_set_judged", [batch["batch_id"], statistics["judged_sha256"]])
     return {"segment": segment, "batch_id": batch["batch_id"], "run_id": run_id, "state": "approved",
             "override": bool(reasons), "failed": reasons, "note": note, "statistics": statistics,
             "superseded": [b["batch_id"] for b in earlier]}

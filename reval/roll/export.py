@@ -30,7 +30,7 @@ from reval.data.importer import ERROR_REPORT
 from reval.data.lock import lock_path
 from reval.data.store import Store
 from reval.errors import UserError
-from reval.results import ExportResult, Manifest
+from reval.results import ExportResult, Manifest, PendingBatch
 from reval.roll.batch_states import segment_states
 from reval.roll.land import schedule_path
 from reval.roll.valuation import refuse_bad_values
@@ -66,8 +66,8 @@ def _sha256(path: Path) -> str:
     return digest.hexdigest()
 
 
-def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str], list[str]]:
-    """The certified batches to export, the segments without one, and segments with an open newer batch."""
+def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str], list[PendingBatch]]:
+    """The certified batches to export, the segments without one, and the open newer batches left out."""
     states = segment_states(store)
     missing = [s["segment"] for s in states if s["certified"] is None]
     if missing and not partial:
@@ -77,7 +77,9 @@ def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str],
     certified = [s["certified"] for s in states if s["certified"] is not None]
     if not certified:
         raise UserError("Nothing to export: no segment is approved.")
-    pending = [s["segment"] for s in states if s["certified"] is not None and s["open"] is not None]
+    pending: list[PendingBatch] = [
+        {"segment": s["segment"], "batch_id": int(s["open"]["batch_id"]), "run_id": str(s["open"]["run_id"]),
+         "state": s["open"]["state"]} for s in states if s["certified"] is not None and s["open"] is not None]
     return certified, missing, pending
 
 
@@ -130,7 +132,7 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
 
 
 def _write_files(store: Store, config: Config, path: Path, tmp: Path, tmp_manifest: Path, ids: list[int],
-                 missing: list[str], pending: list[str]) -> Manifest:
+                 missing: list[str], pending: list[PendingBatch]) -> Manifest:
     """The roll and its manifest in their temporary files, fsync'd; returns the manifest."""
     store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
     _fsync(tmp)
@@ -138,7 +140,8 @@ def _write_files(store: Store, config: Config, path: Path, tmp: Path, tmp_manife
     manifest: Manifest = {
         "file": path.name, "rows": sum(t["rows"] for t in totals), "sha256": _sha256(tmp),
         "segments": totals, "run_ids": sorted({t["run_id"] for t in totals}),
-        "partial": bool(missing), "not_approved": missing, "pending_newer_batches": pending,
+        "partial": bool(missing), "not_approved": missing,
+        "pending_newer_batches": [p["segment"] for p in pending], "pending_batches": pending,
         "config_sha256": config.sha256, "who": current_user(),
         "when": utc_now().isoformat(timespec="seconds") + "Z", "text_cells": TEXT_CELLS,
     }

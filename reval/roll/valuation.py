@@ -7,6 +7,10 @@ prior value x (1 + max_increase), rounded down; the tightest cap of a class appl
 land value from the land schedule (reval.land), never above the total; improvement = total - land.
 Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%").
 No value that is not finite, or not positive, is ever staged or exported (`refuse_bad_values`).
+
+Staging is per segment: the named segments, by default those without a standing decision (a held batch
+or an approved one). A decision is never set aside without `replace`: a held batch is then replaced, an
+approved batch stays certified until the new batch is decided (reval/roll/batch_states.py).
 """
 from __future__ import annotations
 
@@ -20,9 +24,10 @@ from reval.clock import utc_now
 from reval.data.config import Config
 from reval.errors import ConfigError, UserError
 from reval.data.events import record_event
+from reval.roll.batch_states import SegmentBatches, segment_states, standing_decision
 from reval.roll.land import LandSchedule, load_land_schedule
 from reval.data.store import Store
-from reval.results import StageResult, StagedBatch
+from reval.results import StagePlan, StageResult, StagedBatch, StandingDecision
 
 
 def resolve_run(store: Store, run_id: str | None) -> str:
@@ -93,13 +98,57 @@ def _lot_position(store: Store, schedule: LandSchedule | None) -> int | None:
     return int(rows[0][0])
 
 
-def stage_values(store: Store, config: Config, run_id: str | None = None) -> StageResult:
-    """Value every parcel from a run and stage one batch per segment, replacing the segment's open batch;
-    approved and exported batches are never touched. One transaction."""
+def _standing(entry: SegmentBatches) -> StandingDecision | None:
+    batch = standing_decision(entry)
+    if batch is None:
+        return None
+    fate = ("the held batch is replaced" if batch["state"] == "held"
+            else "the approval stays in force until the new batch is decided")
+    return {"segment": entry["segment"], "batch_id": int(batch["batch_id"]), "run_id": str(batch["run_id"]),
+            "state": batch["state"], "note": batch["note"], "on_restage": fate}
+
+
+def _choose(store: Store, segments: list[str] | None, replace: bool) -> tuple[list[str], list[StandingDecision],
+                                                                          list[StandingDecision]]:
+    """Segments to stage, standing decisions kept, and standing decisions a re-stage sets aside (`replace`)."""
+    states = segment_states(store)
+    if segments is not None:
+        known = {e["segment"] for e in states}
+        unknown = [s for s in segments if s not in known]
+        if unknown:
+            raise UserError(f"No segment named {', '.join(repr(s) for s in unknown)}.")
+        states = [e for e in states if e["segment"] in segments]
+    decided = [(e["segment"], d) for e in states if (d := _standing(e)) is not None]
+    if replace:
+        return [e["segment"] for e in states], [], [d for _, d in decided]
+    if segments is not None and decided:
+        shown = "; ".join(f"{s} is {d['state']} (batch {d['batch_id']}, run {d['run_id']})" for s, d in decided)
+        fates = "; ".join(sorted({d["on_restage"] for _, d in decided}))
+        raise UserError(f"Not staged: {shown}. Give --replace to stage them anyway ({fates}).")
+    held = {s for s, _ in decided}
+    return [e["segment"] for e in states if e["segment"] not in held], [d for _, d in decided], []
+
+
+def plan_staging(store: Store, config: Config, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StagePlan:
+    """What `stage_values` would do, without doing it: what the app's confirmation lists."""
+    run = resolve_run(store, run_id)
+    chosen, kept, set_aside = _choose(store, segments, replace)
+    basis = _basis(config, load_land_schedule(config, [r[0] for r in store.rows("roll_segments")]))
+    fresh = {r[0] for r in store.rows("roll_segments_to_stage", {"run": run, "basis": basis, "segments": chosen})}
+    return {"run_id": run, "stage": [s for s in chosen if s in fresh], "unchanged": [s for s in chosen if s not in fresh],
+            "kept": kept, "set_aside": [d for d in set_aside if d["segment"] in fresh]}
+
+
+def stage_values(store: Store, config: Config, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StageResult:
+    """Value every parcel of the chosen segments from a run and stage one batch per segment, replacing the
+    segment's open batch; a held or approved batch only with `replace`; exported batches are never touched.
+    One transaction."""
     run = resolve_run(store, run_id)
     _check_coverage(store, run)
-    segments = [r[0] for r in store.rows("roll_segments")]
-    schedule = load_land_schedule(config, segments)
+    every = [r[0] for r in store.rows("roll_segments")]
+    schedule = load_land_schedule(config, every)
     basis = _basis(config, schedule)
     caps = cap_table(config, [r[0] for r in store.rows("roll_property_classes")])
     lot_position = _lot_position(store, schedule)
@@ -112,7 +161,8 @@ def stage_values(store: Store, config: Config, run_id: str | None = None) -> Sta
         store.con.register(name, frame)
     try:
         with store.transaction() as con:
-            to_stage = store.frame("roll_segments_to_stage", {"run": run, "basis": basis})
+            chosen, kept, _ = _choose(store, segments, replace)
+            to_stage = store.frame("roll_segments_to_stage", {"run": run, "basis": basis, "segments": chosen})
             store.con.register("roll_stage_segments", to_stage)
             frames["roll_stage_segments"] = to_stage
             replaced = store.frame("roll_open_batches")
@@ -130,8 +180,8 @@ def stage_values(store: Store, config: Config, run_id: str | None = None) -> Sta
     finally:
         for name in frames:
             store.con.unregister(name)
-    unchanged = sorted(set(segments) - set(to_stage["segment"]))  # the run covers every segment (checked)
-    return {"run_id": run, "staged": _staged_rows(staged, replaced), "unchanged": unchanged,
+    unchanged = sorted(set(chosen) - set(to_stage["segment"]))  # the run covers every segment (checked)
+    return {"run_id": run, "staged": _staged_rows(staged, replaced), "unchanged": unchanged, "kept": kept,
             "land_schedule": None if schedule is None else {"lot_feature": schedule.lot_feature,
                                                             "sha256": schedule.sha256},
             "flags": {str(k): int(v) for k, v in flags.items()}}

@@ -21,7 +21,7 @@ if TYPE_CHECKING:  # the results' types only; their modules load when the action
     from reval.plain import Record
     from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
                                      ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
-                                     SalesCounts, StageResult, StudyResult)
+                                     SalesCounts, StagePlan, StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -77,10 +77,10 @@ def decide_sale(folder: Path, sale_id: str, decision: SaleChoice, reason: str) -
 
 def sales_report(folder: Path) -> SalesCounts:
     """The stored qualification counts."""
-    from reval.data.sales import SalesSummary
+    from reval.data.sales import stored_summary
 
     with open_project(folder) as (_, store):
-        return SalesSummary(store.frame("sales_counts")).as_dict()
+        return stored_summary(store).as_dict()
 
 
 def segment_overview(folder: Path) -> list[Record]:
@@ -128,12 +128,24 @@ def compare(folder: Path, run_id: str | None = None) -> CompareResult:
 
 # ---- the value roll --------------------------------------------------------------------------------------------
 
-def stage_values(folder: Path, run_id: str | None = None) -> StageResult:
-    """Value every parcel from a run (default: the newest) and stage one batch per segment."""
+def stage_values(folder: Path, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StageResult:
+    """Value the parcels of the named segments (default: every segment without a held or approved batch)
+    from a run (default: the newest) and stage one batch per segment; `replace` also re-stages segments with
+    a standing decision."""
     from reval.roll import valuation
 
     with open_project(folder, write=True) as (config, store):
-        return valuation.stage_values(store, config, run_id)
+        return valuation.stage_values(store, config, run_id, segments or None, replace)
+
+
+def staging_plan(folder: Path, run_id: str | None = None, segments: list[str] | None = None,
+                 replace: bool = False) -> StagePlan:
+    """What `stage_values` with the same arguments would stage, keep and set aside (nothing is written)."""
+    from reval.roll import valuation
+
+    with open_project(folder) as (config, store):
+        return valuation.plan_staging(store, config, run_id, segments or None, replace)
 
 
 def review(folder: Path, segment: str | None = None, limit: int = 20) -> ReviewReport:
@@ -190,9 +202,10 @@ def event_log(folder: Path, segment: str | None = None) -> EventLog:
 def batch_states(folder: Path) -> BatchStates:
     """Each segment's open batch (staged or held) and certified batch (approved or exported)."""
     from reval.roll.batch_states import segment_states
+    from reval.stats.judging import judging_sha256
 
-    with open_project(folder) as (_, store):
-        return {"segments": segment_states(store)}
+    with open_project(folder) as (config, store):
+        return {"segments": segment_states(store, judging_sha256(config))}
 
 
 # ---- the demo ----------------------------------------------------------------------------------------------------
@@ -213,6 +226,7 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     steps = ["import" + ("" if imported["changed"] else " (unchanged)")]
     sales = prepare_sales(folder, progress)
     steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
+    steps += [f"market trend: {note}" for note in sales["trend_notes"]]
     for by in ("market_area", "class", "all", "segment"):
         prior = study(folder, "prior", by)
     steps.append(_failing("ratio study of prior values", prior))

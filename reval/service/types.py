@@ -7,7 +7,7 @@ from typing import Any, TypedDict
 
 from reval.plain import Record
 from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
-                           SalesCounts, SegmentReview, StageResult)
+                           SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
@@ -15,7 +15,8 @@ from reval.stats.stored import StudyGroup, StudyResult
 
 __all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
            "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StageResult", "StatCell", "StudyGroup",
+           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
+           "StandingDecision", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
 
 
@@ -83,8 +84,9 @@ class OverviewRow(TypedDict):
     value_change: float | None
     stats: dict[str, StatCell]   # by statistic: median_ratio, cod, prd, prb
     n: int
-    failing: bool
+    failing: bool                # cannot be approved without a note: a verdict not a pass, or no study
     state: BatchState | None
+    batches: str                 # certified and open batch side by side, e.g. "approved, run 3 · run 4 pending"
 
 
 class Overview(TypedDict):
@@ -121,7 +123,8 @@ class Equity(TypedDict):
     confidence: float | None
     mean_ratio: float | None
     weighted_mean_ratio: float | None
-    decile_median_ratios: list[float | None]
+    decile_median_ratios: list[float | None]         # by price decile
+    proxy_decile_median_ratios: list[float | None]   # by decile of the IAAO value proxy
     price: list[float]
     ratio: list[float]
 
@@ -155,6 +158,7 @@ class SegmentDetail(TypedDict):
     value_change: ValueChange | None
     reference_accuracy: list[Record]
     state: BatchState | None
+    batches: str
     review: SegmentReview | None
 
 

@@ -18,28 +18,30 @@ from reval.errors import UserError
 from reval.model import BASE_TERM
 from reval.model.names import named
 from reval.roll import batch_states
-from reval.roll.batch_states import state_of
+from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
 from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
                                  SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
+from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
 from reval.states import ValuesSource
-from reval.stats.stored import STATS, StudyGroup, stored_groups
+from reval.stats.stored import STATS, StudyGroup, stored_groups, study_id
 
 SORT_KEYS = ("segment", "market_area", "parcels", "sales", "model", "median_ratio", "cod", "prd", "prb",
              "value_change", "state")
 
 
 class ShownStudy(TypedDict):
-    """The stored segment study the app shows."""
+    """The stored segment study the app shows (and its segment x class study, when stored)."""
 
     study_id: str
     values_source: ValuesSource
     run_id: str | None
     confidence: float
     groups: list[StudyGroup]
+    class_groups: list[StudyGroup]
 
 
 def latest_run(store: Store) -> str | None:
@@ -47,9 +49,10 @@ def latest_run(store: Store) -> str | None:
     return str(rows[0][0]) if rows else None
 
 
-def _study(store: Store, run_id: str | None) -> tuple[ShownStudy | None, str]:
+def _study(store: Store, config: Config, run_id: str | None) -> tuple[ShownStudy | None, str]:
     """The segment study the app shows, read from its stored rows (never recomputed): out-of-fold for the
-    latest run when stored, else prior values; with a note saying what is missing."""
+    latest run when stored, else prior values; with a note saying what is missing or judged under other
+    standards than the config's now."""
     header = store.records("app_segment_study", [run_id])
     notes = []
     if run_id is not None and (not header or header[0]["values_source"] != "model_out_of_fold"):
@@ -58,9 +61,23 @@ def _study(store: Store, run_id: str | None) -> tuple[ShownStudy | None, str]:
         notes.append("no ratio study stored yet (run `reval sales` and `reval study`)")
         return None, "; ".join(notes)
     h = header[0]
+    if h["judged_sha256"] != judging_sha256(config):
+        notes.append("judged under other standards than the config's now: `reval study` judges again, "
+                     "approval always does")
     groups = stored_groups(store, h["study_id"], h["values_source"])
+    classes = stored_groups(store, study_id(h["values_source"], h["run_id"], "segment_class"), h["values_source"])
     return {"study_id": h["study_id"], "values_source": h["values_source"], "run_id": h["run_id"],
-            "confidence": float(h["confidence"]), "groups": groups}, "; ".join(notes)
+            "confidence": float(h["confidence"]), "groups": groups, "class_groups": classes}, "; ".join(notes)
+
+
+def _approvable(group: StudyGroup | None, study: ShownStudy | None) -> bool:
+    """Whether the stored verdicts let the segment be approved without a note (reval.stats.judging.failures,
+    the gate's rule); a segment with no, too few or no sales, or an inconclusive verdict, cannot."""
+    if group is None or study is None:
+        return False
+    prefix = group["group"] + " / "
+    classes = [g for g in study["class_groups"] if g["group"].startswith(prefix)]
+    return not failures({**group, "classes": classes if len(classes) > 1 else []})
 
 
 def _stats_header(study: ShownStudy | None, run_id: str | None, note: str) -> str:
@@ -94,17 +111,21 @@ def _stat_cells(group: StudyGroup | None) -> dict[str, StatCell]:
     return cells
 
 
-def segment_states(store: Store) -> dict[str, BatchState | None]:
-    """Each segment's state in one word (reval.roll.batch_states, the one rule)."""
-    return {entry["segment"]: state_of(entry) for entry in batch_states.segment_states(store)}
+def segment_states(store: Store, config: Config) -> dict[str, SegmentBatches]:
+    """Each segment's open and certified batch (reval.roll.batch_states, the one rule)."""
+    return {entry["segment"]: entry for entry in batch_states.segment_states(store, judging_sha256(config))}
+
+
+def _state(entry: SegmentBatches | None) -> BatchState | None:
+    return None if entry is None else state_of(entry)
 
 
 def overview(folder: Path) -> Overview:
     """One row per segment with counts, model kind, ratio statistics and verdicts, value change and state."""
     with open_project(folder) as (config, store):
-        states = segment_states(store)
+        states = segment_states(store, config)
         run_id = latest_run(store)
-        study, note = _study(store, run_id)
+        study, note = _study(store, config, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
         rows: list[OverviewRow] = []
         for r in store.records("app_segments", [run_id]):
@@ -114,8 +135,9 @@ def overview(folder: Path) -> Overview:
                          "sales": r["sales"], "kind": r["kind"], "borrowed_share": r["borrowed_share"],
                          "reason": r["reason"], "value_change": r["value_change"], "stats": stats,
                          "n": group["n"] if group else 0,
-                         "failing": any(c["status"] == "fail" for c in stats.values()),
-                         "state": states.get(r["segment"])})
+                         "failing": not _approvable(group, study),
+                         "state": _state(states.get(r["segment"])),
+                         "batches": states[r["segment"]]["summary"] if r["segment"] in states else "no batch"})
         return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
                 "folder": str(config.folder), "run_id": run_id,
                 "stats_source": study["values_source"] if study else None,
@@ -207,6 +229,7 @@ def _equity(store: Store, run_id: str | None, study: ShownStudy | None, segment:
             "mean_ratio": group["mean_ratio"] if group else None,
             "weighted_mean_ratio": group["weighted_mean_ratio"] if group else None,
             "decile_median_ratios": group["decile_median_ratios"] if group else [],
+            "proxy_decile_median_ratios": group["proxy_decile_median_ratios"] if group else [],
             "price": [p["price"] for p in points], "ratio": [p["ratio"] for p in points]}
 
 
@@ -231,9 +254,10 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
         if not info:
             raise UserError(f"No segment named {segment!r}.")
         run_id = latest_run(store)
-        study, note = _study(store, run_id)
+        study, note = _study(store, config, run_id)
         model = store.records("app_segment_model", [run_id, segment]) if run_id else []
-        state = segment_states(store).get(segment)
+        entry = segment_states(store, config).get(segment)
+        state = _state(entry)
         return {
             "segment": segment, "market_area": info[0]["market_area"], "parcels": info[0]["parcels"],
             "sales": info[0]["sales"], "run_id": run_id,
@@ -245,7 +269,8 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "equity": _equity(store, run_id, study, segment, max_points),
             "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
-            "state": state, "review": _review(store, config, segment) if state else None,
+            "state": state, "batches": entry["summary"] if entry else "no batch",
+            "review": _review(store, config, segment) if state else None,
         }
 
 
@@ -260,9 +285,9 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
     """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
     weight in the latest run's fit with why it is below 1."""
-    with open_project(folder) as (_, store):
+    with open_project(folder) as (config, store):
         run_id = latest_run(store)
-        study, _ = _study(store, run_id)
+        study, _ = _study(store, config, run_id)
         model = study is not None and study["values_source"] == "model_out_of_fold"
         sid = study["study_id"] if study else ""
         total = int(store.rows("app_segment_sales_count", [segment])[0][0])

@@ -37,6 +37,9 @@ class RatioStudy:
     prb_ci: tuple[float, float]              # OLS standard error and Student t quantile
     decile_median_ratios: tuple[float, ...]  # median ratio by price decile; NaN where a decile is empty
     trimmed: np.ndarray                      # bool mask over the INPUT rows: True = trimmed as outlier
+    # median ratio by decile of the IAAO value proxy (see value_proxy); sorting by price alone puts sales whose
+    # price is high by chance in the top deciles, which exaggerates regressivity
+    proxy_decile_median_ratios: tuple[float, ...] = ()
 
 
 def _positive_finite(name: str, a: np.ndarray) -> np.ndarray:
@@ -137,6 +140,12 @@ def prd(values: np.ndarray, prices: np.ndarray) -> float:
     return float(_prd_rows(v / p, v, p)) if v.size else float("nan")
 
 
+def value_proxy(values: np.ndarray, prices: np.ndarray, median_ratio: float) -> np.ndarray:
+    """IAAO value proxy: 0.5 * value / median ratio + 0.5 * price, a market-value estimate that is neither
+    value nor price alone (IAAO Standard on Ratio Studies 2013, the PRB of section 9.2.7; from memory)."""
+    return 0.5 * np.asarray(values, dtype=float) / median_ratio + 0.5 * np.asarray(prices, dtype=float)
+
+
 def prb(values: np.ndarray, prices: np.ndarray, confidence: float = 0.95) -> tuple[float, float, float]:
     """IAAO price-related bias: (coefficient, CI low, CI high).
 
@@ -151,7 +160,7 @@ def prb(values: np.ndarray, prices: np.ndarray, confidence: float = 0.95) -> tup
         return float("nan"), float("nan"), float("nan")
     r = v / p
     med = np.median(r)
-    x = np.log(0.5 * v / med + 0.5 * p) / np.log(2.0)
+    x = np.log(value_proxy(v, p, med)) / np.log(2.0)
     if np.ptp(x) == 0.0:
         return float("nan"), float("nan"), float("nan")
     y = (r - med) / med
@@ -211,10 +220,10 @@ def iqr_fences(ratios: np.ndarray, k: float) -> tuple[float, float]:
 
 
 def decile_medians(ratios: np.ndarray, prices: np.ndarray) -> np.ndarray:
-    """Median ratio in each of 10 price deciles (NaN where empty).
+    """Median ratio in each of 10 deciles of `prices` (or any positive key, e.g. the value proxy); NaN where empty.
 
-    Decile j (0-based) holds sales with edge_j <= price < edge_{j+1}, where edge_1..edge_9 are the
-    10th..90th price percentiles (numpy linear) and edge_0 = -inf, edge_10 = +inf; equal prices
+    Decile j (0-based) holds sales with edge_j <= key < edge_{j+1}, where edge_1..edge_9 are the
+    10th..90th key percentiles (numpy linear) and edge_0 = -inf, edge_10 = +inf; equal keys
     always share a decile.
     """
     r = _positive_finite("ratios", ratios)
@@ -261,13 +270,14 @@ def ratio_study(values: np.ndarray, prices: np.ndarray, *, confidence: float = 0
     if n == 0:
         nan = float("nan")
         return RatioStudy(0, n_trimmed, nan, _NAN_PAIR, nan, nan, nan, _NAN_PAIR, nan, _NAN_PAIR,
-                          nan, _NAN_PAIR, (nan,) * DECILES, trimmed)
+                          nan, _NAN_PAIR, (nan,) * DECILES, trimmed, (nan,) * DECILES)
     cod_ci, prd_ci = bootstrap_cod_prd(v, p, n_boot=n_boot, seed=seed, confidence=confidence)
     prb_coef, prb_lo, prb_hi = prb(v, p, confidence)
+    median = float(np.median(r))
     return RatioStudy(
         n=n,
         n_trimmed=n_trimmed,
-        median_ratio=float(np.median(r)),
+        median_ratio=median,
         median_ratio_ci=median_ci(r, confidence),
         mean_ratio=float(r.mean()),
         weighted_mean_ratio=weighted_mean_ratio(v, p),
@@ -279,4 +289,5 @@ def ratio_study(values: np.ndarray, prices: np.ndarray, *, confidence: float = 0
         prb_ci=(prb_lo, prb_hi),
         decile_median_ratios=tuple(float(x) for x in decile_medians(r, p)),
         trimmed=trimmed,
+        proxy_decile_median_ratios=tuple(float(x) for x in decile_medians(r, value_proxy(v, p, median))),
     )

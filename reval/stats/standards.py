@@ -1,16 +1,23 @@
-"""Ratio-study performance standards and pass / fail / too-few-sales verdicts against them.
+"""Ratio-study performance standards and verdicts against them: pass, fail, inconclusive (the interval rule),
+too few sales, no sales.
 
 Default limits are those of the IAAO Standard on Ratio Studies (2013), Section 9 (level, uniformity,
 vertical equity) as recalled from memory (the standard's text was not at hand); the rest is marked
 common practice.  Local rules may differ: every limit can be set from the `[standards]` config table.
+
+Two verdict rules (`verdict_rule`): "point" judges the point estimate (the usual reading of the standard);
+"interval" judges the confidence interval: pass when it lies within the limits, fail when it lies wholly
+outside, inconclusive when it straddles a limit. The IAAO standard advises confidence intervals for small
+samples, so that a sample too small to tell is not read as a failure (from memory).
 """
 from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING
 
 from reval.config_keys import Declared, comment_line, setting, toml_value
+from reval.states import VerdictRule, VerdictStatus
 
 if TYPE_CHECKING:  # only for the type hint: ratio_stats loads SciPy, which config loading does not need
     from reval.stats.ratio_stats import RatioStudy
@@ -31,8 +38,7 @@ _DEFAULT_COD_MAX = {cls: limit for cls, (limit, _) in _COD_MAX_SOURCES.items()}
 def _cod_max_starter() -> list[str]:
     """The [standards.cod_max] subtable of the starter: each default limit with its source."""
     return ([comment_line("[standards.cod_max]", "highest acceptable COD by property class")]
-            + [comment_line(f"{cls} = {toml_value(limit)}", source) for cls, (limit, source) in _COD_MAX_SOURCES.items()]
-            + ["# IAAO: a COD below 5.0 can point to sales chasing or an unrepresentative sample; worth a look."])
+            + [comment_line(f"{cls} = {toml_value(limit)}", source) for cls, (limit, source) in _COD_MAX_SOURCES.items()])
 
 
 @dataclass(frozen=True)
@@ -56,10 +62,18 @@ class Standards(Declared):
     cod_max: Mapping[str, float] = setting(
         _DEFAULT_COD_MAX, "highest acceptable COD by property class (IAAO); classes given are added to these",
         lo=0, lo_open=True, extends_default=True, starter=_cod_max_starter)
+    # A COD of the roll's values on the sales below this is a sign of sales chasing (IAAO Standard on Ratio
+    # Studies 2013: CODs below about 5.0 can point to sales chasing or an unrepresentative sample; from memory).
+    cod_min: float = setting(
+        5.0, "IAAO: a COD below this can point to sales chasing; `reval review` flags roll values below it",
+        lo=0, active=True)
+    verdict_rule: VerdictRule = setting(
+        "point", "common practice: judge the point estimate; \"interval\" judges its confidence interval (IAAO advises "
+        "intervals for small samples): inconclusive when it straddles a limit", active=True)
 
     def __hash__(self) -> int:
         return hash((self.median_ratio, tuple(sorted(self.cod_max.items())), self.cod_max_default,
-                     self.prd, self.prb, self.min_sales))
+                     self.prd, self.prb, self.min_sales, self.cod_min, self.verdict_rule))
 
     def cod_limit(self, property_class: str | None) -> float:
         """Maximum COD for a property class; cod_max_default when the class is None or not listed."""
@@ -70,7 +84,7 @@ class Standards(Declared):
 class Verdict:
     """Outcome of judging one statistic: status, the limit as shown to people, and the value judged."""
 
-    status: Literal["pass", "fail", "too_few_sales"]
+    status: VerdictStatus
     limit: str
     value: float
 
@@ -86,27 +100,43 @@ def _range_text(lo: float, hi: float) -> str:
     return f"{_fmt(lo, 2)}{'-' if lo >= 0 else ' to '}{_fmt(hi, 2)}"
 
 
+def _status(inside: bool, lo_inside: bool, hi_inside: bool, outside: bool, rule: VerdictRule) -> VerdictStatus:
+    """Pass or fail by the point estimate (`inside`), or by the interval: inside wholly, outside wholly, or
+    straddling a limit (an interval that cannot be computed judges nothing: inconclusive)."""
+    if rule == "point":
+        return "pass" if inside else "fail"
+    if lo_inside and hi_inside:
+        return "pass"
+    return "fail" if outside else "inconclusive"
+
+
 def judge(study: RatioStudy, standards: Standards, property_class: str | None) -> dict[str, Verdict]:
     """Verdicts for median ratio, COD, PRD and PRB; bounds are inclusive and judged on unrounded values.
 
-    A statistic that could not be computed (NaN) fails; with fewer than min_sales sales every
-    statistic is 'too_few_sales' whatever its value.
+    Under the point rule a statistic that could not be computed (NaN) fails; under the interval rule an
+    interval that could not be computed is inconclusive. With no sales every statistic is 'no_sales', with
+    fewer than min_sales 'too_few_sales', whatever its value.
     """
-    few = study.n < standards.min_sales
+    rule = standards.verdict_rule
 
-    def verdict(value: float, ok: bool, limit: str) -> Verdict:
-        return Verdict("too_few_sales" if few else "pass" if ok else "fail", limit, value)
-
-    def in_range(value: float, bounds: tuple[float, float]) -> Verdict:
-        return verdict(value, bounds[0] <= value <= bounds[1], _range_text(*bounds))
+    def in_range(value: float, ci: tuple[float, float], bounds: tuple[float, float]) -> VerdictStatus:
+        def ok(x: float) -> bool:
+            return bounds[0] <= x <= bounds[1]
+        outside = ci[1] < bounds[0] or ci[0] > bounds[1]   # False with a NaN end
+        return _status(ok(value), ok(ci[0]), ok(ci[1]), outside, rule)
 
     cod_max = standards.cod_limit(property_class)
-    return {
-        "median_ratio": in_range(study.median_ratio, standards.median_ratio),
-        "cod": verdict(study.cod, study.cod <= cod_max, f"<= {_fmt(cod_max, 0)}"),
-        "prd": in_range(study.prd, standards.prd),
-        "prb": in_range(study.prb, standards.prb),
+    statuses: dict[str, tuple[VerdictStatus, str, float]] = {
+        "median_ratio": (in_range(study.median_ratio, study.median_ratio_ci, standards.median_ratio),
+                         _range_text(*standards.median_ratio), study.median_ratio),
+        "cod": (_status(study.cod <= cod_max, True, study.cod_ci[1] <= cod_max, study.cod_ci[0] > cod_max, rule),
+                f"<= {_fmt(cod_max, 0)}", study.cod),
+        "prd": (in_range(study.prd, study.prd_ci, standards.prd), _range_text(*standards.prd), study.prd),
+        "prb": (in_range(study.prb, study.prb_ci, standards.prb), _range_text(*standards.prb), study.prb),
     }
+    overrule: VerdictStatus | None = ("no_sales" if study.n == 0 else
+                                      "too_few_sales" if study.n < standards.min_sales else None)
+    return {k: Verdict(overrule or status, limit, value) for k, (status, limit, value) in statuses.items()}
 
 
 def passes(verdicts: Mapping[str, Verdict]) -> bool:

@@ -51,7 +51,8 @@ class StudyGroup(TypedDict):
     prd_ci: list[float | None]
     prb: float | None
     prb_ci: list[float | None]
-    decile_median_ratios: list[float | None]
+    decile_median_ratios: list[float | None]          # by price decile
+    proxy_decile_median_ratios: list[float | None]    # by decile of the IAAO value proxy
     verdicts: dict[str, VerdictEntry]
     values_source: ValuesSource
     trimmed: NotRequired[list[TrimmedSale]]
@@ -87,6 +88,7 @@ def group_from_row(row: dict[str, Any], values_source: ValuesSource) -> StudyGro
             "prd": number(row["prd"]), "prd_ci": [number(row["prd_lo"]), number(row["prd_hi"])],
             "prb": number(row["prb"]), "prb_ci": [number(row["prb_lo"]), number(row["prb_hi"])],
             "decile_median_ratios": [number(v) for v in row["decile_medians"] or []],
+            "proxy_decile_median_ratios": [number(v) for v in row.get("proxy_decile_medians") or []],
             "verdicts": json.loads(row["verdicts"]), "values_source": values_source}
 
 

@@ -1,7 +1,8 @@
 """Ratio studies per group, stored so the app reads them without recomputing.
 
 The statistics are reval.ratio_stats (one implementation); this module groups sales, judges each group
-against the standards, labels what the values were, and stores and reads the results.
+against the standards, labels what the values were, and stores and reads the results. The approval gate
+judges one segment with the same code, now, under the current standards (`segment_judgement`).
 """
 from __future__ import annotations
 
@@ -13,15 +14,18 @@ import pandas as pd
 
 from reval.data.config import Config
 from reval.errors import UserError
+from reval.stats.judging import judging_sha256
 from reval.stats.ratio_stats import RatioStudy, ratio_study
 from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
 from reval.states import Grouping, ValuesSource
-from reval.stats.stored import StudyResult, load_study, study_id
+from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, study_id
 
-GROUP_COLUMNS: dict[str, str | None] = {"segment": "segment", "market_area": "market_area",
-                                        "class": "property_class", "all": None}
+GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_area": ("market_area",),
+                                             "class": ("property_class",),
+                                             "segment_class": ("segment", "property_class"), "all": ()}
+CLASS_SEPARATOR = " / "   # the group name of a segment x class study: "ASKR / single_family"
 
 
 def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.DataFrame:
@@ -51,40 +55,89 @@ def _group_row(sid: str, name: str, cls: str | None, s: RatioStudy, verdicts: di
             "prd": s.prd, "prd_lo": s.prd_ci[0], "prd_hi": s.prd_ci[1],
             "prb": s.prb, "prb_lo": s.prb_ci[0], "prb_hi": s.prb_ci[1],
             "decile_medians": [number(v) for v in s.decile_median_ratios],
+            "proxy_decile_medians": [number(v) for v in s.proxy_decile_median_ratios],
             "verdicts": json.dumps({k: {"status": v.status, "limit": v.limit, "value": number(v.value)}
                                     for k, v in verdicts.items()})}
 
 
+def _judged(frame: pd.DataFrame, sid: str, name: str, config: Config,
+            cls: str | None = None) -> tuple[dict[str, Any], pd.DataFrame]:
+    """One group's stored row (statistics and verdicts) and its trimmed sales; `cls` is the group's own class
+    when it is one (else the most common class among its sales sets the COD limit)."""
+    opts = config.study
+    s = ratio_study(frame["value"].to_numpy(float), frame["price"].to_numpy(float), confidence=opts.confidence,
+                    n_boot=opts.bootstrap, seed=opts.seed, trim_iqr_k=opts.trim_iqr_k)
+    cls = cls or _group_class(frame)
+    cut = frame.loc[s.trimmed]
+    trimmed = pd.DataFrame({"study_id": sid, "group_name": name, "sale_id": cut["sale_id"],
+                            "parcel_id": cut["parcel_id"], "ratio": cut["value"] / cut["price"]})
+    return _group_row(sid, name, cls, s, judge(s, config.standards, cls)), trimmed
+
+
+def _downweighted(frame: pd.DataFrame, sid: str, name: str) -> pd.DataFrame:
+    """A group's sales the fit gave a weight below 1, with why (model values only)."""
+    light = frame[frame["weight"] < 1]
+    return pd.DataFrame({"study_id": sid, "group_name": name, "sale_id": light["sale_id"],
+                         "parcel_id": light["parcel_id"], "weight": light["weight"], "reason": light["weight_reason"]})
+
+
+def _groups(store: Store, sales: pd.DataFrame, grouping: Grouping) -> list[tuple[str, str | None, pd.DataFrame]]:
+    """(name, own class or None, sales) of every group of the grouping, those without sales included."""
+    columns = list(GROUP_COLUMNS[grouping])
+    if not columns:
+        return [("all", None, sales)]
+    units = store.frame("study_units")[columns].drop_duplicates().astype(str)
+    keys = sales[columns[0]].astype(str)
+    for column in columns[1:]:
+        keys = keys + CLASS_SEPARATOR + sales[column].astype(str)
+    rows = keys.groupby(keys).indices
+    empty = sales.iloc[0:0]
+    out = []
+    for unit in units.itertuples(index=False):
+        name = CLASS_SEPARATOR.join(unit)
+        own = unit[-1] if "property_class" in columns else None
+        out.append((name, own, sales.iloc[rows[name]] if name in rows else empty))
+    return sorted(out, key=lambda g: g[0])
+
+
 def run_study(store: Store, config: Config, values_source: ValuesSource = "prior", grouping: Grouping = "segment",
               run_id: str | None = None) -> StudyResult:
-    """Compute, store (replacing the same study) and return a ratio study."""
+    """Compute, store (replacing the same study) and return a ratio study; every segment (market area,
+    class) is a group, those without sales reported as "no sales"."""
     sales = sales_for_study(store, values_source, run_id)
-    column = GROUP_COLUMNS[grouping]
-    groups = [("all", sales)] if column is None else list(sales.groupby(column, sort=True))
     sid = study_id(values_source, run_id, grouping)
     opts = config.study
-    rows, trimmed, downweighted = [], [], []
-    for name, frame in groups:
-        s = ratio_study(frame["value"].to_numpy(float), frame["price"].to_numpy(float), confidence=opts.confidence,
-                        n_boot=opts.bootstrap, seed=opts.seed, trim_iqr_k=opts.trim_iqr_k)
-        cls = _group_class(frame)
-        rows.append(_group_row(sid, str(name), cls, s, judge(s, config.standards, cls)))
-        cut = frame.loc[s.trimmed]
-        trimmed.append(pd.DataFrame({"study_id": sid, "group_name": str(name), "sale_id": cut["sale_id"],
-                                     "parcel_id": cut["parcel_id"], "ratio": cut["value"] / cut["price"]}))
-        if "weight" in frame:
-            light = frame[frame["weight"] < 1]
-            downweighted.append(pd.DataFrame({"study_id": sid, "group_name": str(name), "sale_id": light["sale_id"],
-                                              "parcel_id": light["parcel_id"], "weight": light["weight"],
-                                              "reason": light["weight_reason"]}))
-    groups_frame = pd.DataFrame(rows)
-    trimmed_frame = pd.concat(trimmed, ignore_index=True) if trimmed else pd.DataFrame()
-    downweighted_frame = pd.concat(downweighted, ignore_index=True) if downweighted else pd.DataFrame()
+    groups = _groups(store, sales, grouping)
+    judged = [_judged(frame, sid, name, config, cls) for name, cls, frame in groups]
+    groups_frame = pd.DataFrame([row for row, _ in judged])
+    cut = [t for _, t in judged]
+    trimmed_frame = pd.concat(cut, ignore_index=True) if cut else pd.DataFrame()
+    light = [_downweighted(frame, sid, name) for name, _, frame in groups if "weight" in frame]
+    downweighted_frame = pd.concat(light, ignore_index=True) if light else pd.DataFrame()
     with store.transaction():
         store.run("delete_study", [sid])
         store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
-                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256])
+                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config)])
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
         store.insert("insert_study_downweighted", downweighted_frame)
     return load_study(store, values_source, grouping, run_id)
+
+
+def segment_judgement(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
+                      segment: str) -> tuple[StudyGroup, list[StudyGroup]]:
+    """One segment's ratio statistics and verdicts computed now under the current standards and study
+    settings (nothing stored), and those of each of its property classes when it has several: what the
+    approval gate judges."""
+    sales = sales_for_study(store, values_source, run_id)
+    mine = sales[sales["segment"] == segment]
+    row, _ = _judged(mine, study_id(values_source, run_id, "segment"), segment, config)
+    classes = sorted(str(c) for c in store.frame("study_units").query("segment == @segment")["property_class"])
+    per_class = []
+    if len(classes) > 1:
+        sid = study_id(values_source, run_id, "segment_class")
+        for cls in classes:
+            class_row, _ = _judged(mine[mine["property_class"] == cls], sid, f"{segment}{CLASS_SEPARATOR}{cls}",
+                                   config, cls)
+            per_class.append(group_from_row(class_row, values_source))
+    return group_from_row(row, values_source), per_class

@@ -24,7 +24,7 @@ COLUMNS = (("segment", "Segment"), ("model", "Model (borrowed)"), ("median_ratio
            ("prd", "PRD"), ("prb", "PRB"), ("value_change", "Change"), ("state", "State"),
            ("sales", "Sales"), ("parcels", "Parcels"), ("market_area", "Market area"))
 SORT_ORDER = tuple(key for key, _ in COLUMNS)
-VERDICT_COLOURS = {"pass": "success", "fail": "error", "too_few_sales": "warning"}
+VERDICT_COLOURS = {"pass": "success", "fail": "error", "inconclusive": "warning", "too_few_sales": "warning"}
 
 
 class OverviewScreen(DataScreen):
@@ -111,7 +111,7 @@ class OverviewScreen(DataScreen):
             return Text(stat_cell(row["stats"][stat], stat, short=True), style=Style(color=colour) if colour else "")
 
         return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
-                verdict("prb"), percent(row["value_change"]), row["state"] or "–", f"{row['sales']:,}",
+                verdict("prb"), percent(row["value_change"]), row["batches"], f"{row['sales']:,}",
                 f"{row['parcels']:,}", row["market_area"]]
 
     def _label_columns(self, table: DataTable[Any]) -> None:
@@ -126,7 +126,7 @@ class OverviewScreen(DataScreen):
         assert self.data is not None
         parts = [f"{len(self.shown)} of {len(self.data['segments'])} segments",
                  f"sorted by {dict(COLUMNS)[self.sort_key]} {'descending' if self.descending else 'ascending'}"]
-        active = [name for name, on_ in (("failing only", self.failing_only),
+        active = [name for name, on_ in (("cannot be approved", self.failing_only),
                                          (f"market area {self.area}", self.area is not None),
                                          (f"state {self.state}", self.state is not None),
                                          (f"name contains '{self.search_text}'", bool(self.search_text))) if on_]
@@ -249,6 +249,11 @@ class OverviewScreen(DataScreen):
         model = self.data["stats_source"] == "model_out_of_fold"
         stats = row["stats"]
         self.reval.decide(kind, segment, gate_detail(stats, model) if kind == "approve" else "")
+
+    def action_restage(self) -> None:
+        segment = self.current_segment()
+        if segment is not None:
+            self.reval.restage([segment], replace=True)
 
     def action_refresh(self) -> None:
         self.reload()

@@ -1,4 +1,4 @@
-"""Modal prompts: one line of text (a note, a reason, a parcel id) and the export form."""
+"""Modal prompts: one line of text (a note, a reason, a parcel id), a confirmation and the export form."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -73,6 +73,38 @@ class ExportScreen(ModalScreen[tuple[Path, bool] | None]):
             self.query_one("#prompt-hint", Static).update("✗ A file path is required (Esc to cancel).")
             return
         self.dismiss((Path(text).expanduser(), self.query_one(Checkbox).value))
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+class ConfirmScreen(ModalScreen[str | None]):
+    """Say what a step will do and ask before doing it: Enter returns "yes", the optional extra key returns its
+    answer (e.g. "replace"), Esc returns None."""
+
+    CSS_PATH = "prompt.tcss"
+    BINDINGS = [Binding("escape", "cancel", "Cancel", id="confirm.cancel"),
+                Binding("enter", "answer('yes')", "Confirm", id="confirm.yes"),
+                Binding("r", "extra", "The other answer", show=False, id="confirm.extra")]
+
+    def __init__(self, title: str, lines: list[str], *, extra: tuple[str, str, str] | None = None) -> None:
+        """`extra` = ("r", answer, what r does): a second answer besides Enter's "yes"."""
+        super().__init__()
+        self.title_text, self.lines, self.extra = title, lines, extra
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="dialog"):
+            yield Label(self.title_text, id="prompt-title")
+            yield Static("\n".join(self.lines), id="prompt-detail", markup=False)
+            extra = f" · {self.extra[0]} {self.extra[2]}" if self.extra else ""
+            yield Static(f"Enter to confirm{extra} · Esc to cancel", id="prompt-hint", markup=False)
+
+    def action_answer(self, answer: str) -> None:
+        self.dismiss(answer)
+
+    def action_extra(self) -> None:
+        if self.extra is not None:
+            self.dismiss(self.extra[1])
 
     def action_cancel(self) -> None:
         self.dismiss(None)

@@ -96,9 +96,19 @@ def chasing_line(review: SegmentReview | None) -> str:
     c = review["sales_chasing"]
     verdicts = {"pass": "✓ no sign of sales chasing", "flagged": "✗ FLAGGED: possible sales chasing",
                 "too_few_sales": "~ too few sales to judge"}
-    p = "" if c["p_value"] is None else f", Mann-Whitney U p = {c['p_value']:.2g}"
+    figures = []
+    if c["p_value"] is not None and c["ks_p_value"] is not None:
+        figures.append(f"changes sold vs unsold: Mann-Whitney p = {c['p_value']:.2g}, Kolmogorov-Smirnov p = "
+                       f"{c['ks_p_value']:.2g}")
+    if c["roll_cod"] is not None:
+        figures.append(f"COD of the roll on the sales {c['roll_cod']:.1f}"
+                       + ("" if c["oof_cod"] is None else f" vs {c['oof_cod']:.1f} out of fold"))
+    if c["n_at_price"] is not None and c["expected_at_price"] is not None:
+        figures.append(f"{c['n_at_price']} valued at their sale price ({c['expected_at_price']:.1f} expected)")
+    why = "".join(f" ✗ {reason}." for reason in c["reasons"])
+    shown = f" ({'; '.join(figures)})" if figures else ""
     return (f"Sales-chasing check (batch {review['batch_id']}, {review['state']}): "
-            f"{verdicts.get(c['status'], c['status'])}{p} ({c['rule']}); {review['n_beyond_threshold']:,} "
+            f"{verdicts.get(c['status'], c['status'])}{shown}.{why} {review['n_beyond_threshold']:,} "
             "parcels change beyond the review threshold.")
 
 
@@ -141,7 +151,8 @@ class SegmentScreen(DataScreen):
                             yield Static("Ratio by sale price", classes="plot-title")
                             yield Chart(id="ratio-scatter")
                         with Vertical():
-                            yield Static("Median ratio by price decile", classes="plot-title")
+                            yield Static("Median ratio by decile of price and of value proxy",
+                                         classes="plot-title")
                             yield Chart(id="decile-chart")
             with TabPane("4 Value change", id="change"):
                 yield Plain("", id="change-summary")
@@ -177,7 +188,7 @@ class SegmentScreen(DataScreen):
         super().on_load_failed(message)
 
     def show_segment(self, d: SegmentDetail) -> None:
-        state = f" · batch {d['state']}" if d.get("state") else ""
+        state = f" · {d['batches']}" if d.get("state") else ""
         self.query_one("#segment-title", Static).update(
             f"Segment {d['segment']} · market area {d['market_area']} · {d['parcels']:,} parcels · "
             f"{d['sales']:,} qualified sales{state}")
@@ -278,14 +289,19 @@ class SegmentScreen(DataScreen):
         else:
             scatter.show(None)
         deciles = [v for v in e["decile_median_ratios"] if v is not None]
+        proxy = [v for v in e["proxy_decile_median_ratios"] if v is not None]
         chart = self.query_one("#decile-chart", Chart)
         if deciles:
             xs = list(range(1, len(deciles) + 1))
+            # sorting by price alone puts sales priced high by chance at the top: the value proxy (IAAO, half
+            # value, half price) shows the regressivity of the values themselves
             chart.show(ChartData((Layer("hline", y=(1.0,), style="reference", label="1.0"),
-                                  Layer("line", xs, deciles, style="line", label="median"),
-                                  Layer("points", xs, deciles, style="alt")),
+                                  Layer("line", xs, deciles, style="line", label="by price"),
+                                  Layer("points", xs, deciles, style="alt"),
+                                  Layer("line", list(range(1, len(proxy) + 1)), proxy, style="parent",
+                                        label="by value proxy")),
                                  x_range=(0.5, len(deciles) + 0.5),
-                                 x_format=lambda v: "low prices" if v < 1 else "high prices" if v > 10 else "",
+                                 x_format=lambda v: "low" if v < 1 else "high" if v > 10 else "",
                                  y_format=lambda v: f"{v:.2f}"))
         else:
             chart.show(None)
