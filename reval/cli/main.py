@@ -120,7 +120,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
     p.add_argument("--by", choices=list(GROUPINGS), default="segment",
-                   help="groups: segment, market area, property class, segment x class, or all sales")
+                   help="groups: segment, market area, property class, segment x class, all sales, value range (quintiles of "
+                        "the value proxy), age (decades of the age feature) or size (quintile bands of the size feature)")
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
