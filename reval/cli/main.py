@@ -128,6 +128,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
     p.set_defaults(func=cmd_study)
 
+    p = sub.add_parser("report", parents=[common], help="write the ratio-study report (HTML or PDF) for a reviewer or "
+                       "an oversight body: tables, plots, the sales used, the model and the decisions")
+    p.add_argument("out", type=Path, help="the file to write: NAME.html (one self-contained file) or NAME.pdf")
+    p.add_argument("--values", choices=["prior", "model"], default="prior",
+                   help="prior roll values, or the latest run's out-of-fold model values")
+    p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.report(_folder(a), a.out, a.values, a.run), render.report))
+
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
     p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
     p.set_defaults(func=cmd_fit)
