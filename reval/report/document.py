@@ -24,6 +24,7 @@ import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import matplotlib
 
@@ -33,8 +34,12 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from matplotlib.figure import Figure as MplFigure  # noqa: E402
 import matplotlib.image as mpimg  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
+from matplotlib.text import Text  # noqa: E402
 
 FIGURE_DPI = 130
+# Ligatures ("fi") become glyphs outside the font's text encoding that text extraction misreads; matplotlib
+# shapes them from 3.11 on and then accepts font features, so the PDF's text is turned off them there.
+PLAIN_TEXT: dict[str, Any] = {"fontfeatures": ["-liga"]} if hasattr(Text, "set_fontfeatures") else {}
 
 
 @dataclass(frozen=True)
@@ -202,7 +207,7 @@ PAGE_W, PAGE_H = 8.27, 11.69          # A4, inches
 MARGIN = 0.7
 TEXT_W = PAGE_W - 2 * MARGIN
 BODY_PT, TABLE_PT = 9.5, 7.5
-CHAR_W = 0.55 / 72                    # average DejaVu Sans advance per point of size, inches (measured roughly)
+CHAR_W = 0.6 / 72                     # a generous average DejaVu Sans advance per point of size, inches
 
 
 class _Pages:
@@ -217,7 +222,7 @@ class _Pages:
         self.close()
         self.page_no += 1
         self.fig = plt.figure(figsize=(PAGE_W, PAGE_H))
-        self.fig.text(MARGIN / PAGE_W, 0.4 / PAGE_H, self.footer, fontsize=7, color="#555")
+        self.fig.text(MARGIN / PAGE_W, 0.4 / PAGE_H, self.footer, fontsize=7, color="#555", **PLAIN_TEXT)
         self.fig.text(1 - MARGIN / PAGE_W, 0.4 / PAGE_H, f"page {self.page_no}", fontsize=7, color="#555", ha="right")
         self.y = PAGE_H - MARGIN
 
@@ -240,7 +245,7 @@ class _Pages:
         line_h = size * 1.45 / 72
         fig = self.need(line_h)
         self.y -= line_h
-        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom")
+        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom", **PLAIN_TEXT)
 
     def wrapped(self, s: str, size: float, weight: str = "normal", color: str = "#222") -> None:
         width = max(20, int(TEXT_W / (size * CHAR_W)))
@@ -262,7 +267,7 @@ class _Pages:
 
 def _column_layout(t: Table) -> tuple[list[float], float]:
     """Column widths in inches, proportional to their longest text, and the font size that fits the text width."""
-    chars = [max([len(c)] + [len(cell_text(r[i])) for r in t.rows if i < len(r)]) + 2 for i, c in enumerate(t.columns)]
+    chars = [max([len(c)] + [len(cell_text(r[i])) for r in t.rows if i < len(r)]) + 3 for i, c in enumerate(t.columns)]
     natural = [n * TABLE_PT * CHAR_W for n in chars]
     shrink = min(1.0, TEXT_W / sum(natural))
     return [w * shrink for w in natural], max(5.0, TABLE_PT * shrink)
@@ -278,9 +283,9 @@ def _pdf_table(pages: _Pages, t: Table) -> None:
         pages.y -= line_h
         for x, w, s, right in zip(lefts, widths, cells, numeric):
             if right:
-                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right")
+                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right", **PLAIN_TEXT)
             else:
-                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight)
+                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, **PLAIN_TEXT)
 
     header = list(t.columns)
     numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(header))]
