@@ -188,3 +188,25 @@ def test_mann_whitney_from_counts_equals_scipy() -> None:
                                (unsold[:, None] == values).sum(0).astype(float))
     reference = stats.mannwhitneyu(sold, unsold, method="asymptotic")   # SciPy: tie and continuity corrections
     assert u == pytest.approx(reference.statistic, rel=1e-12) and p == pytest.approx(reference.pvalue, rel=1e-9)
+
+
+def test_the_app_writes_the_report_to_the_project_folder(reported: dict) -> None:
+    import asyncio
+
+    from helpers import settle
+    from tui.app import RevalApp
+
+    folder = reported["folder"]
+
+    async def scenario() -> tuple[str, str]:
+        app = RevalApp(folder)
+        async with app.run_test(size=(100, 32)) as pilot:
+            await settle(pilot)
+            await pilot.press("w")
+            await settle(pilot)
+            return app.messages[-1]
+
+    severity, text = asyncio.run(scenario())
+    target = folder / "ratio_study_report.html"
+    assert severity == "information" and str(target) in text and "out-of-fold model values" in text
+    assert "<h2>Decisions</h2>" in target.read_text()

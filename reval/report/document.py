@@ -21,7 +21,7 @@ import html
 import io
 import math
 import textwrap
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -211,10 +211,11 @@ CHAR_W = 0.6 / 72                     # a generous average DejaVu Sans advance p
 
 
 class _Pages:
-    """A cursor over A4 pages: place text and images top to bottom, start a new page when one is full."""
+    """A cursor over A4 pages: place text and images top to bottom, start a new page when one is full; `save`
+    receives each finished page."""
 
-    def __init__(self, pdf: PdfPages, footer: str) -> None:
-        self.pdf, self.footer, self.page_no = pdf, footer, 0
+    def __init__(self, save: Callable[[MplFigure], None], footer: str) -> None:
+        self.save, self.footer, self.page_no = save, footer, 0
         self.fig: MplFigure | None = None
         self.y = 0.0
 
@@ -228,7 +229,7 @@ class _Pages:
 
     def close(self) -> None:
         if self.fig is not None:
-            self.pdf.savefig(self.fig)
+            self.save(self.fig)
             plt.close(self.fig)
             self.fig = None
 
@@ -302,29 +303,46 @@ def _pdf_table(pages: _Pages, t: Table) -> None:
     pages.gap(0.12)
 
 
+def _lay_out(doc: Document, save: Callable[[MplFigure], None]) -> None:
+    """Lay the document out on A4 pages, handing each finished page to `save`."""
+    pages = _Pages(save, doc.title)
+    pages.wrapped(doc.title, 18, "bold")
+    if doc.subtitle:
+        pages.wrapped(doc.subtitle, 11, color="#444")
+    pages.gap(0.15)
+    for s in doc.sections:
+        pages.need(1.5)   # a section title never sits alone at the foot of a page
+        pages.gap(0.12)
+        pages.wrapped(s.title, 13, "bold")
+        pages.gap(0.05)
+        for b in s.blocks:
+            if isinstance(b, Paragraph):
+                pages.wrapped(b.text, BODY_PT)
+                pages.gap(0.06)
+            elif isinstance(b, Table):
+                _pdf_table(pages, b)
+            else:
+                pages.image(b)
+                if b.caption:
+                    pages.wrapped(b.caption, 8, color="#444")
+                pages.gap(0.12)
+    pages.close()
+
+
 def write_pdf(doc: Document, path: Path) -> None:
-    """Lay the document out on A4 pages; every string is PDF text (Type 42 fonts, so text extracts cleanly)."""
+    """The document on A4 pages; every string is PDF text (Type 42 fonts, so text extracts cleanly)."""
     with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}), PdfPages(path) as pdf:
         pdf.infodict()["Title"] = doc.title
-        pages = _Pages(pdf, doc.title)
-        pages.wrapped(doc.title, 18, "bold")
-        if doc.subtitle:
-            pages.wrapped(doc.subtitle, 11, color="#444")
-        pages.gap(0.15)
-        for s in doc.sections:
-            pages.need(1.5)   # a section title never sits alone at the foot of a page
-            pages.gap(0.12)
-            pages.wrapped(s.title, 13, "bold")
-            pages.gap(0.05)
-            for b in s.blocks:
-                if isinstance(b, Paragraph):
-                    pages.wrapped(b.text, BODY_PT)
-                    pages.gap(0.06)
-                elif isinstance(b, Table):
-                    _pdf_table(pages, b)
-                else:
-                    pages.image(b)
-                    if b.caption:
-                        pages.wrapped(b.caption, 8, color="#444")
-                    pages.gap(0.12)
-        pages.close()
+        _lay_out(doc, pdf.savefig)
+
+
+def write_page_png(doc: Document, path: Path, page: int = 1, dpi: int = 60) -> None:
+    """One page of the PDF layout as a PNG (a preview, e.g. the README's picture of a page)."""
+    def save(fig: MplFigure) -> None:
+        if page_no[0] == page:
+            fig.savefig(path, dpi=dpi)
+        page_no[0] += 1
+
+    page_no = [1]
+    with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}):
+        _lay_out(doc, save)

@@ -298,13 +298,10 @@ def _detail(value: Any) -> dict[str, Any]:
     return json.loads(value) if isinstance(value, str) else dict(value or {})
 
 
-def write_report(store: Store, config: Config, out: Path, source: ValuesSource, run: str | None,
-                 model_run: str | None) -> ReportResult:
-    """Write the report to `out` (.html or .pdf) for the study of `source` values (`run` for model values);
-    `model_run` is the run whose model and value changes are documented (None: no run yet)."""
-    if out.suffix.lower() not in (".html", ".htm", ".pdf"):
-        raise UserError(f"{out}: the report is written as .html or .pdf; name the file with one of those endings.")
-    start = time.perf_counter()
+def build_report(store: Store, config: Config, source: ValuesSource, run: str | None,
+                 model_run: str | None) -> tuple[Document, list[str]]:
+    """The report's document for the study of `source` values (`run` for model values); `model_run` is the run
+    whose model and value changes are documented (None: no run yet). Also the groupings studied first."""
     studies, studied = _studies(store, config, source, run)
     doc = Document(f"Ratio study: {config.jurisdiction}",
                    subtitle=f"valuation date {config.valuation_date} - {SOURCE_LABELS[source]}")
@@ -316,6 +313,16 @@ def write_report(store: Store, config: Config, out: Path, source: ValuesSource, 
     _sales_used(doc, store, config, studies)
     _model(doc, store, config, model_run)
     _decisions(doc, store)
+    return doc, studied
+
+
+def write_report(store: Store, config: Config, out: Path, source: ValuesSource, run: str | None,
+                 model_run: str | None) -> ReportResult:
+    """Write the report to `out` (.html or .pdf; a partial file is renamed into place only when complete)."""
+    if out.suffix.lower() not in (".html", ".htm", ".pdf"):
+        raise UserError(f"{out}: the report is written as .html or .pdf; name the file with one of those endings.")
+    start = time.perf_counter()
+    doc, studied = build_report(store, config, source, run, model_run)
     partial = out.parent / f"{out.stem}.partial{out.suffix}"   # the suffix picks the format
     try:
         doc.write(partial)
