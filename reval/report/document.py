@@ -207,7 +207,7 @@ PAGE_W, PAGE_H = 8.27, 11.69          # A4, inches
 MARGIN = 0.7
 TEXT_W = PAGE_W - 2 * MARGIN
 BODY_PT, TABLE_PT = 9.5, 7.5
-CHAR_W = 0.6 / 72                     # a generous average DejaVu Sans advance per point of size, inches
+CHAR_W = 0.55 / 72                    # average DejaVu Sans advance per point of size, inches (for wrapping)
 
 
 class _Pages:
@@ -266,40 +266,64 @@ class _Pages:
         ax.set_axis_off()
 
 
-def _column_layout(t: Table) -> tuple[list[float], float]:
-    """Column widths in inches, proportional to their longest text, and the font size that fits the text width."""
-    chars = [max([len(c)] + [len(cell_text(r[i])) for r in t.rows if i < len(r)]) + 3 for i, c in enumerate(t.columns)]
-    natural = [n * TABLE_PT * CHAR_W for n in chars]
-    shrink = min(1.0, TEXT_W / sum(natural))
-    return [w * shrink for w in natural], max(5.0, TABLE_PT * shrink)
+MONO_W = 0.602                        # DejaVu Sans Mono's advance, in ems
+MIN_TABLE_PT = 5.5
+GAP = "  "                            # between table columns
+
+
+def _table_lines(t: Table) -> tuple[list[str], list[list[str]], float]:
+    """A table as monospaced lines (one text per line, so a long table draws fast): the header line(s), each
+    row's line(s), and the font size. Numeric columns are right-aligned; when the table is too wide even at the
+    smallest size, its widest text column is wrapped (nothing is cut)."""
+    cells = [[cell_text(c) for c in r] + [""] * (len(t.columns) - len(r)) for r in t.rows]
+    numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(t.columns))]
+    widths = [max([len(c)] + [len(r[i]) for r in cells]) for i, c in enumerate(t.columns)]
+    most = int(TEXT_W * 72 / (MONO_W * MIN_TABLE_PT))
+
+    def total() -> int:
+        return sum(widths) + len(GAP) * (len(widths) - 1)
+
+    while total() > most:
+        text_cols = [i for i in range(len(widths)) if not numeric[i]] or list(range(len(widths)))
+        widest = max(text_cols, key=lambda i: widths[i])
+        cut = max(12, widths[widest] - (total() - most))
+        if cut >= widths[widest]:
+            break
+        widths[widest] = cut
+
+    def lines(row: list[str]) -> list[str]:
+        parts = [textwrap.wrap(c, w) or [""] if len(c) > w else [c] for c, w in zip(row, widths)]
+        height = max(len(p) for p in parts)
+        return [GAP.join((p[k] if k < len(p) else "").rjust(w) if num else (p[k] if k < len(p) else "").ljust(w)
+                         for p, w, num in zip(parts, widths, numeric)).rstrip() for k in range(height)]
+
+    size = max(MIN_TABLE_PT, min(TABLE_PT, TEXT_W * 72 / (MONO_W * max(1, total()))))
+    return lines(list(t.columns)), [lines(r) for r in cells], size
 
 
 def _pdf_table(pages: _Pages, t: Table) -> None:
-    widths, size = _column_layout(t)
-    lefts = [MARGIN + sum(widths[:i]) for i in range(len(widths))]
+    header, rows, size = _table_lines(t)
+    line_h = size * 1.4 / 72
 
-    def row(cells: list[str], weight: str, numeric: list[bool]) -> None:
-        line_h = size * 1.5 / 72
+    def line(text: str, weight: str) -> None:
         fig = pages.need(line_h)
         pages.y -= line_h
-        for x, w, s, right in zip(lefts, widths, cells, numeric):
-            if right:
-                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right", **PLAIN_TEXT)
-            else:
-                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, **PLAIN_TEXT)
+        fig.text(MARGIN / PAGE_W, pages.y / PAGE_H, text, fontsize=size, weight=weight, family="DejaVu Sans Mono",
+                 **PLAIN_TEXT)
 
-    header = list(t.columns)
-    numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(header))]
     if t.caption:
         pages.wrapped(t.caption, BODY_PT, "bold")
-    row(header, "bold", numeric)
+    for h in header:
+        line(h, "bold")
     page = pages.page_no
-    for r in t.rows:
-        pages.need(size * 1.5 / 72)   # a new page when full; then repeat the header
+    for r in rows:
+        pages.need(line_h * len(r))   # a new page when full; then repeat the header
         if pages.page_no != page:
-            row(header, "bold", numeric)
+            for h in header:
+                line(h, "bold")
             page = pages.page_no
-        row([cell_text(c) for c in r], "normal", [cell_value(c) is not None for c in r])
+        for text in r:
+            line(text, "normal")
     pages.gap(0.12)
 
 
