@@ -210,3 +210,10 @@ def test_the_app_writes_the_report_to_the_project_folder(reported: dict) -> None
     target = folder / "ratio_study_report.html"
     assert severity == "information" and str(target) in text and "out-of-fold model values" in text
     assert "<h2>Decisions</h2>" in target.read_text()
+
+
+def test_a_report_named_without_html_or_pdf_is_refused_plainly(reported: dict) -> None:
+    folder = reported["folder"]
+    done = run_reval("report", str(folder / "study.docx"), "--project", str(folder))
+    assert done.returncode == 1 and "written as .html or .pdf" in done.stderr and "Traceback" not in done.stderr
+    assert not (folder / "study.docx").exists()
