@@ -4,7 +4,8 @@ Builds each project (import, sales, a fit without the reference models, which st
 times `actions.report` for model values (every study already stored: what a reviewer's report costs) in HTML
 and PDF, and for prior values the first time (the prior groupings are studied and stored first) and again.
 Prints a table and writes bench/results/report.json. Usage:
-    python bench/report.py [--parcels 100000 1000000] [--page-png docs/report_page.png]
+    python bench/report.py [--parcels 100000 1000000] [--no-fit] [--page-png docs/report_page.png]
+(--no-fit: no run, so only the prior-value reports are timed: the parcel-level parts without the fit's cost)
 (--page-png: also draw the first plots page of the first size's model report as a small PNG, the README's picture)
 The target (issue 13) is a million parcels in under a minute.
 """
@@ -29,7 +30,7 @@ from reval.report.document import write_page_png
 from reval.report.study_report import build_report
 from reval.service import actions
 
-RESULTS = Path(__file__).resolve().parent / "results" / "report.json"
+RESULTS = Path(__file__).resolve().parent / "results" / "report.json"   # --no-fit: report_no_fit.json
 PLOTS_PAGE = 3
 
 
@@ -48,7 +49,7 @@ def page_png(folder: Path, path: Path) -> None:
     write_page_png(doc, path, page=PLOTS_PAGE, dpi=60)
 
 
-def measure(n_parcels: int, png: Path | None) -> dict[str, float | int]:
+def measure(n_parcels: int, png: Path | None, fit: bool) -> dict[str, float | int]:
     row: dict[str, float | int] = {"parcels": n_parcels}
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
@@ -58,16 +59,19 @@ def measure(n_parcels: int, png: Path | None) -> dict[str, float | int]:
         row["sales"] = run_import(config).sales
         with open_store(config.database) as store:
             prepare_sales(store, config)
-            fit_run(store, config, references=False)
+            if fit:
+                fit_run(store, config, references=False)
         row["build_s"] = time.perf_counter() - start
-        row["model_html_s"], row["figures"] = _timed(folder, folder / "model.html", "model")
-        row["model_pdf_s"], _ = _timed(folder, folder / "model.pdf", "model")
+        if fit:
+            row["model_html_s"], row["figures"] = _timed(folder, folder / "model.html", "model")
+            row["model_pdf_s"], _ = _timed(folder, folder / "model.pdf", "model")
         row["prior_html_first_s"], _ = _timed(folder, folder / "prior.html", "prior")
-        row["prior_html_again_s"], _ = _timed(folder, folder / "prior.html", "prior")
-        if png is not None:
+        row["prior_html_again_s"], row["prior_figures"] = _timed(folder, folder / "prior.html", "prior")
+        row["prior_pdf_s"], _ = _timed(folder, folder / "prior.pdf", "prior")
+        if png is not None and fit:
             page_png(folder, png)
-        row["html_mb"] = (folder / "model.html").stat().st_size / 1e6
-        row["pdf_mb"] = (folder / "model.pdf").stat().st_size / 1e6
+        row["html_mb"] = (folder / "prior.html").stat().st_size / 1e6
+        row["pdf_mb"] = (folder / "prior.pdf").stat().st_size / 1e6
     row["peak_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return row
 
@@ -76,16 +80,18 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--parcels", type=int, nargs="+", default=[100_000])
     parser.add_argument("--page-png", type=Path, default=None)
+    parser.add_argument("--no-fit", action="store_true")
     args = parser.parse_args()
     rows = []
     for i, n in enumerate(args.parcels):
-        rows.append(measure(n, args.page_png if i == 0 else None))
+        rows.append(measure(n, args.page_png if i == 0 else None, not args.no_fit))
         print("  ".join(f"{k}={v:,.1f}" if isinstance(v, float) else f"{k}={v:,}" for k, v in rows[-1].items()),
               flush=True)
-    RESULTS.parent.mkdir(parents=True, exist_ok=True)
-    RESULTS.write_text(json.dumps({"machine": {"platform": platform.platform(), "python": platform.python_version(),
+    out = RESULTS.with_name("report_no_fit.json") if args.no_fit else RESULTS
+    out.parent.mkdir(parents=True, exist_ok=True)
+    out.write_text(json.dumps({"machine": {"platform": platform.platform(), "python": platform.python_version(),
                                                "cpus": os.cpu_count()}, "rows": rows}, indent=2))
-    print(f"wrote {RESULTS}")
+    print(f"wrote {out}")
 
 
 if __name__ == "__main__":
