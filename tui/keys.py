@@ -44,13 +44,13 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Stage values from the latest run for every segment without a held or approved batch (asks first)",
               show=False),
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
-    KeyAction("app.report", "w", "app.write_report", "app", "Report",
-              "Write the ratio-study report (HTML) to the project folder: model values of the latest run, "
-              "prior values before any", show=False),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
               "Cancel the fit or valuation that is running", show=False),
     KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
               show=False),
+    KeyAction("app.report", "w", "app.write_report", "app", "Report",
+              "Write the ratio-study report (HTML) to the project folder: model values of the latest run, "
+              "prior values before any", show=False),
     # overview
     KeyAction("overview.down", "j,down", "cursor_down", "overview", "Down", "Next segment", show=False),
     KeyAction("overview.up", "k,up", "cursor_up", "overview", "Up", "Previous segment", show=False),

@@ -28,6 +28,7 @@ GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_ar
                                              "segment_class": ("segment", "property_class"), "all": ()}
 CLASS_SEPARATOR = " / "   # the group name of a segment x class study: "ASKR / single_family"
 BANDS = 5                 # value ranges and size bands are quintiles (common practice)
+BANDED_GROUPINGS: tuple[Grouping, ...] = ("value_range", "age", "size")   # groups made from values, not names
 UNKNOWN = "unknown"       # the age or size group of parcels without the feature's value
 
 
