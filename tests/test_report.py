@@ -217,3 +217,22 @@ def test_a_report_named_without_html_or_pdf_is_refused_plainly(reported: dict) -
     done = run_reval("report", str(folder / "study.docx"), "--project", str(folder))
     assert done.returncode == 1 and "written as .html or .pdf" in done.stderr and "Traceback" not in done.stderr
     assert not (folder / "study.docx").exists()
+
+
+def test_age_and_size_groups_hold_the_sales_of_their_decade_and_band(reported: dict) -> None:
+    folder = reported["folder"]
+    age = actions.study(folder, "prior", "age")["groups"]
+    expected = query_frame(folder, """
+        SELECT CAST(floor(v.value / 10) * 10 AS INTEGER) || 's' AS decade, count(DISTINCT a.sale_id) AS n
+        FROM adjusted_sales a JOIN parcels p USING (parcel_id)
+        JOIN feature_values v ON v.parcel_id = a.parcel_id
+         AND v.position = (SELECT position FROM features WHERE name = 'year_built')
+        WHERE p.prior_value > 0 GROUP BY ALL""")
+    counts = {g["group"]: g["n"] + g["n_trimmed"] for g in age}
+    assert {k: v for k, v in counts.items() if v} == dict(zip(expected["decade"], expected["n"]))
+    size = actions.study(folder, "prior", "size")["groups"]
+    assert [g["group"].split(":")[0] for g in size] == ["1", "2", "3", "4", "5"]   # quintile bands, in order
+    assert sum(g["n"] + g["n_trimmed"] for g in size) == sum(counts.values())
+    value_range = actions.study(folder, "prior", "value_range")["groups"]
+    shares = np.array([g["n"] + g["n_trimmed"] for g in value_range]) / sum(counts.values())
+    assert len(value_range) == 5 and np.all(np.abs(shares - 0.2) < 0.05)   # quintiles (edges rounded to 2 digits)
