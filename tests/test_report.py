@@ -236,3 +236,14 @@ def test_age_and_size_groups_hold_the_sales_of_their_decade_and_band(reported: d
     value_range = actions.study(folder, "prior", "value_range")["groups"]
     shares = np.array([g["n"] + g["n_trimmed"] for g in value_range]) / sum(counts.values())
     assert len(value_range) == 5 and np.all(np.abs(shares - 0.2) < 0.05)   # quintiles (edges rounded to 2 digits)
+
+
+def test_decile_intervals_centre_on_the_stored_decile_medians() -> None:
+    from reval.stats.ratio_stats import decile_median_cis, decile_medians, median_ci
+
+    rng = np.random.default_rng(3)
+    ratios, key = rng.lognormal(0, 0.15, 937), rng.lognormal(12, 0.5, 937)
+    cis = decile_median_cis(ratios, key, 0.9)
+    assert np.array_equal(cis[:, 0], decile_medians(ratios, key))
+    lowest = ratios[key < np.percentile(key, 10)]   # decile 0: below the 10th percentile
+    assert tuple(cis[0, 1:]) == median_ci(lowest, 0.9)

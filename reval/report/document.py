@@ -20,6 +20,7 @@ import base64
 import html
 import io
 import math
+import struct
 import textwrap
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -115,11 +116,10 @@ class Section:
         """Render a matplotlib figure now (PNG) and close it, so a long report holds no open figures."""
         buffer = io.BytesIO()
         fig.savefig(buffer, format="png", dpi=FIGURE_DPI, bbox_inches="tight")
-        width, height = fig.get_size_inches()
         plt.close(fig)
-        image = mpimg.imread(io.BytesIO(buffer.getvalue()), format="png")
-        h_px, w_px = image.shape[:2]
-        self.blocks.append(Figure(buffer.getvalue(), w_px / FIGURE_DPI, h_px / FIGURE_DPI, caption))
+        png = buffer.getvalue()
+        w_px, h_px = struct.unpack(">II", png[16:24])   # the PNG header's width and height (after tight cropping)
+        self.blocks.append(Figure(png, w_px / FIGURE_DPI, h_px / FIGURE_DPI, caption))
 
 
 @dataclass
