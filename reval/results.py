@@ -25,6 +25,21 @@ class SegmentSales(TypedDict):
     excluded_by_reason: dict[str, int]
 
 
+class RepeatSale(TypedDict):
+    """One sale of a parcel sold more than once in the sale window; `latest` is the one [sales] repeat_sales =
+    "latest" keeps (if it passes the other rules), `qualified` and `reason` what the sales step made of it."""
+
+    parcel_id: str
+    segment: str
+    sale_id: str
+    sale_date: str
+    sale_price: float
+    n_sales: int
+    latest: bool
+    qualified: bool | None
+    reason: str | None
+
+
 class SalesCounts(TypedDict):
     """Qualified and excluded sales, in all and per segment, with each exclusion's reason."""
 
@@ -33,6 +48,7 @@ class SalesCounts(TypedDict):
     excluded_by_reason: dict[str, int]
     segments: list[SegmentSales]
     trend_notes: list[str]     # no trend (sales span under two months), thin recent months, a wide band
+    repeat_sales: list[RepeatSale]
 
 
 class SaleDecision(TypedDict):

@@ -22,6 +22,7 @@ from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 LISTED = 10  # down-weighted sales listed under a study or a review
+LISTED_REPEATS = 40  # repeat sales listed under `reval sales`
 
 
 def console(stderr: bool = False) -> Console:
@@ -109,6 +110,16 @@ def sales(result: dict[str, Any], console: Console) -> None:
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
     for note in result["trend_notes"]:
         console.print(f"Market trend: {shown(note)}.", highlight=False)
+    repeats = result["repeat_sales"]
+    if repeats:
+        parcels = len({r["parcel_id"] for r in repeats})
+        records_table(f"Repeat sales: {parcels:,} parcels sold more than once in the sale window"
+                      + (f" (the first {LISTED_REPEATS} of {len(repeats):,} sales; all with `reval check --csv FILE`)"
+                         if len(repeats) > LISTED_REPEATS else ""),
+                      [{"parcel": r["parcel_id"], "segment": r["segment"], "sale": r["sale_id"], "date": r["sale_date"],
+                        "price": money(r["sale_price"]), "latest": "yes" if r["latest"] else "",
+                        "sales step": "qualified" if r["qualified"] else r["reason"] or ""}
+                       for r in repeats[:LISTED_REPEATS]], console)
 
 
 def sale_decision(r: dict[str, Any], console: Console) -> None:

@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind, FeatureShape
+from reval.states import FeatureKind, FeatureShape, RepeatSales
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -152,6 +152,9 @@ class SalesRules(Declared):
                                          "a package's summed values with its one price)", active=True)
     multi_parcel_in_fit: bool = setting(False, "when multi-parcel sales qualify, also fit each parcel at its share "
                                         "of the price (by prior value)")
+    repeat_sales: RepeatSales = setting("latest", '"latest": of a parcel sold more than once in the sale window, only '
+                                        'its latest sale that passes the other rules counts (the others: "earlier '
+                                        'repeat sale"; two on one day: one is kept); "all" keeps every sale')
 
     def check(self) -> None:
         if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:

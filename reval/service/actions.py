@@ -76,11 +76,11 @@ def decide_sale(folder: Path, sale_id: str, decision: SaleChoice, reason: str) -
 
 
 def sales_report(folder: Path) -> SalesCounts:
-    """The stored qualification counts."""
+    """The stored qualification counts and the repeat sales."""
     from reval.data.sales import stored_summary
 
-    with open_project(folder) as (_, store):
-        return stored_summary(store).as_dict()
+    with open_project(folder) as (config, store):
+        return stored_summary(store, config).as_dict()
 
 
 def segment_overview(folder: Path) -> list[Record]:
