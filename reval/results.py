@@ -222,3 +222,48 @@ class Manifest(TypedDict):
 class ExportResult(Manifest):
     path: str
     manifest: str
+
+
+class CheckNotRun(TypedDict):
+    """A check that could not run on this project, and why (e.g. no feature holds the number of bathrooms)."""
+
+    check: str
+    reason: str
+
+
+class CheckSegment(TypedDict):
+    """One segment in the data-quality check: its parcels, those sold (whose values the sold range comes from)
+    and its problems per check (checks without a problem left out)."""
+
+    segment: str
+    parcels: int
+    sold_parcels: int
+    problems: int
+    counts: dict[str, int]
+
+
+class CheckReport(TypedDict):
+    """`reval check`: problems per segment and check, the checks with what each lists, those that could not run,
+    and the CSV of every row when one was asked for."""
+
+    valuation_date: str
+    sale_window: list[str]
+    basis: str                     # the sales the sold ranges come from: qualified, or all in the window
+    checks: dict[str, str]
+    segments: list[CheckSegment]
+    totals: dict[str, int]
+    not_run: list[CheckNotRun]
+    csv: dict[str, Any] | None     # {"path": ..., "rows": ...}
+
+
+class CheckPage(TypedDict):
+    """One page of the check's rows (parcel_id, sale_id, segment, code, feature, value, problem) with the filters
+    and sort that chose it."""
+
+    page: int
+    pages: int
+    total: int
+    segment: str | None
+    code: str | None
+    sort: str
+    rows: list[dict[str, Any]]

@@ -122,6 +122,31 @@ def sales(result: dict[str, Any], console: Console) -> None:
                        for r in repeats[:LISTED_REPEATS]], console)
 
 
+def check(r: dict[str, Any], console: Console) -> None:
+    total = sum(r["totals"].values())
+    console.print(f"Data check: {total:,} problems in {sum(1 for s in r['segments'] if s['problems'])} of "
+                  f"{len(r['segments'])} segments (sold ranges from the {r['basis']}, {r['sale_window'][0]} to "
+                  f"{r['sale_window'][1]}).")
+    segments: dict[str, int] = {}
+    for s in r["segments"]:
+        for code in s["counts"]:
+            segments[code] = segments.get(code, 0) + 1
+    records_table("Problems per check", [{"check": code, "rows": n, "segments": segments[code]}
+                                         for code, n in r["totals"].items()], console)
+    for code in r["totals"]:
+        console.print(f"  {code}: {r['checks'][code]}", highlight=False)
+    records_table("Problems per segment", [
+        {"segment": s["segment"], "parcels": s["parcels"], "sold": s["sold_parcels"], "problems": s["problems"],
+         "by check": ", ".join(f"{code} {n:,}" for code, n in sorted(s["counts"].items(), key=lambda kv: -kv[1]))}
+        for s in r["segments"]], console)
+    for n in r["not_run"]:
+        console.print(f"Not run: {n['check']}: {shown(n['reason'])}.", highlight=False)
+    if r["csv"]:
+        console.print(f"Wrote {r['csv']['rows']:,} rows to {shown(r['csv']['path'])}.")
+    elif total:
+        console.print("Every row (parcel, sale, segment, check, feature, value, problem): reval check --csv FILE")
+
+
 def sale_decision(r: dict[str, Any], console: Console) -> None:
     what = "excluded from models and ratio studies" if r["decision"] == "exclude" else "included at full weight"
     console.print(f"Sale {r['sale_id']} ({', '.join(r['parcels'])}, segment {r['segment']}) {what}: {r['reason']}")

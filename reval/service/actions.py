@@ -19,7 +19,7 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
+    from reval.service.types import (BatchStates, CheckReport, CompareResult, Decision, DemoSummary, Event, EventLog,
                                      ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
                                      SalesCounts, StagePlan, StageResult, StudyResult)
 
@@ -81,6 +81,26 @@ def sales_report(folder: Path) -> SalesCounts:
 
     with open_project(folder) as (config, store):
         return stored_summary(store, config).as_dict()
+
+
+def check_data(folder: Path, csv_path: Path | None = None) -> CheckReport:
+    """The data-quality check before fitting: problems per segment and check, and every row in a CSV when
+    `csv_path` is given (the database is only read)."""
+    from reval.data import check
+
+    with open_project(folder) as (config, store):
+        scope = check.build_check(store, config)
+        segments = check.segment_counts(store)
+        written = None if csv_path is None else {"path": str(csv_path), "rows": check.write_rows(store, config, csv_path)}
+    totals: dict[str, int] = {}
+    for s in segments:
+        for code, n in s["counts"].items():
+            totals[code] = totals.get(code, 0) + n
+    return {"valuation_date": config.valuation_date.isoformat(),
+            "sale_window": [config.sale_window_start.isoformat(), config.valuation_date.isoformat()],
+            "basis": scope.basis, "checks": dict(check.CHECKS), "segments": segments,
+            "totals": {code: totals[code] for code in check.CHECKS if code in totals},
+            "not_run": list(scope.not_run), "csv": written}
 
 
 def segment_overview(folder: Path) -> list[Record]:
