@@ -150,3 +150,15 @@ def test_checks_that_need_a_missing_feature_say_they_did_not_run(tmp_path: Path)
     set_section(folder, "check", 'bathrooms = "garage"\n')   # a feature of the wrong kind is named, not used
     not_run = {n["check"]: n["reason"] for n in actions.check_data(folder)["not_run"]}
     assert "binary" in not_run["no_bathroom"]
+
+
+def test_one_segment_checked_alone_gives_the_rows_it_gets_among_all(checked: Path, tmp_path: Path) -> None:
+    # the app builds the check for the segment it shows; the rows must not depend on that
+    out = tmp_path / "all.csv"
+    actions.check_data(checked, csv_path=out)
+    with out.open(newline="", encoding="utf-8") as handle:
+        north = [(r["parcel_id"], r["sale_id"] or None, r["check"], r["feature"] or None, r["value"] or None,
+                  r["problem"]) for r in csv.DictReader(handle) if r["segment"] == "north"]
+    alone = [(r["parcel_id"], r["sale_id"], r["code"], r["feature"], r["value"], r["problem"])
+             for r in _all_rows(checked, segment="north")]
+    assert alone == north and len(alone) > len(PLANTED)

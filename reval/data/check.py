@@ -83,8 +83,10 @@ def _typical_sold_values(store: Store, n_features: int) -> list[float | None]:
     return [typical_value(X[:, j], kinds[j]) if np.isfinite(X[:, j]).any() else None for j in range(n_features)]
 
 
-def build_check(store: Store, config: Config) -> CheckScope:
-    """Fill the temporary table check_rows with every problem found (reads the database, writes nothing)."""
+def build_check(store: Store, config: Config, segment: str | None = None) -> CheckScope:
+    """Fill the temporary table check_rows with every problem found, in one segment or all (reads the database,
+    writes nothing). Every check compares a parcel only with its own segment (and typical values with the whole
+    jurisdiction), so one segment's rows are the same whether it is checked alone or with the others."""
     prepared = bool(store.rows("count_adjusted_sales")[0][0])
     window = {"start": config.sale_window_start, "valuation_date": config.valuation_date}
     store.run("check_table", {"prepared": prepared, **window})
@@ -93,15 +95,15 @@ def build_check(store: Store, config: Config) -> CheckScope:
     store.run("check_features", {"range_names": [f.name for f in ranged],
                                  "range_lo": [f.range[0] for f in ranged if f.range],
                                  "range_hi": [f.range[1] for f in ranged if f.range],
-                                 "fills": _typical_sold_values(store, n_features)})
+                                 "fills": _typical_sold_values(store, n_features), "segment": segment})
     positions, not_run = _roles(config, store)
     store.run("check_parcels", {"area": positions["living_area"], "baths": positions["bathrooms"],
                                 "year": positions["year_built"], "min_area": config.check.min_area_per_bathroom,
-                                "valuation_date": config.valuation_date})
+                                "valuation_date": config.valuation_date, "segment": segment})
     repeat_sales(store, config)
     store.run("check_sales", {**window, "prepared": prepared, "area": positions["living_area"],
                               "year": positions["year_built"], "area_factor": config.check.price_per_area_factor,
-                              "prior_factor": config.check.price_to_prior_factor})
+                              "prior_factor": config.check.price_to_prior_factor, "segment": segment})
     return CheckScope(BASES[prepared], tuple(not_run))
 
 

@@ -306,12 +306,13 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
 
 def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | None = None,
                code: str | None = None, sort: str = "segment") -> CheckPage:
-    """One page of the data-quality check's rows, filtered by segment and check and sorted in SQL (the check is
-    built afresh on a read-only connection, so it always shows the data as they are)."""
+    """One page of the data-quality check's rows, filtered by segment and check and sorted in SQL. The check is
+    built afresh on a read-only connection (it always shows the data as they are), for the one segment asked for
+    when there is one: a page of a segment's rows costs that segment's work."""
     from reval.data import check  # loads numpy: only the check screen needs it
 
     with open_project(folder) as (config, store):
-        check.build_check(store, config)
+        check.build_check(store, config, segment)
         return check.rows_page(store, page, page_size, segment, code, sort)
 
 

@@ -4,20 +4,20 @@
 -- below the smallest or above the largest sold value, for a categorical or yes/no feature a level no sold
 -- parcel of the segment has. A segment without sold parcels is left to its parent and not listed here.
 -- $range_names, $range_lo, $range_hi: the declared ranges by feature name; $fills: by feature position, the
--- typical value among the sold parcels (NULL: none).
+-- typical value among the sold parcels (NULL: none); $segment: only this segment (NULL: all).
 INSERT INTO check_rows
 WITH sold_range AS (
     SELECT p.segment, v.position, min(v.value) AS lo, max(v.value) AS hi, list(DISTINCT v.value) AS seen,
            count(*) AS n
     FROM feature_values v JOIN check_sold USING (parcel_id) JOIN parcels p USING (parcel_id)
-    WHERE v.value IS NOT NULL
+    WHERE v.value IS NOT NULL AND ($segment IS NULL OR p.segment = $segment)
     GROUP BY ALL
 ),
 declared AS (
     SELECT unnest($range_names::VARCHAR[]) AS name, unnest($range_lo::DOUBLE[]) AS lo,
            unnest($range_hi::DOUBLE[]) AS hi
 ),
-cells AS (
+cells AS MATERIALIZED (   -- only the values with a problem
     SELECT p.segment, v.parcel_id, v.value, f.name, f.kind, f.levels, d.lo AS range_lo, d.hi AS range_hi,
            r.lo AS sold_lo, r.hi AS sold_hi, r.seen, r.n AS n_sold, ($fills::DOUBLE[])[f.position + 1] AS fill
     FROM feature_values v
@@ -25,6 +25,9 @@ cells AS (
     JOIN features f USING (position)
     LEFT JOIN declared d ON d.name = f.name
     LEFT JOIN sold_range r ON r.segment = p.segment AND r.position = v.position
+    WHERE ($segment IS NULL OR p.segment = $segment)
+      AND (v.value IS NULL OR v.value < d.lo OR v.value > d.hi OR v.value < r.lo OR v.value > r.hi
+           OR (f.kind IN ('categorical', 'binary') AND NOT list_contains(r.seen, v.value)))
 )
 SELECT segment, parcel_id, NULL, 'missing', name, NULL,
        'blank: the model fills in a typical value'

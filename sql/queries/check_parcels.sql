@@ -1,7 +1,8 @@
 -- Implausible combinations on one parcel (common practice, no standard sets these): less living area per
 -- bathroom than $min_area (area_per_bathroom), a building with no bathroom (no_bathroom: 0 often stands for
 -- "unknown"), a year built after the valuation date (built_after_valuation). $area, $baths, $year: the
--- positions of the features named in [check] (NULL: that check does not run).
+-- positions of the features named in [check] (NULL: that check does not run); $segment: only this segment
+-- (NULL: all).
 INSERT INTO check_rows
 WITH wide AS (
     SELECT p.parcel_id, p.segment,
@@ -9,7 +10,7 @@ WITH wide AS (
            max(v.value) FILTER (WHERE v.position = $baths) AS baths,
            max(v.value) FILTER (WHERE v.position = $year) AS year
     FROM parcels p JOIN feature_values v USING (parcel_id)
-    WHERE v.position IN ($area, $baths, $year)
+    WHERE v.position IN ($area, $baths, $year) AND ($segment IS NULL OR p.segment = $segment)
     GROUP BY p.parcel_id, p.segment
 ),
 names AS (

@@ -9,6 +9,7 @@
 --                     than the prior value divided by it;
 --   duplicate_sale    two or more sales of one parcel on one day (from repeat_sales, reval/data/sales.py);
 --   repeat_sale       a parcel sold on more than one day in the window: every one of its sales is listed.
+-- $segment: only this segment (NULL: all).
 INSERT INTO check_rows
 WITH w AS (
     SELECT s.sale_id, s.parcel_id, p.segment, s.sale_date, s.sale_price, p.prior_value, q.qualified,
@@ -17,7 +18,7 @@ WITH w AS (
     LEFT JOIN sale_qualification q USING (sale_id, parcel_id)
     LEFT JOIN feature_values y ON y.parcel_id = s.parcel_id AND y.position = $year
     LEFT JOIN feature_values a ON a.parcel_id = s.parcel_id AND a.position = $area
-    WHERE s.sale_date BETWEEN $start AND $valuation_date
+    WHERE s.sale_date BETWEEN $start AND $valuation_date AND ($segment IS NULL OR p.segment = $segment)
 ),
 per_area AS (
     SELECT *, sale_price / area AS ppa FROM w WHERE n_parcels = 1 AND area > 0
@@ -38,7 +39,7 @@ outcome AS (   -- what the sales step made of each repeated sale, as a clause
            count(DISTINCT sale_price) OVER (PARTITION BY parcel_id, sale_date) AS same_day_prices,
            first_value(sale_id) OVER (PARTITION BY parcel_id ORDER BY latest DESC) AS latest_id,
            max(sale_date) OVER (PARTITION BY parcel_id) AS latest_date
-    FROM repeat_sales
+    FROM repeat_sales WHERE $segment IS NULL OR segment = $segment
 )
 SELECT w.segment, w.parcel_id, w.sale_id, 'built_after_sale', n.year, check_value('continuous', NULL, w.year),
        'built in ' || check_value('continuous', NULL, w.year) || ', after this sale on '
