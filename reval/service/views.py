@@ -283,8 +283,9 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
-    """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
-    weight in the latest run's fit with why it is below 1."""
+    """One page of a segment's sales: those the analyst excluded first (so they can be reinstated), then the
+    qualified ones, largest ratio deviations first, with the values under study and each sale's weight in the
+    latest run's fit with why it is below 1."""
     with open_project(folder) as (config, store):
         run_id = latest_run(store)
         study, _ = _study(store, config, run_id)
