@@ -48,7 +48,8 @@ FROM w, names n WHERE w.year > year(w.sale_date)
 UNION ALL
 SELECT a.segment, a.parcel_id, a.sale_id, 'price_per_area', n.area, check_value('continuous', NULL, a.area),
        'price ' || check_number(a.sale_price) || ' is ' || check_number(a.ppa) || ' per unit of living area, '
-       || format('{:.1f}', a.ppa / m.median_ppa) || ' times the segment''s median of '
+       || format(CASE WHEN a.ppa < m.median_ppa THEN '{:.2f}' ELSE '{:.1f}' END, a.ppa / m.median_ppa)
+       || ' times the segment''s median of '
        || check_number(m.median_ppa) || ': a keyed price or living area, or not a market sale?'
 FROM per_area a JOIN medians m USING (segment), names n
 WHERE a.ppa > m.median_ppa * $area_factor OR a.ppa < m.median_ppa / $area_factor
