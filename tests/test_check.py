@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import csv
 import json
+import shutil
 from collections import Counter
 from pathlib import Path
 
@@ -55,12 +56,10 @@ def test_every_planted_case_is_found_and_clean_parcels_raise_nothing(checked: Pa
 
 
 def test_a_tightened_range_lists_the_values_the_next_import_would_refuse(checked: Path, tmp_path: Path) -> None:
-    folder = Path(tmp_path / "p")
-    import shutil
-    shutil.copytree(checked, folder)
+    folder = Path(shutil.copytree(checked, tmp_path / "p"))
     config = (folder / "reval.toml").read_text()
     (folder / "reval.toml").write_text(config.replace("range = [200, 8000]", "range = [250, 8000]"))
-    beyond = [r for r in _all_rows(folder, code="beyond_range")]
+    beyond = _all_rows(folder, code="beyond_range")
     assert [(r["parcel_id"], r["feature"], r["value"]) for r in beyond] == [("P23", "living_area", "210")]
     assert "250" in beyond[0]["problem"]
 
@@ -172,3 +171,15 @@ def test_the_demo_keying_errors_are_listed_before_any_fit(demo_project: Path) ->
     priced = {r["sale_id"] for r in rows if r["code"] == "price_per_area"}
     assert {"S0000044", "S0002410", "S0000174"} <= priced
     assert ("0061148", "area_per_bathroom") in {(r["parcel_id"], r["code"]) for r in rows}
+
+
+def test_a_reimport_since_the_sales_step_falls_back_to_the_window(checked: Path, tmp_path: Path) -> None:
+    # a new sale imported after `reval sales` has no qualification yet: the check must not treat the stored
+    # qualification as current (the new sale's parcel would silently not count as sold)
+    folder = Path(shutil.copytree(checked, tmp_path / "p"))
+    with (folder / "sales.csv").open("a", encoding="utf-8") as handle:
+        handle.write("T99,S03,2024-10-01,230000,valid\n")
+    actions.import_data(folder)
+    report = actions.check_data(folder)
+    assert report["basis"] == "sales in the sale window"
+    assert next(s for s in report["segments"] if s["segment"] == "south")["sold_parcels"] == 3

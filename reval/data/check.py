@@ -3,8 +3,9 @@
 Set-based SQL fills the temporary table check_rows (sql/queries/check_*.sql), one row per problem: the parcel
 (and sale), its segment, the check's code, the feature, the value and a readable problem. Nothing in the
 database changes, so the check runs on a read-only connection, as often as wanted. The sold parcels a segment's
-range comes from are those with a qualified sale after `reval sales`, else those sold in the sale window. The
-limits of the combination checks are in [check] (common practice: no standard sets them).
+range comes from are those with a qualified sale after `reval sales` (run on the sales imported now), else those
+sold in the sale window. The limits of the combination checks are in [check] (common practice: no standard sets
+them).
 """
 from __future__ import annotations
 
@@ -87,7 +88,7 @@ def build_check(store: Store, config: Config, segment: str | None = None) -> Che
     """Fill the temporary table check_rows with every problem found, in one segment or all (reads the database,
     writes nothing). Every check compares a parcel only with its own segment (and typical values with the whole
     jurisdiction), so one segment's rows are the same whether it is checked alone or with the others."""
-    prepared = bool(store.rows("count_adjusted_sales")[0][0])
+    prepared = bool(store.rows("check_prepared")[0][0])
     window = {"start": config.sale_window_start, "valuation_date": config.valuation_date}
     store.run("check_table", {"prepared": prepared, **window})
     ranged = [f for f in config.features if f.range is not None]

@@ -247,6 +247,8 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     sales = prepare_sales(folder, progress)
     steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
     steps += [f"market trend: {note}" for note in sales["trend_notes"]]
+    checked = check_data(folder)
+    steps.append(f"data check: {sum(checked['totals'].values()):,} rows to look at (reval check --csv FILE)")
     for by in ("market_area", "class", "all", "segment"):
         prior = study(folder, "prior", by)
     steps.append(_failing("ratio study of prior values", prior))
