@@ -22,7 +22,7 @@ from reval.data.store import Store
 from reval.errors import UserError
 from reval.model.design import typical_value
 from reval.plain import Record
-from reval.results import CheckNotRun, CheckPage, CheckSegment
+from reval.results import CheckNotRun, CheckPage, CheckReport, CheckSegment
 
 # Every check, in the order a person works through them: code -> what it lists. The features a combination
 # check reads are named in [check]; NEEDS says which.
@@ -106,6 +106,23 @@ def build_check(store: Store, config: Config, segment: str | None = None) -> Che
                               "year": positions["year_built"], "area_factor": config.check.price_per_area_factor,
                               "prior_factor": config.check.price_to_prior_factor, "segment": segment})
     return CheckScope(BASES[prepared], tuple(not_run))
+
+
+def check_report(store: Store, config: Config, csv_path: Path | None = None) -> CheckReport:
+    """The whole check: problems per segment and check, what each check lists, those that could not run, and
+    every row written to `csv_path` when given."""
+    scope = build_check(store, config)
+    segments = segment_counts(store)
+    written = None if csv_path is None else {"path": str(csv_path), "rows": write_rows(store, config, csv_path)}
+    totals: dict[str, int] = {}
+    for s in segments:
+        for code, n in s["counts"].items():
+            totals[code] = totals.get(code, 0) + n
+    return {"valuation_date": config.valuation_date.isoformat(),
+            "sale_window": [config.sale_window_start.isoformat(), config.valuation_date.isoformat()],
+            "basis": scope.basis, "checks": dict(CHECKS), "segments": segments,
+            "totals": {code: totals[code] for code in CHECKS if code in totals}, "not_run": list(scope.not_run),
+            "csv": written}
 
 
 def segment_counts(store: Store) -> list[CheckSegment]:

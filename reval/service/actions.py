@@ -89,18 +89,7 @@ def check_data(folder: Path, csv_path: Path | None = None) -> CheckReport:
     from reval.data import check
 
     with open_project(folder) as (config, store):
-        scope = check.build_check(store, config)
-        segments = check.segment_counts(store)
-        written = None if csv_path is None else {"path": str(csv_path), "rows": check.write_rows(store, config, csv_path)}
-    totals: dict[str, int] = {}
-    for s in segments:
-        for code, n in s["counts"].items():
-            totals[code] = totals.get(code, 0) + n
-    return {"valuation_date": config.valuation_date.isoformat(),
-            "sale_window": [config.sale_window_start.isoformat(), config.valuation_date.isoformat()],
-            "basis": scope.basis, "checks": dict(check.CHECKS), "segments": segments,
-            "totals": {code: totals[code] for code in check.CHECKS if code in totals},
-            "not_run": list(scope.not_run), "csv": written}
+        return check.check_report(store, config, csv_path)
 
 
 def segment_overview(folder: Path) -> list[Record]:
