@@ -25,6 +25,21 @@ class SegmentSales(TypedDict):
     excluded_by_reason: dict[str, int]
 
 
+class RepeatSale(TypedDict):
+    """One sale of a parcel sold more than once in the sale window; `latest` is the one [sales] repeat_sales =
+    "latest" keeps (if it passes the other rules), `qualified` and `reason` what the sales step made of it."""
+
+    parcel_id: str
+    segment: str
+    sale_id: str
+    sale_date: str
+    sale_price: float
+    n_sales: int
+    latest: bool
+    qualified: bool | None
+    reason: str | None
+
+
 class SalesCounts(TypedDict):
     """Qualified and excluded sales, in all and per segment, with each exclusion's reason."""
 
@@ -33,6 +48,7 @@ class SalesCounts(TypedDict):
     excluded_by_reason: dict[str, int]
     segments: list[SegmentSales]
     trend_notes: list[str]     # no trend (sales span under two months), thin recent months, a wide band
+    repeat_sales: list[RepeatSale]
 
 
 class SaleDecision(TypedDict):
@@ -217,3 +233,46 @@ class ReportResult(TypedDict):
     figures: int
     studied: list[str]          # groupings studied (and stored) for the report because none was stored
     seconds: float
+class CheckNotRun(TypedDict):
+    """A check that could not run on this project, and why (e.g. no feature holds the number of bathrooms)."""
+
+    check: str
+    reason: str
+
+
+class CheckSegment(TypedDict):
+    """One segment in the data-quality check: its parcels, those sold (whose values the sold range comes from)
+    and its problems per check (checks without a problem left out)."""
+
+    segment: str
+    parcels: int
+    sold_parcels: int
+    problems: int
+    counts: dict[str, int]
+
+
+class CheckReport(TypedDict):
+    """`reval check`: problems per segment and check, the checks with what each lists, those that could not run,
+    and the CSV of every row when one was asked for."""
+
+    valuation_date: str
+    sale_window: list[str]
+    basis: str                     # the sales the sold ranges come from: qualified, or all in the window
+    checks: dict[str, str]
+    segments: list[CheckSegment]
+    totals: dict[str, int]
+    not_run: list[CheckNotRun]
+    csv: dict[str, Any] | None     # {"path": ..., "rows": ...}
+
+
+class CheckPage(TypedDict):
+    """One page of the check's rows (parcel_id, sale_id, segment, code, feature, value, problem) with the filters
+    and sort that chose it."""
+
+    page: int
+    pages: int
+    total: int
+    segment: str | None
+    code: str | None
+    sort: str
+    rows: list[dict[str, Any]]

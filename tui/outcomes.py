@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, ReportResult, StagePlan, StageResult
+from reval.service.types import Decision, ExportResult, FitSummary, ReportResult, SaleDecision, StagePlan, StageResult
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
@@ -24,6 +24,20 @@ def describe_decision(result: Decision) -> str:
     elif result.get("note"):
         text += "; note stored"
     return text + "."
+
+
+# sale decision -> (prompt title, what is asked for); reval.service.actions.decide_sale
+SALE_DECISIONS: dict[str, tuple[str, str]] = {
+    "exclude": ("Exclude sale {sale_id} from models and ratio studies", "reason (kept in the audit log)"),
+    "include": ("Reinstate sale {sale_id} at full weight in the fit", "reason (kept in the audit log)"),
+}
+
+
+def describe_sale_decision(result: SaleDecision) -> str:
+    done = "excluded" if result["decision"] == "exclude" else "reinstated"
+    state = ("" if result["qualified"] is None else
+             "; qualified" if result["qualified"] else f"; not qualified ({result['qualification']})")
+    return f"Sale {result['sale_id']} {done}: {result['reason']}{state}. The next fit (f) honours it."
 
 
 def describe_export(result: ExportResult) -> str:

@@ -99,6 +99,13 @@ def build_parser() -> argparse.ArgumentParser:
                    "the data set it holds)")
     p.set_defaults(func=cmd_import)
 
+    p = sub.add_parser("check", parents=[common], help="data-quality check before fitting: problems per segment and "
+                       "check (blanks, implausible values and combinations, duplicate and repeat sales)")
+    p.add_argument("--csv", metavar="FILE", default=None, help="write every problem found to this CSV (parcel, sale, "
+                   "segment, check, feature, value, problem)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.check_data(_folder(a), None if a.csv is None else Path(a.csv)),
+                                              render.check))
+
     p = sub.add_parser("demo", parents=[common], help="build the demo municipality's project and run every step")
     p.add_argument("folder", nargs="?", default="demo_project", help="where to build it (default: demo_project)")
     p.add_argument("--parcels", type=int, default=None, help="generate this many parcels instead of the shipped sample")

@@ -22,6 +22,7 @@ from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 LISTED = 10  # down-weighted sales listed under a study or a review
+LISTED_REPEATS = 40  # repeat sales listed under `reval sales`
 
 
 def console(stderr: bool = False) -> Console:
@@ -109,6 +110,41 @@ def sales(result: dict[str, Any], console: Console) -> None:
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
     for note in result["trend_notes"]:
         console.print(f"Market trend: {shown(note)}.", highlight=False)
+    repeats = result["repeat_sales"]
+    if repeats:
+        parcels = len({r["parcel_id"] for r in repeats})
+        records_table(f"Repeat sales: {parcels:,} parcels sold more than once in the sale window"
+                      + (f" (the first {LISTED_REPEATS} of {len(repeats):,} sales; all with `reval check --csv FILE`)"
+                         if len(repeats) > LISTED_REPEATS else ""),
+                      [{"parcel": r["parcel_id"], "segment": r["segment"], "sale": r["sale_id"], "date": r["sale_date"],
+                        "price": money(r["sale_price"]), "latest": "yes" if r["latest"] else "",
+                        "sales step": "qualified" if r["qualified"] else r["reason"] or ""}
+                       for r in repeats[:LISTED_REPEATS]], console)
+
+
+def check(r: dict[str, Any], console: Console) -> None:
+    total = sum(r["totals"].values())
+    console.print(f"Data check: {total:,} problems in {sum(1 for s in r['segments'] if s['problems'])} of "
+                  f"{len(r['segments'])} segments (sold ranges from the {r['basis']}, {r['sale_window'][0]} to "
+                  f"{r['sale_window'][1]}).")
+    segments: dict[str, int] = {}
+    for s in r["segments"]:
+        for code in s["counts"]:
+            segments[code] = segments.get(code, 0) + 1
+    records_table("Problems per check", [{"check": code, "rows": n, "segments": segments[code]}
+                                         for code, n in r["totals"].items()], console)
+    for code in r["totals"]:
+        console.print(f"  {code}: {r['checks'][code]}", highlight=False)
+    records_table("Problems per segment", [
+        {"segment": s["segment"], "parcels": s["parcels"], "sold": s["sold_parcels"], "problems": s["problems"],
+         "by check": ", ".join(f"{code} {n:,}" for code, n in sorted(s["counts"].items(), key=lambda kv: -kv[1]))}
+        for s in r["segments"]], console)
+    for n in r["not_run"]:
+        console.print(f"Not run: {n['check']}: {shown(n['reason'])}.", highlight=False)
+    if r["csv"]:
+        console.print(f"Wrote {r['csv']['rows']:,} rows to {shown(r['csv']['path'])}.")
+    elif total:
+        console.print("Every row (parcel, sale, segment, check, feature, value, problem): reval check --csv FILE")
 
 
 def sale_decision(r: dict[str, Any], console: Console) -> None:

@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind, FeatureShape
+from reval.states import FeatureKind, FeatureShape, RepeatSales
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -152,10 +152,36 @@ class SalesRules(Declared):
                                          "a package's summed values with its one price)", active=True)
     multi_parcel_in_fit: bool = setting(False, "when multi-parcel sales qualify, also fit each parcel at its share "
                                         "of the price (by prior value)")
+    repeat_sales: RepeatSales = setting("latest", '"latest": of a parcel sold more than once in the sale window, only '
+                                        'its latest sale that passes the other rules counts (the others: "earlier '
+                                        'repeat sale"; two on one day: one is kept); "all" keeps every sale')
 
     def check(self) -> None:
         if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:
             raise Invalid("price_min", "is above sales.price_max")
+
+
+def _feature_name(doc: str, default: str) -> Any:
+    """A [check] key naming the feature that plays a role in the combination checks."""
+    return setting(default, doc + " (a continuous feature; checks that need a missing one are listed as not run)",
+                   pattern=(r"^[a-z][a-z0-9_]*$", "a feature name"))
+
+
+@dataclass(frozen=True)
+class CheckSettings(Declared):
+    """What `reval check` looks for besides blanks and ranges (the [check] section). The limits are common
+    practice, not from a standard: set them to what your office finds plausible."""
+
+    living_area: str = _feature_name("the feature holding the living area", "living_area")
+    bathrooms: str = _feature_name("the feature holding the number of bathrooms", "bathrooms")
+    year_built: str = _feature_name("the feature holding the year built", "year_built")
+    min_area_per_bathroom: float = setting(150.0, "list parcels with less living area per bathroom than this (in "
+                                           "the living area's unit)", lo=0)
+    price_per_area_factor: float = setting(3.0, "list sales whose price per unit of living area is more than this "
+                                           "many times the segment's median, or less than the median divided by it",
+                                           lo=1, lo_open=True)
+    price_to_prior_factor: float = setting(3.0, "list sales whose price is more than this many times the prior "
+                                           "value, or less than the prior value divided by it", lo=1, lo_open=True)
 
 
 @dataclass(frozen=True)
@@ -249,6 +275,8 @@ SECTIONS: tuple[Section, ...] = (
                       {"name": "quality", "type": "ordinal", "levels": ["low", "average", "good", "excellent"],
                        "shape": "increasing"})),
     Section("sales", SalesRules, "Which sales qualify for models and ratio studies."),
+    Section("check", CheckSettings, "The data-quality check (`reval check`): which features the combination checks "
+            "read, and when a value is implausible."),
     Section("time_adjustment", TimeSettings, "Market-trend estimation for time adjustment to the valuation date."),
     Section("study", StudySettings, "Ratio studies."),
     Section("standards", Standards, 'Ratio-study performance standards. "IAAO" marks a limit from the IAAO Standard '
@@ -273,6 +301,7 @@ class Config:
     columns: Mapping[str, str]
     features: tuple[FeatureSpec, ...]
     sales: SalesRules = field(default_factory=SalesRules)
+    check: CheckSettings = field(default_factory=CheckSettings)
     time: TimeSettings = field(default_factory=TimeSettings)
     study: StudySettings = field(default_factory=StudySettings)
     standards: Standards = field(default_factory=Standards)
@@ -330,6 +359,7 @@ def load_config(path: Path | str) -> Config:
         columns={role: column for role, column in columns.items() if column is not None},
         features=sections["features"],
         sales=sections["sales"],
+        check=sections["check"],
         time=sections["time_adjustment"],
         study=sections["study"],
         standards=sections["standards"],

@@ -217,7 +217,7 @@ def _representativeness(doc: Document, config: Config, store: Store) -> None:
 
 def _sales_used(doc: Document, store: Store, config: Config, studies: dict[str, StudyResult]) -> None:
     part = doc.section("Sales used")
-    counts = stored_summary(store).as_dict()
+    counts = stored_summary(store, config).as_dict()
     rows: list[list[Cell]] = [["qualified", counts["qualified"]]]
     rows += [[f"excluded: {reason}", n] for reason, n in sorted(counts["excluded_by_reason"].items())]
     part.table(["sales", "n"], rows, caption="Qualification")

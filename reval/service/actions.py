@@ -19,7 +19,7 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
+    from reval.service.types import (BatchStates, CheckReport, CompareResult, Decision, DemoSummary, Event, EventLog,
                                      ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
                                      SalesCounts, StagePlan, StageResult, StudyResult)
 
@@ -76,11 +76,20 @@ def decide_sale(folder: Path, sale_id: str, decision: SaleChoice, reason: str) -
 
 
 def sales_report(folder: Path) -> SalesCounts:
-    """The stored qualification counts."""
+    """The stored qualification counts and the repeat sales."""
     from reval.data.sales import stored_summary
 
-    with open_project(folder) as (_, store):
-        return stored_summary(store).as_dict()
+    with open_project(folder) as (config, store):
+        return stored_summary(store, config).as_dict()
+
+
+def check_data(folder: Path, csv_path: Path | None = None) -> CheckReport:
+    """The data-quality check before fitting: problems per segment and check, and every row in a CSV when
+    `csv_path` is given (the database is only read)."""
+    from reval.data import check
+
+    with open_project(folder) as (config, store):
+        return check.check_report(store, config, csv_path)
 
 
 def segment_overview(folder: Path) -> list[Record]:
@@ -242,6 +251,8 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     sales = prepare_sales(folder, progress)
     steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
     steps += [f"market trend: {note}" for note in sales["trend_notes"]]
+    checked = check_data(folder)
+    steps.append(f"data check: {sum(checked['totals'].values()):,} rows to look at (reval check --csv FILE)")
     for by in ("market_area", "class", "all", "segment"):
         prior = study(folder, "prior", by)
     steps.append(_failing("ratio study of prior values", prior))

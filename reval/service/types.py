@@ -6,18 +6,19 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
-                           SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
+from reval.results import (CheckNotRun, CheckPage, CheckReport, CheckSegment, Decision, ExportResult, FitSummary,
+                           ImportSummary, RepeatSale, ReportResult, ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan,
+                           StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
-           "StandingDecision", "StatCell", "StudyGroup",
-           "StudyResult", "ValueChange", "ValueSplit"]
+__all__ = ["BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "CompareResult", "Curve",
+           "Decision", "DemoSummary", "Equity", "Event", "EventLog", "ExportResult", "FitSummary", "ImportSummary",
+           "Overview", "OverviewRow", "ParcelDetail", "Record", "RepeatSale", "ReportResult", "ReviewReport", "SaleDecision",
+           "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult", "StandingDecision", "StatCell",
+           "StudyGroup", "StudyResult", "ValueChange", "ValueSplit"]
 
 
 class DemoSummary(TypedDict):

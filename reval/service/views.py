@@ -21,7 +21,7 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
+from reval.service.types import (CheckPage, Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
                                  SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
@@ -283,8 +283,9 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
-    """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
-    weight in the latest run's fit with why it is below 1."""
+    """One page of a segment's sales: those the analyst excluded first (so they can be reinstated), then the
+    qualified ones, largest ratio deviations first, with the values under study and each sale's weight in the
+    latest run's fit with why it is below 1."""
     with open_project(folder) as (config, store):
         run_id = latest_run(store)
         study, _ = _study(store, config, run_id)
@@ -300,6 +301,20 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
         light = int(store.rows("app_segment_downweighted", [run_id, segment])[0][0]) if run_id else 0
         return {"segment": segment, "page": page, "pages": pages, "total": total, "rows": rows,
                 "values": "out-of-fold model values" if model else "prior roll values", "downweighted": light}
+
+
+# ---- the data-quality check -----------------------------------------------------------------------------
+
+def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | None = None,
+               code: str | None = None, sort: str = "segment") -> CheckPage:
+    """One page of the data-quality check's rows, filtered by segment and check and sorted in SQL. The check is
+    built afresh on a read-only connection (it always shows the data as they are), for the one segment asked for
+    when there is one: a page of a segment's rows costs that segment's work."""
+    from reval.data import check  # loads numpy: only the check screen needs it
+
+    with open_project(folder) as (config, store):
+        check.build_check(store, config, segment)
+        return check.rows_page(store, page, page_size, segment, code, sort)
 
 
 # ---- one parcel ----------------------------------------------------------------------------------------
