@@ -17,6 +17,7 @@ InteractionRule = Literal["lasso", "significance", "none"]
 Loss = Literal["huber", "squared"]                                     # the fit's loss on log price
 FeatureShape = Literal["increasing", "decreasing", "free"]               # a feature's shape rule
 SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
+SearchArea = Literal["segment", "market_area", "jurisdiction"]           # how far comparable sales are sought
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
 VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)
