@@ -38,12 +38,16 @@ def measure(folder: Path, n: int, seed: int) -> dict[str, object]:
         grids = [comparable_grid(store, config, run_id, str(p)) for p in sample]
         seconds = time.perf_counter() - start
     found = [g for g in grids if g["comparables"]]
+    low = np.array([g["low"] for g in found], dtype=float)
+    high = np.array([g["high"] for g in found], dtype=float)
+    indicated = np.array([g["indicated_value"] for g in found], dtype=float)
+    model = np.array([g["model_value"] for g in found], dtype=float)
     columns = [c for g in found for c in g["comparables"]]
     return {
         "parcels": len(grids), "with_comparables": len(found), "k": config.comparables.k,
         "bracketing_share": float(np.mean([bool(g["brackets"]) for g in found])),
-        "median_spread": float(np.median([(g["high"] - g["low"]) / g["model_value"] for g in found])),
-        "median_indicated_over_model": float(np.median([g["indicated_value"] / g["model_value"] for g in found])),
+        "median_spread": float(np.median((high - low) / model)),
+        "median_indicated_over_model": float(np.median(indicated / model)),
         "median_gross_adjustment": float(np.median([c["gross_percent"] for c in columns])),
         "median_abs_net_adjustment": float(np.median([abs(c["net_percent"]) for c in columns])),
         "share_over_max_gross": float(np.mean([c["over_max_gross"] for c in columns])),
