@@ -28,9 +28,8 @@ from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models
 from reval.model.names import IMPORTANCE_MODELS, OURS, OURS_NO_INTERACTIONS, named
 from reval.data.store import Store
 from reval.plain import records
-from reval.stats.study import run_study
+from reval.stats.study import available_groupings, run_study
 from reval.results import FitSummary
-from reval.states import GROUPINGS
 
 Progress = Callable[[str, int, int], None]
 LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "pygam", "duckdb", "joblib")
@@ -119,7 +118,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
         for source in ("model_out_of_fold", "model_in_sample"):
-            for by in GROUPINGS:
+            for by in available_groupings(store, config):
                 run_study(store, config, source, by, run_id)
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),

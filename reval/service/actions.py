@@ -20,7 +20,7 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
     from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog, Explanation,
-                                     ExportResult, FitSummary, ImportSummary, ParcelReport, ReviewReport,
+                                     ExportResult, FitSummary, ImportSummary, ParcelReport, ReportResult, ReviewReport,
                                      SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
@@ -102,6 +102,20 @@ def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id:
     with open_project(folder, write=True) as (config, store):
         run = None if source == "prior" else resolve_run(store, run_id)
         return run_study(store, config, source, by, run)
+
+
+def report(folder: Path, out: Path, values: str = "prior", run_id: str | None = None) -> ReportResult:
+    """Write the ratio-study report (HTML or PDF, by the suffix of `out`) for prior or model values (out-of-fold,
+    the latest run unless named); groupings never studied with those values are studied and stored first."""
+    from reval.report.study_report import write_report
+    from reval.roll.valuation import resolve_run
+
+    source: ValuesSource = "prior" if values == "prior" else "model_out_of_fold"
+    with open_project(folder, write=True) as (config, store):
+        run = None if source == "prior" else resolve_run(store, run_id)
+        latest = store.rows("app_latest_run")
+        model_run = run or (str(latest[0][0]) if latest else None)
+        return write_report(store, config, out, source, run, model_run)
 
 
 def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> FitSummary:

@@ -7,7 +7,7 @@ from typing import Any, TypedDict
 
 from reval.plain import Record
 from reval.results import (ComparableGrid, ComparableSale, Decision, ExportResult, FitSummary, GridRow, ImportSummary,
-                           ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult,
+                           ReportResult, ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult,
                            StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
@@ -17,9 +17,9 @@ from reval.stats.stored import StudyGroup, StudyResult
 __all__ = ["BatchStates", "ComparableGrid", "ComparableSale", "CompareResult", "Curve", "Decision", "DemoSummary",
            "Equity", "Event", "EventLog", "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow",
            "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "ParcelReport", "ParcelValue", "Record",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "SegmentStatistics",
-           "StagePlan", "StageResult", "StandingDecision", "StatCell", "StudyGroup", "StudyResult", "ValueChange",
-           "ValueSplit"]
+           "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail",
+           "SegmentStatistics", "StagePlan", "StageResult", "StandingDecision", "StatCell", "StudyGroup", "StudyResult",
+           "ValueChange", "ValueSplit"]
 
 
 class DemoSummary(TypedDict):
