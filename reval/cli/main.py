@@ -70,7 +70,7 @@ def cmd_fit(args: argparse.Namespace) -> None:
 
 
 def cmd_parcel(args: argparse.Namespace) -> None:
-    result = actions.parcel_report(_folder(args), args.parcel_id)
+    result = actions.parcel_report(_folder(args), args.parcel_id, Path(args.report) if args.report else None)
     render.emit(args, result, render.parcel)
 
 

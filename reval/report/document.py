@@ -27,6 +27,8 @@ from pathlib import Path
 
 import matplotlib
 
+from reval.errors import UserError
+
 matplotlib.use("Agg")   # files only; never a window
 
 from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
@@ -35,6 +37,7 @@ import matplotlib.image as mpimg  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
 
 FIGURE_DPI = 130
+SUFFIXES = (".html", ".htm", ".pdf")
 
 
 @dataclass(frozen=True)
@@ -323,3 +326,20 @@ def write_pdf(doc: Document, path: Path) -> None:
                         pages.wrapped(b.caption, 8, color="#444")
                     pages.gap(0.12)
         pages.close()
+
+
+def check_path(out: Path) -> None:
+    """Refuse, before any work, a report file that is neither HTML nor PDF."""
+    if out.suffix.lower() not in SUFFIXES:
+        raise UserError(f"{out}: the report is written as .html or .pdf; name the file with one of those endings.")
+
+
+def save(doc: Document, out: Path) -> None:
+    """Write `doc` to a partial file beside `out`, then put it in place: a failed write leaves no half report."""
+    partial = out.parent / f"{out.stem}.partial{out.suffix}"   # the suffix picks the format
+    try:
+        doc.write(partial)
+        partial.replace(out)
+    except OSError as exc:
+        partial.unlink(missing_ok=True)
+        raise UserError(f"Cannot write {out}: {exc.strerror or exc}") from None

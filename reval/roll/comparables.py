@@ -41,9 +41,8 @@ from reval.states import SearchArea
 TIERS: tuple[SearchArea, ...] = ("segment", "market_area", "jurisdiction")
 LOCATION = "location"          # the grid's row for the difference of the segments' bases
 GROSS_FLOOR = 0.05             # a comparable's reconciliation weight is 1 / max(gross share, this): our choice
-METHOD = ("Sales comparison approach: each comparable's time-adjusted price adjusted to the subject by the "
-          "model's difference in each feature's contribution; the indicated value is the median of the adjusted "
-          "prices weighted by 1 / gross adjustment.")
+METHOD = ("Sales comparison approach; each row's adjustment is the subject's part minus the sale's, by the "
+          "model; the indicated value is the median weighted by 1 / gross adjustment.")
 
 
 # ---- the arithmetic, vectorised over candidates ---------------------------------------------------------------

@@ -253,3 +253,4 @@ class ParcelReport(TypedDict):
     explanation: Explanation | None
     comparables: ComparableGrid | None
     caution: str
+    report: str | None   # the one-page report's file, when one was written

@@ -2,7 +2,10 @@
 from __future__ import annotations
 
 import re
-from typing import Any
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from reval.results import ComparableGrid
 
 from rich.cells import cell_len
 
@@ -53,7 +56,7 @@ def shown(text: object, width: int | None = None, *, lines: bool = False) -> str
     return "".join(kept) + ELLIPSIS
 
 
-def grid_table(grid: dict[str, Any]) -> tuple[list[str], list[list[str]]]:
+def grid_table(grid: ComparableGrid) -> tuple[list[str], list[list[str]]]:
     """The adjustment grid as the trade lays it out, for every front-end: a column per comparable (the subject
     first), a row per feature with the comparable's value and the model's adjustment, then net and gross
     adjustment and the adjusted price (the subject's column shows its model value there)."""
@@ -74,7 +77,7 @@ def grid_table(grid: dict[str, Any]) -> tuple[list[str], list[list[str]]]:
     return header, rows
 
 
-def indicated_range(grid: dict[str, Any]) -> str:
+def indicated_range(grid: ComparableGrid) -> str:
     """One sentence: the value the comparables indicate and their range beside the model value."""
     if not grid["comparables"]:
         return f"No comparable sale found (searched: {grid['searched'].replace('_', ' ')})."
