@@ -4,13 +4,14 @@ its net adjustment, and the [comparables] settings."""
 from __future__ import annotations
 
 import json
+import re
 import math
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from helpers import PINNED_RUN, query_frame
+from helpers import PINNED_RUN, pdf_image_count, pdf_text, query_frame
 from helpers import run_reval as reval
 from reval.roll.comparables import adjusted_prices, choose, gross_shares, log_mean, weighted_median
 from reval.service.actions import parcel_report
@@ -123,3 +124,37 @@ def test_parcel_command_json_and_unknown_id(fitted_demo: Path) -> None:
     assert shown.returncode == 0 and "Indicated value" in shown.stdout and "qualified assessor" in shown.stdout
     missing = reval("parcel", parcel_id[:-1], "--project", str(fitted_demo))
     assert missing.returncode == 1 and "did you mean" in missing.stderr and "Traceback" not in missing.stderr
+
+
+# ---- the one-page parcel report ------------------------------------------------------------------------------------
+
+def test_parcel_report_pdf_has_real_text_and_html_has_the_grid_of_the_json(fitted_demo: Path, tmp_path: Path) -> None:
+    parcel_id = _parcels(fitted_demo)[0]
+    pdf = tmp_path / "parcel.pdf"
+    done = reval("parcel", parcel_id, "--project", str(fitted_demo), "--report", str(pdf), "--json")
+    assert done.returncode == 0, done.stderr
+    report = json.loads(done.stdout)
+    assert report["report"] == str(pdf)
+    value = f"{report['value']['value']:,}"
+    text = " ".join(pdf_text(pdf).split())   # wrapped lines read as one text
+    assert f"Parcel {parcel_id}: value {value}" in text            # the title, as machine-readable text
+    assert "qualified assessor" in text and f"{report['comparables']['indicated_value']:,}" in text
+    assert pdf.read_bytes().count(b"/Type /Page\n") + pdf.read_bytes().count(b"/Type /Page ") == 1   # one page
+    assert pdf_image_count(pdf) == 1                                 # the explanation chart
+
+    page = parcel_report(fitted_demo, parcel_id, tmp_path / "parcel.html")
+    html = (tmp_path / "parcel.html").read_text(encoding="utf-8")
+    assert f"Parcel {parcel_id}: value {value}" in html and "qualified assessor" in html
+    numbers = [float(v) for v in re.findall(r'data-value="([^"]+)"', html)]
+    grid = page["comparables"]
+    assert grid is not None
+    expected = [c["time_adjusted_price"] for c in grid["comparables"]]
+    expected += [a for row in grid["rows"] for a in row["adjustments"]]
+    expected += [c["net_adjustment"] for c in grid["comparables"]] + [c["adjusted_price"] for c in grid["comparables"]]
+    assert numbers == expected
+    assert grid == report["comparables"]
+
+
+def test_parcel_report_refuses_another_format_before_any_work(fitted_demo: Path, tmp_path: Path) -> None:
+    done = reval("parcel", _parcels(fitted_demo)[0], "--project", str(fitted_demo), "--report", str(tmp_path / "p.docx"))
+    assert done.returncode == 1 and ".html or .pdf" in done.stderr and not (tmp_path / "p.docx").exists()

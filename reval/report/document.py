@@ -24,6 +24,7 @@ import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import matplotlib
 
@@ -35,8 +36,12 @@ from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
 from matplotlib.figure import Figure as MplFigure  # noqa: E402
 import matplotlib.image as mpimg  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
+from matplotlib.text import Text  # noqa: E402
 
 FIGURE_DPI = 130
+# matplotlib 3.11 shapes text with ligatures: "fi" becomes one glyph that reads back from the PDF as garbage
+# ("quali ed"). Switched off, every word reads back; older versions draw no ligatures and lack the option.
+PLAIN_TEXT: dict[str, Any] = {"fontfeatures": ("-liga", "-clig")} if hasattr(Text, "set_fontfeatures") else {}
 SUFFIXES = (".html", ".htm", ".pdf")
 
 
@@ -220,7 +225,7 @@ class _Pages:
         self.close()
         self.page_no += 1
         self.fig = plt.figure(figsize=(PAGE_W, PAGE_H))
-        self.fig.text(MARGIN / PAGE_W, 0.4 / PAGE_H, self.footer, fontsize=7, color="#555")
+        self.fig.text(MARGIN / PAGE_W, 0.4 / PAGE_H, self.footer, fontsize=7, color="#555", **PLAIN_TEXT)
         self.fig.text(1 - MARGIN / PAGE_W, 0.4 / PAGE_H, f"page {self.page_no}", fontsize=7, color="#555", ha="right")
         self.y = PAGE_H - MARGIN
 
@@ -243,7 +248,8 @@ class _Pages:
         line_h = size * 1.45 / 72
         fig = self.need(line_h)
         self.y -= line_h
-        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom")
+        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom",
+                 **PLAIN_TEXT)
 
     def wrapped(self, s: str, size: float, weight: str = "normal", color: str = "#222") -> None:
         width = max(20, int(TEXT_W / (size * CHAR_W)))
@@ -281,9 +287,10 @@ def _pdf_table(pages: _Pages, t: Table) -> None:
         pages.y -= line_h
         for x, w, s, right in zip(lefts, widths, cells, numeric):
             if right:
-                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right")
+                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right",
+                         **PLAIN_TEXT)
             else:
-                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight)
+                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, **PLAIN_TEXT)
 
     header = list(t.columns)
     numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(header))]
