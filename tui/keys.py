@@ -97,6 +97,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     # parcel
     KeyAction("parcel.back", "escape,backspace", "back", "parcel", "Back", "Back"),
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
+    KeyAction("parcel.report", "r", "report", "parcel", "Report",
+              "Write this parcel's one-page report (HTML or PDF: value, explanation, comparable sales, flags)"),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

@@ -21,7 +21,7 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
+from reval.service.types import (ComparableGrid, Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
                                  SegmentDetail, SegmentReview, SegmentStatistics, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
@@ -378,3 +378,16 @@ def segment_statistics(store: Store, config: Config, run_id: str | None, segment
             "values": SOURCE_LABELS.get(study["values_source"], study["values_source"]), "n": group["n"],
             "median_ratio": group["median_ratio"], "cod": group["cod"], "prd": group["prd"], "prb": group["prb"],
             "verdicts": {stat: v["status"] for stat, v in group["verdicts"].items()}}
+
+
+def parcel_comparables(folder: Path, parcel_id: str) -> ComparableGrid | None:
+    """The parcel's comparable sales adjusted by the latest run's model (None before the first run or when the
+    run did not value it)."""
+    from reval.roll.comparables import comparable_grid  # numpy: only the parcel view needs it
+
+    parcel_id = parcel_id.strip()
+    with open_project(folder) as (config, store):
+        run_id = latest_run(store)
+        if run_id is None or not store.rows("app_parcel_estimate", [run_id, parcel_id]):
+            return None
+        return comparable_grid(store, config, run_id, parcel_id)
