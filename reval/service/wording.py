@@ -71,8 +71,8 @@ def grid_table(grid: ComparableGrid) -> tuple[list[str], list[list[str]]]:
                      *(f"{v}  {signed_money(a)}".strip() for v, a in zip(r["values"], r["adjustments"]))])
     rows += [["Net adjustment", "", *(f"{signed_money(c['net_adjustment'])} ({percent(c['net_percent'])})"
                                       for c in comps)],
-             ["Gross adjustment", "", *(f"{c['gross_percent']:.1%}" + (" (over the maximum)" if c["over_max_gross"]
-                                                                          else "") for c in comps)],
+             ["Gross adjustment", "", *(f"{c['gross_percent']:.1%}" + (" !" if c["over_max_gross"] else "")
+                                        for c in comps)],
              ["Adjusted price", f"model {money(grid['model_value'])}", *(money(c["adjusted_price"]) for c in comps)]]
     return header, rows
 
@@ -82,7 +82,10 @@ def indicated_range(grid: ComparableGrid) -> str:
     if not grid["comparables"]:
         return f"No comparable sale found (searched: {grid['searched'].replace('_', ' ')})."
     inside = "inside" if grid["brackets"] else "outside"
+    over = sum(c["over_max_gross"] for c in grid["comparables"])
+    beyond = (f" {over} sale(s) marked ! need more than the maximum gross adjustment of "
+              f"{grid['max_gross_adjustment']:.0%}: too few sales were within it." if over else "")
     return (f"Indicated value {money(grid['indicated_value'])} (weighted median of {len(grid['comparables'])} "
             f"adjusted sales, range {money(grid['low'])} to {money(grid['high'])}); the model value "
             f"{money(grid['model_value'])} is {inside} the range. Searched the {grid['searched'].replace('_', ' ')}: "
-            f"{grid['candidates']} candidate sales.")
+            f"{grid['candidates']} candidate sales.{beyond}")
