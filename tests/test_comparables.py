@@ -91,6 +91,20 @@ def test_adjusted_price_is_time_adjusted_price_times_exp_of_model_difference(fit
         assert grid["brackets"] == (grid["low"] <= grid["model_value"] <= grid["high"])
 
 
+def test_a_thin_segment_widens_to_its_market_area(fitted_demo: Path) -> None:
+    thin = query_frame(fitted_demo, """
+        SELECT p.segment, p.market_area, count(a.sale_id) n FROM parcels p
+        LEFT JOIN adjusted_sales a USING (parcel_id) GROUP BY ALL ORDER BY n, p.segment LIMIT 1""")
+    assert int(thin["n"].iloc[0]) < 20     # fewer than widen_below's default: the search must widen
+    parcel_id = str(query_frame(fitted_demo, "SELECT min(parcel_id) p FROM parcels WHERE segment = ?",
+                                [thin["segment"].iloc[0]])["p"].iloc[0])
+    grid = parcel_report(fitted_demo, parcel_id)["comparables"]
+    assert grid is not None and grid["searched"] == "market_area"
+    assert {c["market_area"] for c in grid["comparables"]} == {thin["market_area"].iloc[0]}
+    # a sale outside the parcel's segment carries at least the segment weight (default 0.10) in its distance
+    assert all(c["distance"] >= 0.10 for c in grid["comparables"] if c["segment"] != thin["segment"].iloc[0])
+
+
 def test_comparables_prefer_the_segment_and_respect_the_settings(demo_copy: Path) -> None:
     parcel_id = _parcels(demo_copy)[0]
     first = parcel_report(demo_copy, parcel_id)
