@@ -9,7 +9,7 @@ WITH subject AS (
 one_parcel AS (
     SELECT sale_id FROM adjusted_sales GROUP BY sale_id HAVING count(*) = 1
 ),
-pool AS (
+pool AS MATERIALIZED (
     SELECT a.sale_id, a.parcel_id, p.segment, p.market_area, s.sale_date, s.sale_price, a.adjusted_price,
            -a.month_offset AS age_months,
            CASE WHEN p.segment = t.segment THEN 0 WHEN p.market_area = t.market_area THEN 1 ELSE 2 END AS tier
@@ -21,6 +21,7 @@ pool AS (
     CROSS JOIN subject t
     LEFT JOIN sale_weights w ON w.run_id = $1 AND w.sale_id = a.sale_id AND w.parcel_id = a.parcel_id
     WHERE a.parcel_id <> t.parcel_id AND p.property_class = t.property_class
+      AND ($3 >= 2 OR p.market_area = t.market_area) AND ($3 >= 1 OR p.segment = t.segment)
       AND ($5 IS NULL OR -a.month_offset <= $5)
       AND coalesce(w.weight, 1.0) >= $6
 ),
@@ -35,13 +36,17 @@ chosen AS (
     FROM subject t
     UNION ALL
     SELECT pool.* FROM pool, reach WHERE pool.tier <= reach.tier
+),
+parts AS (   -- only the chosen parcels' contributions are read and gathered
+    SELECT parcel_id, list(term ORDER BY term) AS terms, list(contribution ORDER BY term) AS parts
+    FROM parcel_contributions
+    WHERE run_id = $1 AND parcel_id IN (SELECT parcel_id FROM chosen)
+    GROUP BY parcel_id
 )
 SELECT c.sale_id, c.parcel_id, c.segment, c.market_area, c.sale_date, c.sale_price, c.adjusted_price,
-       c.age_months, c.tier, reach.tier AS reach, e.log_value,
-       list(pc.term ORDER BY pc.term) AS terms, list(pc.contribution ORDER BY pc.term) AS parts
+       c.age_months, c.tier, reach.tier AS reach, e.log_value, pc.terms, pc.parts
 FROM chosen c
 CROSS JOIN reach
 JOIN parcel_estimates e ON e.run_id = $1 AND e.parcel_id = c.parcel_id
-JOIN parcel_contributions pc ON pc.run_id = $1 AND pc.parcel_id = c.parcel_id
-GROUP BY ALL
+JOIN parts pc ON pc.parcel_id = c.parcel_id
 ORDER BY c.tier, c.sale_id;
