@@ -138,6 +138,8 @@ def test_parcel_command_json_and_unknown_id(fitted_demo: Path) -> None:
     assert shown.returncode == 0 and "Indicated value" in shown.stdout and "qualified assessor" in shown.stdout
     missing = reval("parcel", parcel_id[:-1], "--project", str(fitted_demo))
     assert missing.returncode == 1 and "did you mean" in missing.stderr and "Traceback" not in missing.stderr
+    typo = reval("parcel", parcel_id + "x", "--project", str(fitted_demo))    # one character too many
+    assert typo.returncode == 1 and f"did you mean {parcel_id}" in typo.stderr
 
 
 # ---- the one-page parcel report ------------------------------------------------------------------------------------
