@@ -20,8 +20,9 @@ import base64
 import html
 import io
 import math
+import struct
 import textwrap
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -39,10 +40,10 @@ import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.text import Text  # noqa: E402
 
 FIGURE_DPI = 130
-# matplotlib 3.11 shapes text with ligatures: "fi" becomes one glyph that reads back from the PDF as garbage
-# ("quali ed"). Switched off, every word reads back; older versions draw no ligatures and lack the option.
-PLAIN_TEXT: dict[str, Any] = {"fontfeatures": ("-liga", "-clig")} if hasattr(Text, "set_fontfeatures") else {}
 SUFFIXES = (".html", ".htm", ".pdf")
+# Ligatures ("fi") become glyphs outside the font's text encoding that text extraction misreads; matplotlib
+# shapes them from 3.11 on and then accepts font features, so the PDF's text is turned off them there.
+PLAIN_TEXT: dict[str, Any] = {"fontfeatures": ["-liga"]} if hasattr(Text, "set_fontfeatures") else {}
 
 
 @dataclass(frozen=True)
@@ -118,11 +119,10 @@ class Section:
         """Render a matplotlib figure now (PNG) and close it, so a long report holds no open figures."""
         buffer = io.BytesIO()
         fig.savefig(buffer, format="png", dpi=FIGURE_DPI, bbox_inches="tight")
-        width, height = fig.get_size_inches()
         plt.close(fig)
-        image = mpimg.imread(io.BytesIO(buffer.getvalue()), format="png")
-        h_px, w_px = image.shape[:2]
-        self.blocks.append(Figure(buffer.getvalue(), w_px / FIGURE_DPI, h_px / FIGURE_DPI, caption))
+        png = buffer.getvalue()
+        w_px, h_px = struct.unpack(">II", png[16:24])   # the PNG header's width and height (after tight cropping)
+        self.blocks.append(Figure(png, w_px / FIGURE_DPI, h_px / FIGURE_DPI, caption))
 
 
 @dataclass
@@ -210,14 +210,15 @@ PAGE_W, PAGE_H = 8.27, 11.69          # A4, inches
 MARGIN = 0.7
 TEXT_W = PAGE_W - 2 * MARGIN
 BODY_PT, TABLE_PT = 9.5, 7.5
-CHAR_W = 0.55 / 72                    # average DejaVu Sans advance per point of size, inches (measured roughly)
+CHAR_W = 0.55 / 72                    # average DejaVu Sans advance per point of size, inches (for wrapping)
 
 
 class _Pages:
-    """A cursor over A4 pages: place text and images top to bottom, start a new page when one is full."""
+    """A cursor over A4 pages: place text and images top to bottom, start a new page when one is full; `save`
+    receives each finished page."""
 
-    def __init__(self, pdf: PdfPages, footer: str) -> None:
-        self.pdf, self.footer, self.page_no = pdf, footer, 0
+    def __init__(self, save: Callable[[MplFigure], None], footer: str) -> None:
+        self.save, self.footer, self.page_no = save, footer, 0
         self.fig: MplFigure | None = None
         self.y = 0.0
 
@@ -231,7 +232,7 @@ class _Pages:
 
     def close(self) -> None:
         if self.fig is not None:
-            self.pdf.savefig(self.fig)
+            self.save(self.fig)
             plt.close(self.fig)
             self.fig = None
 
@@ -248,8 +249,7 @@ class _Pages:
         line_h = size * 1.45 / 72
         fig = self.need(line_h)
         self.y -= line_h
-        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom",
-                 **PLAIN_TEXT)
+        fig.text(x / PAGE_W, self.y / PAGE_H, s, fontsize=size, weight=weight, color=color, ha=ha, va="bottom", **PLAIN_TEXT)
 
     def wrapped(self, s: str, size: float, weight: str = "normal", color: str = "#222") -> None:
         width = max(20, int(TEXT_W / (size * CHAR_W)))
@@ -269,70 +269,110 @@ class _Pages:
         ax.set_axis_off()
 
 
-def _column_layout(t: Table) -> tuple[list[float], float]:
-    """Column widths in inches, proportional to their longest text, and the font size that fits the text width."""
-    chars = [max([len(c)] + [len(cell_text(r[i])) for r in t.rows if i < len(r)]) + 2 for i, c in enumerate(t.columns)]
-    natural = [n * TABLE_PT * CHAR_W for n in chars]
-    shrink = min(1.0, TEXT_W / sum(natural))
-    return [w * shrink for w in natural], max(5.0, TABLE_PT * shrink)
+MONO_W = 0.602                        # DejaVu Sans Mono's advance, in ems
+MIN_TABLE_PT = 5.5
+GAP = "  "                            # between table columns
+
+
+def _table_lines(t: Table) -> tuple[list[str], list[list[str]], float]:
+    """A table as monospaced lines (one text per line, so a long table draws fast): the header line(s), each
+    row's line(s), and the font size. Numeric columns are right-aligned; when the table is too wide even at the
+    smallest size, its widest text column is wrapped (nothing is cut)."""
+    cells = [[cell_text(c) for c in r] + [""] * (len(t.columns) - len(r)) for r in t.rows]
+    numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(t.columns))]
+    widths = [max([len(c)] + [len(r[i]) for r in cells]) for i, c in enumerate(t.columns)]
+    most = int(TEXT_W * 72 / (MONO_W * MIN_TABLE_PT))
+
+    def total() -> int:
+        return sum(widths) + len(GAP) * (len(widths) - 1)
+
+    while total() > most:
+        text_cols = [i for i in range(len(widths)) if not numeric[i]] or list(range(len(widths)))
+        widest = max(text_cols, key=lambda i: widths[i])
+        cut = max(12, widths[widest] - (total() - most))
+        if cut >= widths[widest]:
+            break
+        widths[widest] = cut
+
+    def lines(row: list[str]) -> list[str]:
+        parts = [textwrap.wrap(c, w) or [""] if len(c) > w else [c] for c, w in zip(row, widths)]
+        height = max(len(p) for p in parts)
+        return [GAP.join((p[k] if k < len(p) else "").rjust(w) if num else (p[k] if k < len(p) else "").ljust(w)
+                         for p, w, num in zip(parts, widths, numeric)).rstrip() for k in range(height)]
+
+    size = max(MIN_TABLE_PT, min(TABLE_PT, TEXT_W * 72 / (MONO_W * max(1, total()))))
+    return lines(list(t.columns)), [lines(r) for r in cells], size
 
 
 def _pdf_table(pages: _Pages, t: Table) -> None:
-    widths, size = _column_layout(t)
-    lefts = [MARGIN + sum(widths[:i]) for i in range(len(widths))]
+    header, rows, size = _table_lines(t)
+    line_h = size * 1.4 / 72
 
-    def row(cells: list[str], weight: str, numeric: list[bool]) -> None:
-        line_h = size * 1.5 / 72
+    def line(text: str, weight: str) -> None:
         fig = pages.need(line_h)
         pages.y -= line_h
-        for x, w, s, right in zip(lefts, widths, cells, numeric):
-            if right:
-                fig.text((x + w - 0.05) / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, ha="right",
-                         **PLAIN_TEXT)
-            else:
-                fig.text(x / PAGE_W, pages.y / PAGE_H, s, fontsize=size, weight=weight, **PLAIN_TEXT)
+        fig.text(MARGIN / PAGE_W, pages.y / PAGE_H, text, fontsize=size, weight=weight, family="DejaVu Sans Mono",
+                 **PLAIN_TEXT)
 
-    header = list(t.columns)
-    numeric = [any(cell_value(r[i]) is not None for r in t.rows if i < len(r)) for i in range(len(header))]
     if t.caption:
         pages.wrapped(t.caption, BODY_PT, "bold")
-    row(header, "bold", numeric)
+    for h in header:
+        line(h, "bold")
     page = pages.page_no
-    for r in t.rows:
-        pages.need(size * 1.5 / 72)   # a new page when full; then repeat the header
+    for r in rows:
+        pages.need(line_h * len(r))   # a new page when full; then repeat the header
         if pages.page_no != page:
-            row(header, "bold", numeric)
+            for h in header:
+                line(h, "bold")
             page = pages.page_no
-        row([cell_text(c) for c in r], "normal", [cell_value(c) is not None for c in r])
+        for text in r:
+            line(text, "normal")
     pages.gap(0.12)
 
 
+def _lay_out(doc: Document, save: Callable[[MplFigure], None]) -> None:
+    """Lay the document out on A4 pages, handing each finished page to `save`."""
+    pages = _Pages(save, doc.title)
+    pages.wrapped(doc.title, 18, "bold")
+    if doc.subtitle:
+        pages.wrapped(doc.subtitle, 11, color="#444")
+    pages.gap(0.15)
+    for s in doc.sections:
+        pages.need(1.5)   # a section title never sits alone at the foot of a page
+        pages.gap(0.12)
+        pages.wrapped(s.title, 13, "bold")
+        pages.gap(0.05)
+        for b in s.blocks:
+            if isinstance(b, Paragraph):
+                pages.wrapped(b.text, BODY_PT)
+                pages.gap(0.06)
+            elif isinstance(b, Table):
+                _pdf_table(pages, b)
+            else:
+                pages.image(b)
+                if b.caption:
+                    pages.wrapped(b.caption, 8, color="#444")
+                pages.gap(0.12)
+    pages.close()
+
+
 def write_pdf(doc: Document, path: Path) -> None:
-    """Lay the document out on A4 pages; every string is PDF text (Type 42 fonts, so text extracts cleanly)."""
+    """The document on A4 pages; every string is PDF text (Type 42 fonts, so text extracts cleanly)."""
     with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}), PdfPages(path) as pdf:
         pdf.infodict()["Title"] = doc.title
-        pages = _Pages(pdf, doc.title)
-        pages.wrapped(doc.title, 18, "bold")
-        if doc.subtitle:
-            pages.wrapped(doc.subtitle, 11, color="#444")
-        pages.gap(0.15)
-        for s in doc.sections:
-            pages.need(1.5)   # a section title never sits alone at the foot of a page
-            pages.gap(0.12)
-            pages.wrapped(s.title, 13, "bold")
-            pages.gap(0.05)
-            for b in s.blocks:
-                if isinstance(b, Paragraph):
-                    pages.wrapped(b.text, BODY_PT)
-                    pages.gap(0.06)
-                elif isinstance(b, Table):
-                    _pdf_table(pages, b)
-                else:
-                    pages.image(b)
-                    if b.caption:
-                        pages.wrapped(b.caption, 8, color="#444")
-                    pages.gap(0.12)
-        pages.close()
+        _lay_out(doc, pdf.savefig)
+
+
+def write_page_png(doc: Document, path: Path, page: int = 1, dpi: int = 60) -> None:
+    """One page of the PDF layout as a PNG (a preview, e.g. the README's picture of a page)."""
+    def save(fig: MplFigure) -> None:
+        if page_no[0] == page:
+            fig.savefig(path, dpi=dpi)
+        page_no[0] += 1
+
+    page_no = [1]
+    with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}):
+        _lay_out(doc, save)
 
 
 def check_path(out: Path) -> None:

@@ -49,7 +49,7 @@ def ratio_boxes(groups: Sequence[tuple[str, np.ndarray]], bounds: tuple[float, f
     ax = fig.subplots()
     drawn = [(name, r) for name, r in groups if r.size]
     if drawn:
-        ax.boxplot([r for _, r in drawn], vert=False, showfliers=False, widths=0.6,
+        ax.boxplot([r for _, r in drawn], orientation="horizontal", showfliers=False, widths=0.6,
                    medianprops={"color": "#1f5fa8"})
         ax.set_yticks(range(1, len(drawn) + 1), [name for name, _ in drawn], fontsize=7)
     _limits(ax, bounds, horizontal=False)

@@ -54,12 +54,12 @@ def compare_features(counts: pd.DataFrame, features: list[tuple[int, str, str]])
     n); `features` are (position, name, kind)."""
     out: list[FeatureComparison] = []
     kinds = {p: (name, kind) for p, name, kind in features}
-    for (segment, position), rows in counts.groupby(["segment", "position"], sort=True):
+    wide = (counts.groupby(["segment", "position", "value", "sold"], sort=True)["n"].sum()
+            .unstack("sold", fill_value=0).reindex(columns=[False, True], fill_value=0).reset_index())
+    all_values, all_unsold, all_sold = (wide[c].to_numpy(float) for c in ("value", False, True))
+    for (segment, position), at in sorted(wide.groupby(["segment", "position"]).indices.items()):
         name, kind = kinds[int(position)]
-        table = rows.pivot_table(index="value", columns="sold", values="n", aggfunc="sum", fill_value=0)
-        table = table.reindex(columns=[False, True], fill_value=0).sort_index()
-        values = table.index.to_numpy(float)
-        unsold, sold = table[False].to_numpy(float), table[True].to_numpy(float)
+        values, unsold, sold = all_values[at], all_unsold[at], all_sold[at]
         n_sold, n_all = int(sold.sum()), int(sold.sum() + unsold.sum())
         statistic: float | None = None
         p_value: float | None = None

@@ -30,7 +30,7 @@ from reval.service.wording import CAUTION
 from reval.states import Grouping, ValuesSource
 from reval.stats.ratio_stats import decile_median_cis, value_proxy
 from reval.stats.sources import SOURCE_LABELS
-from reval.stats.stored import STATS, StudyGroup, StudyResult, load_study
+from reval.stats.stored import STATS, StudyGroup, StudyResult, load_study, study_id
 from reval.stats.study import available_groupings, run_study, sales_for_study
 
 STRATA: tuple[tuple[Grouping, str], ...] = (
@@ -42,16 +42,19 @@ STAT_NAMES = {"median_ratio": "median ratio", "cod": "COD", "prd": "PRD", "prb":
 
 
 def _studies(store: Store, config: Config, source: ValuesSource, run: str | None) -> tuple[dict[str, StudyResult], list[str]]:
-    """Every grouping's stored study for these values; those never stored are studied and stored first."""
+    """Every grouping's stored study for these values; those never stored, or stored before the sales last
+    changed (an import, the sales step, a decision on a sale), are studied and stored first."""
     out: dict[str, StudyResult] = {}
     studied: list[str] = []
     groupings: tuple[Grouping, ...] = ("all", *(g for g, _ in STRATA))
+    changed = store.rows("report_sales_changed")[0][0]
     for grouping in groupings:
         if grouping not in available_groupings(store, config):
             continue
-        try:
+        header = store.records("study_header", [study_id(source, run, grouping)])
+        if header and (changed is None or header[0]["created_at"] >= changed):
             out[grouping] = load_study(store, source, grouping, run)
-        except UserError:
+        else:
             out[grouping] = run_study(store, config, source, grouping, run)
             studied.append(grouping)
     return out, studied
@@ -295,12 +298,10 @@ def _detail(value: Any) -> dict[str, Any]:
     return json.loads(value) if isinstance(value, str) else dict(value or {})
 
 
-def write_report(store: Store, config: Config, out: Path, source: ValuesSource, run: str | None,
-                 model_run: str | None) -> ReportResult:
-    """Write the report to `out` (.html or .pdf) for the study of `source` values (`run` for model values);
-    `model_run` is the run whose model and value changes are documented (None: no run yet)."""
-    check_path(out)
-    start = time.perf_counter()
+def build_report(store: Store, config: Config, source: ValuesSource, run: str | None,
+                 model_run: str | None) -> tuple[Document, list[str]]:
+    """The report's document for the study of `source` values (`run` for model values); `model_run` is the run
+    whose model and value changes are documented (None: no run yet). Also the groupings studied first."""
     studies, studied = _studies(store, config, source, run)
     doc = Document(f"Ratio study: {config.jurisdiction}",
                    subtitle=f"valuation date {config.valuation_date} - {SOURCE_LABELS[source]}")
@@ -312,6 +313,15 @@ def write_report(store: Store, config: Config, out: Path, source: ValuesSource, 
     _sales_used(doc, store, config, studies)
     _model(doc, store, config, model_run)
     _decisions(doc, store)
+    return doc, studied
+
+
+def write_report(store: Store, config: Config, out: Path, source: ValuesSource, run: str | None,
+                 model_run: str | None) -> ReportResult:
+    """Write the report to `out` (.html or .pdf; a partial file is renamed into place only when complete)."""
+    check_path(out)
+    start = time.perf_counter()
+    doc, studied = build_report(store, config, source, run, model_run)
     save(doc, out)
     return {"path": str(out), "values": SOURCE_LABELS[source], "run_id": run, "figures": doc.figure_count(),
             "studied": studied, "seconds": round(time.perf_counter() - start, 2)}

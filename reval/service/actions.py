@@ -104,16 +104,17 @@ def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id:
         return run_study(store, config, source, by, run)
 
 
-def report(folder: Path, out: Path, values: str = "prior", run_id: str | None = None) -> ReportResult:
+def report(folder: Path, out: Path, values: str | None = "prior", run_id: str | None = None) -> ReportResult:
     """Write the ratio-study report (HTML or PDF, by the suffix of `out`) for prior or model values (out-of-fold,
-    the latest run unless named); groupings never studied with those values are studied and stored first."""
+    the latest run unless named; values None: model values if there is a run, else prior); groupings not
+    studied with those values since the sales last changed are studied and stored first."""
     from reval.report.study_report import write_report
     from reval.roll.valuation import resolve_run
 
-    source: ValuesSource = "prior" if values == "prior" else "model_out_of_fold"
     with open_project(folder, write=True) as (config, store):
-        run = None if source == "prior" else resolve_run(store, run_id)
         latest = store.rows("app_latest_run")
+        source: ValuesSource = "prior" if values == "prior" or (values is None and not latest) else "model_out_of_fold"
+        run = None if source == "prior" else resolve_run(store, run_id)
         model_run = run or (str(latest[0][0]) if latest else None)
         return write_report(store, config, out, source, run, model_run)
 

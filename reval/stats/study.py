@@ -6,13 +6,13 @@ judges one segment with the same code, now, under the current standards (`segmen
 """
 from __future__ import annotations
 
-import datetime as dt
 import json
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from reval.clock import utc_now
 from reval.data.config import Config
 from reval.errors import UserError
 from reval.stats.judging import judging_sha256
@@ -28,6 +28,7 @@ GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_ar
                                              "segment_class": ("segment", "property_class"), "all": ()}
 CLASS_SEPARATOR = " / "   # the group name of a segment x class study: "ASKR / single_family"
 BANDS = 5                 # value ranges and size bands are quintiles (common practice)
+BANDED_GROUPINGS: tuple[Grouping, ...] = ("value_range", "age", "size")   # groups made from values, not names
 UNKNOWN = "unknown"       # the age or size group of parcels without the feature's value
 
 
@@ -182,7 +183,7 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     downweighted_frame = pd.concat(light, ignore_index=True) if light else pd.DataFrame()
     with store.transaction():
         store.run("delete_study", [sid])
-        store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
+        store.run("insert_study", [sid, utc_now(), values_source, run_id, grouping, opts.trim_iqr_k,
                                    opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config)])
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
