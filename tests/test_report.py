@@ -61,8 +61,8 @@ from reval.report.representativeness import mann_whitney_counts  # noqa: E402
 from reval.service import actions  # noqa: E402
 
 CAPTIONS = {"By market area": "market_area", "By segment": "segment", "By property class": "class",
-            "By value range (quintiles of the value proxy)": "value_range", "By age (decade built)": "age",
-            "By size (quintile bands of living area)": "size"}
+            "By value range (quintiles of the value proxy)": "value_range", "By age (decades of year_built)": "age",
+            "By size (quintile bands of living_area)": "size"}
 STAT_KEYS = ["n", "n_trimmed", "median_ratio", "median_ratio_ci", "weighted_mean_ratio", "cod", "cod_ci", "prd", "prd_ci",
              "prb", "prb_ci"]
 

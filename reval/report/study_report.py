@@ -1,8 +1,9 @@
 """The ratio-study report an oversight body receives: cover, summary, stratified tables, plots,
 representativeness, the sales used, the model, the decisions - in the order a reviewer reads, as HTML or PDF.
 
-Every statistic in its tables is read from the stored studies (reval.stats.stored); a grouping not yet studied
-with these values is studied first by the one study code (reval.stats.study.run_study) and stored. The plots
+Every statistic in its tables is read from the stored studies (reval.stats.stored); a grouping not studied with
+these values since the sales last changed is studied first by the one study code (reval.stats.study.run_study)
+and stored. The plots
 read the same sales and studies; parcel-level plots use counts binned in SQL.
 """
 from __future__ import annotations
@@ -35,8 +36,8 @@ from reval.stats.study import available_groupings, run_study, sales_for_study
 
 STRATA: tuple[tuple[Grouping, str], ...] = (
     ("market_area", "market area"), ("segment", "segment"), ("class", "property class"),
-    ("value_range", "value range (quintiles of the value proxy)"), ("age", "age (decade built)"),
-    ("size", "size (quintile bands of living area)"))
+    ("value_range", "value range (quintiles of the value proxy)"), ("age", "age (decades of {age})"),
+    ("size", "size (quintile bands of {size})"))   # {age}, {size}: the [study] features
 CHANGE_BINS = 60
 STAT_NAMES = {"median_ratio": "median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
 
@@ -48,8 +49,9 @@ def _studies(store: Store, config: Config, source: ValuesSource, run: str | None
     studied: list[str] = []
     groupings: tuple[Grouping, ...] = ("all", *(g for g, _ in STRATA))
     changed = store.rows("report_sales_changed")[0][0]
+    available = available_groupings(store, config)
     for grouping in groupings:
-        if grouping not in available_groupings(store, config):
+        if grouping not in available:
             continue
         header = store.records("study_header", [study_id(source, run, grouping)])
         if header and (changed is None or header[0]["created_at"] >= changed):
@@ -133,11 +135,12 @@ def _summary(doc: Document, config: Config, studies: dict[str, StudyResult]) -> 
                caption="Level, uniformity and vertical equity, all sales")
 
 
-def _strata(doc: Document, studies: dict[str, StudyResult]) -> None:
+def _strata(doc: Document, config: Config, studies: dict[str, StudyResult]) -> None:
     part = doc.section("Stratified results")
     part.paragraph("Each table: one row per group (groups without sales included), n after trimming, the "
                    "statistics with their confidence intervals, and the verdict against the standards.")
-    for grouping, label in STRATA:
+    for grouping, words in STRATA:
+        label = words.format(age=config.study.age_feature, size=config.study.size_feature)
         if grouping in studies:
             part.table(GROUP_COLUMNS, [_group_row(g) for g in studies[grouping]["groups"]], caption=f"By {label}")
         else:
@@ -307,7 +310,7 @@ def build_report(store: Store, config: Config, source: ValuesSource, run: str | 
                    subtitle=f"valuation date {config.valuation_date} - {SOURCE_LABELS[source]}")
     _cover(doc, config, store, source, run, studies)
     _summary(doc, config, studies)
-    _strata(doc, studies)
+    _strata(doc, config, studies)
     _plots(doc, config, store, source, run, model_run, studies)
     _representativeness(doc, config, store)
     _sales_used(doc, store, config, studies)
