@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Literal, TypedDict
 
-from reval.states import BatchState, SaleChoice
+from reval.states import BatchState, SaleChoice, SearchArea
 
 
 class ImportSummary(TypedDict):
@@ -222,6 +222,60 @@ class Manifest(TypedDict):
 class ExportResult(Manifest):
     path: str
     manifest: str
+
+
+class ComparableSale(TypedDict):
+    """One comparable sale in whole currency units: its time-adjusted price, the model's net adjustment to the
+    subject and the adjusted price (price + net = adjusted), gross and net as shares of the price, its distance
+    to the subject and its share in the reconciliation."""
+
+    sale_id: str
+    parcel_id: str
+    segment: str
+    market_area: str
+    sale_date: str
+    sale_price: int
+    time_adjusted_price: int
+    model_value: int
+    adjusted_price: int
+    net_adjustment: int
+    net_percent: float
+    gross_percent: float
+    over_max_gross: bool
+    distance: float
+    age_months: float
+    weight: float
+
+
+class GridRow(TypedDict):
+    """One row of the adjustment grid: a feature (or interaction, or the location), the subject's value, each
+    comparable's value and its adjustment in currency and as a share of its time-adjusted price."""
+
+    term: str
+    subject: str
+    values: list[str]
+    adjustments: list[int]
+    percents: list[float]
+
+
+class ComparableGrid(TypedDict):
+    """A parcel's comparable sales adjusted by a run's model, and the range they indicate beside its model value
+    (the rows of each column add up to its net adjustment)."""
+
+    parcel_id: str
+    run_id: str
+    searched: SearchArea
+    candidates: int
+    k: int
+    max_gross_adjustment: float
+    model_value: int
+    comparables: list[ComparableSale]
+    rows: list[GridRow]
+    indicated_value: int | None
+    low: int | None
+    high: int | None
+    brackets: bool | None
+    method: str
 
 
 class ReportResult(TypedDict):

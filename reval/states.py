@@ -18,6 +18,7 @@ Loss = Literal["huber", "squared"]                                     # the fit
 FeatureShape = Literal["increasing", "decreasing", "free"]               # a feature's shape rule
 SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
 RepeatSales = Literal["latest", "all"]                                   # which sales of a parcel sold repeatedly count
+SearchArea = Literal["segment", "market_area", "jurisdiction"]           # how far comparable sales are sought
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
 VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)

@@ -119,6 +119,8 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Show the segment's rows of one check at a time (cycles; then all again)"),
     KeyAction("check.parcel", "enter", "open_parcel", "check", "Parcel",
               "On a segment: go to its rows; on a row: open its parcel", show=False),
+    KeyAction("parcel.report", "r", "report", "parcel", "Parcel report",
+              "Write this parcel's one-page report (HTML or PDF: value, explanation, comparable sales, flags)"),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

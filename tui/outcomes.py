@@ -5,7 +5,8 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, ReportResult, SaleDecision, StagePlan, StageResult
+from reval.service.types import Decision, ExportResult, FitSummary, ParcelReport, ReportResult, SaleDecision, StagePlan, StageResult
+from reval.service.wording import money
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
@@ -62,6 +63,13 @@ def describe_fit(result: FitSummary) -> str:
     seconds = sum(result["timings"].values())
     return (f"Fit done: run {result['run_id']}, {result['segments']} segments, {result['sales']:,} sales, "
             f"{result['parcels']:,} parcels valued in {seconds:.0f} s. Press v to stage values for review.")
+
+
+def describe_parcel_report(result: ParcelReport) -> str:
+    grid = result["comparables"]
+    comparables = f", {len(grid['comparables'])} comparable sales" if grid else ""
+    return (f"Report of parcel {result['parcel_id']} written to {result['report']} "
+            f"(value {money(result['value']['value'])}{comparables}).")
 
 
 def describe_values(result: StageResult) -> str:

@@ -69,6 +69,11 @@ def cmd_fit(args: argparse.Namespace) -> None:
     render.emit(args, result, render.fit)
 
 
+def cmd_parcel(args: argparse.Namespace) -> None:
+    result = actions.parcel_report(_folder(args), args.parcel_id, Path(args.report) if args.report else None)
+    render.emit(args, result, render.parcel)
+
+
 def cmd_tui(args: argparse.Namespace) -> None:
     _launch_app(_folder(args))
 
@@ -164,6 +169,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")
     p.add_argument("--limit", type=int, default=20, help="parcels beyond the threshold listed per segment")
     p.set_defaults(func=lambda a: render.emit(a, actions.review(_folder(a), a.segment, a.limit), render.review))
+
+    p = sub.add_parser("parcel", parents=[common], help="why a parcel has its value: explanation, flags, segment "
+                       "statistics and comparable sales adjusted by the model")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("--report", metavar="FILE", help="also write a one-page report (FILE.html or FILE.pdf)")
+    p.set_defaults(func=cmd_parcel)
 
     p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch")
     p.add_argument("segment")

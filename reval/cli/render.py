@@ -17,7 +17,8 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
+from reval.service.wording import (CAUTION, NAME_WIDTH, grid_table, indicated_range, money, percent, shown,
+                                 signed_money)
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
@@ -308,3 +309,50 @@ def batch_states(r: dict[str, Any], console: Console) -> None:
     table("Batches: the certified values (those an export writes) beside the pending ones",
           ["segment", "state", "certified batch", "open batch"],
           [[s["segment"], s["summary"], show(s["certified"]), show(s["open"])] for s in r["segments"]], console)
+
+
+# ---- one parcel -----------------------------------------------------------------------------------------------
+
+def parcel(r: dict[str, Any], console: Console) -> None:
+    """Why a parcel has its value: value, prior values, flags, segment statistics, explanation, comparables."""
+    console.print(Text.assemble((f"Parcel {shown(r['parcel_id'])}", "bold"),
+                                f" · segment {name(r['segment'])} · market area {name(r['market_area'])} · "
+                                f"{name(r['property_class'])} · {name(r['jurisdiction'])}, valuation date "
+                                f"{r['valuation_date']}"))
+    v = r["value"]
+    console.print(f"Value {money(v['value'])} ({shown(v['source'])}); model value {money(v['model_value'])}"
+                  + (f", run {r['run_id']}" if r["run_id"] else ""))
+    for key, prior in r["prior_values"].items():
+        console.print(f"{key.replace('_', ' ').capitalize()}: {money(prior)}")
+    if r["value_change"] is not None:
+        console.print(f"Change of the model value from the prior value: {percent(r['value_change'])}")
+    table("Characteristics", ["feature", "value"],
+          [[f["name"], "missing" if f["value"] is None else f["label"] or f"{f['value']:.10g}"] for f in r["features"]],
+          console)
+    stats = r["segment_statistics"]
+    if stats:
+        console.print(f"Segment {name(stats['segment'])}, {shown(stats['values'])}: {stats['n']} sales, median ratio "
+                      f"{_num(stats['median_ratio'], '.3f')}, COD {_num(stats['cod'], '.1f')}, PRD "
+                      f"{_num(stats['prd'], '.3f')}, PRB {_num(stats['prb'], '+.3f')}; verdicts "
+                      + ", ".join(f"{k} {MARKS.get(s, s)}" for k, s in stats["verdicts"].items()), highlight=False)
+    x = r["explanation"]
+    if x:
+        table(f"Explanation: the model value from {x['measured_from']}", ["part", "value", "% of value"],
+              [["base", money(x["base"]), ""]]
+              + [[p["term"], signed_money(p["currency"]), percent(p["percent"])] for p in x["parts"]]
+              + [["= model value", money(x["value"]), ""]], console)
+    grid = r["comparables"]
+    if grid:
+        header, rows = grid_table(grid)
+        table(f"Comparable sales adjusted by the model (run {grid['run_id']})", header, rows, console)
+        console.print(indicated_range(grid), highlight=False)
+    console.print("Flags: " + ("none" if not r["flags"] else ""))
+    for flag in r["flags"]:
+        console.print(f"  ! {shown(flag)}", highlight=False)
+    if r.get("report"):
+        console.print(f"Report written to {shown(r['report'])}")
+    console.print(CAUTION)
+
+
+def _num(x: float | None, fmt: str) -> str:
+    return "–" if x is None else format(x, fmt)

@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind, FeatureShape, RepeatSales
+from reval.states import FeatureKind, FeatureShape, RepeatSales, SearchArea
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -252,6 +252,30 @@ class AssessmentSettings(Declared):
 
 
 @dataclass(frozen=True)
+class ComparablesSettings(Declared):
+    """How comparable sales are chosen and adjusted to a parcel (the [comparables] section)."""
+
+    k: int = setting(5, "comparable sales shown for a parcel", lo=1, hi=20, active=True)
+    widen_below: int = setting(20, "search the parcel's segment; with fewer candidate sales than this, its market "
+                               "area; then, if `widest` allows, the whole jurisdiction", lo=1, hi=100_000)
+    widest: SearchArea = setting("market_area", 'how far the search may widen: "segment", "market_area" or '
+                                 '"jurisdiction"')
+    max_age_months: int | None = setting(None, "only sales at most this many months before the valuation date "
+                                         "(leave out: the whole sale window)", lo=1, hi=600, example=24)
+    segment_weight: float = setting(0.10, "added to the distance of a sale outside the parcel's segment (log units, "
+                                    "like a 10 % difference in one feature's contribution)", lo=0, hi=10)
+    market_area_weight: float = setting(0.20, "added to the distance of a sale outside the parcel's market area "
+                                        "(log units)", lo=0, hi=10)
+    age_weight: float = setting(0.05, "added to the distance per year between the sale and the valuation date "
+                                "(log units): recent sales are preferred", lo=0, hi=10)
+    max_gross_adjustment: float = setting(0.40, "sales needing a larger gross adjustment (sum of the rows' absolute "
+                                          "amounts / time-adjusted price) come only after every sale within it, "
+                                          "and are marked", lo=0, lo_open=True, hi=100)
+    min_fit_weight: float = setting(0.5, "sales the run's fit gave less weight than this (a doubtful price) are not "
+                                    "offered as comparables", lo=0, hi=1)
+
+
+@dataclass(frozen=True)
 class Section:
     """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
 
@@ -284,6 +308,8 @@ SECTIONS: tuple[Section, ...] = (
             "(statute, the oversight agency) may differ and then take precedence."),
     Section("model", ModelSettings, "Modelling choices shared by every segment of a run."),
     Section("assessment", AssessmentSettings, "Rules from local law: the office sets these."),
+    Section("comparables", ComparablesSettings, "Comparable sales for defending a parcel's value: the sales most "
+            "similar in what the model says matters, adjusted to the parcel by the model."),
 )
 
 
@@ -307,6 +333,7 @@ class Config:
     standards: Standards = field(default_factory=Standards)
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
+    comparables: ComparablesSettings = field(default_factory=ComparablesSettings)
     max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
@@ -365,6 +392,7 @@ def load_config(path: Path | str) -> Config:
         standards=sections["standards"],
         model=sections["model"],
         assessment=sections["assessment"],
+        comparables=sections["comparables"],
         max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )

@@ -21,8 +21,9 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (CheckPage, Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
-                                 SegmentDetail, SegmentReview, StatCell, ValueChange)
+from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, Overview, OverviewRow, ParcelDetail,
+                                 Record, SalesPage, SegmentDetail, SegmentReview, SegmentStatistics, StatCell,
+                                 ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
@@ -343,35 +344,66 @@ def _parcel_flags(config: Config, parcel: Record, features: list[Record], estima
 def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
+    with open_project(folder) as (config, store):
+        return read_parcel(store, config, parcel_id)
+
+
+def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
+    """`parcel_detail` on an open project (the parcel report builds on it)."""
+    parcel_id = parcel_id.strip()
+    found = store.records("app_parcel", [parcel_id])
+    if not found:
+        near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
+        hint = f"; did you mean {', '.join(near)}?" if near else ""
+        raise UserError(f"No parcel with id {parcel_id!r}{hint}")
+    parcel = found[0]
+    run_id = latest_run(store)
+    features = store.records("app_parcel_features", [parcel_id])
+    estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
+    parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
+    sales = store.records("app_parcel_sales", [run_id, parcel_id])
+    for s in sales:
+        s["sale_date"] = s["sale_date"].isoformat()
+    trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
+    roll = store.records("app_parcel_roll", [parcel_id])
+    for r in roll:
+        r["flags"] = list(r["flags"] or [])
+    split = None
+    if parts:
+        logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
+        base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
+        split = value_split(base, logs)
+    prior = parcel["prior_value"]
+    value = estimate["market_value"] if estimate else None
+    return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
+            "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
+            "prior_values": {k: v for k, v in parcel.items() if k.startswith("prior_")},
+            "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
+            "features": features, "estimate": estimate, "split": split, "roll": roll,
+            "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
+            "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+
+
+def segment_statistics(store: Store, config: Config, run_id: str | None, segment: str) -> SegmentStatistics | None:
+    """The segment's group in the study the app shows (out-of-fold for the run when stored, else prior values)."""
+    study, _ = _study(store, config, run_id)
+    group = next((g for g in (study["groups"] if study else []) if g["group"] == segment), None)
+    if study is None or group is None:
+        return None
+    return {"segment": segment, "study_id": study["study_id"],
+            "values": SOURCE_LABELS.get(study["values_source"], study["values_source"]), "n": group["n"],
+            "median_ratio": group["median_ratio"], "cod": group["cod"], "prd": group["prd"], "prb": group["prb"],
+            "verdicts": {stat: v["status"] for stat, v in group["verdicts"].items()}}
+
+
+def parcel_comparables(folder: Path, parcel_id: str) -> ComparableGrid | None:
+    """The parcel's comparable sales adjusted by the latest run's model (None before the first run or when the
+    run did not value it)."""
+    from reval.roll.comparables import comparable_grid  # numpy: only the parcel view needs it
+
     parcel_id = parcel_id.strip()
     with open_project(folder) as (config, store):
-        found = store.records("app_parcel", [parcel_id])
-        if not found:
-            near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
-            hint = f"; did you mean {', '.join(near)}?" if near else ""
-            raise UserError(f"No parcel with id {parcel_id!r}{hint}")
-        parcel = found[0]
         run_id = latest_run(store)
-        features = store.records("app_parcel_features", [parcel_id])
-        estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
-        parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
-        sales = store.records("app_parcel_sales", [run_id, parcel_id])
-        for s in sales:
-            s["sale_date"] = s["sale_date"].isoformat()
-        trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
-        roll = store.records("app_parcel_roll", [parcel_id])
-        for r in roll:
-            r["flags"] = list(r["flags"] or [])
-        split = None
-        if parts:
-            logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
-            base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
-            split = value_split(base, logs)
-        prior = parcel["prior_value"]
-        value = estimate["market_value"] if estimate else None
-        return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
-                "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
-                "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
-                "features": features, "estimate": estimate, "split": split, "roll": roll,
-                "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
-                "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+        if run_id is None or not store.rows("app_parcel_estimate", [run_id, parcel_id]):
+            return None
+        return comparable_grid(store, config, run_id, parcel_id)
