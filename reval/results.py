@@ -16,6 +16,7 @@ class ImportSummary(TypedDict):
     segments: int
     market_areas: int
     files: dict[str, str]
+    filled_in: dict[str, int]    # per feature: parcels whose value is missing, which the model fills in
 
 
 class SegmentSales(TypedDict):
@@ -47,6 +48,14 @@ class SaleDecision(TypedDict):
     qualification: str | None
 
 
+class FilledIn(TypedDict):
+    """What a run filled in for one feature: how many parcels lacked it and the value they took (shown as text:
+    a level's name, or the number)."""
+
+    parcels: int
+    value: str
+
+
 class FitSummary(TypedDict):
     """What a run stored: its id, counts, seconds per stage and the whole jurisdiction's accuracy per model."""
 
@@ -57,6 +66,7 @@ class FitSummary(TypedDict):
     timings: dict[str, float]
     downweighted_sales: int
     accuracy: list[dict[str, Any]]
+    filled_in: dict[str, FilledIn]   # per feature: parcels whose missing value the model filled in, and with what
 
 
 class StagedBatch(TypedDict):

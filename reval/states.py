@@ -17,6 +17,10 @@ InteractionRule = Literal["lasso", "significance", "none"]
 Loss = Literal["huber", "squared"]                                     # the fit's loss on log price
 FeatureShape = Literal["increasing", "decreasing", "free"]               # a feature's shape rule
 SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
+ClassRule = Literal["model", "land_schedule", "not_valued"]              # how a property class is valued ([classes])
+# Why a reviewer should look at a roll value (reval/roll/flags.py): each kind is the prefix of a stored code,
+# "filled:living_area", "beyond:lot_size", "class:land_schedule", "cap:max_increase_10%", "land:no_lot_size", ...
+FlagKind = Literal["filled", "beyond", "few_sales", "far_from_prior", "class", "cap", "land", "override"]
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
 VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)
@@ -24,3 +28,5 @@ FEATURE_KINDS: tuple[FeatureKind, ...] = get_args(FeatureKind)
 INTERACTION_RULES: tuple[InteractionRule, ...] = get_args(InteractionRule)
 FEATURE_SHAPES: tuple[FeatureShape, ...] = get_args(FeatureShape)
 VALUES_SOURCES: tuple[ValuesSource, ...] = get_args(ValuesSource)
+CLASS_RULES: tuple[ClassRule, ...] = get_args(ClassRule)
+FLAG_KINDS: tuple[FlagKind, ...] = get_args(FlagKind)

@@ -76,7 +76,7 @@ def test_every_parcel_is_valued_by_the_documented_rules(demo_project: Path, tmp_
     flags = v["flags"].map(set)
     assert (flags.map(lambda f: "cap:max_increase_5%" in f).to_numpy() == capped).all()
     exceeds = has_row & (raw_land > market)
-    assert (flags.map(lambda f: "land_exceeds_total" in f).to_numpy() == exceeds).all()
+    assert (flags.map(lambda f: "land:exceeds_total" in f).to_numpy() == exceeds).all()
     assert (flags.map(lambda f: "land:no_schedule_row" in f).to_numpy() == ~has_row).all()
     assert result["flags"]["cap:max_increase_5%"] == capped.sum()
 
@@ -87,7 +87,8 @@ def test_without_a_schedule_the_split_is_not_allocated(demo_project: Path, tmp_p
     v = _values(folder)
     assert result["land_schedule"] is None
     assert v["land_value"].isna().all() and v["improvement_value"].isna().all()
-    assert v["flags"].map(lambda f: list(f) == ["land:not_allocated"]).all()
+    staged_here = v["flags"].map(lambda f: [c for c in f if c.startswith(("land:", "cap:"))])   # review flags aside
+    assert staged_here.map(lambda f: f == ["land:not_allocated"]).all()
     # Defaults (config.py): level 1.0, rounding 100, no caps.
     np.testing.assert_allclose(v["assessed_value"], v["market_value"], rtol=0, atol=0)
     np.testing.assert_allclose(v["market_value"], _round_half_up(v["estimate"].to_numpy(), 100), atol=1e-6)

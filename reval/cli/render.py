@@ -90,6 +90,15 @@ def imported(r: dict[str, Any], console: Console) -> None:
     console.print(("Imported" if r["changed"] else "Already imported (files unchanged)")
                   + f": {r['parcels']:,} parcels, {r['sales']:,} sales, {r['segments']} segments in "
                   f"{r['market_areas']} market areas.")
+    _filled_in({k: f"{n:,} parcels" for k, n in r["filled_in"].items() if n}, console,
+               "Missing values the model will fill in with the typical value (each is flagged on the roll)")
+
+
+def _filled_in(counts: dict[str, str], console: Console, title: str) -> None:
+    if counts:
+        console.print(f"{title}:")
+        for feature, what in counts.items():
+            console.print(f"  {name(feature)}: {what}")
 
 
 def demo_summary(summary: dict[str, Any], console: Console) -> None:
@@ -160,6 +169,8 @@ def fit(result: dict[str, Any], console: Console) -> None:
                   f"{result['parcels']:,} parcels valued; {result['downweighted_sales']:,} sales down-weighted as far "
                   "from what the other sales say they are worth")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
+    _filled_in({k: f"{f['parcels']:,} parcels filled in with {f['value']}" for k, f in result["filled_in"].items()
+                if f["parcels"]}, console, "Missing values filled in (each is flagged on the roll)")
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
                   _by_name(result["accuracy"]), console)
     console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)

@@ -50,10 +50,12 @@ class ImportResult:
     segments: int
     market_areas: int
     files: dict[str, str]
+    missing: dict[str, int]      # parcels lacking each feature's value: the model fills them in (flagged)
 
     def as_dict(self) -> ImportSummary:
         return {"changed": self.changed, "parcels": self.parcels, "sales": self.sales,
-                "segments": self.segments, "market_areas": self.market_areas, "files": self.files}
+                "segments": self.segments, "market_areas": self.market_areas, "files": self.files,
+                "filled_in": self.missing}
 
 
 def sha256_file(path: Path) -> str:
@@ -73,12 +75,12 @@ def _roles_frame(config: Config) -> pd.DataFrame:
             if role in config.columns and not any(r["file"] == file and r["role"] == role for r in rows):
                 rows.append({"file": file, "col": config.columns[role], "role": role, "name": role,
                              "kind": ROLE_KINDS[role], "position": None, "levels": None,
-                             "lo": None, "hi": None, "log": False})
+                             "lo": None, "hi": None, "log": False, "missing": None})
     for position, f in enumerate(config.features):
         lo, hi = f.range if f.range else (None, None)
         rows.append({"file": str(config.parcels_file), "col": f.column, "role": "feature", "name": f.name,
                      "kind": f.kind, "position": position, "levels": list(f.levels) or None,
-                     "lo": lo, "hi": hi, "log": f.log})
+                     "lo": lo, "hi": hi, "log": f.log, "missing": list(f.missing) or None})
     frame = pd.DataFrame(rows)
     frame["position"] = frame["position"].astype("Int16")
     return frame
@@ -221,4 +223,5 @@ def _counts(store: Store) -> dict[str, int]:
 def _result(store: Store, changed: bool, prints: dict[str, str]) -> ImportResult:
     c = _counts(store)
     files = {k: v for k, v in prints.items() if k != "mapping"}
-    return ImportResult(changed, c["parcels"], c["sales"], c["segments"], c["market_areas"], files)
+    missing = {str(feature): int(n) for feature, n in store.rows("feature_missing_counts")}
+    return ImportResult(changed, c["parcels"], c["sales"], c["segments"], c["market_areas"], files, missing)
