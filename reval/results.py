@@ -163,6 +163,9 @@ class SegmentReview(TypedDict):
     n_downweighted: int
     downweighted: list[dict[str, Any]]
     sales_chasing: SalesChasing
+    flags: dict[str, int]        # parcels per kind of flag (reval/roll/flags.py): "filled", "beyond", ...
+    flag_codes: dict[str, int]   # parcels per flag code: "filled:living_area", "beyond:lot_size", ...
+    blockers: list[str]          # why the batch cannot be approved whatever its statistics (rows without a value)
 
 
 class ReviewReport(TypedDict):

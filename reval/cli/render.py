@@ -17,7 +17,7 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
+from reval.service.wording import CAUTION, FLAG_WORDS, NAME_WIDTH, money, percent, shown
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
@@ -219,7 +219,16 @@ def review(r: dict[str, Any], console: Console) -> None:
           "down-weighted = sales the fit gave less than full weight",
           ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted",
            "COD roll / out of fold", "sales chasing"], rows, console)
+    kinds = list(dict.fromkeys(k for s in r["segments"] for k in FLAG_WORDS if s["flags"].get(k)))
+    if kinds:
+        table("Flagged parcels per segment, by kind of flag (the roll and the export list each parcel's flags)",
+              ["segment", *(FLAG_WORDS[k] for k in kinds)],
+              [[s["segment"], *(f"{s['flags'].get(k, 0):,}" for k in kinds)] for s in r["segments"]], console)
     for s in r["segments"]:
+        for blocker in s["blockers"]:
+            console.print(Text(f"{name(s['segment'])} cannot be approved: {blocker}", style="bold"))
+        if len(r["segments"]) == 1 and s["flag_codes"]:
+            console.print("Flags: " + ", ".join(f"{name(code)} {n:,}" for code, n in s["flag_codes"].items()))
         chase = s["sales_chasing"]
         if chase["flagged"]:
             console.print(Text(f"{name(s['segment'])}: possible sales chasing:", style="bold"))

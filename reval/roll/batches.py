@@ -72,7 +72,7 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
     note = _note(note)
     staged = _open_batch(store, segment, "approve")
     run_id = staged["run_id"]
-    blockers = approval_blockers(store, staged["batch_id"])
+    blockers = approval_blockers(store, [staged["batch_id"]]).get(staged["batch_id"])
     if blockers:
         raise UserError(f"Cannot approve {segment}: {'; '.join(blockers)}. A note does not override this.")
     statistics = segment_statistics(store, config, run_id, segment)

@@ -48,12 +48,13 @@ def flag_values(store: Store, config: Config, run_id: str, batch_ids: list[int])
                              "threshold": config.assessment.review_change_threshold})
 
 
-def approval_blockers(store: Store, batch_id: int) -> list[str]:
-    """Why a batch cannot be approved whatever its statistics (empty when nothing blocks it): rows without a value."""
-    rows = store.records("roll_unvalued", {"batch_ids": [batch_id]})
-    if not rows:
-        return []
-    shown = ", ".join(f"{r['parcel_id']} ({r['property_class']})" for r in rows)
-    more = f" and {rows[0]['n'] - len(rows):,} more" if rows[0]["n"] > len(rows) else ""
-    return [f"{rows[0]['n']:,} parcel(s) have no value (a class reval does not value, or land the schedule "
-            f"cannot value): {shown}{more}; value them or remove them from the data"]
+def approval_blockers(store: Store, batch_ids: list[int]) -> dict[int, list[str]]:
+    """Why each batch cannot be approved whatever its statistics (batches nothing blocks are left out): rows
+    without a value. An override (a value set by the analyst) satisfies it by giving the row a value."""
+    out = {}
+    for r in store.records("roll_unvalued", {"batch_ids": batch_ids}):
+        more = f" and {r['n'] - len(r['examples']):,} more" if r["n"] > len(r["examples"]) else ""
+        out[int(r["batch_id"])] = [f"{r['n']:,} parcel(s) have no value (a class reval does not value, or land the "
+                                   f"schedule cannot value): {', '.join(r['examples'])}{more}; value them or "
+                                   "remove them from the data"]
+    return out

@@ -1,7 +1,7 @@
--- Rows of the given batches without a market value (reval/roll/flags.py `approval_blockers`), the first few and
--- how many in all. $batch_ids.
-SELECT parcel_id, property_class, count(*) OVER () AS n
+-- Per batch of $batch_ids: its rows without a market value (reval/roll/flags.py `approval_blockers`), how many
+-- and the first few.
+SELECT batch_id, count(*) AS n,
+       list(parcel_id || ' (' || property_class || ')' ORDER BY parcel_id)[1:5] AS examples
 FROM roll_values
 WHERE list_contains($batch_ids::BIGINT[], batch_id) AND market_value IS NULL
-ORDER BY parcel_id
-LIMIT 5;
+GROUP BY batch_id;
