@@ -50,7 +50,7 @@ class ImportResult:
     segments: int
     market_areas: int
     files: dict[str, str]
-    missing: dict[str, int]      # parcels lacking each feature's value: the model fills them in (flagged)
+    missing: dict[str, int]      # parcels the model values lacking each feature: the model fills them in (flagged)
 
     def as_dict(self) -> ImportSummary:
         return {"changed": self.changed, "parcels": self.parcels, "sales": self.sales,
@@ -190,7 +190,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
     with open_store(config.database) as store:
         current = {role: sha for role, _, sha, _ in store.rows("dataset_files")}
         if current == prints:
-            return _result(store, changed=False, prints=prints)
+            return _result(store, config, changed=False, prints=prints)
         layouts = _check_structure(store, config, allow_empty, report)
         _check_columns(config, roles, store)
         _stage(store, config, roles, layouts, progress)
@@ -212,7 +212,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
                                          "counts": counts, "config_sha256": config.sha256})
         if report.exists():
             report.unlink()
-        return _result(store, changed=True, prints=prints)
+        return _result(store, config, changed=True, prints=prints)
 
 
 def _counts(store: Store) -> dict[str, int]:
@@ -220,8 +220,9 @@ def _counts(store: Store) -> dict[str, int]:
     return {k: int(v) for k, v in frame.iloc[0].items()}
 
 
-def _result(store: Store, changed: bool, prints: dict[str, str]) -> ImportResult:
+def _result(store: Store, config: Config, changed: bool, prints: dict[str, str]) -> ImportResult:
     c = _counts(store)
     files = {k: v for k, v in prints.items() if k != "mapping"}
-    missing = {str(feature): int(n) for feature, n in store.rows("feature_missing_counts")}
+    others = list(config.classes.land_schedule + config.classes.not_valued)
+    missing = {str(feature): int(n) for feature, n in store.rows("feature_missing_counts", {"classes": others})}
     return ImportResult(changed, c["parcels"], c["sales"], c["segments"], c["market_areas"], files, missing)
