@@ -44,8 +44,8 @@ The prior value is an older roll: about 0.9 of market value, regressive (slope <
 around 350,000), with neighbourhood-specific level, slope and scatter so that some neighbourhoods
 pass a ratio study on it and some fail.
 
-A vacant lot's true value is VACANT_LAND_SHARE x exp(the neighbourhood's base log value) x (lot_size /
-the neighbourhood's median single-family lot) ** its land exponent; its prior value is about 0.9 of that.
+A vacant lot's true value is the land value the default town's land schedule gives its lot (the schedule is
+the market for land, at every size and seed); its prior value is about 0.9 of that.
 
 Land schedule (land_schedule.csv, one or two rows per neighbourhood, from the built parcels): for a parcel with
 lot_size > 0, land value = base_land_value * (lot_size / base_lot_size) ** size_exponent using the
@@ -109,7 +109,6 @@ EARLY_SALES = 30
 # Appended at the default size, from their own random stream: vacant lots (some sold) and institutional parcels.
 VACANT_LOTS = 120
 VACANT_SALES = 24
-VACANT_LAND_SHARE = 0.30           # a vacant lot of typical size is worth this share of a typical house's value
 INSTITUTIONAL_PARCELS = 6
 INSTITUTIONAL_NEIGHBOURHOOD = "GAUL"
 APPENDED_STREAM = 1                # the appended parcels' generator: default_rng([seed, APPENDED_STREAM])
@@ -299,9 +298,19 @@ def _log_value(
 
 
 def _vacant_log_value(nb: np.ndarray, lot_size: np.ndarray) -> np.ndarray:
-    """True log market value of vacant lots (see the module docstring)."""
-    return (_NB_BASE[nb] + np.log(VACANT_LAND_SHARE)
-            + _column("land_exponent")[nb] * np.log(lot_size / _column("lot_median")[nb]))
+    """True log market value of vacant lots: the default town's land schedule (see the module docstring)."""
+    sized = _vacant_schedule()
+    return (np.log(sized["base_land_value"].to_numpy(float)[nb])
+            + sized["size_exponent"].to_numpy(float)[nb] * np.log(lot_size / sized["base_lot_size"].to_numpy(float)[nb]))
+
+
+@lru_cache(maxsize=1)
+def _vacant_schedule() -> pd.DataFrame:
+    """The default town's land schedule rows for lots, one per neighbourhood in order (a neighbourhood without
+    houses, which gets no vacant lot, borrows the first row)."""
+    schedule = _built(DEFAULT_PARCELS, DEFAULT_SEED, NOISE_SD).land_schedule
+    sized = schedule[schedule["base_lot_size"] > 0].set_index("neighbourhood")
+    return sized.reindex(list(NEIGHBOURHOOD_IDS)).fillna(sized.iloc[0]).reset_index()
 
 
 def true_log_value(parcels: pd.DataFrame) -> np.ndarray:
@@ -690,9 +699,21 @@ def _appended(seed: int, scale: float, last_id: int, last_sale: int) -> tuple[pd
 
 
 def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_sd: float = NOISE_SD) -> DemoTown:
-    """Generate Vellmarsh with `n_parcels` parcels; the same arguments give the same town."""
+    """Generate Vellmarsh with `n_parcels` built parcels, then its vacant lots and institutional parcels; the same
+    arguments give the same town."""
     if n_parcels < MIN_PARCELS:
         raise ValueError(f"n_parcels must be at least {MIN_PARCELS}")
+    town = _built(n_parcels, seed, noise_sd)
+    last_sale = int(town.sales["sale_id"].str[1:].astype(int).max())
+    extra_parcels, extra_sales = _appended(seed, n_parcels / DEFAULT_PARCELS, int(town.parcels["parcel_id"].iloc[-1]),
+                                           last_sale)
+    return DemoTown(parcels=pd.concat([town.parcels, extra_parcels], ignore_index=True),
+                    sales=pd.concat([town.sales, extra_sales], ignore_index=True),
+                    land_schedule=town.land_schedule, planted_errors=town.planted_errors)
+
+
+def _built(n_parcels: int, seed: int, noise_sd: float) -> DemoTown:
+    """The built parcels (houses, townhouses, condominiums), their sales and land schedule."""
     rng = np.random.default_rng(seed)
     scale = n_parcels / DEFAULT_PARCELS
     counts = _allocate(_column("parcels"), n_parcels)
@@ -752,10 +773,7 @@ def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_s
             for kind, row, column, recorded, correct in planted
         ]
     )
-    extra_parcels, extra_sales = _appended(seed, scale, int(parcel_ids[-1]), int(s["sale_number"].max()))
-    return DemoTown(parcels=pd.concat([parcels, extra_parcels], ignore_index=True),
-                    sales=pd.concat([sales, extra_sales], ignore_index=True),
-                    land_schedule=land, planted_errors=planted_errors)
+    return DemoTown(parcels=parcels, sales=sales, land_schedule=land, planted_errors=planted_errors)
 
 
 def write_project(folder: Path, n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED) -> None:

@@ -4,8 +4,9 @@ Each staged row carries a list of codes `kind:detail` (the kinds are `reval.stat
 
 * `filled:<feature>`: the parcel lacked the feature; the model took the run's typical value (the text says which);
 * `beyond:<feature>`: a continuous feature lies outside the range of the sales the run's fit rested on in the
-  parcel's segment (its market area's when the segment has none): the curve is flat there, so the value is that
-  at the edge (the text gives the range);
+  parcel's segment (its market area's when the segment has none): the segment's own curve is held flat there and
+  the wider market's curve applies; beyond every sale, the whole curve is flat and the value is that at the edge
+  (the text says which, with the range);
 * `few_sales`: the parcel's segment has fewer qualified sales than `[standards] min_sales`;
 * `far_from_prior`: the market value differs from the prior value by more than
   `[assessment] review_change_threshold` (the same rule `reval review` lists);

@@ -35,6 +35,8 @@ FROM (
         SELECT segment, position, min(value) AS lo, max(value) AS hi FROM sold_values GROUP BY ALL
     ), area_range AS (
         SELECT market_area, position, min(value) AS lo, max(value) AS hi FROM sold_values GROUP BY ALL
+    ), all_range AS (
+        SELECT position, min(value) AS lo, max(value) AS hi FROM sold_values GROUP BY ALL
     ), segment_sales AS (
         SELECT p.segment, count(DISTINCT s.sale_id) AS n
         FROM sale_predictions s JOIN parcels p ON p.parcel_id = s.parcel_id
@@ -42,12 +44,13 @@ FROM (
         GROUP BY p.segment
     ), questioned AS (   -- a model-valued parcel's missing features, and its continuous ones beyond the sales
         SELECT r.batch_id, r.parcel_id, f.position, f.name, x.value, f.kind, f.levels, m.fill_value,
-               coalesce(sr.lo, ar.lo) AS lo, coalesce(sr.hi, ar.hi) AS hi
+               coalesce(sr.lo, ar.lo) AS lo, coalesce(sr.hi, ar.hi) AS hi, al.lo AS all_lo, al.hi AS all_hi
         FROM rows r
         CROSS JOIN features f
         LEFT JOIN feature_values x ON x.parcel_id = r.parcel_id AND x.position = f.position
         LEFT JOIN segment_range sr ON sr.segment = r.segment AND sr.position = f.position
         LEFT JOIN area_range ar ON ar.market_area = r.market_area AND ar.position = f.position
+        LEFT JOIN all_range al ON al.position = f.position
         LEFT JOIN run_features m ON m.run_id = $run AND m.position = f.position
         WHERE r.rule = 'model'
           AND (x.value IS NULL
@@ -58,9 +61,13 @@ FROM (
                list(CASE WHEN value IS NULL
                          THEN name || ' missing: filled in with ' || coalesce(flag_level(kind, levels, fill_value),
                                                                               'the typical value of the sales')
+                         WHEN value < all_lo OR value > all_hi
+                         THEN name || ' ' || flag_number(value) || ' is beyond every sale (' || flag_number(all_lo)
+                              || ' to ' || flag_number(all_hi) || '): valued as at '
+                              || flag_number(least(greatest(value, all_lo), all_hi))
                          ELSE name || ' ' || flag_number(value) || ' is beyond the segment''s sales ('
-                              || flag_number(lo) || ' to ' || flag_number(hi) || '): valued as at '
-                              || flag_number(least(greatest(value, lo), hi)) END
+                              || flag_number(lo) || ' to ' || flag_number(hi) || '): its own curve is held at '
+                              || flag_number(least(greatest(value, lo), hi)) || ', the wider market''s applies' END
                     ORDER BY position) AS texts
         FROM questioned
         GROUP BY batch_id, parcel_id
