@@ -155,8 +155,8 @@ MISSING_CONFIG = SMALL_CONFIG.replace('range = [200, 8000]\n', 'range = [200, 80
 
 
 def test_values_declared_missing_are_imported_as_missing_and_counted(tmp_path: Path) -> None:
-    parcels = SMALL_PARCELS.replace("00102,north,A,single_family,210000,1800,good", "00102,north,A,single_family,210000,0,good"
-                                    ).replace("00103,south,A,single_family,99000,900,low", "00103,south,A,single_family,99000,0.0,unknown")
+    parcels = (SMALL_PARCELS.replace("210000,1800,good", "210000,0,good")
+               .replace("99000,900,low", "99000,0.0,unknown"))
     folder = write_project(tmp_path / "p", config=MISSING_CONFIG, parcels=parcels)
     result = import_data(folder)
     assert result["filled_in"] == {"living_area": 2, "quality": 1, "garage": 0}
