@@ -58,7 +58,8 @@ def _check_coverage(store: Store, run_id: str) -> None:
 def refuse_bad_values(store: Store, batch_ids: list[int], step: str) -> None:
     """Refuse a step (staging, export) whose batches hold a value that cannot go on a roll: market and assessed
     values must be finite and positive, prior, land and improvement values finite and not negative; the
-    message names the parcels."""
+    message names the parcels. A row without a value (a class left for a manual value) is not refused here: it
+    blocks its segment's approval (reval/roll/flags.py)."""
     rows = store.records("roll_bad_values", {"batch_ids": batch_ids})
     if not rows:
         return
