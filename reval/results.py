@@ -16,6 +16,7 @@ class ImportSummary(TypedDict):
     segments: int
     market_areas: int
     files: dict[str, str]
+    filled_in: dict[str, int]    # per feature: parcels whose value is missing, which the model fills in
 
 
 class SegmentSales(TypedDict):
@@ -63,6 +64,14 @@ class SaleDecision(TypedDict):
     qualification: str | None
 
 
+class FilledIn(TypedDict):
+    """What a run filled in for one feature: how many parcels lacked it and the value they took (shown as text:
+    a level's name, or the number)."""
+
+    parcels: int
+    value: str
+
+
 class FitSummary(TypedDict):
     """What a run stored: its id, counts, seconds per stage and the whole jurisdiction's accuracy per model."""
 
@@ -73,6 +82,7 @@ class FitSummary(TypedDict):
     timings: dict[str, float]
     downweighted_sales: int
     accuracy: list[dict[str, Any]]
+    filled_in: dict[str, FilledIn]   # per feature: parcels whose missing value the model filled in, and with what
 
 
 class StagedBatch(TypedDict):
@@ -169,6 +179,9 @@ class SegmentReview(TypedDict):
     n_downweighted: int
     downweighted: list[dict[str, Any]]
     sales_chasing: SalesChasing
+    flags: dict[str, int]        # parcels per kind of flag (reval/roll/flags.py): "filled", "beyond", ...
+    flag_codes: dict[str, int]   # parcels per flag code: "filled:living_area", "beyond:lot_size", ...
+    blockers: list[str]          # why the batch cannot be approved whatever its statistics (rows without a value)
 
 
 class ReviewReport(TypedDict):

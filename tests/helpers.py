@@ -294,11 +294,18 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
     return run_id
 
 
-def roll_project(demo_project: Path, target: Path, assessment: str | None = "", **run: object) -> Path:
+ALL_VALUED = 'land_schedule = ["vacant_land"]\n'   # [classes] that leave no parcel without a value
+
+
+def roll_project(demo_project: Path, target: Path, assessment: str | None = "", classes: str = ALL_VALUED,
+                 **run: object) -> Path:
     """A copy of the demo project with one fixture run 'run-a' (seed 1). The [assessment] section uses the
-    demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults)."""
+    demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults). [classes]
+    values vacant lots by the schedule (when there is one) and the rest by the model, so every segment can be
+    approved; give the demo's own lines to leave its institutional parcels without a value."""
     shutil.copytree(demo_project, target)
     set_assessment(target, "" if assessment is None else f'land_schedule = "land_schedule.csv"\n{assessment}')
+    set_section(target, "classes", classes if assessment is not None else "")
     insert_run(target, "run-a", 1, **run)  # type: ignore[arg-type]
     return target
 

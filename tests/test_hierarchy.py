@@ -165,6 +165,7 @@ def demo() -> SimpleNamespace:
     town = demo_town.generate()
     sales = town.sales[(town.sales.validity == "valid") & ~town.sales.sale_id.duplicated(keep=False)]
     data = sales.merge(town.parcels, on="parcel_id")
+    data = data[data.property_class != "vacant_land"]   # the demo values vacant lots by its land schedule alone
     features = [
         SimpleNamespace(name="living_area", kind="continuous", log=True, levels=()),
         SimpleNamespace(name="lot_size", kind="continuous", log=False, levels=()),

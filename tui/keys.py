@@ -66,7 +66,7 @@ REGISTRY: tuple[KeyAction, ...] = (
               show=False),
     KeyAction("overview.failing", "F", "toggle_failing", "overview", "Failing",
               "Show only segments that cannot be approved without a note: a standard failed or inconclusive, "
-              "too few or no sales (again: all)"),
+              "too few or no sales, or a parcel left without a value (again: all)"),
     KeyAction("overview.area", "m", "cycle_area", "overview", "Area", "Filter by market area (cycles)",
               show=False),
     KeyAction("overview.state", "t", "cycle_state", "overview", "State", "Filter by batch state (cycles)",

@@ -17,7 +17,7 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from reval.service.wording import (CAUTION, NAME_WIDTH, grid_table, indicated_range, money, percent, shown,
+from reval.service.wording import (CAUTION, FLAG_WORDS, NAME_WIDTH, grid_table, indicated_range, money, percent, shown,
                                  signed_money)
 
 Render = Callable[[Any, Console], None]
@@ -92,6 +92,15 @@ def imported(r: dict[str, Any], console: Console) -> None:
     console.print(("Imported" if r["changed"] else "Already imported (files unchanged)")
                   + f": {r['parcels']:,} parcels, {r['sales']:,} sales, {r['segments']} segments in "
                   f"{r['market_areas']} market areas.")
+    _filled_in({k: f"{n:,} parcels" for k, n in r["filled_in"].items() if n}, console,
+               "Missing values the model will fill in with the typical value (each is flagged on the roll)")
+
+
+def _filled_in(counts: dict[str, str], console: Console, title: str) -> None:
+    if counts:
+        console.print(f"{title}:")
+        for feature, what in counts.items():
+            console.print(f"  {name(feature)}: {what}")
 
 
 def demo_summary(summary: dict[str, Any], console: Console) -> None:
@@ -204,6 +213,8 @@ def fit(result: dict[str, Any], console: Console) -> None:
                   f"{result['parcels']:,} parcels valued; {result['downweighted_sales']:,} sales down-weighted as far "
                   "from what the other sales say they are worth")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
+    _filled_in({k: f"{f['parcels']:,} parcels filled in with {f['value']}" for k, f in result["filled_in"].items()
+                if f["parcels"]}, console, "Missing values filled in (each is flagged on the roll)")
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
                   _by_name(result["accuracy"]), console)
     console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)
@@ -252,7 +263,16 @@ def review(r: dict[str, Any], console: Console) -> None:
           "down-weighted = sales the fit gave less than full weight",
           ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted",
            "COD roll / out of fold", "sales chasing"], rows, console)
+    kinds = list(dict.fromkeys(k for s in r["segments"] for k in FLAG_WORDS if s["flags"].get(k)))
+    if kinds:
+        table("Flagged parcels per segment, by kind of flag (the roll and the export list each parcel's flags)",
+              ["segment", *(FLAG_WORDS[k] for k in kinds)],
+              [[s["segment"], *(f"{s['flags'].get(k, 0):,}" for k in kinds)] for s in r["segments"]], console)
     for s in r["segments"]:
+        for blocker in s["blockers"]:
+            console.print(Text(f"{name(s['segment'])} cannot be approved: {blocker}", style="bold"))
+        if len(r["segments"]) == 1 and s["flag_codes"]:
+            console.print("Flags: " + ", ".join(f"{name(code)} {n:,}" for code, n in s["flag_codes"].items()))
         chase = s["sales_chasing"]
         if chase["flagged"]:
             console.print(Text(f"{name(s['segment'])}: possible sales chasing:", style="bold"))

@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind, FeatureShape, RepeatSales, SearchArea
+from reval.states import ClassRule, FeatureKind, FeatureShape, RepeatSales, SearchArea
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -102,6 +102,14 @@ SALE_ROLES: dict[str, bool] = {r: ROLES[r] for r in ("sale_id", "sale_date", "sa
 PARCEL_ROLES: dict[str, bool] = {r: required for r, required in ROLES.items() if r not in SALE_ROLES}
 
 
+def _missing_codes(value: Any, key: str) -> tuple[str, ...]:
+    """Cell values that mean "not known" for a feature: numbers (compared as numbers) or text, kept as text."""
+    if not isinstance(value, (list, tuple)) or not all(
+            isinstance(v, (str, int, float)) and not isinstance(v, bool) for v in value):
+        raise Invalid(key, f"expected a list of numbers or text, e.g. [0] or [\"unknown\"], got {toml_value(value)}")
+    return tuple(v if isinstance(v, str) else str(v) for v in value)
+
+
 @dataclass(frozen=True, kw_only=True)
 class FeatureSpec(Declared):
     """One model feature (a [[features]] table): its name, the user's column, its type, transform, range and shape
@@ -118,6 +126,9 @@ class FeatureSpec(Declared):
     shape: FeatureShape = setting("free", '"increasing" or "decreasing" for a continuous or ordinal feature whose '
                                   "direction the market never reverses: its curve in every segment then never turns "
                                   'the other way, not even at the thin edges of the data; "free" lets the sales decide')
+    missing: tuple[str, ...] = setting((), "cell values that mean the value is not known (e.g. [0] where 0 bedrooms "
+                                       "means unknown): imported as missing, so the model fills them in and flags them",
+                                       check=_missing_codes, type_text="a list of numbers or text")
 
     def check(self) -> None:
         if not self.column:
@@ -135,6 +146,9 @@ class FeatureSpec(Declared):
             raise Invalid("range", "a log-transformed feature cannot have negative values")
         if self.shape != "free" and self.kind not in ("continuous", "ordinal"):
             raise Invalid("shape", f"only continuous and ordinal features take a shape rule, not {self.kind}")
+        clash = [code for code in self.missing if code in self.levels]
+        if clash:
+            raise Invalid("missing", f"'{clash[0]}' is one of the levels; a level cannot also mean missing")
 
 
 @dataclass(frozen=True)
@@ -155,6 +169,9 @@ class SalesRules(Declared):
     repeat_sales: RepeatSales = setting("latest", '"latest": of a parcel sold more than once in the sale window, only '
                                         'its latest sale that passes the other rules counts (the others: "earlier '
                                         'repeat sale"; two on one day: one is kept); "all" keeps every sale')
+    require_features: tuple[str, ...] = setting((), "sales of parcels missing any of these features are left out "
+                                                "(a filled-in value would stand in for what the buyer paid for)",
+                                                example=("living_area",))
 
     def check(self) -> None:
         if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:
@@ -276,6 +293,29 @@ class ComparablesSettings(Declared):
 
 
 @dataclass(frozen=True)
+class ClassRules(Declared):
+    """How each property class is valued (the [classes] section); a class named in neither list is valued by the
+    model, and the model is fitted on the sales of those classes alone."""
+
+    land_schedule: tuple[str, ...] = setting((), "classes valued by the land schedule alone (vacant land): the "
+                                             "value is the land value, the improvement 0", example=("vacant_land",))
+    not_valued: tuple[str, ...] = setting((), "classes left for a manual value: flagged on the roll, their segment "
+                                          "cannot be approved until each is valued or removed from the data",
+                                          example=("special_purpose",))
+
+    def check(self) -> None:
+        both = sorted(set(self.land_schedule) & set(self.not_valued))
+        if both:
+            raise Invalid("not_valued", f"class '{both[0]}' is also in classes.land_schedule")
+
+    def rule(self, property_class: str) -> ClassRule:
+        """How parcels of a class are valued."""
+        if property_class in self.land_schedule:
+            return "land_schedule"
+        return "not_valued" if property_class in self.not_valued else "model"
+
+
+@dataclass(frozen=True)
 class Section:
     """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
 
@@ -310,6 +350,8 @@ SECTIONS: tuple[Section, ...] = (
     Section("assessment", AssessmentSettings, "Rules from local law: the office sets these."),
     Section("comparables", ComparablesSettings, "Comparable sales for defending a parcel's value: the sales most "
             "similar in what the model says matters, adjusted to the parcel by the model."),
+    Section("classes", ClassRules, "How each property class is valued: by the model (every class not named here), "
+            "by the land schedule alone, or not at all (left for a manual value)."),
 )
 
 
@@ -334,6 +376,7 @@ class Config:
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
     comparables: ComparablesSettings = field(default_factory=ComparablesSettings)
+    classes: ClassRules = field(default_factory=ClassRules)
     max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
@@ -372,6 +415,7 @@ def load_config(path: Path | str) -> Config:
         jurisdiction: Jurisdiction = sections["jurisdiction"]
         parcels_file = _input_file(path, files.parcels, "files.parcels")
         sales_file = None if files.sales is None else _input_file(path, files.sales, "files.sales")
+        _check_across(sections)
     except Invalid as exc:
         raise ConfigError(path, exc.key, exc.problem) from None
     columns = {k.name: getattr(sections["columns"], k.attribute) for k in declared_keys(Columns)}
@@ -393,9 +437,21 @@ def load_config(path: Path | str) -> Config:
         model=sections["model"],
         assessment=sections["assessment"],
         comparables=sections["comparables"],
+        classes=sections["classes"],
         max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )
+
+
+def _check_across(sections: dict[str, Any]) -> None:
+    """Checks between sections: required features must be declared; land-valued classes need a land schedule."""
+    names = {f.name for f in sections["features"]}
+    unknown = [n for n in sections["sales"].require_features if n not in names]
+    if unknown:
+        raise Invalid("sales.require_features", f"'{unknown[0]}' is not a declared feature "
+                      f"(features: {', '.join(sorted(names)) or 'none'})")
+    if sections["classes"].land_schedule and sections["assessment"].land_schedule is None:
+        raise Invalid("classes.land_schedule", "classes valued by the land schedule need assessment.land_schedule")
 
 
 def _parse(path: Path, raw_bytes: bytes) -> dict[str, Any]:

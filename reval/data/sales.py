@@ -56,7 +56,9 @@ def prepare_sales(store: Store, config: Config, progress: Progress | None = None
                                     list(rules.validity_codes_kept) if rules.validity_codes_kept else None,
                                     rules.exclude_multi_parcel,
                                     list(rules.property_classes) if rules.property_classes else None,
-                                    rules.price_min, rules.price_max, rules.repeat_sales == "latest"])
+                                    rules.price_min, rules.price_max, rules.repeat_sales == "latest",
+                                    list(rules.require_features),
+                                    list(config.classes.land_schedule + config.classes.not_valued)])
         if progress:
             progress("qualifying sales", 1, 2)
         data = qualified_sales(store)

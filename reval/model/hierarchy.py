@@ -33,6 +33,7 @@ from joblib import Parallel, delayed
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
+from reval.model import RANGE_WEIGHT
 from reval.model.design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis, typical_value
 from reval.model.interactions import candidate_pairs, select_interactions
 from reval.model.settings import ModelSettings
@@ -42,7 +43,6 @@ from reval.model.shape import Layer, shape_constraint
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
-RANGE_WEIGHT = 0.5  # sales of lower weight do not stretch a layer's curves (see `_counted`)
 Progress = Callable[[int, int], None]
 
 

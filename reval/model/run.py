@@ -101,6 +101,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         "settings": json.dumps(dataclasses.asdict(settings), default=list), "library_versions": json.dumps(_versions()),
         "timings": json.dumps(timings)}])
     reports = _segment_reports(model, parcels, X_all, run_id)
+    fills = _filled_in(model, config, parcels, X_all)
     sale_predictions = pd.concat([_predictions(run_id, sales, model, folds, oof),
                                   _predictions(run_id, qualified.rows(~in_fit), model)], ignore_index=True)
     weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy()[: len(y)], run_id)
@@ -114,6 +115,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
+        store.insert("insert_run_features", fills.assign(run_id=run_id))
         downweighted = int((weights["weight"] < 1).sum())
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
@@ -124,7 +126,27 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings, "downweighted_sales": downweighted,
-            "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
+            "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore"))),
+            "filled_in": {str(r.feature): {"parcels": int(r.n_filled), "value": fill_text(features[int(r.position)],
+                                                                                          float(r.fill_value))}
+                          for r in fills.itertuples()}}
+
+
+def fill_text(feature: FeatureSpec, value: float) -> str:
+    """A filled-in value as people read it: the level's name, or the number."""
+    if feature.kind in ("ordinal", "categorical") and 0 <= value < len(feature.levels):
+        return feature.levels[int(value)]
+    return f"{value:,.4g}"
+
+
+def _filled_in(model: FittedHierarchy, config: Config, parcels: pd.DataFrame, X: np.ndarray) -> pd.DataFrame:
+    """Per feature: the value the model takes where a parcel lacks one (the typical value of the sales it was fitted
+    on) and how many parcels of the classes the model values lack it (reval/roll/flags.py flags each of them)."""
+    valued = parcels["property_class"].map(config.classes.rule).to_numpy() == "model"
+    return pd.DataFrame({"feature": [t.name for t in model.spec.transforms],
+                         "position": np.arange(len(model.spec.transforms), dtype=np.int16),
+                         "fill_value": [t.impute for t in model.spec.transforms],
+                         "n_filled": np.isnan(X[valued]).sum(axis=0).astype(np.int64)})
 
 
 def fold_targets(config: Config, sales: SalesData, folds: np.ndarray) -> dict[int, np.ndarray]:

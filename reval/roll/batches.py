@@ -4,7 +4,8 @@ staged -> approved | held; held -> staged again only through a new value step (`
 --replace` after a new run or a changed basis); approved -> exported (reval.export), or back to staged when
 revoked before export (to 'replaced' when a newer open batch already exists). Approval needs the segment's
 out-of-fold ratio statistics of the batch's run, computed at that moment under the current standards and
-study settings (never a stored study's older verdicts), to pass, or an override note, which is stored.
+study settings (never a stored study's older verdicts), to pass, or an override note, which is stored; a batch
+with a parcel left without a value (reval/roll/flags.py `approval_blockers`) cannot be approved at all.
 The event keeps that snapshot and the batch the fingerprint of the standards it was judged under
 (reval/stats/judging.py). Approving a newer batch marks the segment's earlier approved one 'superseded'.
 Approved values never change.
@@ -20,6 +21,7 @@ from reval.data.events import record_event
 from reval.stats.judging import failures, judging_basis, judging_sha256
 from reval.data.store import Store
 from reval.roll.batch_states import live_batches
+from reval.roll.flags import approval_blockers
 from reval.states import BatchState, ValuesSource
 from reval.stats.study import segment_judgement
 from reval.results import Decision
@@ -68,7 +70,11 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
     """Approve the segment's staged batch when its out-of-fold statistics pass, or with an override note."""
     _known(store, segment)
     note = _note(note)
-    run_id = _open_batch(store, segment, "approve")["run_id"]
+    staged = _open_batch(store, segment, "approve")
+    run_id = staged["run_id"]
+    blockers = approval_blockers(store, [staged["batch_id"]]).get(staged["batch_id"])
+    if blockers:
+        raise UserError(f"Cannot approve {segment}: {'; '.join(blockers)}. A note does not override this.")
     statistics = segment_statistics(store, config, run_id, segment)
     reasons = failures(statistics)
     if reasons and note is None:
@@ -76,7 +82,7 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
                         f"the standards: {'; '.join(reasons)}. Approve with a note to override (the note is stored).")
     with store.transaction():
         batch = _open_batch(store, segment, "approve")
-        if batch["run_id"] != run_id:
+        if batch["batch_id"] != staged["batch_id"]:
             raise UserError(f"The batch of {segment} changed while approving; try again.")
         totals = store.records("batch_totals", [batch["batch_id"]])[0]
         earlier = [b for b in live_batches(store, segment) if b["state"] == "approved"]

@@ -5,7 +5,9 @@ assessed value = market value x `assessment.level`, rounded, then capped: a `[[a
 limits the assessed value of its property classes (all classes when it names none) to at most
 prior value x (1 + max_increase), rounded down; the tightest cap of a class applies;
 land value from the land schedule (reval.land), never above the total; improvement = total - land.
-Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%").
+A property class the model does not value (`[classes]`) takes its land value alone, or no value.
+Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%"), and so
+does every value a reviewer would question (reval/roll/flags.py).
 No value that is not finite, or not positive, is ever staged or exported (`refuse_bad_values`).
 
 Staging is per segment: the named segments, by default those without a standing decision (a held batch
@@ -25,6 +27,7 @@ from reval.data.config import Config
 from reval.errors import ConfigError, UserError
 from reval.data.events import record_event
 from reval.roll.batch_states import SegmentBatches, segment_states, standing_decision
+from reval.roll.flags import class_rules, flag_values
 from reval.roll.land import LandSchedule, load_land_schedule
 from reval.data.store import Store
 from reval.results import StagePlan, StageResult, StagedBatch, StandingDecision
@@ -55,7 +58,8 @@ def _check_coverage(store: Store, run_id: str) -> None:
 def refuse_bad_values(store: Store, batch_ids: list[int], step: str) -> None:
     """Refuse a step (staging, export) whose batches hold a value that cannot go on a roll: market and assessed
     values must be finite and positive, prior, land and improvement values finite and not negative; the
-    message names the parcels."""
+    message names the parcels. A row without a value (a class left for a manual value) is not refused here: it
+    blocks its segment's approval (reval/roll/flags.py)."""
     rows = store.records("roll_bad_values", {"batch_ids": batch_ids})
     if not rows:
         return
@@ -150,13 +154,14 @@ def stage_values(store: Store, config: Config, run_id: str | None = None, segmen
     every = [r[0] for r in store.rows("roll_segments")]
     schedule = load_land_schedule(config, every)
     basis = _basis(config, schedule)
-    caps = cap_table(config, [r[0] for r in store.rows("roll_property_classes")])
+    classes = [r[0] for r in store.rows("roll_property_classes")]
+    caps = cap_table(config, classes)
     lot_position = _lot_position(store, schedule)
     land_rows = schedule.rows if schedule else pd.DataFrame(
         {"segment": pd.Series(dtype=str), "base_lot_size": pd.Series(dtype=float),
          "base_land_value": pd.Series(dtype=float), "size_exponent": pd.Series(dtype=float)})
     at = utc_now()
-    frames = {"roll_land_schedule": land_rows, "roll_caps": caps}
+    frames = {"roll_land_schedule": land_rows, "roll_caps": caps, "roll_classes": class_rules(config, classes)}
     for name, frame in frames.items():
         store.con.register(name, frame)
     try:
@@ -174,6 +179,7 @@ def stage_values(store: Store, config: Config, run_id: str | None = None, segmen
             store.run("roll_insert_values", {"run": run, "batch_ids": new_ids, "level": config.assessment.level,
                                              "rounding": config.assessment.rounding,
                                              "allocate": schedule is not None, "lot_position": lot_position})
+            flag_values(store, config, run, new_ids)
             refuse_bad_values(store, new_ids, "Staging")
             _record_staging(con, run, basis, staged, replaced)
             flags = dict(store.rows("roll_flag_counts", {"batch_ids": new_ids}))

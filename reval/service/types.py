@@ -88,7 +88,7 @@ class OverviewRow(TypedDict):
     value_change: float | None
     stats: dict[str, StatCell]   # by statistic: median_ratio, cod, prd, prb
     n: int
-    failing: bool                # cannot be approved without a note: a verdict not a pass, or no study
+    failing: bool                # cannot be approved without a note: a verdict not a pass, no study, or a parcel without a value
     state: BatchState | None
     batches: str                 # certified and open batch side by side, e.g. "approved, run 3 · run 4 pending"
 

@@ -25,6 +25,7 @@ from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, Overv
                                  Record, SalesPage, SegmentDetail, SegmentReview, SegmentStatistics, StatCell,
                                  ValueChange)
 from reval.states import BatchState
+from reval.roll.flags import approval_blockers
 from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
 from reval.states import ValuesSource
@@ -128,6 +129,8 @@ def overview(folder: Path) -> Overview:
         run_id = latest_run(store)
         study, note = _study(store, config, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
+        open_ids = {e["segment"]: int(e["open"]["batch_id"]) for e in states.values() if e["open"] is not None}
+        blocked = approval_blockers(store, list(open_ids.values()))
         rows: list[OverviewRow] = []
         for r in store.records("app_segments", [run_id]):
             group = by_group.get(r["segment"])
@@ -136,7 +139,7 @@ def overview(folder: Path) -> Overview:
                          "sales": r["sales"], "kind": r["kind"], "borrowed_share": r["borrowed_share"],
                          "reason": r["reason"], "value_change": r["value_change"], "stats": stats,
                          "n": group["n"] if group else 0,
-                         "failing": not _approvable(group, study),
+                         "failing": not _approvable(group, study) or open_ids.get(r["segment"]) in blocked,
                          "state": _state(states.get(r["segment"])),
                          "batches": states[r["segment"]]["summary"] if r["segment"] in states else "no batch"})
         return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
@@ -337,7 +340,8 @@ def _parcel_flags(config: Config, parcel: Record, features: list[Record], estima
         flags.append(f"valued with its parent's model: {estimate['reason'] or 'too few sales'}")
     flags += [f"sale {s['sale_id']} excluded: {s['reason']}" for s in sales if s["qualified"] is False]
     flags += [f"sale {t} trimmed as a ratio outlier" for t in trimmed]
-    flags += [f"roll (batch {r['batch_id']}, {r['state']}): {flag}" for r in roll for flag in r["flags"]]
+    flags += [f"roll (batch {r['batch_id']}, {r['state']}): {text}" for r in roll
+              for text in (r["flag_text"].split("; ") if r["flag_text"] else r["flags"])]
     return flags
 
 

@@ -9,9 +9,22 @@ if TYPE_CHECKING:
 
 from rich.cells import cell_len
 
+from reval.states import FlagKind
+
 CAUTION = ("Values are estimates for review by a qualified assessor; assessment level, caps, exemptions, "
            "notices and appeals follow local law.")
 MISSING = "–"
+
+# Each kind of roll flag (reval.states.FlagKind, reval/roll/flags.py) in a few words, for column heads and counts.
+FLAG_WORDS: dict[FlagKind, str] = {
+    "filled": "filled in", "beyond": "beyond the sales", "few_sales": "few sales", "far_from_prior": "far from prior",
+    "class": "class rule", "cap": "capped", "land": "land rule", "override": "override",
+}
+
+
+def flag_counts(flags: dict[str, int]) -> str:
+    """Parcels per kind of flag in one line ("12 filled in, 3 beyond the sales"), or "none"."""
+    return ", ".join(f"{n:,} {FLAG_WORDS.get(k, k)}" for k, n in flags.items() if k in FLAG_WORDS and n) or "none"
 
 
 def money(value: float | None) -> str:

@@ -14,7 +14,8 @@ COPY (
                AS change_pct,
            export_text(b.run_id) AS run_id,
            b.batch_id,
-           export_text(nullif(array_to_string(v.flags, ';'), '')) AS flags
+           export_text(nullif(array_to_string(v.flags, ';'), '')) AS flags,
+           export_text(v.flag_text) AS flag_text
     FROM roll_values v JOIN batches b ON b.batch_id = v.batch_id
     WHERE list_contains($batch_ids::BIGINT[], v.batch_id)
     ORDER BY b.segment, v.parcel_id

@@ -1,20 +1,23 @@
 -- Every parcel value of the new batches, set-based. Rounding is to the nearest $rounding (halves away from
 -- zero; 0 = none). Land comes from roll_land_schedule (segment, base_lot_size, base_land_value,
--- size_exponent) when $allocate; caps from roll_caps (property_class, max_increase, label).
+-- size_exponent) when $allocate; caps from roll_caps (property_class, max_increase, label). A class the model
+-- does not value (roll_classes: property_class, rule) takes the land value alone ('land_schedule') or no value
+-- ('not_valued', or a land-valued parcel the schedule cannot value).
 -- $run, $batch_ids, $level, $rounding, $allocate, $lot_position.
 CREATE OR REPLACE TEMP MACRO roll_round(x, unit) AS CASE WHEN unit > 0 THEN round(x / unit) * unit ELSE x END;
 CREATE OR REPLACE TEMP MACRO roll_round_down(x, unit) AS
     CASE WHEN unit > 0 THEN floor(x / unit + 1e-9) * unit ELSE x END;
-INSERT INTO roll_values
+INSERT INTO roll_values BY NAME
 WITH base AS (
-    SELECT b.batch_id, p.parcel_id, p.segment, p.property_class, p.prior_value,
-           roll_round(e.market_value, $rounding::DOUBLE) AS market_value, f.value AS lot
+    SELECT b.batch_id, p.parcel_id, p.segment, p.property_class, p.prior_value, coalesce(k.rule, 'model') AS rule,
+           roll_round(e.market_value, $rounding::DOUBLE) AS model_value, f.value AS lot
     FROM parcel_estimates e
     JOIN parcels p ON p.parcel_id = e.parcel_id
     JOIN batches b ON b.segment = p.segment AND list_contains($batch_ids::BIGINT[], b.batch_id)
     LEFT JOIN feature_values f ON f.parcel_id = p.parcel_id AND f.position = $lot_position::SMALLINT
+    LEFT JOIN roll_classes k ON k.property_class = p.property_class
     WHERE e.run_id = $run
-), land AS (
+), scheduled AS (
     SELECT base.*, s.segment IS NOT NULL AS has_row,
            roll_round(CASE WHEN s.base_lot_size = 0 THEN s.base_land_value
                            ELSE s.base_land_value * pow(base.lot / s.base_lot_size, s.size_exponent) END,
@@ -22,6 +25,9 @@ WITH base AS (
     FROM base
     LEFT JOIN roll_land_schedule s ON $allocate AND s.segment = base.segment
                                   AND (s.base_lot_size > 0) = (base.lot > 0)
+), land AS (
+    SELECT *, CASE rule WHEN 'model' THEN model_value WHEN 'land_schedule' THEN raw_land END AS market_value
+    FROM scheduled
 ), valued AS (
     SELECT land.*, c.label AS cap_label,
            roll_round(land.market_value * $level::DOUBLE, $rounding::DOUBLE) AS uncapped,
@@ -32,13 +38,14 @@ WITH base AS (
     FROM land LEFT JOIN roll_caps c ON c.property_class = land.property_class
 )
 SELECT batch_id, parcel_id, property_class, prior_value, market_value,
-       CASE WHEN has_row THEN least(raw_land, market_value) END AS land_value,
-       CASE WHEN has_row THEN market_value - least(raw_land, market_value) END AS improvement_value,
+       CASE WHEN has_row AND market_value IS NOT NULL THEN least(raw_land, market_value) END AS land_value,
+       CASE WHEN has_row AND market_value IS NOT NULL THEN market_value - least(raw_land, market_value) END
+           AS improvement_value,
        CASE WHEN capped THEN cap_value ELSE uncapped END AS assessed_value,
        list_filter([CASE WHEN capped THEN cap_label END,
                     CASE WHEN NOT $allocate THEN 'land:not_allocated'
                          WHEN lot IS NULL THEN 'land:no_lot_size'
                          WHEN NOT has_row THEN 'land:no_schedule_row'
-                         WHEN raw_land > market_value THEN 'land_exceeds_total' END],
+                         WHEN raw_land > market_value THEN 'land:exceeds_total' END],
                    lambda x: x IS NOT NULL) AS flags
 FROM valued;

@@ -11,6 +11,7 @@ from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 
 from reval.service import actions, views
 from reval.service.types import Curve, SalesPage, SegmentDetail, SegmentReview
+from reval.service.wording import flag_counts
 
 from .. import keys
 from ..format import (
@@ -112,6 +113,14 @@ def chasing_line(review: SegmentReview | None) -> str:
     return (f"Sales-chasing check (batch {review['batch_id']}, {review['state']}): "
             f"{verdicts.get(c['status'], c['status'])}{shown}.{why} {review['n_beyond_threshold']:,} "
             "parcels change beyond the review threshold.")
+
+
+def flags_line(review: SegmentReview | None) -> str:
+    """Parcels of the reviewed batch per kind of flag, and what blocks its approval."""
+    if review is None:
+        return ""
+    blocked = "".join(f"\n✗ Cannot be approved: {b}" for b in review["blockers"])
+    return f"Flagged parcels (batch {review['batch_id']}): {flag_counts(review['flags'])}.{blocked}"
 
 
 class SegmentScreen(DataScreen):
@@ -322,7 +331,7 @@ class SegmentScreen(DataScreen):
         medians = (f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
                    f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
                    f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}.")
-        summary.update(medians + "\n" + chasing_line(d["review"]))
+        summary.update("\n".join(filter(None, (medians, chasing_line(d["review"]), flags_line(d["review"])))))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
                            v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
 
