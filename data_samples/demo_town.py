@@ -37,7 +37,10 @@ its correct, not its recorded, features.
 
 The prior value is an older roll: about 0.9 of market value, regressive (slope < 1 on log value
 around 350,000), with neighbourhood-specific level, slope and scatter so that some neighbourhoods
-pass a ratio study on it and some fail.
+pass a ratio study on it and some fail. It is written twice: `prior_market_value`, and
+`prior_assessed_value` = the same figure, because Vellmarsh assessed at full market value without
+caps on its prior roll (derived, so no random draw changes). `new_construction` is "yes" for a
+house built in the year before the valuation date (after the prior roll), from year_built.
 
 Land schedule (land_schedule.csv, one or two rows per neighbourhood): for a parcel with
 lot_size > 0, land value = base_land_value * (lot_size / base_lot_size) ** size_exponent using the
@@ -404,6 +407,9 @@ def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]
     }
 
 
+PRIOR_LEVEL = 1  # the prior roll's assessment level (full value, no caps): prior assessed = prior market value
+
+
 def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray) -> np.ndarray:
     """Older roll: a regressive, neighbourhood-drifted fraction of market value, to the 100."""
     level, slope, scatter = np.array([x.prior for x in NEIGHBOURHOODS])[nb].T
@@ -614,7 +620,9 @@ def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_s
             "neighbourhood": pd.Categorical.from_codes(nb, NEIGHBOURHOOD_IDS),
             "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
             "property_class": pd.Categorical.from_codes(f["property_class"], PROPERTY_CLASSES),
-            "prior_value": prior,
+            "prior_market_value": prior,
+            "prior_assessed_value": prior * PRIOR_LEVEL,
+            "new_construction": np.where(f["year_built"] >= VALUATION_YEAR - 1, "yes", "no"),
             "latitude": f["latitude"],
             "longitude": f["longitude"],
             "living_area": f["living_area"].astype(np.int64),

@@ -59,6 +59,26 @@ class FitSummary(TypedDict):
     accuracy: list[dict[str, Any]]
 
 
+class ParcelChanges(TypedDict):
+    n: int
+    examples: list[str]    # up to 3 parcel ids
+
+
+class SegmentSalesChange(TypedDict):
+    segment: str
+    n_then: int            # qualified sales when the run was fitted
+    n_now: int
+
+
+class DataChanges(TypedDict):
+    """How the current import differs from a run's data: parcels by kind of change ('added', 'removed',
+    'changed'; 'unknown' for a run made before fingerprints) and segments whose sales changed."""
+
+    run_id: str
+    parcels: dict[str, ParcelChanges]
+    sales: list[SegmentSalesChange]
+
+
 class StagedBatch(TypedDict):
     segment: str
     batch_id: int

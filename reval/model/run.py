@@ -20,6 +20,7 @@ from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_sha
 from reval.data.sales import trend_factors
 from reval.errors import UserError
 from reval.data.events import record_event
+from reval.data.fingerprint import record_fingerprints
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
 from reval.model.settings import ModelSettings
@@ -112,6 +113,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         store.insert("insert_sale_predictions", sale_predictions)
         store.insert("insert_sale_weights", weights)
         store.insert("insert_parcel_estimates", estimates.assign(run_id=run_id))
+        record_fingerprints(store, run_id)
         store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
