@@ -225,7 +225,8 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     try:
         stored = con.execute("SELECT parcel_id, segment, prior_value FROM parcels").df()
         sales = con.execute("SELECT sale_id, parcel_id, adjusted_price FROM adjusted_sales").df()
-        frame = stored.merge(parcels.drop(columns=["prior_market_value", "prior_assessed_value", "new_construction"]), on="parcel_id", validate="one_to_one")
+        own = parcels.drop(columns=["prior_market_value", "prior_assessed_value", "new_construction"])
+        frame = stored.merge(own, on="parcel_id", validate="one_to_one")
         log_value = true_log_value(frame) + rng.normal(0.0, noise_sd, len(frame))
         for segment, factor in (scale or {}).items():
             log_value[(frame["segment"] == segment).to_numpy()] += np.log(factor)

@@ -112,6 +112,11 @@ SALE_ROLES: dict[str, bool] = {r: ROLES[r] for r in ("sale_id", "sale_date", "sa
 PARCEL_ROLES: dict[str, bool] = {r: required for r, required in ROLES.items() if r not in SALE_ROLES}
 
 
+# How a binary feature's cell reads as 1 (yes) or 0 (no): the words import accepts (sql/queries/import_build.sql).
+BINARY_WORDS: dict[str, float] = {w: 1.0 for w in ("1", "true", "yes", "y", "t")} | {
+    w: 0.0 for w in ("0", "false", "no", "n", "f")}
+
+
 @dataclass(frozen=True, kw_only=True)
 class FeatureSpec(Declared):
     """One model feature (a [[features]] table): its name, the user's column, its type, transform, range and shape
@@ -125,6 +130,9 @@ class FeatureSpec(Declared):
     log: bool = setting(False, "model the logarithm (continuous only)")
     levels: tuple[str, ...] = setting((), "the levels, lowest first (ordinal and categorical only)")
     range: tuple[float, float] | None = setting(None, "values outside [low, high] are errors (continuous only)")
+    baseline: str | None = setting(None, "the level contributions are measured from (categorical: one of levels; "
+                                   'binary: "yes" or "no"), e.g. "no" for waterfront so a parcel without it shows 0; '
+                                   "default: the segment's most common level", example="no")
     shape: FeatureShape = setting("free", '"increasing" or "decreasing" for a continuous or ordinal feature whose '
                                   "direction the market never reverses: its curve in every segment then never turns "
                                   'the other way, not even at the thin edges of the data; "free" lets the sales decide')
@@ -143,6 +151,12 @@ class FeatureSpec(Declared):
             raise Invalid("log" if self.log else "range", "only continuous features take log or range")
         if self.log and self.range and self.range[0] < 0:
             raise Invalid("range", "a log-transformed feature cannot have negative values")
+        if self.baseline is not None and self.kind not in ("categorical", "binary"):
+            raise Invalid("baseline", f"only categorical and binary features take a baseline, not {self.kind}")
+        if self.kind == "categorical" and self.baseline is not None and self.baseline not in self.levels:
+            raise Invalid("baseline", f"'{self.baseline}' is not one of the levels")
+        if self.kind == "binary" and self.baseline is not None and self.baseline.lower() not in BINARY_WORDS:
+            raise Invalid("baseline", f"'{self.baseline}' is not a yes/no value ({', '.join(BINARY_WORDS)})")
         if self.shape != "free" and self.kind not in ("continuous", "ordinal"):
             raise Invalid("shape", f"only continuous and ordinal features take a shape rule, not {self.kind}")
 

@@ -179,13 +179,15 @@ class ParcelDetail(TypedDict):
     segment: str
     market_area: str
     property_class: str
-    prior_value: float | None
+    prior_value: float | None            # the prior market value
+    prior_assessed_value: float | None
     latitude: float | None
     longitude: float | None
     run_id: str | None
     features: list[Record]
     estimate: Record | None
     split: ValueSplit | None
+    reference: list[Record]              # the segment's reference parcel the split is measured from
     roll: list[Record]
     value_change: float | None
     sales: list[Record]

@@ -27,7 +27,7 @@ CREATE TABLE segment_references (
     run_id   VARCHAR NOT NULL,
     segment  VARCHAR NOT NULL,
     feature  VARCHAR NOT NULL,
-    value    DOUBLE NOT NULL,    -- raw value (a level code for ordinal, categorical and binary features)
+    value    DOUBLE,             -- raw value (a level code for ordinal, categorical and binary); NULL: none known
     shown    VARCHAR NOT NULL,   -- the value as a reader sees it (a level's name, yes/no)
     how      VARCHAR NOT NULL,   -- median | lower median | baseline (config) | most common
     PRIMARY KEY (run_id, segment, feature)
