@@ -3,6 +3,7 @@ that differ from the current import, naming what changed; a parcel revalued with
 its fingerprint recorded again (reval.data.fingerprint.record_fingerprints)."""
 from __future__ import annotations
 
+import asyncio
 from pathlib import Path
 
 import duckdb
@@ -13,7 +14,8 @@ from reval.data.fingerprint import data_changes, record_fingerprints
 from reval.data.store import Store
 from reval.errors import UserError
 from reval.service import actions
-from helpers import SMALL_PARCELS, SMALL_SALES, database_content, insert_prior_run, run_reval, write_project
+from helpers import SMALL_PARCELS, SMALL_SALES, database_content, insert_prior_run, run_reval, settle, write_project
+from tui.app import RevalApp
 
 
 def _small(tmp_path: Path) -> Path:
@@ -48,7 +50,18 @@ def test_the_vacant_lot_finding_is_refused_by_the_command_and_the_app(demo_copy:
     assert f"1 parcel(s) changed ({parcel})" in message and "reval fit" in message
     with pytest.raises(UserError, match=rf"1 parcel\(s\) changed \({parcel}\)"):
         actions.staging_plan(demo_copy)    # what the app reads before its confirmation
+    asyncio.run(_the_app_says_the_same(demo_copy, parcel))
     assert database_content(demo_copy / "reval.duckdb") == before   # nothing staged
+
+
+async def _the_app_says_the_same(folder: Path, parcel: str) -> None:
+    app = RevalApp(folder)
+    async with app.run_test(size=(100, 32)) as pilot:
+        await settle(pilot)
+        await pilot.press("v")                      # stage values: the plan is refused before any question
+        await settle(pilot)
+        severity, text = app.messages[-1]
+        assert severity == "error" and f"1 parcel(s) changed ({parcel})" in " ".join(text.split())
 
 
 def test_a_real_run_records_the_data_it_was_fitted_on(demo_copy: Path) -> None:
