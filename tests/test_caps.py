@@ -177,3 +177,17 @@ def test_level_and_cap_compare_assessed_with_prior_assessed_on_the_demo(demo_pro
         assert list(apportion(exact, int(r["assessed_value"]))) == [r["assessed_land_value"],
                                                                     r["assessed_improvement_value"]]
     assert np.allclose(split["assessed_land_value"] / split["assessed_value"], share, atol=1e-4)
+
+
+def test_a_reimport_that_changes_only_prior_values_restages_with_them(tmp_path: Path) -> None:
+    # Prior values are not data the model reads (the run stays valid), but caps read them: the next `reval value`
+    # must stage new values, not report the segment unchanged.
+    folder = _project(tmp_path)
+    actions.stage_values(folder)
+    (folder / "parcels.csv").write_text(PARCELS.replace("P1,north,single_family,400000,100000",
+                                                        "P1,north,single_family,400000,120000"), encoding="utf-8")
+    actions.import_data(folder)
+    result = actions.stage_values(folder)
+    assert [s["segment"] for s in result["staged"]] == ["north"]
+    roll = _roll(folder)
+    assert roll.loc["P1", "assessed_value"] == 130_000 and roll.loc["P1", "prior_assessed_value"] == 120_000

@@ -45,7 +45,7 @@ def _shown(value: float, f: FeatureSpec) -> str:
         return "yes" if value == 1 else "no"
     if f.kind in ("ordinal", "categorical"):
         return f.levels[int(value)]
-    return f"{value:,.6g}"
+    return f"{value:.6g}"
 
 
 def _typical(x: np.ndarray, f: FeatureSpec, baseline: float | None) -> tuple[float, str]:

@@ -86,9 +86,11 @@ def _label(limit: str, value: float | None) -> str | None:
     return None if value is None else f"cap:{limit}_{value * 100:g}%"
 
 
-def _basis(config: Config, schedule: LandSchedule | None) -> str:
-    """Fingerprint of what the values depend on besides the run: the config and the land schedule."""
-    return hashlib.sha256(f"{config.sha256}:{schedule.sha256 if schedule else '-'}".encode()).hexdigest()
+def _basis(store: Store, config: Config, schedule: LandSchedule | None) -> str:
+    """Fingerprint of what the values depend on besides the run: the config, the land schedule and the imported
+    files (a re-import that changes only prior values, which caps read, still gives new batches)."""
+    files = ",".join(str(r[2]) for r in store.rows("dataset_files"))
+    return hashlib.sha256(f"{config.sha256}:{schedule.sha256 if schedule else '-'}:{files}".encode()).hexdigest()
 
 
 def _lot_position(store: Store, schedule: LandSchedule | None) -> int | None:
@@ -138,7 +140,7 @@ def plan_staging(store: Store, config: Config, run_id: str | None = None, segmen
     run = resolve_run(store, run_id)
     refuse_changed_data(store, run)
     chosen, kept, set_aside = _choose(store, segments, replace)
-    basis = _basis(config, load_land_schedule(config, [r[0] for r in store.rows("roll_segments")]))
+    basis = _basis(store, config, load_land_schedule(config, [r[0] for r in store.rows("roll_segments")]))
     fresh = {r[0] for r in store.rows("roll_segments_to_stage", {"run": run, "basis": basis, "segments": chosen})}
     return {"run_id": run, "stage": [s for s in chosen if s in fresh], "unchanged": [s for s in chosen if s not in fresh],
             "kept": kept, "set_aside": [d for d in set_aside if d["segment"] in fresh]}
@@ -153,7 +155,7 @@ def stage_values(store: Store, config: Config, run_id: str | None = None, segmen
     refuse_changed_data(store, run)
     every = [r[0] for r in store.rows("roll_segments")]
     schedule = load_land_schedule(config, every)
-    basis = _basis(config, schedule)
+    basis = _basis(store, config, schedule)
     caps = cap_table(config, [r[0] for r in store.rows("roll_property_classes")])
     lot_position = _lot_position(store, schedule)
     land_rows = schedule.rows if schedule else pd.DataFrame(
