@@ -42,7 +42,10 @@ its correct, not its recorded, features.
 
 The prior value is an older roll: about 0.9 of market value, regressive (slope < 1 on log value
 around 350,000), with neighbourhood-specific level, slope and scatter so that some neighbourhoods
-pass a ratio study on it and some fail.
+pass a ratio study on it and some fail. It is written twice: `prior_market_value`, and
+`prior_assessed_value` = the same figure, because Vellmarsh assessed at full market value without
+caps on its prior roll (derived, so no random draw changes). `new_construction` is "yes" for a
+house built in the year before the valuation date (after the prior roll), from year_built.
 
 A vacant lot's true value is the land value the default town's land schedule gives its lot (the schedule is
 the market for land, at every size and seed); its prior value is about 0.9 of that.
@@ -445,6 +448,9 @@ def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]
     }
 
 
+PRIOR_LEVEL = 1  # the prior roll's assessment level (full value, no caps): prior assessed = prior market value
+
+
 def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray) -> np.ndarray:
     """Older roll: a regressive, neighbourhood-drifted fraction of market value, to the 100."""
     level, slope, scatter = np.array([x.prior for x in NEIGHBOURHOODS])[nb].T
@@ -654,6 +660,7 @@ def _appended(seed: int, scale: float, last_id: int, last_sale: int) -> tuple[pd
     location = np.round(centre + 0.006 * rng.standard_normal((n_vacant, 2)), 6)
     log_prior = np.log(0.9) + np.concatenate([vacant_value, inst_value]) + 0.08 * rng.standard_normal(n)
     blank = np.full(n_vacant, np.nan)
+    prior = (np.rint(np.exp(log_prior) / 100.0) * 100.0).astype(np.int64)
 
     def both(vacant: np.ndarray, built: np.ndarray) -> np.ndarray:
         return np.concatenate([vacant, built])
@@ -664,7 +671,9 @@ def _appended(seed: int, scale: float, last_id: int, last_sale: int) -> tuple[pd
         "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
         "property_class": pd.Categorical.from_codes(np.r_[np.full(n_vacant, VACANT), np.full(n_inst, INSTITUTIONAL)],
                                                     PROPERTY_CLASSES),
-        "prior_value": (np.rint(np.exp(log_prior) / 100.0) * 100.0).astype(np.int64),
+        "prior_market_value": prior,
+        "prior_assessed_value": prior * PRIOR_LEVEL,
+        "new_construction": np.where(both(np.zeros(n_vacant), inst["year_built"]) >= VALUATION_YEAR - 1, "yes", "no"),
         "latitude": both(location[:, 0], inst["latitude"]),
         "longitude": both(location[:, 1], inst["longitude"]),
         "living_area": pd.array(both(blank, inst["living_area"]), dtype="Int64"),
@@ -736,7 +745,9 @@ def _built(n_parcels: int, seed: int, noise_sd: float) -> DemoTown:
             "neighbourhood": pd.Categorical.from_codes(nb, NEIGHBOURHOOD_IDS),
             "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
             "property_class": pd.Categorical.from_codes(f["property_class"], PROPERTY_CLASSES),
-            "prior_value": prior,
+            "prior_market_value": prior,
+            "prior_assessed_value": prior * PRIOR_LEVEL,
+            "new_construction": np.where(f["year_built"] >= VALUATION_YEAR - 1, "yes", "no"),
             "latitude": f["latitude"],
             "longitude": f["longitude"],
             "living_area": f["living_area"].astype(np.int64),

@@ -85,6 +85,26 @@ class FitSummary(TypedDict):
     filled_in: dict[str, FilledIn]   # per feature: parcels whose missing value the model filled in, and with what
 
 
+class ParcelChanges(TypedDict):
+    n: int
+    examples: list[str]    # up to 3 parcel ids
+
+
+class SegmentSalesChange(TypedDict):
+    segment: str
+    n_then: int            # qualified sales when the run was fitted
+    n_now: int
+
+
+class DataChanges(TypedDict):
+    """How the current import differs from a run's data: parcels by kind of change ('added', 'removed',
+    'changed'; 'unknown' for a run made before fingerprints) and segments whose sales changed."""
+
+    run_id: str
+    parcels: dict[str, ParcelChanges]
+    sales: list[SegmentSalesChange]
+
+
 class StagedBatch(TypedDict):
     segment: str
     batch_id: int

@@ -35,6 +35,8 @@ from textual.widgets import DataTable
 from textual.worker import WorkerFailed
 
 from data_samples.demo_town import true_log_value
+from reval.data.fingerprint import record_fingerprints
+from reval.data.store import Store
 from reval.service import actions
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -57,7 +59,7 @@ parcel_id = "pid"
 segment = "nbhd"
 market_area = "area"
 property_class = "class"
-prior_value = "prior"
+prior_market_value = "prior"
 sale_id = "sale_id"
 sale_date = "date"
 sale_price = "price"
@@ -223,7 +225,8 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     try:
         stored = con.execute("SELECT parcel_id, segment, prior_value FROM parcels").df()
         sales = con.execute("SELECT sale_id, parcel_id, adjusted_price FROM adjusted_sales").df()
-        frame = stored.merge(parcels.drop(columns=["prior_value"]), on="parcel_id", validate="one_to_one")
+        own = parcels.drop(columns=["prior_market_value", "prior_assessed_value", "new_construction"])
+        frame = stored.merge(own, on="parcel_id", validate="one_to_one")
         log_value = true_log_value(frame) + rng.normal(0.0, noise_sd, len(frame))
         for segment, factor in (scale or {}).items():
             log_value[(frame["segment"] == segment).to_numpy()] += np.log(factor)
@@ -247,12 +250,36 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
                      json.dumps({"numpy": np.__version__, "source": "tests/run_fixture.py"})])
         con.register("estimates_frame", estimates)
         con.register("predictions_frame", predictions)
-        con.execute("INSERT INTO parcel_estimates SELECT * FROM estimates_frame")
+        con.execute("INSERT INTO parcel_estimates BY NAME SELECT * FROM estimates_frame")
         con.execute("INSERT INTO sale_predictions SELECT * FROM predictions_frame")
         con.commit()
     finally:
         con.close()
+    _fingerprint(folder, run_id)
     return run_id
+
+
+def insert_estimates(folder: Path, run_id: str, values: dict[str, float]) -> str:
+    """A fixture run valuing each listed parcel at the given market value (hand-worked examples)."""
+    con = duckdb.connect(str(folder / "reval.duckdb"))
+    try:
+        frame = pd.DataFrame({"parcel_id": list(values), "value": list(values.values())})
+        con.register("values_frame", frame)
+        con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', 0, 5, '{}', '{}', '{}')",
+                    [run_id, _created(0)])
+        con.execute("""INSERT INTO parcel_estimates (run_id, parcel_id, segment, log_value, market_value)
+                       SELECT ?, p.parcel_id, p.segment, ln(v.value), v.value
+                       FROM parcels p JOIN values_frame v USING (parcel_id)""", [run_id])
+    finally:
+        con.close()
+    _fingerprint(folder, run_id)
+    return run_id
+
+
+def _fingerprint(folder: Path, run_id: str) -> None:
+    """Record the data a fixture run stands for, as a real run does (reval.data.fingerprint)."""
+    with Store(folder / "reval.duckdb") as store, store.transaction():
+        record_fingerprints(store, run_id)
 
 
 def set_section(folder: Path, section: str, lines: str) -> None:
@@ -282,7 +309,7 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
         con.begin()
         con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', 0, 5, '{}', '{}', '{}')",
                     [run_id, _created(order)])
-        con.execute("""INSERT INTO parcel_estimates
+        con.execute("""INSERT INTO parcel_estimates (run_id, parcel_id, segment, log_value, market_value)
                        SELECT ?, parcel_id, segment, ln(coalesce(prior_value, ?) * ?), coalesce(prior_value, ?) * ?
                        FROM parcels""", [run_id, missing_prior, factor, missing_prior, factor])
         con.execute("""INSERT INTO sale_predictions
@@ -291,6 +318,7 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
         con.commit()
     finally:
         con.close()
+    _fingerprint(folder, run_id)
     return run_id
 
 

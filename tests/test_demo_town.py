@@ -198,7 +198,7 @@ def test_valid_prices_follow_the_documented_model(noise_sd: float) -> None:
 
 def test_prior_roll_is_low_regressive_and_mixed_across_neighbourhoods(sold: pd.DataFrame) -> None:
     sales = sold[sold["qualified"] & ~sold["planted"]]
-    ratio = sales["prior_value"] / sales["adjusted_price"]
+    ratio = sales["prior_market_value"] / sales["adjusted_price"]
     assert 0.85 <= ratio.median() <= 0.95
     # Regressive: ratios fall as price rises (Spearman rank correlation, scipy.stats.spearmanr).
     assert stats.spearmanr(ratio, sales["adjusted_price"]).statistic < -0.1

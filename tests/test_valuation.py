@@ -128,7 +128,7 @@ def test_a_run_that_misses_a_parcel_is_refused(demo_project: Path, tmp_path: Pat
     con = duckdb.connect(str(folder / "reval.duckdb"))
     con.execute("DELETE FROM parcel_estimates WHERE parcel_id = '0000007'")
     con.close()
-    with pytest.raises(UserError, match=r"no value for 1 imported parcel\(s\) \(e\.g\. 0000007\)"):
+    with pytest.raises(UserError, match=r"1 parcel\(s\) added \(0000007\)"):
         stage_values(folder)
     with pytest.raises(UserError, match="No run 'nope'"):
         stage_values(folder, "nope")

@@ -259,7 +259,7 @@ def review(r: dict[str, Any], console: Console) -> None:
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
                      f"{s['n_beyond_threshold']:,}", f"{s['n_downweighted']:,}", _cods(s["sales_chasing"]),
                      s["sales_chasing"]["status"].replace("_", " ")])
-    table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
+    table(f"Value review: change = new market value / prior market value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
           "down-weighted = sales the fit gave less than full weight",
           ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted",
            "COD roll / out of fold", "sales chasing"], rows, console)
@@ -285,7 +285,7 @@ def review(r: dict[str, Any], console: Console) -> None:
                    for d in s["downweighted"]], console)
         if s["beyond_threshold"] and len(r["segments"]) == 1:
             table(f"{name(s['segment'])}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
-                  ["parcel", "class", "prior", "new", "change"],
+                  ["parcel", "class", "prior market", "new market", "change"],
                   [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
                     percent(p["change"])] for p in s["beyond_threshold"]], console)
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+import logging
 import re
 import tomllib
 from dataclasses import dataclass, field
@@ -73,6 +74,10 @@ class Files(Declared):
     max_amount: float = setting(1e10, "the largest sale price or prior value an import accepts", lo=0, lo_open=True)
 
 
+PRIOR_VALUE_NOTE = ("one prior value used to serve both as the prior market value and as the base of caps; "
+                    "rename it prior_market_value and map the prior assessed value to prior_assessed_value")
+
+
 def _column(doc: str, example: str, required: bool = False, active: bool = True) -> Any:
     """A [columns] key: the user's column name for a role."""
     return setting(REQUIRED if required else None, doc, pattern=(r"\S", "a column name"), example=example,
@@ -87,7 +92,12 @@ class Columns(Declared):
     segment: str = _column("the unit a model is fitted for", "neighbourhood", required=True)
     market_area: str | None = _column("the parent a thin segment borrows from", "market_area")
     property_class: str | None = _column("the property class (COD limits and caps are by class)", "property_class")
-    prior_value: str | None = _column("value on the current roll", "prior_value")
+    prior_market_value: str | None = _column("the market value on the current roll (the prior-roll ratio study, the "
+                                             "value review)", "prior_market_value")
+    prior_assessed_value: str | None = _column("the assessed value on the current roll (the base of caps)",
+                                               "prior_assessed_value", active=False)
+    new_construction: str | None = _column("yes/no: new construction since the prior roll (a cap rule may leave it "
+                                           "uncapped)", "new_construction", active=False)
     latitude: str | None = _column("the parcel's latitude", "latitude", active=False)
     longitude: str | None = _column("the parcel's longitude", "longitude", active=False)
     sale_id: str | None = _column("the same sale id on several parcels = a multi-parcel sale", "sale_id")
@@ -110,6 +120,11 @@ def _missing_codes(value: Any, key: str) -> tuple[str, ...]:
     return tuple(v if isinstance(v, str) else str(v) for v in value)
 
 
+# How a binary feature's cell reads as 1 (yes) or 0 (no): the words import accepts (sql/queries/import_build.sql).
+BINARY_WORDS: dict[str, float] = {w: 1.0 for w in ("1", "true", "yes", "y", "t")} | {
+    w: 0.0 for w in ("0", "false", "no", "n", "f")}
+
+
 @dataclass(frozen=True, kw_only=True)
 class FeatureSpec(Declared):
     """One model feature (a [[features]] table): its name, the user's column, its type, transform, range and shape
@@ -123,6 +138,9 @@ class FeatureSpec(Declared):
     log: bool = setting(False, "model the logarithm (continuous only)")
     levels: tuple[str, ...] = setting((), "the levels, lowest first (ordinal and categorical only)")
     range: tuple[float, float] | None = setting(None, "values outside [low, high] are errors (continuous only)")
+    baseline: str | None = setting(None, "the level contributions are measured from (categorical: one of levels; "
+                                   'binary: "yes" or "no"), e.g. "no" for waterfront so a parcel without it shows 0; '
+                                   "default: the segment's most common level", example="no")
     shape: FeatureShape = setting("free", '"increasing" or "decreasing" for a continuous or ordinal feature whose '
                                   "direction the market never reverses: its curve in every segment then never turns "
                                   'the other way, not even at the thin edges of the data; "free" lets the sales decide')
@@ -144,6 +162,12 @@ class FeatureSpec(Declared):
             raise Invalid("log" if self.log else "range", "only continuous features take log or range")
         if self.log and self.range and self.range[0] < 0:
             raise Invalid("range", "a log-transformed feature cannot have negative values")
+        if self.baseline is not None and self.kind not in ("categorical", "binary"):
+            raise Invalid("baseline", f"only categorical and binary features take a baseline, not {self.kind}")
+        if self.kind == "categorical" and self.baseline is not None and self.baseline not in self.levels:
+            raise Invalid("baseline", f"'{self.baseline}' is not one of the levels")
+        if self.kind == "binary" and self.baseline is not None and self.baseline.lower() not in BINARY_WORDS:
+            raise Invalid("baseline", f"'{self.baseline}' is not a yes/no value ({', '.join(BINARY_WORDS)})")
         if self.shape != "free" and self.kind not in ("continuous", "ordinal"):
             raise Invalid("shape", f"only continuous and ordinal features take a shape rule, not {self.kind}")
         clash = [code for code in self.missing if code in self.levels]
@@ -227,12 +251,23 @@ class StudySettings(Declared):
 
 @dataclass(frozen=True, kw_only=True)
 class CapRule(Declared):
-    """One cap on the yearly increase of assessed values (an [[assessment.caps]] table)."""
+    """One cap on the yearly change of assessed values (an [[assessment.caps]] table). Local law decides whether
+    and how values are capped; every form is off unless a rule sets it."""
 
-    property_classes: tuple[str, ...] | None = setting(None, "the classes it applies to (leave out: every class)",
-                                                       example=("single_family",))
-    max_increase: float = setting(REQUIRED, "assessed value at most prior value x (1 + max_increase)", lo=0,
-                                  example=0.10)
+    property_classes: tuple[str, ...] | None = setting(None, "the classes it applies to (leave out: every class "
+                                                       "no other rule names)", example=("single_family",))
+    max_increase: float | None = setting(None, "assessed value at most prior assessed value x (1 + max_increase)",
+                                         lo=0, example=0.10)
+    max_decrease: float | None = setting(None, "assessed value at least prior assessed value x (1 - max_decrease) "
+                                         "(leave out: decreases are not limited)", lo=0, hi=1, example=0.10)
+    exclude_new_construction: bool = setting(False, "parcels flagged in [columns] new_construction are not capped",
+                                             example=True)
+    reset_on_sale: bool = setting(False, "parcels sold after [assessment] prior_roll_date are not capped",
+                                  example=True)
+
+    def check(self) -> None:
+        if self.max_increase is None and self.max_decrease is None:
+            raise Invalid("max_increase", "a cap needs max_increase, max_decrease or both")
 
 
 def _caps(value: Any, key: str) -> tuple[Mapping[str, Any], ...]:
@@ -243,12 +278,15 @@ def _caps(value: Any, key: str) -> tuple[Mapping[str, Any], ...]:
     for i, item in enumerate(value):
         rule = read_table(CapRule, dict(item) if isinstance(item, Mapping) else item, f"{key}[{i}]")
         named = {} if rule.property_classes is None else {"property_classes": list(rule.property_classes)}
-        caps.append({**named, "max_increase": rule.max_increase})
+        caps.append({**named, **{k.name: getattr(rule, k.attribute) for k in declared_keys(CapRule)
+                                 if k.name != "property_classes" and getattr(rule, k.attribute) not in (None, False)}})
     return tuple(caps)
 
 
 def _caps_starter() -> list[str]:
-    lines = ["# A cap on the yearly increase for some property classes (repeat the table for more rules):",
+    lines = ["# A cap on the yearly change of assessed values for some property classes (repeat the table for more "
+             "rules;", "# a class takes the first rule naming it, else the first naming no class). Local law decides whether "
+             "and how:",
              "# [[assessment.caps]]"]
     return lines + [comment_line(f"# {k.name} = {toml_value(k.spec.example)}", k.spec.doc) for k in declared_keys(CapRule)]
 
@@ -264,8 +302,15 @@ class AssessmentSettings(Declared):
                                         example="land_schedule.csv")
     review_change_threshold: float = setting(0.25, "list parcels whose value changes by more than this share "
                                              "(0.25 = 25 %)", lo=0)
-    caps: tuple[Mapping[str, Any], ...] = setting((), "caps on the yearly increase by property class",
+    prior_roll_date: dt.date | None = setting(None, "the date of the prior roll: a cap with reset_on_sale lifts for "
+                                              "parcels sold after it", example=dt.date(2025, 1, 1))
+    caps: tuple[Mapping[str, Any], ...] = setting((), "caps on the yearly change of assessed values by property "
+                                                  "class, measured from the prior assessed value; all off by default",
                                                   check=_caps, starter=_caps_starter, items=CapRule)
+
+    def check(self) -> None:
+        if any(cap.get("reset_on_sale") for cap in self.caps) and self.prior_roll_date is None:
+            raise Invalid("prior_roll_date", "a cap with reset_on_sale needs the date of the prior roll")
 
 
 @dataclass(frozen=True)
@@ -419,6 +464,13 @@ def load_config(path: Path | str) -> Config:
     except Invalid as exc:
         raise ConfigError(path, exc.key, exc.problem) from None
     columns = {k.name: getattr(sections["columns"], k.attribute) for k in declared_keys(Columns)}
+    caps = sections["assessment"].caps
+    if caps and columns["prior_assessed_value"] is None:
+        raise ConfigError(path, "columns.prior_assessed_value", "caps compare assessed values with the prior assessed "
+                          "value: map its column (the prior market value is not the base of a cap)")
+    if any(cap.get("exclude_new_construction") for cap in caps) and columns["new_construction"] is None:
+        raise ConfigError(path, "columns.new_construction", "a cap with exclude_new_construction needs the column "
+                          "that flags new construction")
     return Config(
         path=path,
         jurisdiction=jurisdiction.name,
@@ -477,7 +529,7 @@ def _read_sections(data: dict[str, Any]) -> dict[str, Any]:
         raise Invalid(f"(top level).{unknown[0]}", f"unknown key (allowed: {', '.join(known)})")
     out: dict[str, Any] = {}
     for section in SECTIONS:
-        raw = data.get(section.name)
+        raw = _renamed(data.get(section.name)) if section.name == "columns" else data.get(section.name)
         if raw is None and section.required:
             raise Invalid(section.name, "missing section")
         if section.array:
@@ -485,6 +537,19 @@ def _read_sections(data: dict[str, Any]) -> dict[str, Any]:
         else:
             out[section.name] = read_table(section.cls, {} if raw is None else raw, section.name)
     return out
+
+
+def _renamed(columns: Any) -> Any:
+    """[columns] with the deprecated key prior_value read as prior_market_value (a notice says so). It is kept,
+    not refused, so existing projects still open; caps, its other old use, now refuse to run without
+    prior_assessed_value, so nothing is silently left uncapped."""
+    if not isinstance(columns, dict) or "prior_value" not in columns:
+        return columns
+    if "prior_market_value" in columns:
+        raise Invalid("columns.prior_value", f"give prior_market_value alone ({PRIOR_VALUE_NOTE})")
+    logging.getLogger("reval").warning("[columns] prior_value is deprecated and read as prior_market_value: %s.",
+                                       PRIOR_VALUE_NOTE)
+    return {("prior_market_value" if k == "prior_value" else k): v for k, v in columns.items()}
 
 
 def _read_array(section: Section, raw: Any) -> tuple[Any, ...]:

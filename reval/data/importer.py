@@ -35,7 +35,8 @@ Progress = Callable[[str, int, int], None]
 # How each role's cells are checked (see sql/queries/import_problems.sql).
 ROLE_KINDS = {
     "parcel_id": "id", "segment": "label", "market_area": "label", "property_class": "label",
-    "prior_value": "amount", "latitude": "latitude", "longitude": "longitude",
+    "prior_market_value": "amount", "prior_assessed_value": "amount", "new_construction": "binary",
+    "latitude": "latitude", "longitude": "longitude",
     "sale_id": "id", "sale_date": "date", "sale_price": "price", "sale_validity": "code",
 }
 

@@ -20,11 +20,13 @@ from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_sha
 from reval.data.sales import trend_factors
 from reval.errors import UserError
 from reval.data.events import record_event
+from reval.data.fingerprint import record_fingerprints
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
 from reval.model.settings import ModelSettings
 from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models, permutation_importance,
                                     reference_factories)
+from reval.model.reference import baselines, reference_parcels
 from reval.model.names import IMPORTANCE_MODELS, OURS, OURS_NO_INTERACTIONS, named
 from reval.data.store import Store
 from reval.plain import records
@@ -91,7 +93,8 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
 
     start = time.perf_counter()
     parcels, X_all = all_parcels(store, features)
-    estimates, contributions = _value_parcels(model, parcels, X_all)
+    typical = reference_parcels(X_all, parcels["segment"].to_numpy(str), features, baselines(config.features))
+    estimates, contributions = _value_parcels(model, parcels, X_all, typical.rows)
     timings["value_parcels"] = time.perf_counter() - start
 
     run_id = "run-" + dt.datetime.now().strftime("%Y%m%d-%H%M%S-%f")
@@ -112,7 +115,9 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         store.insert("insert_sale_predictions", sale_predictions)
         store.insert("insert_sale_weights", weights)
         store.insert("insert_parcel_estimates", estimates.assign(run_id=run_id))
+        record_fingerprints(store, run_id)
         store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
+        store.insert("insert_segment_references", typical.table.assign(run_id=run_id))
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
         store.insert("insert_run_features", fills.assign(run_id=run_id))
@@ -211,11 +216,13 @@ def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray
                          "analyst_reason": sales.frame["analyst_reason"]})
 
 
-def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Every parcel's log value and its exact additive contributions (long form)."""
+def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray,
+                   reference: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Every parcel's log value and its exact additive contributions measured from its segment's reference parcel
+    (long form; the base is the reference parcel's log value)."""
     segment = parcels["segment"].to_numpy(str)
     market_area = parcels["market_area"].to_numpy(str)
-    intercept, terms = model.contributions(X, segment, market_area)
+    intercept, terms = model.contributions(X, segment, market_area, reference)
     log_value = intercept + np.sum(list(terms.values()), axis=0)
     estimates = pd.DataFrame({"parcel_id": parcels["parcel_id"], "segment": segment, "log_value": log_value,
                               "market_value": np.exp(log_value)})

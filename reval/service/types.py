@@ -183,7 +183,8 @@ class ParcelDetail(TypedDict):
     segment: str
     market_area: str
     property_class: str
-    prior_value: float | None
+    prior_value: float | None            # the prior market value
+    prior_assessed_value: float | None
     prior_values: dict[str, Any]   # every prior_* column of the parcel (prior market value, prior assessed value)
     latitude: float | None
     longitude: float | None
@@ -191,6 +192,7 @@ class ParcelDetail(TypedDict):
     features: list[Record]
     estimate: Record | None
     split: ValueSplit | None
+    reference: list[Record]              # the segment's reference parcel the split is measured from
     roll: list[Record]
     value_change: float | None
     sales: list[Record]

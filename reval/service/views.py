@@ -365,6 +365,7 @@ def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
     features = store.records("app_parcel_features", [parcel_id])
     estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
     parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
+    reference = store.records("app_segment_reference", [run_id, parcel["segment"]]) if estimate else []
     sales = store.records("app_parcel_sales", [run_id, parcel_id])
     for s in sales:
         s["sale_date"] = s["sale_date"].isoformat()
@@ -382,6 +383,7 @@ def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
     return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
             "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
             "prior_values": {k: v for k, v in parcel.items() if k.startswith("prior_")},
+            "prior_assessed_value": parcel["prior_assessed_value"], "reference": reference,
             "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
             "features": features, "estimate": estimate, "split": split, "roll": roll,
             "value_change": (value / prior - 1) if value and prior else None, "sales": sales,

@@ -42,6 +42,13 @@ def percent(value: float | None, digits: int = 1) -> str:
     return MISSING if value is None else f"{value:+.{digits}%}"
 
 
+def measured_from(segment: str, reference: list[dict[str, str]]) -> str:
+    """What a parcel's contributions are measured from: its segment's reference parcel (reval/model/reference.py)."""
+    listed = "; ".join(f"{r['feature']} {r['shown']} ({r['how']})" for r in reference)
+    return (f"Each part is measured from the reference parcel of segment {segment}, whose value is the base: "
+            f"{listed}. A feature at its reference value adds 0.")
+
+
 NAME_WIDTH = 40        # terminal cells a name may take in a table before it is cut with an ellipsis
 ELLIPSIS = "…"
 _SPACING = re.compile(r"[\t\n\r\v\f\x85\u2028\u2029]")

@@ -1,5 +1,5 @@
 -- Of the chosen segments ($segments), those a run gives a new batch: all but those already holding a live
--- batch made from the same run and basis (config and land schedule), so repeating `reval value` changes
+-- batch made from the same run and basis (config, land schedule and imported files), so repeating `reval value` changes
 -- nothing and a held batch stays held until a new run or a changed basis. $run, $basis, $segments.
 SELECT DISTINCT p.segment
 FROM parcel_estimates e JOIN parcels p ON p.parcel_id = e.parcel_id

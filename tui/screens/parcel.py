@@ -14,7 +14,7 @@ from reval.service.types import ComparableGrid, ParcelDetail, Record
 from reval.service.wording import grid_table, indicated_range
 
 from .. import keys
-from ..format import CAUTION, cells, money, number, percent, signed_money
+from ..format import CAUTION, cells, measured_from, money, number, percent, signed_money
 from ..jobs import Loaded, StatusBar
 from ..outcomes import describe_parcel_report
 from ..plain import Plain
@@ -100,14 +100,16 @@ class ParcelScreen(DataScreen):
         table.add_columns("Value", "Amount")
         estimate = d["estimate"]
         table.add_row(*cells("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)"))
-        table.add_row(*cells("Prior value", money(d["prior_value"])))
+        table.add_row(*cells("Prior market value", money(d["prior_value"])))
+        table.add_row(*cells("Prior assessed value", money(d["prior_assessed_value"])))
         table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
             table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
         for r in d["roll"][:1]:
             table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
-            for name in ("market", "land", "improvement", "assessed"):
-                table.add_row(*cells(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"])))
+            for name in ("market", "land", "improvement", "assessed", "assessed_land", "assessed_improvement"):
+                label = name.replace("_", " ").capitalize()
+                table.add_row(*cells(f"{label} value (roll)", money(r[f"{name}_value"])))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -118,7 +120,7 @@ class ParcelScreen(DataScreen):
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
         table.add_columns("Part", "Log value", "Value", "% of value")
-        table.add_row(*cells("base (the segment's average parcel)", number(split["base_log"], ".4f"),
+        table.add_row(*cells("base (the segment's reference parcel)", number(split["base_log"], ".4f"),
                       money(split["base"]), ""))
         for p in split["parts"]:
             table.add_row(*cells(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
@@ -126,7 +128,8 @@ class ParcelScreen(DataScreen):
         total = split["base"] + sum(p["currency"] for p in split["parts"])
         table.add_row(*cells("= value", number(estimate["log_value"], ".4f"), money(total), ""))
         note.update(f"The parts add up to the value exactly ({money(total)}). The log parts add up to the "
-                    "log value; the value beyond the base is shared in proportion to them.")
+                    "log value; the value beyond the base is shared in proportion to them. "
+                    + measured_from(d["segment"], d["reference"]))
 
     def _sales(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-sales", DataTable)
