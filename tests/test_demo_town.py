@@ -259,7 +259,7 @@ def test_vacant_lots_are_worth_what_the_land_schedule_gives_them(town: demo_town
     land = rows["base_land_value"].to_numpy() * (lots["lot_size"].to_numpy() / rows["base_lot_size"].to_numpy()
                                                  ) ** rows["size_exponent"].to_numpy()
     np.testing.assert_allclose(np.exp(true_log_value(lots)), land, rtol=1e-12)
-    assert 0.85 <= np.median(lots["prior_value"] / land) <= 0.95
+    assert 0.85 <= np.median(lots["prior_market_value"] / land) <= 0.95
 
 
 def _vary(row: pd.DataFrame, **columns: list[object]) -> pd.DataFrame:

@@ -18,6 +18,7 @@ import pytest
 
 from helpers import SMALL_CONFIG, SMALL_PARCELS, query_frame, roll_project, set_section, write_project
 from reval.data.config import load_config
+from reval.data.fingerprint import record_fingerprints
 from reval.errors import ConfigError, UserError
 from reval.model.run import fit_run
 from reval.service.actions import (approve, export_roll, import_data, prepare_sales, review, stage_values)
@@ -55,6 +56,9 @@ def flagged(demo_project: Path, tmp_path_factory: pytest.TempPathFactory) -> tup
              [planted["beyond"]])
     # The fill value a real run stores (reval.model.run): here stated by hand, so the text can be checked.
     _execute(folder, "INSERT INTO run_features VALUES ('run-a', 'living_area', 0, 1875.5, 1)")
+    # The fixture run stands for a fit on the planted data: its fingerprints say so (reval.data.fingerprint).
+    with open_project(folder, write=True) as (_, store), store.transaction():
+        record_fingerprints(store, "run-a", list(planted.values()))
     stage_values(folder)
     return folder, planted
 
