@@ -110,7 +110,7 @@ def test_a_killed_export_leaves_no_roll_and_no_exported_state(approved: Path, tm
     folder = copy_project(approved, tmp_path / "p")
     con = duckdb.connect(str(folder / "reval.duckdb"))
     con.execute("""INSERT INTO roll_values SELECT batch_id, parcel_id || '-' || k, property_class, prior_value,
-                   market_value, land_value, improvement_value, assessed_value, flags
+                   market_value, land_value, improvement_value, assessed_value, flags, model_value, override_reason
                    FROM roll_values, range(1, 10) AS t(k)""")
     con.close()
     out = tmp_path / "roll.csv"

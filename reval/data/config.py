@@ -221,6 +221,26 @@ class AssessmentSettings(Declared):
                                                   check=_caps, starter=_caps_starter, items=CapRule)
 
 
+def _reason_codes(value: Any, key: str) -> tuple[str, ...]:
+    """Override reason codes: a non-empty list of distinct plain codes (letters, digits, underscores)."""
+    if not isinstance(value, (list, tuple)) or not value or not all(isinstance(v, str) for v in value):
+        raise Invalid(key, f"expected a non-empty list of codes, got {toml_value(value)}")
+    bad = [v for v in value if not re.fullmatch(r"[a-z][a-z0-9_]*", v)]
+    if bad:
+        raise Invalid(key, f"code {bad[0]!r} must be lower-case letters, digits and underscores")
+    if len(set(value)) != len(value):
+        raise Invalid(key, "a code is listed twice")
+    return tuple(value)
+
+
+@dataclass(frozen=True)
+class OverrideSettings(Declared):
+    """Values set by the analyst over the model's (the [overrides] section)."""
+
+    reasons: tuple[str, ...] = setting(("informal_review", "appeal_decision", "data_correction", "manual_value"),
+                                       "the reason codes `reval override --reason` accepts", check=_reason_codes)
+
+
 @dataclass(frozen=True)
 class Section:
     """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
@@ -252,6 +272,7 @@ SECTIONS: tuple[Section, ...] = (
             "(statute, the oversight agency) may differ and then take precedence."),
     Section("model", ModelSettings, "Modelling choices shared by every segment of a run."),
     Section("assessment", AssessmentSettings, "Rules from local law: the office sets these."),
+    Section("overrides", OverrideSettings, "Values the analyst sets over the model's, each with a reason code."),
 )
 
 
@@ -274,6 +295,7 @@ class Config:
     standards: Standards = field(default_factory=Standards)
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
+    overrides: OverrideSettings = field(default_factory=OverrideSettings)
     max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
@@ -331,6 +353,7 @@ def load_config(path: Path | str) -> Config:
         standards=sections["standards"],
         model=sections["model"],
         assessment=sections["assessment"],
+        overrides=sections["overrides"],
         max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )

@@ -22,6 +22,7 @@ from reval.errors import UserError
 from reval.data.events import record_event
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
+from reval.model import stored
 from reval.model.settings import ModelSettings
 from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models, permutation_importance,
                                     reference_factories)
@@ -92,7 +93,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
 
     start = time.perf_counter()
     parcels, X_all = all_parcels(store, features)
-    estimates, contributions = _value_parcels(model, parcels, X_all)
+    estimates, contributions = value_parcels(model, parcels, X_all)
     timings["value_parcels"] = time.perf_counter() - start
 
     run_id = "run-" + dt.datetime.now().strftime("%Y%m%d-%H%M%S-%f")
@@ -107,6 +108,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy()[: len(y)], run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
+        store.run("insert_run_model", [run_id, *stored.encode(model)])
         for table, frame in reports.items():
             store.insert(f"insert_{table}", frame)
         store.insert("insert_sale_predictions", sale_predictions)
@@ -189,7 +191,7 @@ def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray
                          "analyst_reason": sales.frame["analyst_reason"]})
 
 
-def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
+def value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Every parcel's log value and its exact additive contributions (long form)."""
     segment = parcels["segment"].to_numpy(str)
     market_area = parcels["market_area"].to_numpy(str)

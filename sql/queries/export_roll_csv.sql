@@ -1,4 +1,5 @@
--- Write the value roll of the given batches to $path as CSV, rows ordered by segment and parcel id.
+-- Write the value roll of the given batches to $path as CSV, rows ordered by segment and parcel id. The market
+-- value is the override where the analyst set one (overridden = yes), with the model's value and the reason beside it.
 -- Numbers are plain fixed decimals (never scientific notation); a text cell starting with = + - @, a tab or a
 -- carriage return gets a leading single quote so a spreadsheet evaluates nothing, and so does one starting
 -- with a single quote, so that removing one leading quote always gives back the stored text. Number cells are
@@ -19,7 +20,10 @@ COPY (
                AS change_pct,
            export_text(b.run_id) AS run_id,
            b.batch_id,
-           export_text(nullif(array_to_string(v.flags, ';'), '')) AS flags
+           export_text(nullif(array_to_string(v.flags, ';'), '')) AS flags,
+           CASE WHEN v.override_reason IS NULL THEN 'no' ELSE 'yes' END AS overridden,
+           export_number(v.model_value) AS model_value,
+           export_text(v.override_reason) AS override_reason
     FROM roll_values v JOIN batches b ON b.batch_id = v.batch_id
     WHERE list_contains($batch_ids::BIGINT[], v.batch_id)
     ORDER BY b.segment, v.parcel_id

@@ -1,4 +1,6 @@
--- Every parcel value of the new batches, set-based. Rounding is to the nearest $rounding (halves away from
+-- Every parcel value of the new batches, set-based. The market value is the analyst's override where the parcel
+-- has one (the overrides layer), else the run's estimate rounded; both are kept (model_value, override_reason),
+-- and every rule below (land, level, caps) applies to the market value on the roll. Rounding is to the nearest $rounding (halves away from
 -- zero; 0 = none). Land comes from roll_land_schedule (segment, base_lot_size, base_land_value,
 -- size_exponent) when $allocate; caps from roll_caps (property_class, max_increase, label).
 -- $run, $batch_ids, $level, $rounding, $allocate, $lot_position.
@@ -8,11 +10,13 @@ CREATE OR REPLACE TEMP MACRO roll_round_down(x, unit) AS
 INSERT INTO roll_values
 WITH base AS (
     SELECT b.batch_id, p.parcel_id, p.segment, p.property_class, p.prior_value,
-           roll_round(e.market_value, $rounding::DOUBLE) AS market_value, f.value AS lot
+           coalesce(o.value, roll_round(e.market_value, $rounding::DOUBLE)) AS market_value, f.value AS lot,
+           roll_round(e.market_value, $rounding::DOUBLE) AS model_value, o.reason AS override_reason
     FROM parcel_estimates e
     JOIN parcels p ON p.parcel_id = e.parcel_id
     JOIN batches b ON b.segment = p.segment AND list_contains($batch_ids::BIGINT[], b.batch_id)
     LEFT JOIN feature_values f ON f.parcel_id = p.parcel_id AND f.position = $lot_position::SMALLINT
+    LEFT JOIN overrides o ON o.parcel_id = p.parcel_id
     WHERE e.run_id = $run
 ), land AS (
     SELECT base.*, s.segment IS NOT NULL AS has_row,
@@ -40,5 +44,6 @@ SELECT batch_id, parcel_id, property_class, prior_value, market_value,
                          WHEN lot IS NULL THEN 'land:no_lot_size'
                          WHEN NOT has_row THEN 'land:no_schedule_row'
                          WHEN raw_land > market_value THEN 'land_exceeds_total' END],
-                   lambda x: x IS NOT NULL) AS flags
+                   lambda x: x IS NOT NULL) AS flags,
+       model_value, override_reason
 FROM valued;
