@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from reval.data.config import Config
-from reval.data.dataset import dense_matrix, feature_specs
+from reval.data.dataset import dense_matrix
 from reval.data.events import record_event
 from reval.data.store import Store
 from reval.errors import UserError

@@ -11,6 +11,7 @@ from typing import Any, TypedDict
 
 from reval.clock import utc_now
 from reval.data.store import Store
+from reval.results import OutdatedBatch
 from reval.states import OPEN_STATES, BatchState
 
 
@@ -39,7 +40,7 @@ def outdated(batch: dict[str, Any] | None) -> bool:
     return batch is not None and batch.get("outdated_at") is not None
 
 
-def mark_outdated(store: Store, segment: str) -> list[dict[str, Any]]:
+def mark_outdated(store: Store, segment: str) -> list[OutdatedBatch]:
     """Mark the segment's live batches outdated (inside the caller's transaction); returns those marked."""
     return [{"batch_id": int(b), "state": str(s), "run_id": str(r)}
             for b, s, r in store.rows("batch_mark_outdated", {"segment": segment, "at": utc_now()})]

@@ -13,8 +13,8 @@ from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CompareResult", "CorrectionResult", "OverrideResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
+__all__ = ["BatchStates", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
+           "ExportResult", "FitSummary", "ImportSummary", "OverrideResult", "Overview", "OverviewRow", "ParcelDetail", "Record",
            "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
            "StandingDecision", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
