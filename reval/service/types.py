@@ -190,3 +190,5 @@ class ParcelDetail(TypedDict):
     value_change: float | None
     sales: list[Record]
     flags: list[str]
+    override: Record | None        # the standing override (value, reason, note, set_at, who)
+    override_reasons: list[str]    # the reason codes the config accepts
