@@ -124,7 +124,7 @@ def sale_decision(r: dict[str, Any], console: Console) -> None:
 def _outdated(r: dict[str, Any], console: Console) -> None:
     if r["outdated"]:
         batches = ", ".join(f"{b['batch_id']} ({b['state']})" for b in r["outdated"])
-        console.print(f"Batch(es) {batches} of segment {shown(r['segment'])} are now outdated: run `reval value "
+        console.print(f"Batch(es) {batches} of segment {shown(r['segment'])} are outdated: run `reval value "
                       f"{shown(r['segment'])}` (with --replace over a held or approved batch), then decide it again.")
 
 
