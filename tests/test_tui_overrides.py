@@ -1,5 +1,5 @@
 """Overrides from the app's parcel view (issue 12, item 4): e asks for value, reason and note in the prompt and
-sets the override; E asks for a note and removes it; both are events, and a bad reason is reported, not fatal."""
+sets the override; u asks for a note and removes it; both are events, and a bad reason is reported, not fatal."""
 from __future__ import annotations
 
 import asyncio
@@ -48,7 +48,7 @@ async def _sets_and_removes(folder: Path) -> None:
         screen = app.screen
         assert isinstance(screen, ParcelScreen) and screen.data is not None
         assert screen.data["override"] is not None and screen.data["override"]["value"] == 123456
-        await pilot.press("E")
+        await pilot.press("u")
         await type_text(pilot, "decision reversed")
         await pilot.press("enter")
         await settle(pilot)

@@ -99,7 +99,7 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
     KeyAction("parcel.override", "e", "override", "parcel", "Override",
               "Set this parcel's value over the model's: value, reason code and note"),
-    KeyAction("parcel.remove_override", "E", "remove_override", "parcel", "Remove override",
+    KeyAction("parcel.remove_override", "u", "remove_override", "parcel", "Remove override",
               "Remove this parcel's override (with a note); the model's value applies at the next value step",
               show=False),
     # help

@@ -42,8 +42,8 @@ def outdated(batch: dict[str, Any] | None) -> bool:
 
 def mark_outdated(store: Store, segment: str) -> list[OutdatedBatch]:
     """Mark the segment's live batches outdated (inside the caller's transaction); returns all its outdated ones."""
-    return [{"batch_id": int(b), "state": str(s), "run_id": str(r)}
-            for b, s, r in store.rows("batch_mark_outdated", {"segment": segment, "at": utc_now()})]
+    store.run("batch_mark_outdated", {"segment": segment, "at": utc_now()})
+    return [{"batch_id": int(b), "state": str(s), "run_id": str(r)} for b, s, r in store.rows("batch_outdated", [segment])]
 
 
 def summary(open_batch: dict[str, Any] | None, certified: dict[str, Any] | None, other_standards: bool,
