@@ -145,3 +145,24 @@ def test_the_cli_sets_and_removes_an_override(demo_copy: Path) -> None:
     done = run_reval("override", parcel, "--remove", "--note", "corrected at source", "--project", str(demo_copy))
     assert done.returncode == 0, done.stderr
     assert query_frame(demo_copy, "SELECT count(*) AS n FROM overrides")["n"][0] == 0
+
+
+def test_an_override_in_an_approved_segment_waits_for_a_deliberate_restage(demo_copy: Path) -> None:
+    """Approved values never change: the approval stays certified (marked outdated) until the segment is staged
+    again on purpose (--replace, the rule of reval/roll/batch_states.py) and the new batch is approved."""
+    parcel, _, segment = _sold_parcel(demo_copy)
+    approved = approve(demo_copy, segment, "test: approved")
+    certified = _roll_row(demo_copy, parcel)
+    set_override(demo_copy, parcel, VALUE, "appeal_decision", "board decision")
+    entry = next(s for s in batch_states(demo_copy)["segments"] if s["segment"] == segment)
+    assert entry["certified"]["batch_id"] == approved["batch_id"] and "outdated" in entry["summary"]
+    kept = stage_values(demo_copy)
+    assert segment in [k["segment"] for k in kept["kept"]] and _roll_row(demo_copy, parcel) == certified
+    with pytest.raises(UserError, match="--replace"):
+        stage_values(demo_copy, segments=[segment])
+    staged = stage_values(demo_copy, segments=[segment], replace=True)
+    assert [s["segment"] for s in staged["staged"]] == [segment]
+    assert _roll_row(demo_copy, parcel)["market_value"] == VALUE
+    approve(demo_copy, segment, "test: approved with the override")
+    entry = next(s for s in batch_states(demo_copy)["segments"] if s["segment"] == segment)
+    assert entry["certified"]["state"] == "approved" and "outdated" not in entry["summary"]
