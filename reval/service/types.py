@@ -7,15 +7,17 @@ from typing import Any, TypedDict
 
 from reval.plain import Record
 from reval.results import (CorrectionResult, Decision, ExportResult, FitSummary, ImportSummary, OverrideResult,
-                           ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
+                           ReportResult, ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult,
+                           StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "ExportResult", "FitSummary", "ImportSummary", "OverrideResult", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
+__all__ = ["BatchStates", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity", "Event",
+           "EventLog", "ExportResult", "FitSummary", "ImportSummary", "OverrideResult", "Overview", "OverviewRow",
+           "ParcelDetail", "Record", "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage",
+           "SegmentDetail", "StagePlan", "StageResult",
            "StandingDecision", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
 
