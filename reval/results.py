@@ -70,6 +70,39 @@ class FilledIn(TypedDict):
 
     parcels: int
     value: str
+class OutdatedBatch(TypedDict):
+    batch_id: int
+    state: str
+    run_id: str
+
+
+class OverrideResult(TypedDict):
+    """An override set or removed: the parcel, the override now standing (None once removed), the one it replaced,
+    the model's value beside it, and the segment's batches that now need a new value step."""
+
+    parcel_id: str
+    segment: str
+    action: str                       # "set" | "removed"
+    override: dict[str, Any] | None   # value, reason, note, set_at, who
+    previous: dict[str, Any] | None
+    model_value: float | None         # the newest run's estimate, when there is a run
+    run_id: str | None
+    outdated: list[OutdatedBatch]
+
+
+class CorrectionResult(TypedDict):
+    """A data correction of one parcel: features before and after, its estimate in the run before and after
+    (no refit), and the segment's batches that now need a new value step."""
+
+    parcel_id: str
+    segment: str
+    run_id: str
+    changes: list[dict[str, Any]]     # feature, old, new (as written: levels by name)
+    old_value: float
+    new_value: float
+    note: str
+    sales_in_fit: int                 # the parcel's sales the run was fitted on (with the old data)
+    outdated: list[OutdatedBatch]
 
 
 class FitSummary(TypedDict):

@@ -8,7 +8,7 @@ OPEN_STATES: tuple[BatchState, ...] = ("staged", "held")            # awaiting a
 CERTIFIED_STATES: tuple[BatchState, ...] = ("approved", "exported")  # in force on the roll
 
 ModelKind = Literal["own", "pooled", "parent_only"]                  # how a segment's model was made
-ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold"]
+ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold", "final"]  # final: the roll after overrides
 VerdictStatus = Literal["pass", "fail", "inconclusive", "too_few_sales", "no_sales"]
 VerdictRule = Literal["point", "interval"]                          # judge the point estimate, or its interval
 Grouping = Literal["segment", "market_area", "class", "segment_class", "all", "value_range", "age", "size"]

@@ -121,6 +121,11 @@ REGISTRY: tuple[KeyAction, ...] = (
               "On a segment: go to its rows; on a row: open its parcel", show=False),
     KeyAction("parcel.report", "r", "report", "parcel", "Parcel report",
               "Write this parcel's one-page report (HTML or PDF: value, explanation, comparable sales, flags)"),
+    KeyAction("parcel.override", "e", "override", "parcel", "Override",
+              "Set this parcel's value over the model's: value, reason code and note"),
+    KeyAction("parcel.remove_override", "u", "remove_override", "parcel", "Remove override",
+              "Remove this parcel's override (with a note); the model's value applies at the next value step",
+              show=False),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

@@ -5,7 +5,8 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, ParcelReport, ReportResult, SaleDecision, StagePlan, StageResult
+from reval.service.types import (Decision, ExportResult, FitSummary, OverrideResult, ParcelReport, ReportResult,
+                                 SaleDecision, StagePlan, StageResult)
 from reval.service.wording import money
 
 Describe = Callable[[Any], str]
@@ -39,6 +40,28 @@ def describe_sale_decision(result: SaleDecision) -> str:
     state = ("" if result["qualified"] is None else
              "; qualified" if result["qualified"] else f"; not qualified ({result['qualification']})")
     return f"Sale {result['sale_id']} {done}: {result['reason']}{state}. The next fit (f) honours it."
+def parse_override(text: str) -> tuple[float, str, str | None]:
+    """The override prompt's line "VALUE REASON [NOTE ...]" as (value, reason, note); ValueError says what is
+    wrong. The value may carry thousands separators (245,000)."""
+    parts = text.split(maxsplit=2)
+    if len(parts) < 2:
+        raise ValueError("Write the value, then the reason code, then an optional note: 245000 appeal_decision ...")
+    try:
+        value = float(parts[0].replace(",", "").replace("_", ""))
+    except ValueError:
+        raise ValueError(f"{parts[0]!r} is not an amount; write the value first, e.g. 245000") from None
+    return value, parts[1], parts[2] if len(parts) > 2 else None
+
+
+def describe_override(result: OverrideResult) -> str:
+    if result["override"] is None:
+        text = f"Override of parcel {result['parcel_id']} removed"
+    else:
+        text = (f"Parcel {result['parcel_id']} overridden at {result['override']['value']:,.0f} "
+                f"({result['override']['reason']})")
+    if result["outdated"]:
+        text += f"; segment {result['segment']} needs its values staged again (v) and a new decision"
+    return text + "."
 
 
 def describe_export(result: ExportResult) -> str:

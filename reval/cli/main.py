@@ -72,6 +72,17 @@ def cmd_fit(args: argparse.Namespace) -> None:
 def cmd_parcel(args: argparse.Namespace) -> None:
     result = actions.parcel_report(_folder(args), args.parcel_id, Path(args.report) if args.report else None)
     render.emit(args, result, render.parcel)
+def cmd_override(args: argparse.Namespace) -> None:
+    if args.remove:
+        if args.value is not None or args.reason:
+            raise UserError("--remove takes no value and no --reason: `reval override PARCEL --remove --note TEXT`.")
+        result = actions.remove_override(_folder(args), args.parcel_id, args.note or "")
+    else:
+        if args.value is None or not args.reason:
+            raise UserError("Give the value and a reason code: `reval override PARCEL VALUE --reason CODE [--note "
+                            "TEXT]` (or --remove --note TEXT).")
+        result = actions.set_override(_folder(args), args.parcel_id, args.value, args.reason, args.note)
+    render.emit(args, result, render.override)
 
 
 def cmd_tui(args: argparse.Namespace) -> None:
@@ -134,8 +145,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--by", choices=list(GROUPINGS), default="segment",
                    help="groups: segment, market area, property class, segment x class, all sales, value range (quintiles of "
                         "the value proxy), age (decades of the age feature) or size (quintile bands of the size feature)")
-    p.add_argument("--values", choices=["prior", "model"], default="prior",
-                   help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
+    p.add_argument("--values", choices=["prior", "model", "final"], default="prior",
+                   help="prior roll values, the latest run's model values (out-of-fold unless --in-sample; overridden "
+                   "parcels left out), or the final roll values after overrides")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
     p.set_defaults(func=cmd_study)
@@ -164,6 +176,25 @@ def build_parser() -> argparse.ArgumentParser:
                    "an approved one (it stays certified until the new batch is decided)")
     p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run, a.segments, a.replace),
                                               render.staged))
+
+    p = sub.add_parser("override", parents=[common], help="set one parcel's market value over the model's, with a "
+                       "reason code ([overrides] reasons), or remove its override")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("value", nargs="?", type=float, help="the market value to put on the roll (not with --remove)")
+    p.add_argument("--reason", help="a reason code from [overrides] reasons in reval.toml")
+    p.add_argument("--note", help="free text kept in the audit log (required with --remove)")
+    p.add_argument("--remove", action="store_true", help="remove the parcel's override: the model's value applies again")
+    p.set_defaults(func=cmd_override)
+
+    p = sub.add_parser("correct", parents=[common], help="correct one parcel's characteristics and revalue it with the "
+                       "run's models, without a refit")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("changes", nargs="+", metavar="FEATURE=VALUE", help="the corrected values, written as in the "
+                   "parcels file (levels by name; empty = missing)")
+    p.add_argument("--note", required=True, help="why; kept in the audit log with the old and new values")
+    p.add_argument("--run", help="the run whose models revalue the parcel (default: the newest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.correct_parcel(_folder(a), a.parcel_id, a.changes, a.note,
+                                                                        a.run), render.correction))
 
     p = sub.add_parser("review", parents=[common], help="value changes, large changes and the sales-chasing check")
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")

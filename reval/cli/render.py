@@ -167,6 +167,37 @@ def sale_decision(r: dict[str, Any], console: Console) -> None:
         console.print(f"Sales re-qualified: this sale is now {state}. Run `reval fit` for a run that honours it.")
 
 
+def _outdated(r: dict[str, Any], console: Console) -> None:
+    if r["outdated"]:
+        batches = ", ".join(f"{b['batch_id']} ({b['state']})" for b in r["outdated"])
+        console.print(f"Batch(es) {batches} of segment {shown(r['segment'])} are outdated: run `reval value "
+                      f"{shown(r['segment'])}` (with --replace over a held or approved batch), then decide it again.")
+
+
+def override(r: dict[str, Any], console: Console) -> None:
+    model = f"; model value {money(r['model_value'])}" if r["model_value"] is not None else ""
+    if r["override"] is None:
+        console.print(f"Override of parcel {shown(r['parcel_id'])} ({money(r['previous']['value'])}, "
+                      f"{shown(r['previous']['reason'])}) removed{model}.")
+    else:
+        o = r["override"]
+        console.print(f"Parcel {shown(r['parcel_id'])} (segment {shown(r['segment'])}): override {money(o['value'])}, "
+                      f"reason {shown(o['reason'])}{model}.")
+    _outdated(r, console)
+    console.print(CAUTION)
+
+
+def correction(r: dict[str, Any], console: Console) -> None:
+    changed = "; ".join(f"{shown(c['feature'])} {shown(str(c['old']))} -> {shown(str(c['new']))}" for c in r["changes"])
+    console.print(f"Parcel {shown(r['parcel_id'])} corrected: {changed}.")
+    console.print(f"Revalued with run {shown(r['run_id'])} (no refit): {money(r['old_value'])} -> "
+                  f"{money(r['new_value'])}.")
+    if r["sales_in_fit"]:
+        console.print(f"The run was fitted on {r['sales_in_fit']} sale(s) of this parcel with its old data; its ratio "
+                      "studies keep them until the next `reval fit`.")
+    _outdated(r, console)
+
+
 # ---- studies and models ----------------------------------------------------------------------------------------
 
 def study(result: dict[str, Any], console: Console) -> None:

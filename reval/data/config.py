@@ -360,6 +360,26 @@ class ClassRules(Declared):
         return "not_valued" if property_class in self.not_valued else "model"
 
 
+def _reason_codes(value: Any, key: str) -> tuple[str, ...]:
+    """Override reason codes: a non-empty list of distinct plain codes (letters, digits, underscores)."""
+    if not isinstance(value, (list, tuple)) or not value or not all(isinstance(v, str) for v in value):
+        raise Invalid(key, f"expected a non-empty list of codes, got {toml_value(value)}")
+    bad = [v for v in value if not re.fullmatch(r"[a-z][a-z0-9_]*", v)]
+    if bad:
+        raise Invalid(key, f"code {bad[0]!r} must be lower-case letters, digits and underscores")
+    if len(set(value)) != len(value):
+        raise Invalid(key, "a code is listed twice")
+    return tuple(value)
+
+
+@dataclass(frozen=True)
+class OverrideSettings(Declared):
+    """Values set by the analyst over the model's (the [overrides] section)."""
+
+    reasons: tuple[str, ...] = setting(("informal_review", "appeal_decision", "data_correction", "manual_value"),
+                                       "the reason codes `reval override --reason` accepts", check=_reason_codes)
+
+
 @dataclass(frozen=True)
 class Section:
     """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
@@ -397,6 +417,7 @@ SECTIONS: tuple[Section, ...] = (
             "similar in what the model says matters, adjusted to the parcel by the model."),
     Section("classes", ClassRules, "How each property class is valued: by the model (every class not named here), "
             "by the land schedule alone, or not at all (left for a manual value)."),
+    Section("overrides", OverrideSettings, "Values the analyst sets over the model's, each with a reason code."),
 )
 
 
@@ -422,6 +443,7 @@ class Config:
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
     comparables: ComparablesSettings = field(default_factory=ComparablesSettings)
     classes: ClassRules = field(default_factory=ClassRules)
+    overrides: OverrideSettings = field(default_factory=OverrideSettings)
     max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
@@ -490,6 +512,7 @@ def load_config(path: Path | str) -> Config:
         assessment=sections["assessment"],
         comparables=sections["comparables"],
         classes=sections["classes"],
+        overrides=sections["overrides"],
         max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )

@@ -23,6 +23,7 @@ from reval.data.events import record_event
 from reval.data.fingerprint import record_fingerprints
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
+from reval.model import stored
 from reval.model.settings import ModelSettings
 from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models, permutation_importance,
                                     reference_factories)
@@ -94,7 +95,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     start = time.perf_counter()
     parcels, X_all = all_parcels(store, features)
     typical = reference_parcels(X_all, parcels["segment"].to_numpy(str), features, baselines(config.features))
-    estimates, contributions = _value_parcels(model, parcels, X_all, typical.rows)
+    estimates, contributions = value_parcels(model, parcels, X_all, typical.rows)
     timings["value_parcels"] = time.perf_counter() - start
 
     run_id = "run-" + dt.datetime.now().strftime("%Y%m%d-%H%M%S-%f")
@@ -110,6 +111,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy()[: len(y)], run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
+        store.run("insert_run_model", [run_id, *stored.encode(model)])
         for table, frame in reports.items():
             store.insert(f"insert_{table}", frame)
         store.insert("insert_sale_predictions", sale_predictions)
@@ -216,7 +218,7 @@ def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray
                          "analyst_reason": sales.frame["analyst_reason"]})
 
 
-def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray,
+def value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray,
                    reference: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Every parcel's log value and its exact additive contributions measured from its segment's reference parcel
     (long form; the base is the reference parcel's log value)."""

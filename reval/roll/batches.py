@@ -20,7 +20,7 @@ from reval.errors import UserError
 from reval.data.events import record_event
 from reval.stats.judging import failures, judging_basis, judging_sha256
 from reval.data.store import Store
-from reval.roll.batch_states import live_batches
+from reval.roll.batch_states import live_batches, outdated
 from reval.roll.flags import approval_blockers
 from reval.states import BatchState, ValuesSource
 from reval.stats.study import segment_judgement
@@ -59,6 +59,10 @@ def _open_batch(store: Store, segment: str, action: str) -> dict[str, Any]:
     if batch["state"] == "held":
         raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
                         "a new run and `reval value` stage it again.")
+    if outdated(batch):
+        raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is outdated by a data correction or "
+                        f"an override made after it was staged; run `reval value {segment}` to stage its values "
+                        "again.")
     return batch
 
 

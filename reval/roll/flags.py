@@ -11,8 +11,10 @@ Each staged row carries a list of codes `kind:detail` (the kinds are `reval.stat
 * `far_from_prior`: the market value differs from the prior value by more than
   `[assessment] review_change_threshold` (the same rule `reval review` lists);
 * `class:land_schedule`, `class:not_valued`: a `[classes]` rule, not the model, set the value (or left none);
-* `cap:max_increase_<p>%`, `land:<why>`: set while staging (reval/roll/valuation.py);
-* `override`: reserved for a value set by the analyst.
+* `cap:max_increase_<p>%`, `cap:max_decrease_<p>%`, `cap:lifted_<why>`, `land:<why>`: set while staging
+  (reval/roll/valuation.py);
+* `override:<reason>`: the analyst's override set the value (reval/roll/overrides.py); the words give the
+  model's value beside it.
 
 A new kind: add it to `FlagKind`, its code and words to sql/queries/roll_flags.sql (or where it is set), and a row
 here. `approval_blockers` is the one rule of which rows stop a segment's approval: a row without a market value

@@ -19,10 +19,10 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (BatchStates, CheckReport, CompareResult, Decision, DemoSummary, Event, EventLog,
-                                     Explanation, ExportResult, FitSummary, ImportSummary, ParcelReport, ReportResult,
-                                     ReviewReport, SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult,
-                                     ValueSplit)
+    from reval.service.types import (BatchStates, CheckReport, CompareResult, CorrectionResult, Decision, DemoSummary,
+                                     Event, EventLog, Explanation, ExportResult, FitSummary, ImportSummary,
+                                     OverrideResult, ParcelReport, ReportResult, ReviewReport, SaleDecision,
+                                     SalesCounts, StagePlan, StageResult, StudyResult, ValueSplit)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -104,13 +104,14 @@ def segment_overview(folder: Path) -> list[Record]:
 def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id: str | None = None,
           in_sample: bool = False) -> StudyResult:
     """Run and store a ratio study; model values (the latest run unless named) are out-of-fold unless
-    in_sample is asked for."""
+    in_sample is asked for; final values are the roll's after overrides."""
     from reval.roll.valuation import resolve_run
     from reval.stats.study import run_study
 
-    source: ValuesSource = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    source: ValuesSource = ("prior" if values == "prior" else "final" if values == "final"
+                            else "model_in_sample" if in_sample else "model_out_of_fold")
     with open_project(folder, write=True) as (config, store):
-        run = None if source == "prior" else resolve_run(store, run_id)
+        run = None if source in ("prior", "final") else resolve_run(store, run_id)
         return run_study(store, config, source, by, run)
 
 
@@ -250,6 +251,33 @@ def revoke(folder: Path, segment: str, note: str) -> Decision:
 
     with open_project(folder, write=True) as (config, store):
         return batches.revoke(store, config, segment, note)
+
+
+def set_override(folder: Path, parcel_id: str, value: float, reason: str, note: str | None = None) -> OverrideResult:
+    """Set one parcel's market value over the model's, with a reason code from [overrides] reasons; the segment's
+    batches become outdated until it is valued and decided again."""
+    from reval.roll.overrides import set_override as set_value
+
+    with open_project(folder, write=True) as (config, store):
+        return set_value(store, config, parcel_id, value, reason, note)
+
+
+def remove_override(folder: Path, parcel_id: str, note: str) -> OverrideResult:
+    """Remove one parcel's override, with a note; the model's value applies again at the next value step."""
+    from reval.roll.overrides import remove_override as remove
+
+    with open_project(folder, write=True) as (_, store):
+        return remove(store, parcel_id, note)
+
+
+def correct_parcel(folder: Path, parcel_id: str, changes: list[str], note: str,
+                   run_id: str | None = None) -> CorrectionResult:
+    """Correct one parcel's characteristics (`feature=value` each) and revalue it with the run's stored models
+    (no refit); the segment's batches become outdated until it is valued and decided again."""
+    from reval.data.corrections import correct_parcel as correct
+
+    with open_project(folder, write=True) as (config, store):
+        return correct(store, config, parcel_id, changes, note, run_id)
 
 
 def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> ExportResult:

@@ -7,21 +7,21 @@ from typing import Any, TypedDict
 
 from reval.plain import Record
 from reval.results import (CheckNotRun, CheckPage, CheckReport, CheckSegment, ComparableGrid, ComparableSale,
-                           Decision, ExportResult, FitSummary, GridRow, ImportSummary, RepeatSale, ReportResult,
-                           ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult,
-                           StandingDecision)
+                           CorrectionResult, Decision, ExportResult, FitSummary, GridRow, ImportSummary,
+                           OverrideResult, RepeatSale, ReportResult, ReviewReport, SaleDecision, SalesCounts,
+                           SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
 __all__ = ["BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "ComparableGrid",
-           "ComparableSale", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow", "ImportSummary", "Overview",
-           "OverviewRow", "ParcelDetail", "ParcelReport", "ParcelValue", "Record", "RepeatSale", "ReportResult",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "SegmentStatistics",
-           "StagePlan", "StageResult", "StandingDecision", "StatCell", "StudyGroup", "StudyResult", "ValueChange",
-           "ValueSplit"]
+           "ComparableSale", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity",
+           "Event", "EventLog", "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow",
+           "ImportSummary", "OverrideResult", "Overview", "OverviewRow", "ParcelDetail", "ParcelReport",
+           "ParcelValue", "Record", "RepeatSale", "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts",
+           "SalesPage", "SegmentDetail", "SegmentStatistics", "StagePlan", "StageResult", "StandingDecision",
+           "StatCell", "StudyGroup", "StudyResult", "ValueChange", "ValueSplit"]
 
 
 class DemoSummary(TypedDict):
@@ -197,6 +197,8 @@ class ParcelDetail(TypedDict):
     value_change: float | None
     sales: list[Record]
     flags: list[str]
+    override: Record | None        # the standing override (value, reason, note, set_at, who)
+    override_reasons: list[str]    # the reason codes the config accepts
 
 
 class SegmentStatistics(TypedDict):

@@ -324,8 +324,11 @@ def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | 
 # ---- one parcel ----------------------------------------------------------------------------------------
 
 def _parcel_flags(config: Config, parcel: Record, features: list[Record], estimate: Record | None,
-                  sales: list[Record], trimmed: list[str], roll: list[Record]) -> list[str]:
+                  sales: list[Record], trimmed: list[str], roll: list[Record], override: Record | None) -> list[str]:
     flags = []
+    if override is not None:
+        flags.append(f"overridden: {override['value']:,.0f} ({override['reason']}) over the model's value"
+                     + ("" if any(r["override_reason"] for r in roll[:1]) else "; not on the roll until valued again"))
     missing = [f["name"] for f in features if f["value"] is None]
     if missing:
         flags.append("missing feature values (the model used typical values): " + ", ".join(missing))
@@ -371,6 +374,7 @@ def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
         s["sale_date"] = s["sale_date"].isoformat()
     trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
     roll = store.records("app_parcel_roll", [parcel_id])
+    override = next(iter(store.records("override_get", [parcel_id])), None)
     for r in roll:
         r["flags"] = list(r["flags"] or [])
     split = None
@@ -387,7 +391,8 @@ def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
             "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
             "features": features, "estimate": estimate, "split": split, "roll": roll,
             "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
-            "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+            "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll, override),
+            "override": override, "override_reasons": list(config.overrides.reasons)}
 
 
 def segment_statistics(store: Store, config: Config, run_id: str | None, segment: str) -> SegmentStatistics | None:

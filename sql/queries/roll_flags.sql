@@ -15,7 +15,7 @@ SET flags = list_concat(v.flags, n.codes),
 FROM (
     WITH rows AS (
         SELECT v.batch_id, v.parcel_id, b.segment, p.market_area, v.property_class, v.market_value, v.prior_value,
-               v.flags, coalesce(c.rule, 'model') AS rule
+               v.model_value, v.flags, coalesce(c.rule, 'model') AS rule
         FROM roll_values v
         JOIN batches b ON b.batch_id = v.batch_id
         JOIN parcels p ON p.parcel_id = v.parcel_id
@@ -80,7 +80,16 @@ FROM (
                                     THEN 'far_from_prior' END], lambda x: x IS NOT NULL) AS codes,
            list_transform(r.flags, lambda c:
                CASE WHEN c LIKE 'cap:max_increase_%'
-                         THEN 'assessed value capped at the prior value + ' || replace(c, 'cap:max_increase_', '')
+                         THEN 'assessed value capped at the prior assessed value + '
+                              || replace(c, 'cap:max_increase_', '')
+                    WHEN c LIKE 'cap:max_decrease_%'
+                         THEN 'assessed value held at the prior assessed value - '
+                              || replace(c, 'cap:max_decrease_', '')
+                    WHEN c = 'cap:lifted_new_construction' THEN 'cap lifted: new construction'
+                    WHEN c = 'cap:lifted_sold' THEN 'cap lifted: sold since the prior roll'
+                    WHEN c LIKE 'override:%'
+                         THEN 'value set by the analyst (' || replace(c, 'override:', '') || '), the model''s '
+                              || coalesce(flag_number(r.model_value), 'none')
                     WHEN c = 'land:not_allocated' THEN 'no land schedule: land and improvement not allocated'
                     WHEN c = 'land:no_lot_size' THEN 'no lot size: land and improvement not allocated'
                     WHEN c = 'land:no_schedule_row'

@@ -1,8 +1,10 @@
--- Every parcel value of the new batches, set-based. Rounding is to the nearest $rounding (halves away from
--- zero; 0 = none). Land comes from roll_land_schedule (segment, base_lot_size, base_land_value,
+-- Every parcel value of the new batches, set-based. The market value is the analyst's override where the parcel
+-- has one (the overrides layer), else the run's estimate rounded; both are kept (model_value, override_reason),
+-- and every rule below (land, level, caps) applies to the market value on the roll. Rounding is to the
+-- nearest $rounding (halves away from zero; 0 = none). Land comes from roll_land_schedule (segment, base_lot_size, base_land_value,
 -- size_exponent) when $allocate. A class the model does not value (roll_classes: property_class, rule) takes
 -- the land value alone ('land_schedule') or no value ('not_valued', or a land-valued parcel the schedule
--- cannot value). Caps come from roll_caps (reval.roll.valuation.cap_table: one rule per class), measured
+-- cannot value); an override values a parcel of any class. Caps come from roll_caps (reval.roll.valuation.cap_table: one rule per class), measured
 -- from the prior ASSESSED value; a cap is lifted for new construction or a parcel sold after
 -- $prior_roll_date when its rule says so. The assessed value is split into land and improvement like the
 -- market value: assessed land = land x assessed / market rounded half up to a whole unit, which is the
@@ -19,12 +21,14 @@ WITH base AS (
            coalesce(p.new_construction, FALSE) AS new_construction,
            p.parcel_id IN (SELECT parcel_id FROM sales WHERE sale_date > $prior_roll_date::DATE) AS sold,
            coalesce(k.rule, 'model') AS rule,
-           roll_round(e.market_value, $rounding::DOUBLE) AS model_value, f.value AS lot
+           roll_round(e.market_value, $rounding::DOUBLE) AS model_value, f.value AS lot,
+           o.value AS override_value, o.reason AS override_reason
     FROM parcel_estimates e
     JOIN parcels p ON p.parcel_id = e.parcel_id
     JOIN batches b ON b.segment = p.segment AND list_contains($batch_ids::BIGINT[], b.batch_id)
     LEFT JOIN feature_values f ON f.parcel_id = p.parcel_id AND f.position = $lot_position::SMALLINT
     LEFT JOIN roll_classes k ON k.property_class = p.property_class
+    LEFT JOIN overrides o ON o.parcel_id = p.parcel_id
     WHERE e.run_id = $run
 ), scheduled AS (
     SELECT base.*, s.segment IS NOT NULL AS has_row,
@@ -35,7 +39,8 @@ WITH base AS (
     LEFT JOIN roll_land_schedule s ON $allocate AND s.segment = base.segment
                                   AND (s.base_lot_size > 0) = (base.lot > 0)
 ), land AS (
-    SELECT *, CASE rule WHEN 'model' THEN model_value WHEN 'land_schedule' THEN raw_land END AS market_value
+    SELECT *, coalesce(override_value, CASE rule WHEN 'model' THEN model_value WHEN 'land_schedule' THEN raw_land END)
+              AS market_value
     FROM scheduled
 ), capped AS (
     SELECT land.*, c.increase_label, c.decrease_label,
@@ -74,6 +79,8 @@ SELECT batch_id, parcel_id, property_class, prior_value, prior_assessed_value, m
                     CASE WHEN NOT $allocate THEN 'land:not_allocated'
                          WHEN lot IS NULL THEN 'land:no_lot_size'
                          WHEN NOT has_row THEN 'land:no_schedule_row'
-                         WHEN raw_land > market_value THEN 'land:exceeds_total' END],
-                   lambda x: x IS NOT NULL) AS flags
+                         WHEN raw_land > market_value THEN 'land:exceeds_total' END,
+                    CASE WHEN override_reason IS NOT NULL THEN 'override:' || override_reason END],
+                   lambda x: x IS NOT NULL) AS flags,
+       model_value, override_reason
 FROM valued;

@@ -105,11 +105,16 @@ class ParcelScreen(DataScreen):
         table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
             table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
+        override = d["override"]
+        if override is not None:
+            table.add_row(*cells("Override", f"{money(override['value'])} ({override['reason']})"))
         for r in d["roll"][:1]:
             table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
             for name in ("market", "land", "improvement", "assessed", "assessed_land", "assessed_improvement"):
                 label = name.replace("_", " ").capitalize()
                 table.add_row(*cells(f"{label} value (roll)", money(r[f"{name}_value"])))
+            if r["override_reason"]:
+                table.add_row(*cells("Overridden (roll)", f"{r['override_reason']}; model {money(r['model_value'])}"))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -170,6 +175,16 @@ class ParcelScreen(DataScreen):
 
     def action_back(self) -> None:
         self.dismiss()
+
+    def action_override(self) -> None:
+        if self.data is not None:
+            estimate = self.data["estimate"]
+            self.reval.override(self.data["parcel_id"], self.data["override_reasons"],
+                                estimate["market_value"] if estimate else None)
+
+    def action_remove_override(self) -> None:
+        if self.data is not None:
+            self.reval.remove_override(self.data["parcel_id"])
 
     def action_open_segment(self) -> None:
         if self.data is not None:
