@@ -83,6 +83,12 @@ def test_an_override_survives_a_refit_and_a_restage_and_is_flagged_in_the_export
     row = _roll_row(demo_copy, parcel)
     assert row["run_id"] != first_run and row["market_value"] == VALUE and row["override_reason"] == "appeal_decision"
 
+    # The demo's institutional parcels are a class reval does not value ([classes] not_valued): their segment
+    # can be approved only once each has a manual value, which is an override (issue 10 item 4).
+    manual = query_frame(demo_copy, "SELECT parcel_id FROM parcels WHERE property_class = 'institutional'")
+    for pid in manual["parcel_id"]:
+        set_override(demo_copy, pid, 400_000, "manual_value", "valued by hand")
+    stage_values(demo_copy, replace=True)
     for s in batch_states(demo_copy)["segments"]:
         approve(demo_copy, s["segment"], "test: approved to export")
     out = tmp_path / "roll.csv"
@@ -92,7 +98,10 @@ def test_an_override_survives_a_refit_and_a_restage_and_is_flagged_in_the_export
     assert rows[parcel]["market_value"] == f"{VALUE:.2f}" and rows[parcel]["overridden"] == "yes"
     assert rows[parcel]["override_reason"] == "appeal_decision"
     assert float(rows[parcel]["model_value"]) == row["model_value"]
-    others = [r for p, r in rows.items() if p != parcel]
+    assert all(rows[p]["overridden"] == "yes" and rows[p]["override_reason"] == "manual_value"
+               and "override:manual_value" in rows[p]["flags"] for p in manual["parcel_id"])
+    others = [r for p, r in rows.items()
+              if p != parcel and p not in set(manual["parcel_id"]) and r["property_class"] != "vacant_land"]
     assert all(r["overridden"] == "no" and r["market_value"] == r["model_value"] and not r["override_reason"]
                for r in others)
 

@@ -52,12 +52,14 @@ def _parse(changes: list[str], features: dict[str, dict[str, Any]]) -> dict[str,
 
 def _checked(store: Store, config: Config, parcel_id: str, parsed: dict[str, str],
              features: dict[str, dict[str, Any]]) -> pd.DataFrame:
-    """The corrected values as stored codes (position, value), checked by the import's checks."""
+    """The corrected values as stored codes (position, value), checked by the import's checks (a value the
+    config declares to mean "missing" is stored as missing, as on import)."""
+    missing = {f.name: list(f.missing) or None for f in config.features}
     roles = [{"file": SOURCE, "col": "(parcel)", "role": "parcel_id", "name": "parcel_id", "kind": "id",
-              "position": None, "levels": None, "lo": None, "hi": None, "log": False}]
+              "position": None, "levels": None, "lo": None, "hi": None, "log": False, "missing": None}]
     roles += [{"file": SOURCE, "col": name, "role": "feature", "name": name, "kind": f["kind"],
                "position": f["position"], "levels": f["levels"], "lo": f["range_lo"], "hi": f["range_hi"],
-               "log": f["log"]} for name, f in features.items() if name in parsed]
+               "log": f["log"], "missing": missing.get(name)} for name, f in features.items() if name in parsed]
     cells = pd.DataFrame({"col": ["(parcel)", *parsed], "val": [parcel_id, *parsed.values()]})
     frames = {"correct_roles": pd.DataFrame(roles).astype({"position": "Int16"}), "correct_cells": cells}
     store.run("import_temp_tables")
