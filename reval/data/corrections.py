@@ -55,7 +55,7 @@ def _checked(store: Store, config: Config, parcel_id: str, parsed: dict[str, str
     """The corrected values as stored codes (position, value), checked by the import's checks (a value the
     config declares to mean "missing" is stored as missing, as on import)."""
     missing = {f.name: list(f.missing) or None for f in config.features}
-    roles = [{"file": SOURCE, "col": "(parcel)", "role": "parcel_id", "name": "parcel_id", "kind": "id",
+    roles: list[dict[str, Any]] = [{"file": SOURCE, "col": "(parcel)", "role": "parcel_id", "name": "parcel_id", "kind": "id",
               "position": None, "levels": None, "lo": None, "hi": None, "log": False, "missing": None}]
     roles += [{"file": SOURCE, "col": name, "role": "feature", "name": name, "kind": f["kind"],
                "position": f["position"], "levels": f["levels"], "lo": f["range_lo"], "hi": f["range_hi"],
