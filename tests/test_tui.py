@@ -411,7 +411,7 @@ async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: P
     async with app.run_test(size=SIZE, message_hook=hook) as pilot:
         await settle(pilot)
         table = app.screen.query_one("#segments", DataTable)
-        await pilot.press("f")
+        await pilot.press("f", "enter")
         assert app.job_running and app.status.running
         await pilot.press("j")                     # the interface answers while the fit runs
         assert table.cursor_row == 1
@@ -431,11 +431,8 @@ async def _a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy:
     app = RevalApp(demo_copy)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
-        await pilot.press("f", "ctrl+k")
-        await settle(pilot)
-        while app.db_lock.locked():            # the fit's thread ends at its next progress report
-            await pilot.pause()
-        await pilot.pause()
+        await pilot.press("f", "enter", "ctrl+k")
+        await settle(pilot)                    # the fit's thread ends at its next progress report
         assert app.messages[-1] == ("warning", "fit cancelled; the step was rolled back and nothing changed")
     assert query_frame(demo_copy, "SELECT count(*) AS n FROM runs")["n"].iloc[0] == 1
 
@@ -458,9 +455,10 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
         await pilot.press("enter")
         await settle(pilot)
         assert str(app.screen.query_one("#curve-title", Static).render()) == "No model run yet — press f to fit."
-        await pilot.press("escape", "a", "enter")   # nothing staged: the core refuses, the app reports it
+        await pilot.press("escape", "a")   # nothing staged: refused before a note is asked, in the app's words
         await settle(pilot)
         assert app.messages[-1][0] == "error" and "no staged batch" in app.messages[-1][1]
+        assert "press v" in app.messages[-1][1] and "reval value" not in app.messages[-1][1]
         assert isinstance(app.screen, OverviewScreen)
 
 

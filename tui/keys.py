@@ -37,15 +37,15 @@ REGISTRY: tuple[KeyAction, ...] = (
     # everywhere
     KeyAction("app.help", "question_mark,f1", "app.help", "app", "Help", "Show every key and what it does",
               key_display="?"),
-    KeyAction("app.quit", "q", "app.quit", "app", "Quit", "Leave the app"),
+    KeyAction("app.quit", "q", "app.quit", "app", "Quit", "Leave the app (asks first while a job runs)"),
     KeyAction("app.parcel", "o", "app.find_parcel", "app", "Parcel", "Open a parcel by its id"),
-    KeyAction("app.fit", "f", "app.fit", "app", "Fit", "Fit the models of every segment (a new run)"),
+    KeyAction("app.fit", "f", "app.fit", "app", "Fit", "Fit the models of every segment: a new run (asks first)"),
     KeyAction("app.value", "v", "app.value", "app", "Value",
               "Stage values from the latest run for every segment without a held or approved batch (asks first)",
               show=False),
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
-              "Cancel the fit or valuation that is running", show=False),
+              "Cancel the job that is running (shown in the footer only then); it keeps nothing"),
     KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
               show=False),
     # overview

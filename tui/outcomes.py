@@ -7,6 +7,8 @@ from typing import Any
 
 from reval.service.types import Decision, ExportResult, FitSummary, StagePlan, StageResult
 
+from .jobs import JobProgressed
+
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
 DECISIONS: dict[str, tuple[str, str, bool]] = {
@@ -60,3 +62,56 @@ def staging_lines(plan: StagePlan) -> list[str]:
     for d in plan["kept"]:
         lines.append(f"Kept: {d['segment']} {d['state']} (batch {d['batch_id']}, run {d['run_id']}).")
     return lines
+
+
+# the phases each job reports through its progress callback, in order: one bar runs over all of them
+JOB_PHASES: dict[str, tuple[str, ...]] = {
+    "fit": ("fitting segments", "out-of-fold folds", "reference models"),
+    "import": ("reading files",),
+    "sales": ("qualifying sales",),
+}
+
+FIT_LINES = [
+    "A new run: every segment's model is fitted, checked out of fold on its sales and compared with the "
+    "reference models (seconds on the demo, minutes on a large roll).",
+    "Staged, held and approved batches stay as they are; press v afterwards to stage the new run's values.",
+    "Ctrl+K cancels it; a cancelled fit keeps nothing.",
+]
+
+# the core's messages name command-line commands and options; the app says which key or box does it
+APP_WORDING: tuple[tuple[str, str], ...] = (
+    ("run `reval value` after a run", "press v to stage values after a fit (f)"),
+    ("a new run and `reval value` stage it again", "after a new run (f), V re-stages it"),
+    ("export the approved segments alone with --partial",
+     "tick 'Partial export' in the export dialog (x) to export the approved segments alone"),
+    ("Give --replace to stage them anyway", "Re-stage them with r in the staging confirmation, or V on one segment"),
+    ("run `reval fit` again", "press f to fit again"),
+    ("run `reval fit` first", "press f to fit first"),
+    ("run `reval value` first", "press v to stage values first"),
+    ("choose another file name or give --overwrite to replace it", "choose another file name"),
+)
+
+
+def app_wording(text: str) -> str:
+    """A core message with its command-line hints replaced by the app's keys and checkboxes."""
+    for cli, app in APP_WORDING:
+        text = text.replace(cli, app)
+    return text
+
+
+def job_fraction(kind: str, step: str, done: int, total: int) -> float:
+    """How far the whole job is (0-1): its finished phases and the share done of the current one."""
+    phases = JOB_PHASES.get(kind, ())
+    index = phases.index(step) if step in phases else 0
+    count = max(len(phases), 1)
+    return min(1.0, (index + done / max(total, 1)) / count)
+
+
+def job_line(label: str, kind: str, progress: JobProgressed | None) -> str:
+    """The one status line of a running job: what runs, its phase of the whole, and how to cancel it."""
+    if progress is None:
+        return f"{label}… · Ctrl+K cancels"
+    phases = JOB_PHASES.get(kind, ())
+    where = (f"step {phases.index(progress.step) + 1} of {len(phases)}, " if progress.step in phases and len(phases) > 1
+             else "")
+    return f"{label} · {where}{progress.step} {progress.done}/{progress.total} · Ctrl+K cancels"
