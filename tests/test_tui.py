@@ -84,11 +84,11 @@ async def _overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) ->
         assert "out-of-fold" in header and PINNED_RUN in header
         # the marks are the core's verdicts: ✗ exactly where a statistic fails, never colour alone
         for g in oof_study(fitted_demo)["groups"]:
-            cells = dict(zip(("median_ratio", "cod", "prd", "prb"), rows[g["group"]][2:6]))
+            cells = dict(zip(("median_ratio", "cod", "prd", "prb"), rows[g["group"]][4:8]))
             for stat, verdict in g["verdicts"].items():
                 assert cells[stat].endswith({"pass": "✓", "fail": "✗", "too_few_sales": "~", "no_sales": "–"}[verdict["status"]])
         states_now = states(fitted_demo)
-        assert all(rows[s][7] == e["summary"] for s, e in states_now.items())   # certified and pending side by side
+        assert all(rows[s][8] == e["summary"] for s, e in states_now.items())   # certified and pending side by side
 
 
 def test_keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
@@ -111,8 +111,8 @@ async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
         assert table.cursor_row == n - 1
         await pilot.press("g")
         assert table.cursor_row == 0
-        # s steps the sort column: segment -> model -> median -> COD; r reverses it
-        await pilot.press("s", "s", "s")
+        # s steps the sort column: segment -> area -> parcels -> sales -> median -> COD; r reverses it
+        await pilot.press("s", "s", "s", "s", "s")
         assert screen.sort_key == "cod"
         cod = {g["group"]: g["cod"] for g in oof_study(fitted_demo)["groups"]}
         shown = [r[0] for r in table_rows(table) if r[0] in cod and cod[r[0]] is not None]
@@ -131,9 +131,9 @@ async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
         # m cycles market areas
         await pilot.press("m")
         area = screen.area
-        assert area is not None and all(r[-1] == area for r in table_rows(table))
+        assert area is not None and all(r[1] == area for r in table_rows(table))
         await pilot.press("c", "t")                 # t cycles batch states: every row shown is in that state
-        assert screen.state is not None and all(r[7].startswith(screen.state) for r in table_rows(table))
+        assert screen.state is not None and all(r[8].startswith(screen.state) for r in table_rows(table))
         await pilot.press("c")
         # incremental search narrows as each letter is typed; Esc clears it
         name = table_rows(table)[0][0]
@@ -215,7 +215,7 @@ async def _hold_with_a_reason_is_stored_with_its_event(demo_copy: Path) -> None:
         await pilot.press("enter")
         await settle(pilot)
         row = next(r for r in table_rows(app.screen.query_one("#segments", DataTable)) if r[0] == segment)
-        assert row[7] == "held, run 1"
+        assert row[8] == "held, run 1"
     held = states(demo_copy)[segment]["open"]
     assert held["state"] == "held" and held["note"] == "recheck lot sizes"
     events = actions.event_log(demo_copy, segment)["events"]

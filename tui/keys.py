@@ -38,7 +38,7 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("app.help", "question_mark,f1", "app.help", "app", "Help", "Show every key and what it does",
               key_display="?"),
     KeyAction("app.quit", "q", "app.quit", "app", "Quit", "Leave the app (asks first while a job runs)"),
-    KeyAction("app.parcel", "o", "app.find_parcel", "app", "Parcel", "Open a parcel by its id"),
+    KeyAction("app.parcel", "o", "app.find_parcel", "app", "Parcel", "Open a parcel by its id", show=False),
     KeyAction("app.fit", "f", "app.fit", "app", "Fit", "Fit the models of every segment: a new run (asks first)"),
     KeyAction("app.value", "v", "app.value", "app", "Value",
               "Stage values from the latest run for every segment without a held or approved batch (asks first)",

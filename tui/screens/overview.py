@@ -14,16 +14,20 @@ from reval.service import views
 from reval.service.types import Overview, OverviewRow
 
 from .. import keys
-from ..format import CAUTION, LEGEND, cells, gate_detail, model_cell, percent, shown, stat_cell
+from ..format import SHORT_CAUTION, SHORT_LEGEND, cells, gate_detail, model_cell, percent, shown, stat_cell
 from ..jobs import Loaded, StatusBar
 from ..plain import Plain
 from .base import DataScreen, footer
 
-# (sort key, header label); the table shows them in this order (the most used first, for 80 columns).
-COLUMNS = (("segment", "Segment"), ("model", "Model (borrowed)"), ("median_ratio", "Median"), ("cod", "COD"),
-           ("prd", "PRD"), ("prb", "PRB"), ("value_change", "Change"), ("state", "State"),
-           ("sales", "Sales"), ("parcels", "Parcels"), ("market_area", "Market area"))
-SORT_ORDER = tuple(key for key, _ in COLUMNS)
+# (sort key, header label, cells it may take at 80 columns): the key columns first, so that at 80x24 the
+# segment, its market area, counts, statistics and state fit; change and model follow to the right (and show
+# at 160 columns).
+COLUMNS = (("segment", "Name", 8), ("market_area", "Area", 8), ("parcels", "Parcels", 7), ("sales", "Sales", 5),
+           ("median_ratio", "Median", 6), ("cod", "COD", 5), ("prd", "PRD", 6), ("prb", "PRB", 7),
+           ("state", "State", 13), ("value_change", "Change", 7), ("model", "Model", 22))
+WIDE = 120   # from this many columns, names and states are not cut
+SORT_ORDER = tuple(key for key, _, _ in COLUMNS)
+LABELS = {key: label for key, label, _ in COLUMNS}
 VERDICT_COLOURS = {"pass": "success", "fail": "error", "inconclusive": "warning", "too_few_sales": "warning"}
 
 
@@ -49,16 +53,16 @@ class OverviewScreen(DataScreen):
         yield Header()
         yield Plain("Reading the project…", id="stats-header")
         yield Plain("", id="filters")
-        yield Static(LEGEND, id="legend")
+        yield Static(SHORT_LEGEND, id="legend")
         yield DataTable(id="segments", cursor_type="row", zebra_stripes=True)
         yield Input(placeholder="segment name (Enter keeps it, Esc clears it)", id="search")
-        yield Static(CAUTION, id="caution")
+        yield Static(SHORT_CAUTION, id="caution")
         yield StatusBar()
         yield footer()
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        for key, label in COLUMNS:
+        for key, label, _ in COLUMNS:
             table.add_column(label, key=key)
         table.focus()
         self.app.theme_changed_signal.subscribe(self, lambda _: self.refresh_table())
@@ -110,22 +114,27 @@ class OverviewScreen(DataScreen):
             colour = colours.get(VERDICT_COLOURS.get(status or "", ""), None)
             return Text(stat_cell(row["stats"][stat], stat, short=True), style=Style(color=colour) if colour else "")
 
-        return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
-                verdict("prb"), percent(row["value_change"]), row["batches"], f"{row['sales']:,}",
-                f"{row['parcels']:,}", row["market_area"]]
+        wide = self.size.width >= WIDE
+        widths = {key: (None if wide else width) for key, _, width in COLUMNS}
+        return [shown(row["segment"], widths["segment"]), shown(row["market_area"], widths["market_area"]),
+                f"{row['parcels']:,}", f"{row['sales']:,}", verdict("median_ratio"), verdict("cod"), verdict("prd"),
+                verdict("prb"), shown(row["batches"], widths["state"]), percent(row["value_change"]),
+                model_cell(row)]
+
+    def on_resize(self) -> None:
+        self.refresh_table()
 
     def _label_columns(self, table: DataTable[Any]) -> None:
-        labels = dict(COLUMNS)
-        arrow = " ▼" if self.descending else " ▲"
+        arrow = "▼" if self.descending else "▲"
         for key, column in table.columns.items():
             name = str(key.value)
-            column.label = Text(labels[name] + (arrow if name == self.sort_key else ""))
+            column.label = Text(LABELS[name] + (arrow if name == self.sort_key else ""))
         table.refresh()
 
     def _show_filters(self) -> None:
         assert self.data is not None
         parts = [f"{len(self.shown)} of {len(self.data['segments'])} segments",
-                 f"sorted by {dict(COLUMNS)[self.sort_key]} {'descending' if self.descending else 'ascending'}"]
+                 f"by {LABELS[self.sort_key]} {'▼' if self.descending else '▲'}"]
         active = [name for name, on_ in (("cannot be approved", self.failing_only),
                                          (f"market area {self.area}", self.area is not None),
                                          (f"state {self.state}", self.state is not None),

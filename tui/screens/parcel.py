@@ -12,7 +12,7 @@ from reval.service import views
 from reval.service.types import ParcelDetail, Record
 
 from .. import keys
-from ..format import CAUTION, cells, money, number, percent, signed_money
+from ..format import SHORT_CAUTION, cells, money, number, percent, shown, signed_money
 from ..jobs import Loaded, StatusBar
 from ..plain import Plain
 from .base import DataScreen, footer
@@ -42,14 +42,14 @@ class ParcelScreen(DataScreen):
             with Horizontal(id="parcel-top"):
                 yield DataTable(id="parcel-value", cursor_type="none", show_cursor=False)
                 yield DataTable(id="parcel-features", cursor_type="none", show_cursor=False)
-            yield Static("Contributions", classes="section")
+            yield Plain("Contributions", classes="section", id="parts-title")
             yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
             yield Plain("", id="parcel-parts-note")
             yield Static("Sales", classes="section")
             yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
             yield Static("Flags", classes="section")
             yield Plain("", id="parcel-flags")
-        yield Static(CAUTION, id="caution")
+        yield Static(SHORT_CAUTION, id="caution")
         yield StatusBar()
         yield footer()
 
@@ -87,15 +87,15 @@ class ParcelScreen(DataScreen):
         table.clear(columns=True)
         table.add_columns("Value", "Amount")
         estimate = d["estimate"]
-        table.add_row(*cells("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)"))
+        table.add_row(*cells("Model value", money(estimate["market_value"]) if estimate else "– (no run: f)"))
         table.add_row(*cells("Prior value", money(d["prior_value"])))
         table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
-            table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
+            table.add_row(*cells("Model", estimate["kind"].replace("_", " ")))
         for r in d["roll"][:1]:
-            table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
+            table.add_row(*cells(f"Roll batch {r['batch_id']}", r["state"]))
             for name in ("market", "land", "improvement", "assessed"):
-                table.add_row(*cells(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"])))
+                table.add_row(*cells(f"  {name.capitalize()}", money(r[f"{name}_value"])))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -105,9 +105,9 @@ class ParcelScreen(DataScreen):
         if split is None or estimate is None:
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
+        self.query_one("#parts-title", Static).update(f"Contributions (model of run {shown(d['run_id'], 40)})")
         table.add_columns("Part", "Log value", "Value", "% of value")
-        table.add_row(*cells("base (the segment's average parcel)", number(split["base_log"], ".4f"),
-                      money(split["base"]), ""))
+        table.add_row(*cells("base (average parcel)", number(split["base_log"], ".4f"), money(split["base"]), ""))
         for p in split["parts"]:
             table.add_row(*cells(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
                           percent(p["currency"] / split["value"])))
