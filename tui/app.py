@@ -197,6 +197,14 @@ class RevalApp(App[None]):
 
         self.push_screen(ParcelScreen(parcel_id))
 
+    def action_open_list(self, name: str) -> None:
+        """A work list: of the segment on screen in a drill-in, else of every segment."""
+        from .screens.listing import ListScreen
+        from .screens.segment import SegmentScreen
+
+        segment = self.screen.segment if isinstance(self.screen, SegmentScreen) else None
+        self.push_screen(ListScreen(name, segment))
+
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):
             self.push_screen(HelpScreen())

@@ -14,6 +14,7 @@ SCOPES = {
     "overview": "Segments overview",
     "segment": "Segment drill-in",
     "parcel": "Parcel view",
+    "list": "Work lists",
     "help": "Help",
 }
 
@@ -46,6 +47,13 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
               "Cancel the job that is running (shown in the footer only then); it keeps nothing"),
+    KeyAction("app.changes", "C", "app.open_list('changes')", "app", "Changes",
+              "List the parcels whose value changes beyond the review threshold (this segment's, in a drill-in)",
+              show=False),
+    KeyAction("app.sales_list", "E", "app.open_list('sales')", "app", "Sales left out",
+              "List the excluded and down-weighted sales with why (this segment's, in a drill-in)", show=False),
+    KeyAction("app.log", "L", "app.open_list('log')", "app", "Log",
+              "Show the audit log (this segment's, in a drill-in)", show=False),
     KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
               show=False),
     # overview
@@ -97,6 +105,18 @@ REGISTRY: tuple[KeyAction, ...] = (
     # parcel
     KeyAction("parcel.back", "escape,backspace", "back", "parcel", "Back", "Back"),
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
+    # work lists
+    KeyAction("list.back", "escape,backspace", "back", "list", "Back", "Back"),
+    KeyAction("list.open", "enter", "open_row", "list", "Open", "Open the row's parcel (the log: its segment)",
+              key_display="⏎"),
+    KeyAction("list.next", "right_square_bracket,n", "page(1)", "list", "Next", "Next page", key_display="]"),
+    KeyAction("list.prev", "left_square_bracket,p", "page(-1)", "list", "Prev", "Previous page", key_display="["),
+    KeyAction("list.sort_next", "s", "sort(1)", "list", "Sort", "Sort by the next column"),
+    KeyAction("list.sort_prev", "S", "sort(-1)", "list", "Sort back", "Sort by the previous column", show=False),
+    KeyAction("list.reverse", "r", "reverse", "list", "Reverse", "Reverse the order", show=False),
+    KeyAction("list.search", "slash", "search", "list", "Filter", "Show only rows containing a text",
+              key_display="/"),
+    KeyAction("list.segment", "e", "segment_filter", "list", "Segment", "Show one segment's rows (empty: all)"),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

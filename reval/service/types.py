@@ -190,3 +190,31 @@ class ParcelDetail(TypedDict):
     value_change: float | None
     sales: list[Record]
     flags: list[str]
+
+
+class ListColumn(TypedDict):
+    """One column of a work list: the row key it shows, its header, how its values read (text, money, change,
+    weight, date, time) and whether the list sorts by it."""
+
+    key: str
+    label: str
+    format: str
+    sortable: bool
+
+
+class ListPage(TypedDict):
+    """One page of a work list (reval.service.views.LISTS), filtered and sorted in SQL."""
+
+    name: str
+    title: str
+    columns: list[ListColumn]
+    rows: list[Record]
+    total: int
+    page: int
+    pages: int
+    page_size: int
+    sort: str
+    descending: bool
+    segment: str | None
+    text: str
+    opens: str          # what Enter opens from a row: "parcel" or "segment"

@@ -8,6 +8,7 @@ app opens fast.
 """
 from __future__ import annotations
 
+import json
 import math
 from pathlib import Path
 from typing import Any, TypedDict
@@ -21,8 +22,8 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
-                                 SegmentDetail, SegmentReview, StatCell, ValueChange)
+from reval.service.types import (Curve, Equity, ListColumn, ListPage, Overview, OverviewRow, ParcelDetail, Record,
+                                 SalesPage, SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
@@ -300,6 +301,99 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
         light = int(store.rows("app_segment_downweighted", [run_id, segment])[0][0]) if run_id else 0
         return {"segment": segment, "page": page, "pages": pages, "total": total, "rows": rows,
                 "values": "out-of-fold model values" if model else "prior roll values", "downweighted": light}
+
+
+# ---- work lists ----------------------------------------------------------------------------------------
+
+def _column(key: str, label: str, format: str = "text", sortable: bool = True) -> ListColumn:
+    return {"key": key, "label": label, "format": format, "sortable": sortable}
+
+
+class ListSpec(TypedDict):
+    """A work list: its query (sql/queries/app_list_NAME.sql), title, columns, default order and what a row opens."""
+
+    title: str
+    columns: list[ListColumn]
+    sort: str
+    descending: bool
+    opens: str
+
+
+LISTS: dict[str, ListSpec] = {
+    "changes": {"title": "Value changes beyond the review threshold", "sort": "change", "descending": True,
+                "opens": "parcel",
+                "columns": [_column("parcel_id", "Parcel"), _column("segment", "Segment"),
+                            _column("prior_value", "Prior", "money"), _column("market_value", "Value", "money"),
+                            _column("change", "Change", "change"), _column("state", "Batch", sortable=False)]},
+    "sales": {"title": "Excluded and down-weighted sales, with why", "sort": "sale_id", "descending": False,
+              "opens": "parcel",
+              "columns": [_column("sale_id", "Sale"), _column("parcel_id", "Parcel"),
+                          _column("status", "Status", sortable=False), _column("weight", "Weight", "weight"),
+                          _column("reason", "Why"), _column("segment", "Segment"),
+                          _column("sale_date", "Date", "date"), _column("sale_price", "Price", "money")]},
+    "log": {"title": "Audit log", "sort": "event_id", "descending": True, "opens": "segment",
+            "columns": [_column("event_id", "Event"), _column("event_time", "Time", "time", sortable=False),
+                        _column("who", "Who"), _column("kind", "Kind"), _column("segment", "Segment"),
+                        _column("detail", "Detail", sortable=False)]},
+}
+# the SQL's names for the sort keys of columns whose row key differs
+_SORT_NAMES = {"parcel_id": "parcel", "prior_value": "prior", "market_value": "value", "sale_id": "sale",
+               "sale_date": "date", "sale_price": "price", "event_id": "event"}
+
+
+def _event_detail(text: str | None) -> str:
+    """An event's detail in one line: its plain fields (notes, reasons, batch, states), not the stored snapshots."""
+    detail = json.loads(text or "{}")
+    first = [k for k in ("note", "reason") if k in detail]   # what a person wrote reads first
+    keep = [f"{k}: {detail[k]}" for k in [*first, *(k for k in detail if k not in first)]
+            if isinstance(detail[k], (str, int, float, bool)) and not k.endswith("sha256")]
+    return "; ".join(keep)
+
+
+def list_page(folder: Path, name: str, *, segment: str | None = None, text: str = "", sort: str | None = None,
+              descending: bool | None = None, page: int = 0, page_size: int = 50) -> ListPage:
+    """One page of a work list, filtered (segment, text) and sorted in SQL; a page past the end gives the last."""
+    if name not in LISTS:
+        raise UserError(f"No list named {name!r}: {', '.join(LISTS)}.")
+    spec = LISTS[name]
+    sort = sort or spec["sort"]
+    if sort not in {c["key"] for c in spec["columns"] if c["sortable"]}:
+        raise UserError(f"The {name} list cannot be sorted by {sort!r}.")
+    descending = spec["descending"] if descending is None else descending
+    with open_project(folder) as (config, store):
+        params: dict[str, Any] = {"segment": segment, "text": text.strip(), "sort": _SORT_NAMES.get(sort, sort),
+                                  "descending": descending, "limit": page_size}
+        if name == "changes":
+            params["threshold"] = config.assessment.review_change_threshold
+        if name == "sales":
+            params["run_id"] = latest_run(store)
+
+        def read(at: int) -> list[Record]:
+            return store.records(f"app_list_{name}", {**params, "offset": at * page_size})
+
+        rows = read(max(page, 0))
+        total = int(rows[0]["total_rows"]) if rows else 0
+        pages = max(1, math.ceil(total / page_size))
+        if not rows and page > 0:   # past the end: the last page (the count comes with any row)
+            total = int(next(iter(read(0)), {"total_rows": 0})["total_rows"])
+            pages = max(1, math.ceil(total / page_size))
+            page = pages - 1
+            rows = read(page)
+        page = min(max(page, 0), pages - 1)
+    for r in rows:
+        r.pop("total_rows", None)
+        for key in ("sale_date", "event_time"):
+            if r.get(key) is not None:
+                r[key] = r[key].isoformat(sep=" ", timespec="seconds") if key == "event_time" else r[key].isoformat()
+        if "detail" in r:
+            r["detail"] = _event_detail(r["detail"])
+    title = spec["title"]
+    if name == "changes":
+        limit = params["threshold"]
+        title += f" (±{limit:.0%}, the segment's open batch, else its certified one)"
+    return {"name": name, "title": title, "columns": spec["columns"], "rows": rows, "total": total, "page": page,
+            "pages": pages, "page_size": page_size, "sort": sort, "descending": descending, "segment": segment,
+            "text": text, "opens": spec["opens"]}
 
 
 # ---- one parcel ----------------------------------------------------------------------------------------
