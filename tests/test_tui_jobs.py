@@ -8,7 +8,7 @@ from __future__ import annotations
 import asyncio
 from pathlib import Path
 
-from helpers import query_frame, settle, type_text
+from helpers import query_frame, settle, table_rows, type_text
 from test_tui import SIZE, _confirm_text, failing_and_passing, go_to, states
 
 from reval.service import actions
@@ -149,3 +149,28 @@ async def _typed_ahead_note_never_reaches_the_overview(demo_copy: Path) -> None:
         await settle(pilot)
     assert states(demo_copy)[failing]["open"]["note"] == "check the lots"
     assert all(not isinstance(s, SegmentScreen) for s in app.screen_stack)
+
+
+def test_a_decision_made_elsewhere_shows_without_refresh(demo_copy: Path) -> None:
+    asyncio.run(_a_decision_made_elsewhere_shows_without_refresh(demo_copy))
+
+
+async def _a_decision_made_elsewhere_shows_without_refresh(demo_copy: Path) -> None:
+    # Finding: two app instances on one project did not see each other's decisions until Ctrl+R. The app reads
+    # the newest event id every few seconds (here every 0.2 s) and reloads when it grew.
+    failing, _ = failing_and_passing(demo_copy)
+    app = RevalApp(demo_copy)
+    app.poll_seconds = 0.2
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, failing)
+        actions.hold(demo_copy, failing, "held from the other window")   # as another process would
+        shown = ""
+        for _ in range(100):
+            await pilot.pause(0.05)
+            await settle(pilot)
+            rows = {r[0]: r for r in table_rows(app.screen.query_one("#segments"))}
+            shown = rows[failing][8]
+            if shown.startswith("held"):
+                break
+        assert shown == "held, run 1"

@@ -46,12 +46,14 @@ class RevalApp(App[None]):
     BINDINGS = keys.bindings("app")
 
     status: reactive[Status] = reactive(Status())
+    poll_seconds = 5.0   # how often the newest event id is read, to show other processes' decisions
 
     def __init__(self, folder: Path) -> None:
         super().__init__()
         self.folder = Path(folder).resolve()
         self.job_label = ""
         self.job_running = False   # from a job's start until its thread is done (a cancelled one runs on briefly)
+        self.seen_event: int | None = None   # the newest event id this app has shown
         self.messages: list[tuple[str, str]] = []  # (severity, text), oldest first
         self._reads: dict[Worker[Any], tuple[Screen[Any], str]] = {}
 
@@ -59,6 +61,32 @@ class RevalApp(App[None]):
         self._notices = NoticeRelay(self)
         logging.getLogger("reval").addHandler(self._notices)
         self.push_screen(OverviewScreen())
+        self.set_interval(self.poll_seconds, self._poll_events)
+
+    # ---- other processes' changes ----------------------------------------------------------------------
+
+    def _poll_events(self) -> None:
+        if not self.job_running and not any(w.group == "poll" and w.is_running for w in self.workers):
+            self._read_latest_event()
+
+    @work(thread=True, group="poll", exit_on_error=False, name="latest event")
+    def _read_latest_event(self) -> None:
+        try:
+            latest = views.latest_event(self.folder)
+        except UserError:
+            return   # no database yet, or held by a writer for now: the next poll tries again
+        self.call_from_thread(self._compare_event, latest)
+
+    def _compare_event(self, latest: int) -> None:
+        """Reload the screens when the log has grown since the app last looked (another app or the CLI)."""
+        if self.seen_event is not None and latest > self.seen_event and not self.job_running:
+            self.reload_screens()
+        self.seen_event = latest
+
+    def reload_screens(self) -> None:
+        for screen in self.screen_stack:
+            if isinstance(screen, DataScreen):
+                screen.reload()
 
     def on_unmount(self) -> None:
         logging.getLogger("reval").removeHandler(self._notices)
@@ -128,9 +156,7 @@ class RevalApp(App[None]):
 
     def on_job_finished(self, message: JobFinished) -> None:
         self.report(message.summary)
-        for screen in self.screen_stack:
-            if isinstance(screen, DataScreen):
-                screen.reload()
+        self.reload_screens()
 
     def on_job_stopped(self, message: JobStopped) -> None:
         self.report(message.summary, "warning")

@@ -50,6 +50,13 @@ def latest_run(store: Store) -> str | None:
     return str(rows[0][0]) if rows else None
 
 
+def latest_event(folder: Path) -> int:
+    """The newest event's id: the app reads it every few seconds and reloads when another process (a second
+    app, the command line) decided or changed something."""
+    with open_project(folder) as (_, store):
+        return int(store.rows("app_latest_event")[0][0])
+
+
 def _study(store: Store, config: Config, run_id: str | None) -> tuple[ShownStudy | None, str]:
     """The segment study the app shows, read from its stored rows (never recomputed): out-of-fold for the
     latest run when stored, else prior values; with a note saying what is missing or judged under other
