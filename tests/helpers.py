@@ -345,7 +345,7 @@ async def settle(pilot: Pilot[Any]) -> None:
             try:
                 await worker.wait()
             except (WorkerFailed, WorkerCancelled):
-                pass  # a newer read replaced a cancelled one; the app turns a worker's error into a message; the tests assert on that message
+                pass  # a newer read replaced a cancelled one; a failure becomes a message the tests assert on
         await pilot.pause()
         if not any(w.is_running for w in app.workers):
             if not getattr(app, "job_running", False):

@@ -445,7 +445,7 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
     app = RevalApp(small_project)
     async with app.run_test(size=SIZE) as pilot:     # not imported yet: no database
         await settle(pilot)
-        assert app.messages and app.messages[-1][0] == "error" and "reval import" in app.messages[-1][1]
+        assert app.messages and app.messages[-1][0] == "error" and "press i" in app.messages[-1][1]
     actions.import_data(small_project)
     app = RevalApp(small_project)
     async with app.run_test(size=SIZE) as pilot:

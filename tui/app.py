@@ -25,7 +25,8 @@ from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
 from .outcomes import (DECISIONS, FIT_LINES, Describe, app_wording, describe_decision, describe_export, describe_fit,
-                       describe_values, job_fraction, job_line, staging_lines)
+                       describe_import, describe_sales, describe_study, describe_values, job_fraction, job_line,
+                       staging_lines)
 
 BUSY = "Another job is running: wait for it to finish or cancel it (Ctrl+K)."
 
@@ -62,6 +63,13 @@ class RevalApp(App[None]):
         logging.getLogger("reval").addHandler(self._notices)
         self.push_screen(OverviewScreen())
         self.set_interval(self.poll_seconds, self._poll_events)
+        self._first_look()
+
+    @work(thread=True, group="plan", exit_on_error=False, name="first look")
+    def _first_look(self) -> None:
+        """A project without data opens on the steps screen, which says what to do next."""
+        if not views.job_steps(self.folder)[0]["done"]:
+            self.call_from_thread(self.action_steps)
 
     # ---- other processes' changes ----------------------------------------------------------------------
 
@@ -230,6 +238,29 @@ class RevalApp(App[None]):
 
         segment = self.screen.segment if isinstance(self.screen, SegmentScreen) else None
         self.push_screen(ListScreen(name, segment))
+
+    def action_steps(self) -> None:
+        from .screens.steps import StepsScreen
+
+        if not isinstance(self.screen, StepsScreen):
+            self.push_screen(StepsScreen())
+
+    def action_import_data(self) -> None:
+        self.start_job("import", "Importing the input files", actions.import_data, self.folder, progress=True,
+                       describe=describe_import)
+
+    def action_prepare_sales(self) -> None:
+        self.start_job("sales", "Preparing the sales", actions.prepare_sales, self.folder, progress=True,
+                       describe=describe_sales)
+
+    def action_study(self) -> None:
+        """The ratio study the overview shows: of the latest run's out-of-fold values, else of prior values."""
+        from .screens.steps import StepsScreen
+
+        fitted = isinstance(self.screen, StepsScreen) and any(s["key"] == "f" and s["done"] for s in self.screen.steps)
+        values = "model" if fitted else "prior"
+        self.start_job("study", f"Ratio study of the {'model' if values == 'model' else 'prior'} values",
+                       actions.study, self.folder, values, "segment", describe=describe_study)
 
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):

@@ -15,6 +15,7 @@ SCOPES = {
     "segment": "Segment drill-in",
     "parcel": "Parcel view",
     "list": "Work lists",
+    "steps": "Steps of the job",
     "help": "Help",
 }
 
@@ -47,6 +48,8 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
               "Cancel the job that is running (shown in the footer only then); it keeps nothing"),
+    KeyAction("app.steps", "w", "app.steps", "app", "Steps",
+              "Show the steps of the job (import, sales, study, fit, values, export) and where the project is"),
     KeyAction("app.changes", "C", "app.open_list('changes')", "app", "Changes",
               "List the parcels whose value changes beyond the review threshold (this segment's, in a drill-in)",
               show=False),
@@ -117,6 +120,14 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("list.search", "slash", "search", "list", "Filter", "Show only rows containing a text",
               key_display="/"),
     KeyAction("list.segment", "e", "segment_filter", "list", "Segment", "Show one segment's rows (empty: all)"),
+    # steps of the job (fit, value and export are the app's own keys f, v, x)
+    KeyAction("steps.back", "escape,backspace", "back", "steps", "Back", "Back"),
+    KeyAction("steps.import", "i", "app.import_data", "steps", "Import",
+              "Check and load the input files named in reval.toml (all or nothing)"),
+    KeyAction("steps.sales", "u", "app.prepare_sales", "steps", "Sales",
+              "Qualify the sales and time-adjust them to the valuation date"),
+    KeyAction("steps.study", "t", "app.study", "steps", "Study",
+              "Ratio study of the latest values: out-of-fold model values after a fit, else prior values"),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

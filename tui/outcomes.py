@@ -5,7 +5,8 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, StagePlan, StageResult
+from reval.service.types import (Decision, ExportResult, FitSummary, ImportSummary, SalesCounts, StagePlan,
+                                 StageResult, StudyResult)
 
 from .jobs import JobProgressed
 
@@ -36,6 +37,25 @@ def describe_export(result: ExportResult) -> str:
         text += "; certified values written where a newer batch is pending: " + ", ".join(
             f"{p['segment']} (run {p['run_id']} {p['state']})" for p in result["pending_batches"])
     return text + "."
+
+
+def describe_import(result: ImportSummary) -> str:
+    if not result["changed"]:
+        return "Import: the input files are unchanged since the last import; nothing changed."
+    return (f"Imported {result['parcels']:,} parcels, {result['sales']:,} sales, {result['segments']} segments, "
+            f"{result['market_areas']} market areas. Press u to prepare the sales.")
+
+
+def describe_sales(result: SalesCounts) -> str:
+    notes = "".join(f" Market trend: {note}." for note in result["trend_notes"])
+    return (f"Sales: {result['qualified']:,} qualified, {result['excluded']:,} excluded (E lists them with why).{notes}"
+            " Press t for a ratio study of the prior values, f to fit.")
+
+
+def describe_study(result: StudyResult) -> str:
+    failing = [g["group"] for g in result["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
+    return (f"Ratio study of {result['values']}: {len(result['groups'])} segments, {len(failing)} failing a "
+            "standard." + (f" {result['warning']}" if result.get("warning") else ""))
 
 
 def describe_fit(result: FitSummary) -> str:
@@ -88,6 +108,10 @@ APP_WORDING: tuple[tuple[str, str], ...] = (
     ("run `reval fit` again", "press f to fit again"),
     ("run `reval fit` first", "press f to fit first"),
     ("run `reval value` first", "press v to stage values first"),
+    ("run `reval import` first", "press i on the steps screen (w) to import"),
+    ("run `reval sales` before `reval fit`", "press u on the steps screen (w) to prepare the sales before fitting"),
+    ("run `reval sales` first", "press u on the steps screen (w) to prepare the sales first"),
+    ("(run `reval sales` and `reval study`)", "(w: the steps screen)"),
     ("choose another file name or give --overwrite to replace it", "choose another file name"),
 )
 

@@ -218,3 +218,13 @@ class ListPage(TypedDict):
     segment: str | None
     text: str
     opens: str          # what Enter opens from a row: "parcel" or "segment"
+
+
+class JobStep(TypedDict):
+    """One step of the job as the app's steps screen shows it: its key, what it does, where the project is."""
+
+    key: str
+    step: str
+    does: str
+    status: str
+    done: bool

@@ -22,7 +22,7 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, ListColumn, ListPage, Overview, OverviewRow, ParcelDetail, Record,
+from reval.service.types import (Curve, Equity, JobStep, ListColumn, ListPage, Overview, OverviewRow, ParcelDetail, Record,
                                  SalesPage, SegmentDetail, SegmentReview, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
@@ -48,6 +48,42 @@ class ShownStudy(TypedDict):
 def latest_run(store: Store) -> str | None:
     rows = store.rows("app_latest_run")
     return str(rows[0][0]) if rows else None
+
+
+def job_steps(folder: Path) -> list[JobStep]:
+    """Each step of the job from data to roll, with where the project stands (a project without a database
+    yet: nothing done; the first step not done is what to do next)."""
+    from reval.data.config import load_config
+
+    config = load_config(folder)
+    n: dict[str, Any] = {}
+    if config.database.exists():
+        with open_project(folder) as (_, store):
+            n = store.records("app_job_steps")[0]
+
+    def count(key: str) -> int:
+        return int(n.get(key) or 0)
+
+    files = ", ".join(p.name for p in (config.parcels_file, config.sales_file) if p is not None)
+    return [
+        {"key": "i", "step": "Import", "does": f"check and load the input files ({files})", "done": count("parcels") > 0,
+         "status": f"{count('parcels'):,} parcels, {count('sales'):,} sales" if count("parcels") else "not yet"},
+        {"key": "u", "step": "Sales", "does": "qualify sales and time-adjust them to the valuation date",
+         "done": count("qualified") > 0,
+         "status": f"{count('qualified'):,} qualified, {count('excluded'):,} excluded" if count("qualified") or
+         count("excluded") else "not yet"},
+        {"key": "t", "step": "Ratio study", "does": "study the prior values (after a fit: the out-of-fold model values)",
+         "done": count("prior_studies") > 0,
+         "status": ("prior values" + (", out-of-fold values of the latest run" if count("model_studies") else ""))
+         if count("prior_studies") else "not yet"},
+        {"key": "f", "step": "Fit", "does": "fit every segment's model (a new run)", "done": count("runs") > 0,
+         "status": f"{count('runs')} run(s), latest {n.get('run_id')}" if count("runs") else "not yet"},
+        {"key": "v", "step": "Values", "does": "stage values for review (decisions kept)",
+         "done": count("staged") + count("held") + count("approved") + count("exported") > 0,
+         "status": f"{count('staged')} staged, {count('held')} held, {count('approved')} approved batch(es)"},
+        {"key": "x", "step": "Export", "does": "write the value roll of the approved segments",
+         "done": count("exported") > 0, "status": f"{count('exported')} batch(es) exported"},
+    ]
 
 
 def latest_event(folder: Path) -> int:
