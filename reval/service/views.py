@@ -277,6 +277,14 @@ def _equity(store: Store, run_id: str | None, study: ShownStudy | None, segment:
             "price": [p["price"] for p in points], "ratio": [p["ratio"] for p in points]}
 
 
+def _marginal_effects(store: Store, config: Config, run_id: str, segment: str) -> list[Record]:
+    """Value per unit of each feature, and its elasticity only where the feature is modelled in logs: an
+    elasticity needs a true zero (a ratio scale), which a year (built) does not have."""
+    logged = {f.name for f in config.features if f.log}
+    return [{**r, "elasticity": r["elasticity"] if r["feature"] in logged else None}
+            for r in store.records("app_marginal_effects", [run_id, segment])]
+
+
 def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> ValueChange:
     rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
     medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
@@ -309,7 +317,7 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "model": model[0] if model else None,
             "curves": _curves(store, run_id, segment, n_bins) if run_id else [],
             "interactions": _interactions(store, run_id, segment) if run_id else [],
-            "marginal_effects": store.records("app_marginal_effects", [run_id, segment]) if run_id else [],
+            "marginal_effects": _marginal_effects(store, config, run_id, segment) if run_id else [],
             "equity": _equity(store, run_id, study, segment, max_points),
             "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],

@@ -47,7 +47,10 @@ SALES_PAGE = 50
 
 
 def axis_number(v: float) -> str:
-    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
+    """An axis label: thousands separated only from 10,000, so years read 1913 … 2006."""
+    if abs(v) >= 10_000:
+        return f"{v:,.0f}"
+    return f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
 
 
 def model_line(d: SegmentDetail) -> str:
@@ -260,7 +263,7 @@ class SegmentScreen(DataScreen):
         marginal = self.query_one("#marginal", DataTable)
         marginal.clear(columns=True)
         if d["marginal_effects"]:
-            marginal.add_columns("Feature", "Value per unit", "Elasticity")
+            marginal.add_columns("Feature", "Value per unit", "Elasticity (logged features)")
             for r in d["marginal_effects"]:
                 marginal.add_row(*cells(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f")))
 
