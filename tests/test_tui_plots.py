@@ -79,3 +79,31 @@ async def _help_describes_only_lines_the_plots_draw(fitted_demo: Path) -> None:
         text = str(app.screen.query_one("#help-plots", Static).render())
     assert "limit" not in text
     assert all(mark in text for mark in (LEGEND_MARKS["line"], LEGEND_MARKS["parent"], LEGEND_MARKS["reference"]))
+
+
+def test_did_you_mean_is_accepted_with_enter(fitted_demo: Path) -> None:
+    asyncio.run(_did_you_mean_is_accepted_with_enter(fitted_demo))
+
+
+async def _did_you_mean_is_accepted_with_enter(fitted_demo: Path) -> None:
+    # Finding: "did you mean 0061148?" could not be accepted with a key.
+    from helpers import type_text
+    from tui.screens.parcel import ParcelScreen
+    from tui.screens.prompt import PromptScreen
+
+    parcel_id = views.list_page(fitted_demo, "changes", page_size=1)["rows"][0]["parcel_id"]
+    typed = parcel_id.lstrip("0")[:-1] or parcel_id[-3:]
+    near = views.parcel_suggestions(fitted_demo, typed)
+    assert near
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("o")
+        await type_text(pilot, typed)
+        await pilot.press("enter")
+        await settle(pilot)
+        assert isinstance(app.screen, PromptScreen) and near[0] in app.screen.title_text
+        await pilot.press("enter")
+        await settle(pilot)
+        assert isinstance(app.screen, ParcelScreen) and app.screen.data is not None
+        assert app.screen.data["parcel_id"] == near[0]

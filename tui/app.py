@@ -267,11 +267,15 @@ class RevalApp(App[None]):
             self.push_screen(HelpScreen())
 
     def action_find_parcel(self) -> None:
+        self.ask_parcel("Open a parcel")
+
+    def ask_parcel(self, title: str, value: str = "", detail: str = "") -> None:
+        """Ask for a parcel id (offered `value`: Enter takes it) and open that parcel."""
         def chosen(parcel_id: str | None) -> None:
             if parcel_id:
                 self.open_parcel(parcel_id)
 
-        self.push_screen(PromptScreen("Open a parcel", "parcel id", required=True), chosen)
+        self.push_screen(PromptScreen(title, "parcel id", required=True, value=value, detail=detail), chosen)
 
     # ---- decisions and steps that write ------------------------------------------------------------------
 

@@ -470,6 +470,16 @@ def _parcel_flags(config: Config, parcel: Record, features: list[Record], estima
     return flags
 
 
+def _suggestions(store: Store, text: str) -> list[str]:
+    return [r[0] for r in store.rows("app_parcel_suggest", [text, 5])] if text else []
+
+
+def parcel_suggestions(folder: Path, text: str) -> list[str]:
+    """Parcel ids close to what was typed (starting with it first), for "did you mean"."""
+    with open_project(folder) as (_, store):
+        return _suggestions(store, text.strip())
+
+
 def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
@@ -477,7 +487,7 @@ def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     with open_project(folder) as (config, store):
         found = store.records("app_parcel", [parcel_id])
         if not found:
-            near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
+            near = _suggestions(store, parcel_id)
             hint = f"; did you mean {', '.join(near)}?" if near else ""
             raise UserError(f"No parcel with id {parcel_id!r}{hint}")
         parcel = found[0]

@@ -63,9 +63,21 @@ class ParcelScreen(DataScreen):
     def on_load_failed(self, message: Any) -> None:
         self.query_one("#parcel-title", Static).update(f"✗ {message.error}")
         super().on_load_failed(message)
+        self.fetch("suggestions", views.parcel_suggestions, self.reval.folder, self.parcel_id)
+
+    def offer(self, near: list[str]) -> None:
+        """No such parcel: offer the closest id in the prompt, so Enter accepts "did you mean"."""
+        if near and self.is_current:
+            self.dismiss()   # the prompt is asked for once this screen is gone (its callback needs a live screen)
+            self.app.call_later(self.reval.ask_parcel, f"No parcel {self.parcel_id!r}: did you mean {near[0]}?",
+                                near[0], "Enter opens it; or type another id (others close: "
+                                + (", ".join(near[1:]) or "none") + ").")
 
     @on(Loaded)
     def show_parcel(self, message: Loaded) -> None:
+        if message.tag == "suggestions":
+            self.offer(message.data)
+            return
         d = self.data = message.data
         self.query_one("#parcel-title", Static).update(
             f"Parcel {d['parcel_id']} · segment {d['segment']} · market area {d['market_area']} · "
