@@ -107,3 +107,33 @@ async def _did_you_mean_is_accepted_with_enter(fitted_demo: Path) -> None:
         await settle(pilot)
         assert isinstance(app.screen, ParcelScreen) and app.screen.data is not None
         assert app.screen.data["parcel_id"] == near[0]
+
+
+def test_prior_against_new_value_scatter_per_segment(fitted_demo: Path) -> None:
+    asyncio.run(_prior_against_new_value_scatter_per_segment(fitted_demo))
+
+
+async def _prior_against_new_value_scatter_per_segment(fitted_demo: Path) -> None:
+    # Finding: no prior-vs-new scatter. The value change tab plots each parcel's new value against its prior
+    # value (log scales), every parcel of the segment up to 2,000.
+    import math
+
+    from helpers import query_frame
+
+    segment = views.overview(fitted_demo)["segments"][0]["segment"]
+    pairs = query_frame(fitted_demo, """SELECT p.prior_value, e.market_value FROM parcel_estimates e
+                                        JOIN parcels p USING (parcel_id)
+                                        WHERE e.segment = ? AND p.prior_value > 0""", [segment])
+    assert 0 < len(pairs) <= 2000
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("enter")
+        await settle(pilot)
+        await pilot.press("4")
+        chart = app.screen.query_one("#prior-new", Chart)
+        assert chart.data is not None
+        points = next(layer for layer in chart.data.layers if layer.kind == "points")
+    shown = sorted(zip((round(10 ** x) for x in points.x), (round(10 ** y) for y in points.y)))
+    assert shown == sorted(zip((round(v) for v in pairs["prior_value"]), (round(v) for v in pairs["market_value"])))
+    assert not any(math.isnan(v) for v in points.y)

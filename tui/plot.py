@@ -214,6 +214,8 @@ class Chart(Widget):
             lo, hi = np.minimum(y, nxt), np.maximum(y, nxt)
         if layer.style == "parent":   # dashed: three cells drawn, one left out
             inside = inside & ((np.arange(pw) // 2) % 4 != 3)
+        if layer.style == "reference":   # dotted, as the reference's horizontal lines
+            inside = inside & ((np.arange(pw) // 2) % 2 == 0)
         return (rows_axis >= lo[None, :]) & (rows_axis <= hi[None, :]) & inside[None, :]
 
     def _append_row(self, out: Text, glyphs: list[tuple[str, str | None]], band: np.ndarray) -> None:

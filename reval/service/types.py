@@ -138,6 +138,8 @@ class ValueChange(TypedDict):
     median_unsold: float | None
     n_sold: int
     n_unsold: int
+    prior: list[float]      # prior and new value of a sample of the segment's parcels (the scatter)
+    new: list[float]
 
 
 class SegmentDetail(TypedDict):

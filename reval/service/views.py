@@ -285,8 +285,9 @@ def _marginal_effects(store: Store, config: Config, run_id: str, segment: str) -
             for r in store.records("app_marginal_effects", [run_id, segment])]
 
 
-def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> ValueChange:
+def _value_change(store: Store, run_id: str, segment: str, n_bins: int, max_points: int) -> ValueChange:
     rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
+    pairs = store.rows("app_prior_new", [run_id, segment, max_points])
     medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
     sold, unsold = [0] * n_bins, [0] * n_bins
     for r in rows:
@@ -296,7 +297,8 @@ def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> Value
     return {"sold": sold, "unsold": unsold, "lo": lo, "hi": hi,
             "median_sold": medians.get(True, {}).get("median_change"),
             "median_unsold": medians.get(False, {}).get("median_change"),
-            "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0)}
+            "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0),
+            "prior": [float(a) for a, _ in pairs], "new": [float(b) for _, b in pairs]}
 
 
 def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int = 2000) -> SegmentDetail:
@@ -319,7 +321,7 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "interactions": _interactions(store, run_id, segment) if run_id else [],
             "marginal_effects": _marginal_effects(store, config, run_id, segment) if run_id else [],
             "equity": _equity(store, run_id, study, segment, max_points),
-            "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
+            "value_change": _value_change(store, run_id, segment, 24, max_points) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
             "state": state, "batches": entry["summary"] if entry else "no batch",
             "review": _review(store, config, segment) if state else None,
