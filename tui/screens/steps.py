@@ -38,6 +38,7 @@ class StepsScreen(DataScreen):
         yield Header()
         yield Plain("The job, step by step: reading the project…", id="steps-title")
         yield DataTable(id="steps-table", cursor_type="row")
+        yield Plain("", id="steps-does")
         yield Plain("", id="steps-next")
         yield Plain(SHORT_CAUTION, id="caution")
         yield StatusBar()
@@ -57,10 +58,16 @@ class StepsScreen(DataScreen):
                                                       "command line does)")
         table = self.query_one(DataTable)
         table.clear(columns=True)
-        table.add_columns("Key", "Step", "Where the project is", "What it does")
+        table.add_columns("Key", "Step", "Where the project is")
         for s in self.steps:
-            table.add_row(*cells(s["key"], ("✓ " if s["done"] else "· ") + s["step"], s["status"], s["does"]))
+            table.add_row(*cells(s["key"], ("✓ " if s["done"] else "· ") + s["step"], s["status"]))
         self.query_one("#steps-next", Plain).update(next_step(self.steps))
+
+    @on(DataTable.RowHighlighted)
+    def step_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        if event.cursor_row < len(self.steps):
+            s = self.steps[event.cursor_row]
+            self.query_one("#steps-does", Plain).update(f"{s['key']}: {s['does']}")
 
     def action_back(self) -> None:
         self.dismiss()
