@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from rich.cells import cell_len
 from rich.style import Style
 from rich.text import Text
 from textual import on
@@ -62,8 +63,6 @@ class OverviewScreen(DataScreen):
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        for key, label, _ in COLUMNS:
-            table.add_column(label, key=key)
         table.focus()
         self.app.theme_changed_signal.subscribe(self, lambda _: self.refresh_table())
         self.reload()
@@ -99,11 +98,16 @@ class OverviewScreen(DataScreen):
                                            market_area=self.area, state=self.state, text=self.search_text)
         self.shown = views.sort_segments(rows, self.sort_key, self.descending)
         table = self.query_one(DataTable)
-        table.clear()
         colours = self.app.theme_variables
-        for row in self.shown:
-            table.add_row(*cells(*self._cells(row, colours)), key=row["segment"])
-        self._label_columns(table)
+        body = [cells(*self._cells(row, colours)) for row in self.shown]
+        # fixed widths measured here: DataTable's own measuring can be lost when it is refilled twice in a tick
+        table.clear(columns=True)
+        for i, (key, label, _) in enumerate(COLUMNS):
+            text = label + (("▼" if self.descending else "▲") if key == self.sort_key else "")
+            width = max([cell_len(text), *(cell_len(str(r[i])) for r in body)])
+            table.add_column(text, key=key, width=width)
+        for row, values in zip(self.shown, body):
+            table.add_row(*values, key=row["segment"])
         if keep is not None and any(r["segment"] == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self._show_filters()
@@ -122,14 +126,11 @@ class OverviewScreen(DataScreen):
                 model_cell(row)]
 
     def on_resize(self) -> None:
-        self.refresh_table()
-
-    def _label_columns(self, table: DataTable[Any]) -> None:
-        arrow = "▼" if self.descending else "▲"
-        for key, column in table.columns.items():
-            name = str(key.value)
-            column.label = Text(LABELS[name] + (arrow if name == self.sort_key else ""))
-        table.refresh()
+        """Names and states are cut below WIDE columns: redraw when the width crosses it."""
+        wide = self.size.width >= WIDE
+        if wide != getattr(self, "_wide", None):
+            self._wide = wide
+            self.refresh_table()
 
     def _show_filters(self) -> None:
         assert self.data is not None
