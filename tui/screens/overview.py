@@ -103,9 +103,9 @@ class OverviewScreen(DataScreen):
         # fixed widths measured here: DataTable's own measuring can be lost when it is refilled twice in a tick
         table.clear(columns=True)
         for i, (key, label, _) in enumerate(COLUMNS):
-            text = label + (("▼" if self.descending else "▲") if key == self.sort_key else "")
-            width = max([cell_len(text), *(cell_len(str(r[i])) for r in body)])
-            table.add_column(text, key=key, width=width)
+            # the sort shows on the line above the table (a mark in the header would widen a column at 80x24)
+            width = max([cell_len(label), *(cell_len(str(r[i])) for r in body)])
+            table.add_column(label, key=key, width=width)
         for row, values in zip(self.shown, body):
             table.add_row(*values, key=row["segment"])
         if keep is not None and any(r["segment"] == keep for r in self.shown):
