@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any, Literal, TypedDict
 
-from reval.states import BatchState, SaleChoice
+from reval.states import BatchState, SaleChoice, SearchArea
 
 
 class ImportSummary(TypedDict):
@@ -25,6 +25,21 @@ class SegmentSales(TypedDict):
     excluded_by_reason: dict[str, int]
 
 
+class RepeatSale(TypedDict):
+    """One sale of a parcel sold more than once in the sale window; `latest` is the one [sales] repeat_sales =
+    "latest" keeps (if it passes the other rules), `qualified` and `reason` what the sales step made of it."""
+
+    parcel_id: str
+    segment: str
+    sale_id: str
+    sale_date: str
+    sale_price: float
+    n_sales: int
+    latest: bool
+    qualified: bool | None
+    reason: str | None
+
+
 class SalesCounts(TypedDict):
     """Qualified and excluded sales, in all and per segment, with each exclusion's reason."""
 
@@ -33,6 +48,7 @@ class SalesCounts(TypedDict):
     excluded_by_reason: dict[str, int]
     segments: list[SegmentSales]
     trend_notes: list[str]     # no trend (sales span under two months), thin recent months, a wide band
+    repeat_sales: list[RepeatSale]
 
 
 class SaleDecision(TypedDict):
@@ -206,3 +222,111 @@ class Manifest(TypedDict):
 class ExportResult(Manifest):
     path: str
     manifest: str
+
+
+class ComparableSale(TypedDict):
+    """One comparable sale in whole currency units: its time-adjusted price, the model's net adjustment to the
+    subject and the adjusted price (price + net = adjusted), gross and net as shares of the price, its distance
+    to the subject and its share in the reconciliation."""
+
+    sale_id: str
+    parcel_id: str
+    segment: str
+    market_area: str
+    sale_date: str
+    sale_price: int
+    time_adjusted_price: int
+    model_value: int
+    adjusted_price: int
+    net_adjustment: int
+    net_percent: float
+    gross_percent: float
+    over_max_gross: bool
+    distance: float
+    age_months: float
+    weight: float
+
+
+class GridRow(TypedDict):
+    """One row of the adjustment grid: a feature (or interaction, or the location), the subject's value, each
+    comparable's value and its adjustment in currency and as a share of its time-adjusted price."""
+
+    term: str
+    subject: str
+    values: list[str]
+    adjustments: list[int]
+    percents: list[float]
+
+
+class ComparableGrid(TypedDict):
+    """A parcel's comparable sales adjusted by a run's model, and the range they indicate beside its model value
+    (the rows of each column add up to its net adjustment)."""
+
+    parcel_id: str
+    run_id: str
+    searched: SearchArea
+    candidates: int
+    k: int
+    max_gross_adjustment: float
+    model_value: int
+    comparables: list[ComparableSale]
+    rows: list[GridRow]
+    indicated_value: int | None
+    low: int | None
+    high: int | None
+    brackets: bool | None
+    method: str
+
+
+class ReportResult(TypedDict):
+    """Where the ratio-study report was written and what it holds (reval/report/study_report.py)."""
+
+    path: str
+    values: str
+    run_id: str | None
+    figures: int
+    studied: list[str]          # groupings studied (and stored) for the report because none was stored
+    seconds: float
+class CheckNotRun(TypedDict):
+    """A check that could not run on this project, and why (e.g. no feature holds the number of bathrooms)."""
+
+    check: str
+    reason: str
+
+
+class CheckSegment(TypedDict):
+    """One segment in the data-quality check: its parcels, those sold (whose values the sold range comes from)
+    and its problems per check (checks without a problem left out)."""
+
+    segment: str
+    parcels: int
+    sold_parcels: int
+    problems: int
+    counts: dict[str, int]
+
+
+class CheckReport(TypedDict):
+    """`reval check`: problems per segment and check, the checks with what each lists, those that could not run,
+    and the CSV of every row when one was asked for."""
+
+    valuation_date: str
+    sale_window: list[str]
+    basis: str                     # the sales the sold ranges come from: qualified, or all in the window
+    checks: dict[str, str]
+    segments: list[CheckSegment]
+    totals: dict[str, int]
+    not_run: list[CheckNotRun]
+    csv: dict[str, Any] | None     # {"path": ..., "rows": ...}
+
+
+class CheckPage(TypedDict):
+    """One page of the check's rows (parcel_id, sale_id, segment, code, feature, value, problem) with the filters
+    and sort that chose it."""
+
+    page: int
+    pages: int
+    total: int
+    segment: str | None
+    code: str | None
+    sort: str
+    rows: list[dict[str, Any]]

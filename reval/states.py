@@ -11,12 +11,14 @@ ModelKind = Literal["own", "pooled", "parent_only"]                  # how a seg
 ValuesSource = Literal["prior", "model_in_sample", "model_out_of_fold"]
 VerdictStatus = Literal["pass", "fail", "inconclusive", "too_few_sales", "no_sales"]
 VerdictRule = Literal["point", "interval"]                          # judge the point estimate, or its interval
-Grouping = Literal["segment", "market_area", "class", "segment_class", "all"]
+Grouping = Literal["segment", "market_area", "class", "segment_class", "all", "value_range", "age", "size"]
 FeatureKind = Literal["continuous", "ordinal", "categorical", "binary"]
 InteractionRule = Literal["lasso", "significance", "none"]
 Loss = Literal["huber", "squared"]                                     # the fit's loss on log price
 FeatureShape = Literal["increasing", "decreasing", "free"]               # a feature's shape rule
 SaleChoice = Literal["exclude", "include"]                               # the analyst's decision on a sale
+RepeatSales = Literal["latest", "all"]                                   # which sales of a parcel sold repeatedly count
+SearchArea = Literal["segment", "market_area", "jurisdiction"]           # how far comparable sales are sought
 
 GROUPINGS: tuple[Grouping, ...] = get_args(Grouping)
 VERDICT_RULES: tuple[VerdictRule, ...] = get_args(VerdictRule)

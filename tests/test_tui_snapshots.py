@@ -105,7 +105,7 @@ def test_work_list_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str)
 def test_steps_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
     async def ready(pilot: Pilot[Any]) -> None:
         await settle(pilot)
-        await pilot.press("w")
+        await pilot.press("W")
         await settle(pilot)
         screen = pilot.app.screen
         assert isinstance(screen, StepsScreen) and len(screen.steps) == 6

@@ -24,9 +24,9 @@ from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
-from .outcomes import (DECISIONS, FIT_LINES, Describe, app_wording, describe_decision, describe_export, describe_fit,
-                       describe_import, describe_sales, describe_study, describe_values, job_fraction, job_line,
-                       staging_lines)
+from .outcomes import (DECISIONS, FIT_LINES, REPORT_NAME, Describe, app_wording, describe_decision, describe_export,
+                       describe_fit, describe_import, describe_report, describe_sales, describe_study, describe_values,
+                       job_fraction, job_line, staging_lines)
 
 BUSY = "Another job is running: wait for it to finish or cancel it (Ctrl+K)."
 
@@ -352,6 +352,11 @@ class RevalApp(App[None]):
 
         title = "Re-stage, setting decisions aside" if plan["set_aside"] else "Stage values for review"
         self.push_screen(ConfirmScreen(title, staging_lines(plan), extra=extra), answered)
+
+    def action_write_report(self) -> None:
+        target = self.folder / REPORT_NAME
+        self.start_job("report", f"Writing the ratio-study report to {target}", actions.report, self.folder, target,
+                       None, describe=describe_report)
 
     def action_export(self) -> None:
         """Ask where to write the roll (and whether partly); ask again before replacing an existing file."""

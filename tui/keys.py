@@ -16,6 +16,7 @@ SCOPES = {
     "parcel": "Parcel view",
     "list": "Work lists",
     "steps": "Steps of the job",
+    "check": "Data check",
     "help": "Help",
 }
 
@@ -48,7 +49,7 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("app.export", "x", "app.export", "app", "Export", "Export the value roll (approved segments)"),
     KeyAction("app.cancel_job", "ctrl+k", "app.cancel_job", "app", "Cancel job",
               "Cancel the job that is running (shown in the footer only then); it keeps nothing"),
-    KeyAction("app.steps", "w", "app.steps", "app", "Steps",
+    KeyAction("app.steps", "W", "app.steps", "app", "Steps",
               "Show the steps of the job (import, sales, study, fit, values, export) and where the project is",
               show=False),
     KeyAction("app.changes", "C", "app.open_list('changes')", "app", "Changes",
@@ -60,6 +61,9 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Show the audit log (this segment's, in a drill-in)", show=False),
     KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
               show=False),
+    KeyAction("app.report", "w", "app.write_report", "app", "Report",
+              "Write the ratio-study report (HTML) to the project folder: model values of the latest run, "
+              "prior values before any", show=False),
     # overview
     KeyAction("overview.down", "j,down", "cursor_down", "overview", "Down", "Next segment", show=False),
     KeyAction("overview.up", "k,up", "cursor_up", "overview", "Up", "Previous segment", show=False),
@@ -91,6 +95,8 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Re-stage the segment from the latest run, setting its hold or approval aside (asks first)", show=False),
     KeyAction("overview.refresh", "ctrl+r", "refresh", "overview", "Refresh", "Read the database again",
               show=False),
+    KeyAction("overview.check", "d", "open_check", "overview", "Check",
+              "Open the data check: problems per segment to work through before fitting", show=False),
     # segment drill-in
     KeyAction("segment.back", "escape,backspace", "back", "segment", "Back", "Back to the overview"),
     KeyAction("segment.next", "right_square_bracket,n", "page(1)", "segment", "Next",
@@ -106,6 +112,12 @@ REGISTRY: tuple[KeyAction, ...] = (
               show=False),
     KeyAction("segment.parcel", "enter", "open_sale_parcel", "segment", "Parcel",
               "On the sales tab: open the parcel of the highlighted sale", show=False),
+    KeyAction("segment.exclude", "e", "decide_sale('exclude')", "segment", "Exclude sale",
+              "On the sales tab: exclude the highlighted sale from models and ratio studies (with a reason)",
+              show=False),
+    KeyAction("segment.include", "i", "decide_sale('include')", "segment", "Reinstate sale",
+              "On the sales tab: reinstate the highlighted sale, excluded by you, at full weight (with a reason)",
+              show=False),
     # parcel
     KeyAction("parcel.back", "escape,backspace", "back", "parcel", "Back", "Back"),
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
@@ -129,6 +141,18 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Qualify the sales and time-adjust them to the valuation date"),
     KeyAction("steps.study", "t", "app.study", "steps", "Study",
               "Ratio study of the latest values: out-of-fold model values after a fit, else prior values"),
+    # data check
+    KeyAction("check.back", "escape,backspace", "back", "check", "Back", "Back to the overview"),
+    KeyAction("check.next", "right_square_bracket,n", "page(1)", "check", "Next", "Next page of the segment's rows",
+              key_display="]"),
+    KeyAction("check.prev", "left_square_bracket,p", "page(-1)", "check", "Prev",
+              "Previous page of the segment's rows", key_display="["),
+    KeyAction("check.filter", "t", "cycle_check", "check", "One check",
+              "Show the segment's rows of one check at a time (cycles; then all again)"),
+    KeyAction("check.parcel", "enter", "open_parcel", "check", "Parcel",
+              "On a segment: go to its rows; on a row: open its parcel", show=False),
+    KeyAction("parcel.report", "r", "report", "parcel", "Parcel report",
+              "Write this parcel's one-page report (HTML or PDF: value, explanation, comparable sales, flags)"),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

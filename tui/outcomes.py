@@ -5,8 +5,9 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import (Decision, ExportResult, FitSummary, ImportSummary, SalesCounts, StagePlan,
-                                 StageResult, StudyResult)
+from reval.service.types import (Decision, ExportResult, FitSummary, ImportSummary, ParcelReport, ReportResult,
+                                 SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult)
+from reval.service.wording import money
 
 from .jobs import JobProgressed
 
@@ -27,6 +28,20 @@ def describe_decision(result: Decision) -> str:
     elif result.get("note"):
         text += "; note stored"
     return text + "."
+
+
+# sale decision -> (prompt title, what is asked for); reval.service.actions.decide_sale
+SALE_DECISIONS: dict[str, tuple[str, str]] = {
+    "exclude": ("Exclude sale {sale_id} from models and ratio studies", "reason (kept in the audit log)"),
+    "include": ("Reinstate sale {sale_id} at full weight in the fit", "reason (kept in the audit log)"),
+}
+
+
+def describe_sale_decision(result: SaleDecision) -> str:
+    done = "excluded" if result["decision"] == "exclude" else "reinstated"
+    state = ("" if result["qualified"] is None else
+             "; qualified" if result["qualified"] else f"; not qualified ({result['qualification']})")
+    return f"Sale {result['sale_id']} {done}: {result['reason']}{state}. The next fit (f) honours it."
 
 
 def describe_export(result: ExportResult) -> str:
@@ -56,12 +71,25 @@ def describe_study(result: StudyResult) -> str:
     failing = [g["group"] for g in result["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
     return (f"Ratio study of {result['values']}: {len(result['groups'])} segments, {len(failing)} failing a "
             "standard." + (f" {result['warning']}" if result.get("warning") else ""))
+REPORT_NAME = "ratio_study_report.html"   # where the app writes the report, in the project folder
+
+
+def describe_report(result: ReportResult) -> str:
+    return (f"Ratio-study report of {result['values']} written to {result['path']} ({result['figures']} plots); "
+            "for a PDF: reval report NAME.pdf.")
 
 
 def describe_fit(result: FitSummary) -> str:
     seconds = sum(result["timings"].values())
     return (f"Fit done: run {result['run_id']}, {result['segments']} segments, {result['sales']:,} sales, "
             f"{result['parcels']:,} parcels valued in {seconds:.0f} s. Press v to stage values for review.")
+
+
+def describe_parcel_report(result: ParcelReport) -> str:
+    grid = result["comparables"]
+    comparables = f", {len(grid['comparables'])} comparable sales" if grid else ""
+    return (f"Report of parcel {result['parcel_id']} written to {result['report']} "
+            f"(value {money(result['value']['value'])}{comparables}).")
 
 
 def describe_values(result: StageResult) -> str:
@@ -108,10 +136,10 @@ APP_WORDING: tuple[tuple[str, str], ...] = (
     ("run `reval fit` again", "press f to fit again"),
     ("run `reval fit` first", "press f to fit first"),
     ("run `reval value` first", "press v to stage values first"),
-    ("run `reval import` first", "press i on the steps screen (w) to import"),
-    ("run `reval sales` before `reval fit`", "press u on the steps screen (w) to prepare the sales before fitting"),
-    ("run `reval sales` first", "press u on the steps screen (w) to prepare the sales first"),
-    ("(run `reval sales` and `reval study`)", "(w: the steps screen)"),
+    ("run `reval import` first", "press i on the steps screen (W) to import"),
+    ("run `reval sales` before `reval fit`", "press u on the steps screen (W) to prepare the sales before fitting"),
+    ("run `reval sales` first", "press u on the steps screen (W) to prepare the sales first"),
+    ("(run `reval sales` and `reval study`)", "(W: the steps screen)"),
     ("choose another file name or give --overwrite to replace it", "choose another file name"),
 )
 

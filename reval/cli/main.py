@@ -69,6 +69,11 @@ def cmd_fit(args: argparse.Namespace) -> None:
     render.emit(args, result, render.fit)
 
 
+def cmd_parcel(args: argparse.Namespace) -> None:
+    result = actions.parcel_report(_folder(args), args.parcel_id, Path(args.report) if args.report else None)
+    render.emit(args, result, render.parcel)
+
+
 def cmd_tui(args: argparse.Namespace) -> None:
     _launch_app(_folder(args))
 
@@ -99,6 +104,13 @@ def build_parser() -> argparse.ArgumentParser:
                    "the data set it holds)")
     p.set_defaults(func=cmd_import)
 
+    p = sub.add_parser("check", parents=[common], help="data-quality check before fitting: problems per segment and "
+                       "check (blanks, implausible values and combinations, duplicate and repeat sales)")
+    p.add_argument("--csv", metavar="FILE", default=None, help="write every problem found to this CSV (parcel, sale, "
+                   "segment, check, feature, value, problem)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.check_data(_folder(a), None if a.csv is None else Path(a.csv)),
+                                              render.check))
+
     p = sub.add_parser("demo", parents=[common], help="build the demo municipality's project and run every step")
     p.add_argument("folder", nargs="?", default="demo_project", help="where to build it (default: demo_project)")
     p.add_argument("--parcels", type=int, default=None, help="generate this many parcels instead of the shipped sample")
@@ -120,12 +132,21 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
     p.add_argument("--by", choices=list(GROUPINGS), default="segment",
-                   help="groups: segment, market area, property class, segment x class, or all sales")
+                   help="groups: segment, market area, property class, segment x class, all sales, value range (quintiles of "
+                        "the value proxy), age (decades of the age feature) or size (quintile bands of the size feature)")
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
     p.set_defaults(func=cmd_study)
+
+    p = sub.add_parser("report", parents=[common], help="write the ratio-study report (HTML or PDF) for a reviewer or "
+                       "an oversight body: tables, plots, the sales used, the model and the decisions")
+    p.add_argument("out", type=Path, help="the file to write: NAME.html (one self-contained file) or NAME.pdf")
+    p.add_argument("--values", choices=["prior", "model"], default="prior",
+                   help="prior roll values, or the latest run's out-of-fold model values")
+    p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.report(_folder(a), a.out, a.values, a.run), render.report))
 
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
     p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
@@ -148,6 +169,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")
     p.add_argument("--limit", type=int, default=20, help="parcels beyond the threshold listed per segment")
     p.set_defaults(func=lambda a: render.emit(a, actions.review(_folder(a), a.segment, a.limit), render.review))
+
+    p = sub.add_parser("parcel", parents=[common], help="why a parcel has its value: explanation, flags, segment "
+                       "statistics and comparable sales adjusted by the model")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("--report", metavar="FILE", help="also write a one-page report (FILE.html or FILE.pdf)")
+    p.set_defaults(func=cmd_parcel)
 
     p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch")
     p.add_argument("segment")

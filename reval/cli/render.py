@@ -17,11 +17,13 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
+from reval.service.wording import (CAUTION, NAME_WIDTH, grid_table, indicated_range, money, percent, shown,
+                                 signed_money)
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 LISTED = 10  # down-weighted sales listed under a study or a review
+LISTED_REPEATS = 40  # repeat sales listed under `reval sales`
 
 
 def console(stderr: bool = False) -> Console:
@@ -109,6 +111,41 @@ def sales(result: dict[str, Any], console: Console) -> None:
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
     for note in result["trend_notes"]:
         console.print(f"Market trend: {shown(note)}.", highlight=False)
+    repeats = result["repeat_sales"]
+    if repeats:
+        parcels = len({r["parcel_id"] for r in repeats})
+        records_table(f"Repeat sales: {parcels:,} parcels sold more than once in the sale window"
+                      + (f" (the first {LISTED_REPEATS} of {len(repeats):,} sales; all with `reval check --csv FILE`)"
+                         if len(repeats) > LISTED_REPEATS else ""),
+                      [{"parcel": r["parcel_id"], "segment": r["segment"], "sale": r["sale_id"], "date": r["sale_date"],
+                        "price": money(r["sale_price"]), "latest": "yes" if r["latest"] else "",
+                        "sales step": "qualified" if r["qualified"] else r["reason"] or ""}
+                       for r in repeats[:LISTED_REPEATS]], console)
+
+
+def check(r: dict[str, Any], console: Console) -> None:
+    total = sum(r["totals"].values())
+    console.print(f"Data check: {total:,} problems in {sum(1 for s in r['segments'] if s['problems'])} of "
+                  f"{len(r['segments'])} segments (sold ranges from the {r['basis']}, {r['sale_window'][0]} to "
+                  f"{r['sale_window'][1]}).")
+    segments: dict[str, int] = {}
+    for s in r["segments"]:
+        for code in s["counts"]:
+            segments[code] = segments.get(code, 0) + 1
+    records_table("Problems per check", [{"check": code, "rows": n, "segments": segments[code]}
+                                         for code, n in r["totals"].items()], console)
+    for code in r["totals"]:
+        console.print(f"  {code}: {r['checks'][code]}", highlight=False)
+    records_table("Problems per segment", [
+        {"segment": s["segment"], "parcels": s["parcels"], "sold": s["sold_parcels"], "problems": s["problems"],
+         "by check": ", ".join(f"{code} {n:,}" for code, n in sorted(s["counts"].items(), key=lambda kv: -kv[1]))}
+        for s in r["segments"]], console)
+    for n in r["not_run"]:
+        console.print(f"Not run: {n['check']}: {shown(n['reason'])}.", highlight=False)
+    if r["csv"]:
+        console.print(f"Wrote {r['csv']['rows']:,} rows to {shown(r['csv']['path'])}.")
+    elif total:
+        console.print("Every row (parcel, sale, segment, check, feature, value, problem): reval check --csv FILE")
 
 
 def sale_decision(r: dict[str, Any], console: Console) -> None:
@@ -147,6 +184,13 @@ def study(result: dict[str, Any], console: Console) -> None:
                           f"statistics); the {min(len(light), LISTED)} lowest:")
             for s in light[:LISTED]:
                 console.print(f"  {name(s['sale_id'])} (parcel {name(s['parcel_id'])}): {s['reason']}")
+    console.print(CAUTION)
+
+
+def report(result: dict[str, Any], console: Console) -> None:
+    studied = f"; studied first and stored: {', '.join(result['studied'])}" if result["studied"] else ""
+    console.print(f"Report of {result['values']} written to {shown(result['path'])} ({result['figures']} plots, "
+                  f"{result['seconds']:.1f} s{studied}).")
     console.print(CAUTION)
 
 
@@ -265,3 +309,50 @@ def batch_states(r: dict[str, Any], console: Console) -> None:
     table("Batches: the certified values (those an export writes) beside the pending ones",
           ["segment", "state", "certified batch", "open batch"],
           [[s["segment"], s["summary"], show(s["certified"]), show(s["open"])] for s in r["segments"]], console)
+
+
+# ---- one parcel -----------------------------------------------------------------------------------------------
+
+def parcel(r: dict[str, Any], console: Console) -> None:
+    """Why a parcel has its value: value, prior values, flags, segment statistics, explanation, comparables."""
+    console.print(Text.assemble((f"Parcel {shown(r['parcel_id'])}", "bold"),
+                                f" · segment {name(r['segment'])} · market area {name(r['market_area'])} · "
+                                f"{name(r['property_class'])} · {name(r['jurisdiction'])}, valuation date "
+                                f"{r['valuation_date']}"))
+    v = r["value"]
+    console.print(f"Value {money(v['value'])} ({shown(v['source'])}); model value {money(v['model_value'])}"
+                  + (f", run {r['run_id']}" if r["run_id"] else ""))
+    for key, prior in r["prior_values"].items():
+        console.print(f"{key.replace('_', ' ').capitalize()}: {money(prior)}")
+    if r["value_change"] is not None:
+        console.print(f"Change of the model value from the prior value: {percent(r['value_change'])}")
+    table("Characteristics", ["feature", "value"],
+          [[f["name"], "missing" if f["value"] is None else f["label"] or f"{f['value']:.10g}"] for f in r["features"]],
+          console)
+    stats = r["segment_statistics"]
+    if stats:
+        console.print(f"Segment {name(stats['segment'])}, {shown(stats['values'])}: {stats['n']} sales, median ratio "
+                      f"{_num(stats['median_ratio'], '.3f')}, COD {_num(stats['cod'], '.1f')}, PRD "
+                      f"{_num(stats['prd'], '.3f')}, PRB {_num(stats['prb'], '+.3f')}; verdicts "
+                      + ", ".join(f"{k} {MARKS.get(s, s)}" for k, s in stats["verdicts"].items()), highlight=False)
+    x = r["explanation"]
+    if x:
+        table(f"Explanation: the model value from {x['measured_from']}", ["part", "value", "% of value"],
+              [["base", money(x["base"]), ""]]
+              + [[p["term"], signed_money(p["currency"]), percent(p["percent"])] for p in x["parts"]]
+              + [["= model value", money(x["value"]), ""]], console)
+    grid = r["comparables"]
+    if grid:
+        header, rows = grid_table(grid)
+        table(f"Comparable sales adjusted by the model (run {grid['run_id']})", header, rows, console)
+        console.print(indicated_range(grid), highlight=False)
+    console.print("Flags: " + ("none" if not r["flags"] else ""))
+    for flag in r["flags"]:
+        console.print(f"  ! {shown(flag)}", highlight=False)
+    if r.get("report"):
+        console.print(f"Report written to {shown(r['report'])}")
+    console.print(CAUTION)
+
+
+def _num(x: float | None, fmt: str) -> str:
+    return "–" if x is None else format(x, fmt)

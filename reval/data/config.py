@@ -19,7 +19,7 @@ from reval.config_keys import (REQUIRED, Declared, Invalid, comment_line, declar
                                toml_value)
 from reval.errors import ConfigError
 from reval.model.settings import ModelSettings
-from reval.states import FeatureKind, FeatureShape
+from reval.states import FeatureKind, FeatureShape, RepeatSales, SearchArea
 from reval.stats.standards import Standards
 
 CONFIG_NAME = "reval.toml"
@@ -152,10 +152,36 @@ class SalesRules(Declared):
                                          "a package's summed values with its one price)", active=True)
     multi_parcel_in_fit: bool = setting(False, "when multi-parcel sales qualify, also fit each parcel at its share "
                                         "of the price (by prior value)")
+    repeat_sales: RepeatSales = setting("latest", '"latest": of a parcel sold more than once in the sale window, only '
+                                        'its latest sale that passes the other rules counts (the others: "earlier '
+                                        'repeat sale"; two on one day: one is kept); "all" keeps every sale')
 
     def check(self) -> None:
         if self.price_min is not None and self.price_max is not None and self.price_min > self.price_max:
             raise Invalid("price_min", "is above sales.price_max")
+
+
+def _feature_name(doc: str, default: str) -> Any:
+    """A [check] key naming the feature that plays a role in the combination checks."""
+    return setting(default, doc + " (a continuous feature; checks that need a missing one are listed as not run)",
+                   pattern=(r"^[a-z][a-z0-9_]*$", "a feature name"))
+
+
+@dataclass(frozen=True)
+class CheckSettings(Declared):
+    """What `reval check` looks for besides blanks and ranges (the [check] section). The limits are common
+    practice, not from a standard: set them to what your office finds plausible."""
+
+    living_area: str = _feature_name("the feature holding the living area", "living_area")
+    bathrooms: str = _feature_name("the feature holding the number of bathrooms", "bathrooms")
+    year_built: str = _feature_name("the feature holding the year built", "year_built")
+    min_area_per_bathroom: float = setting(150.0, "list parcels with less living area per bathroom than this (in "
+                                           "the living area's unit)", lo=0)
+    price_per_area_factor: float = setting(3.0, "list sales whose price per unit of living area is more than this "
+                                           "many times the segment's median, or less than the median divided by it",
+                                           lo=1, lo_open=True)
+    price_to_prior_factor: float = setting(3.0, "list sales whose price is more than this many times the prior "
+                                           "value, or less than the prior value divided by it", lo=1, lo_open=True)
 
 
 @dataclass(frozen=True)
@@ -176,6 +202,10 @@ class StudySettings(Declared):
     confidence: float = setting(0.95, "level of the confidence intervals", lo=0.5, hi=1, lo_open=True, hi_open=True)
     bootstrap: int = setting(1000, "resamples for the COD and PRD confidence intervals", lo=100, hi=100_000)
     seed: int = setting(2026, "seed of the bootstrap, so studies are reproducible", lo=0)
+    age_feature: str = setting("year_built", "the feature whose decade groups sales by age (`--by age`); "
+                               "that grouping is skipped when no such feature is declared")
+    size_feature: str = setting("living_area", "the feature whose quintile bands group sales by size (`--by size`); "
+                                "that grouping is skipped when no such feature is declared")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -222,6 +252,30 @@ class AssessmentSettings(Declared):
 
 
 @dataclass(frozen=True)
+class ComparablesSettings(Declared):
+    """How comparable sales are chosen and adjusted to a parcel (the [comparables] section)."""
+
+    k: int = setting(5, "comparable sales shown for a parcel", lo=1, hi=20, active=True)
+    widen_below: int = setting(20, "search the parcel's segment; with fewer candidate sales than this, its market "
+                               "area; then, if `widest` allows, the whole jurisdiction", lo=1, hi=100_000)
+    widest: SearchArea = setting("market_area", 'how far the search may widen: "segment", "market_area" or '
+                                 '"jurisdiction"')
+    max_age_months: int | None = setting(None, "only sales at most this many months before the valuation date "
+                                         "(leave out: the whole sale window)", lo=1, hi=600, example=24)
+    segment_weight: float = setting(0.10, "added to the distance of a sale outside the parcel's segment (log units, "
+                                    "like a 10 % difference in one feature's contribution)", lo=0, hi=10)
+    market_area_weight: float = setting(0.20, "added to the distance of a sale outside the parcel's market area "
+                                        "(log units)", lo=0, hi=10)
+    age_weight: float = setting(0.05, "added to the distance per year between the sale and the valuation date "
+                                "(log units): recent sales are preferred", lo=0, hi=10)
+    max_gross_adjustment: float = setting(0.40, "sales needing a larger gross adjustment (sum of the rows' absolute "
+                                          "amounts / time-adjusted price) come only after every sale within it, "
+                                          "and are marked", lo=0, lo_open=True, hi=100)
+    min_fit_weight: float = setting(0.5, "sales the run's fit gave less weight than this (a doubtful price) are not "
+                                    "offered as comparables", lo=0, hi=1)
+
+
+@dataclass(frozen=True)
 class Section:
     """A section of reval.toml: its table, its declared keys and the words the starter writes above it."""
 
@@ -245,6 +299,8 @@ SECTIONS: tuple[Section, ...] = (
                       {"name": "quality", "type": "ordinal", "levels": ["low", "average", "good", "excellent"],
                        "shape": "increasing"})),
     Section("sales", SalesRules, "Which sales qualify for models and ratio studies."),
+    Section("check", CheckSettings, "The data-quality check (`reval check`): which features the combination checks "
+            "read, and when a value is implausible."),
     Section("time_adjustment", TimeSettings, "Market-trend estimation for time adjustment to the valuation date."),
     Section("study", StudySettings, "Ratio studies."),
     Section("standards", Standards, 'Ratio-study performance standards. "IAAO" marks a limit from the IAAO Standard '
@@ -252,6 +308,8 @@ SECTIONS: tuple[Section, ...] = (
             "(statute, the oversight agency) may differ and then take precedence."),
     Section("model", ModelSettings, "Modelling choices shared by every segment of a run."),
     Section("assessment", AssessmentSettings, "Rules from local law: the office sets these."),
+    Section("comparables", ComparablesSettings, "Comparable sales for defending a parcel's value: the sales most "
+            "similar in what the model says matters, adjusted to the parcel by the model."),
 )
 
 
@@ -269,11 +327,13 @@ class Config:
     columns: Mapping[str, str]
     features: tuple[FeatureSpec, ...]
     sales: SalesRules = field(default_factory=SalesRules)
+    check: CheckSettings = field(default_factory=CheckSettings)
     time: TimeSettings = field(default_factory=TimeSettings)
     study: StudySettings = field(default_factory=StudySettings)
     standards: Standards = field(default_factory=Standards)
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
+    comparables: ComparablesSettings = field(default_factory=ComparablesSettings)
     max_amount: float = 1e10      # [files] max_amount
     sha256: str = ""
 
@@ -326,11 +386,13 @@ def load_config(path: Path | str) -> Config:
         columns={role: column for role, column in columns.items() if column is not None},
         features=sections["features"],
         sales=sections["sales"],
+        check=sections["check"],
         time=sections["time_adjustment"],
         study=sections["study"],
         standards=sections["standards"],
         model=sections["model"],
         assessment=sections["assessment"],
+        comparables=sections["comparables"],
         max_amount=files.max_amount,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )

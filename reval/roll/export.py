@@ -134,6 +134,7 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
 def _write_files(store: Store, config: Config, path: Path, tmp: Path, tmp_manifest: Path, ids: list[int],
                  missing: list[str], pending: list[PendingBatch]) -> Manifest:
     """The roll and its manifest in their temporary files, fsync'd; returns the manifest."""
+    store.run("csv_cells")
     store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
     _fsync(tmp)
     totals = store.records("export_totals", {"batch_ids": ids})

@@ -6,18 +6,22 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
-                           SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
+from reval.results import (CheckNotRun, CheckPage, CheckReport, CheckSegment, ComparableGrid, ComparableSale,
+                           Decision, ExportResult, FitSummary, GridRow, ImportSummary, RepeatSale, ReportResult,
+                           ReviewReport, SaleDecision, SalesCounts, SegmentReview, StagePlan, StageResult,
+                           StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
-           "StandingDecision", "StatCell", "StudyGroup",
-           "StudyResult", "ValueChange", "ValueSplit"]
+__all__ = ["BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "ComparableGrid",
+           "ComparableSale", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
+           "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow", "ImportSummary", "Overview",
+           "OverviewRow", "ParcelDetail", "ParcelReport", "ParcelValue", "Record", "RepeatSale", "ReportResult",
+           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "SegmentStatistics",
+           "StagePlan", "StageResult", "StandingDecision", "StatCell", "StudyGroup", "StudyResult", "ValueChange",
+           "ValueSplit"]
 
 
 class DemoSummary(TypedDict):
@@ -182,6 +186,7 @@ class ParcelDetail(TypedDict):
     market_area: str
     property_class: str
     prior_value: float | None
+    prior_values: dict[str, Any]   # every prior_* column of the parcel (prior market value, prior assessed value)
     latitude: float | None
     longitude: float | None
     run_id: str | None
@@ -230,3 +235,62 @@ class JobStep(TypedDict):
     does: str
     status: str
     done: bool
+class SegmentStatistics(TypedDict):
+    """A segment's group in the stored study the app shows, with its verdict per statistic."""
+
+    segment: str
+    study_id: str
+    values: str
+    n: int
+    median_ratio: float | None
+    cod: float | None
+    prd: float | None
+    prb: float | None
+    verdicts: dict[str, str]
+
+
+class ParcelValue(TypedDict):
+    """The value shown for a parcel: its newest roll row's market value when staged or certified, else the model's."""
+
+    value: int | None
+    source: str
+    model_value: int | None
+    roll: Record | None
+
+
+class ExplanationPart(TypedDict):
+    term: str
+    currency: int
+    percent: float   # share of the value
+    log: float
+
+
+class Explanation(TypedDict):
+    """The model value split into its base and one currency part per feature, largest first (they add up to it)."""
+
+    measured_from: str
+    base: int
+    value: int
+    parts: list[ExplanationPart]
+
+
+class ParcelReport(TypedDict):
+    """Everything that defends one parcel's value (`reval parcel ID`, its report page and the app)."""
+
+    jurisdiction: str
+    valuation_date: str
+    parcel_id: str
+    segment: str
+    market_area: str
+    property_class: str
+    run_id: str | None
+    features: list[Record]
+    value: ParcelValue
+    prior_values: dict[str, Any]
+    value_change: float | None
+    flags: list[str]
+    segment_statistics: SegmentStatistics | None
+    explanation: Explanation | None
+    comparables: ComparableGrid | None
+    caution: str
+    report: str | None   # the one-page report's file, when one was written

@@ -22,8 +22,9 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, JobStep, ListColumn, ListPage, Overview, OverviewRow, ParcelDetail, Record,
-                                 SalesPage, SegmentDetail, SegmentReview, StatCell, ValueChange)
+from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, JobStep, ListColumn, ListPage, Overview,
+                                 OverviewRow, ParcelDetail, Record, SalesPage, SegmentDetail, SegmentReview,
+                                 SegmentStatistics, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
@@ -337,8 +338,9 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
-    """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
-    weight in the latest run's fit with why it is below 1."""
+    """One page of a segment's sales: those the analyst excluded first (so they can be reinstated), then the
+    qualified ones, largest ratio deviations first, with the values under study and each sale's weight in the
+    latest run's fit with why it is below 1."""
     with open_project(folder) as (config, store):
         run_id = latest_run(store)
         study, _ = _study(store, config, run_id)
@@ -447,6 +449,18 @@ def list_page(folder: Path, name: str, *, segment: str | None = None, text: str 
     return {"name": name, "title": title, "columns": spec["columns"], "rows": rows, "total": total, "page": page,
             "pages": pages, "page_size": page_size, "sort": sort, "descending": descending, "segment": segment,
             "text": text, "opens": spec["opens"]}
+# ---- the data-quality check -----------------------------------------------------------------------------
+
+def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | None = None,
+               code: str | None = None, sort: str = "segment") -> CheckPage:
+    """One page of the data-quality check's rows, filtered by segment and check and sorted in SQL. The check is
+    built afresh on a read-only connection (it always shows the data as they are), for the one segment asked for
+    when there is one: a page of a segment's rows costs that segment's work."""
+    from reval.data import check  # loads numpy: only the check screen needs it
+
+    with open_project(folder) as (config, store):
+        check.build_check(store, config, segment)
+        return check.rows_page(store, page, page_size, segment, code, sort)
 
 
 # ---- one parcel ----------------------------------------------------------------------------------------
@@ -485,35 +499,66 @@ def parcel_suggestions(folder: Path, text: str) -> list[str]:
 def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
+    with open_project(folder) as (config, store):
+        return read_parcel(store, config, parcel_id)
+
+
+def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
+    """`parcel_detail` on an open project (the parcel report builds on it)."""
+    parcel_id = parcel_id.strip()
+    found = store.records("app_parcel", [parcel_id])
+    if not found:
+        near = _suggestions(store, parcel_id)
+        hint = f"; did you mean {', '.join(near)}?" if near else ""
+        raise UserError(f"No parcel with id {parcel_id!r}{hint}")
+    parcel = found[0]
+    run_id = latest_run(store)
+    features = store.records("app_parcel_features", [parcel_id])
+    estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
+    parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
+    sales = store.records("app_parcel_sales", [run_id, parcel_id])
+    for s in sales:
+        s["sale_date"] = s["sale_date"].isoformat()
+    trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
+    roll = store.records("app_parcel_roll", [parcel_id])
+    for r in roll:
+        r["flags"] = list(r["flags"] or [])
+    split = None
+    if parts:
+        logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
+        base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
+        split = value_split(base, logs)
+    prior = parcel["prior_value"]
+    value = estimate["market_value"] if estimate else None
+    return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
+            "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
+            "prior_values": {k: v for k, v in parcel.items() if k.startswith("prior_")},
+            "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
+            "features": features, "estimate": estimate, "split": split, "roll": roll,
+            "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
+            "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+
+
+def segment_statistics(store: Store, config: Config, run_id: str | None, segment: str) -> SegmentStatistics | None:
+    """The segment's group in the study the app shows (out-of-fold for the run when stored, else prior values)."""
+    study, _ = _study(store, config, run_id)
+    group = next((g for g in (study["groups"] if study else []) if g["group"] == segment), None)
+    if study is None or group is None:
+        return None
+    return {"segment": segment, "study_id": study["study_id"],
+            "values": SOURCE_LABELS.get(study["values_source"], study["values_source"]), "n": group["n"],
+            "median_ratio": group["median_ratio"], "cod": group["cod"], "prd": group["prd"], "prb": group["prb"],
+            "verdicts": {stat: v["status"] for stat, v in group["verdicts"].items()}}
+
+
+def parcel_comparables(folder: Path, parcel_id: str) -> ComparableGrid | None:
+    """The parcel's comparable sales adjusted by the latest run's model (None before the first run or when the
+    run did not value it)."""
+    from reval.roll.comparables import comparable_grid  # numpy: only the parcel view needs it
+
     parcel_id = parcel_id.strip()
     with open_project(folder) as (config, store):
-        found = store.records("app_parcel", [parcel_id])
-        if not found:
-            near = _suggestions(store, parcel_id)
-            hint = f"; did you mean {', '.join(near)}?" if near else ""
-            raise UserError(f"No parcel with id {parcel_id!r}{hint}")
-        parcel = found[0]
         run_id = latest_run(store)
-        features = store.records("app_parcel_features", [parcel_id])
-        estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
-        parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
-        sales = store.records("app_parcel_sales", [run_id, parcel_id])
-        for s in sales:
-            s["sale_date"] = s["sale_date"].isoformat()
-        trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
-        roll = store.records("app_parcel_roll", [parcel_id])
-        for r in roll:
-            r["flags"] = list(r["flags"] or [])
-        split = None
-        if parts:
-            logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
-            base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
-            split = value_split(base, logs)
-        prior = parcel["prior_value"]
-        value = estimate["market_value"] if estimate else None
-        return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
-                "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
-                "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
-                "features": features, "estimate": estimate, "split": split, "roll": roll,
-                "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
-                "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+        if run_id is None or not store.rows("app_parcel_estimate", [run_id, parcel_id]):
+            return None
+        return comparable_grid(store, config, run_id, parcel_id)

@@ -1,11 +1,6 @@
--- Write the value roll of the given batches to $path as CSV, rows ordered by segment and parcel id.
--- Numbers are plain fixed decimals (never scientific notation); a text cell starting with = + - @, a tab or a
--- carriage return gets a leading single quote so a spreadsheet evaluates nothing, and so does one starting
--- with a single quote, so that removing one leading quote always gives back the stored text. Number cells are
--- written by printf and cannot start with anything but a digit or a minus sign. $path, $batch_ids.
-CREATE OR REPLACE TEMP MACRO export_text(x) AS
-    CASE WHEN regexp_matches(x, '^[=+\-@\t\r'']') THEN '''' || x ELSE x END;
-CREATE OR REPLACE TEMP MACRO export_number(x) AS printf('%.2f', round(x, 2) + 0.0);
+-- Write the value roll of the given batches to $path as CSV, rows ordered by segment and parcel id, its cells
+-- as sql/queries/csv_cells.sql says (run first). Numbers are plain fixed decimals (never scientific notation).
+-- $path, $batch_ids.
 COPY (
     SELECT export_text(v.parcel_id) AS parcel_id,
            export_text(b.segment) AS segment,

@@ -1,12 +1,14 @@
 -- Qualify every sale by the [sales] rules; the first failing rule is the reason.
 -- $1 window start, $2 valuation date, $3 kept validity codes (NULL = all), $4 exclude multi-parcel,
--- $5 property classes kept (NULL = all), $6 price min (NULL = none), $7 price max (NULL = none).
--- After the rules, the analyst's exclusions (sale_decisions).
+-- $5 property classes kept (NULL = all), $6 price min (NULL = none), $7 price max (NULL = none),
+-- $8 keep only the latest sale of a parcel sold more than once ([sales] repeat_sales = "latest").
+-- After the rules, the analyst's exclusions (sale_decisions); last, of the sales that pass all of these, a
+-- parcel's earlier ones when it has a later one (a sale of several parcels is left out as a whole when any
+-- of its parcels sold again later). Two sales of a parcel on one day: the larger sale id is kept.
 INSERT INTO sale_qualification
-WITH multi AS (SELECT sale_id FROM sales GROUP BY sale_id HAVING count(*) > 1)
-SELECT s.sale_id, s.parcel_id, reason IS NULL, reason
-FROM (
-    SELECT s.sale_id, s.parcel_id,
+WITH multi AS (SELECT sale_id FROM sales GROUP BY sale_id HAVING count(*) > 1),
+ruled AS (
+    SELECT s.sale_id, s.parcel_id, s.sale_date,
            CASE
                WHEN s.sale_date < $1 THEN 'before the sale window'
                WHEN s.sale_date > $2 THEN 'after the valuation date'
@@ -21,4 +23,21 @@ FROM (
            END AS reason
     FROM sales s JOIN parcels p USING (parcel_id)
     LEFT JOIN sale_decisions d ON d.sale_id = s.sale_id
-) s;
+),
+ranked AS (   -- each parcel's passing sales, latest first
+    SELECT sale_id, sale_date,
+           row_number() OVER (PARTITION BY parcel_id ORDER BY sale_date DESC, sale_id DESC) AS nth,
+           max(sale_date) OVER (PARTITION BY parcel_id) AS latest
+    FROM ruled WHERE reason IS NULL AND $8
+),
+repeated AS (
+    SELECT sale_id, bool_and(sale_date = latest) AS same_day
+    FROM ranked WHERE nth > 1 GROUP BY sale_id
+)
+SELECT r.sale_id, r.parcel_id, reason IS NULL, reason
+FROM (
+    SELECT r.sale_id, r.parcel_id,
+           coalesce(r.reason, CASE WHEN x.same_day THEN 'duplicate sale (same parcel and day)'
+                                   WHEN x.sale_id IS NOT NULL THEN 'earlier repeat sale' END) AS reason
+    FROM ruled r LEFT JOIN repeated x USING (sale_id)
+) r;

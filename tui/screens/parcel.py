@@ -1,6 +1,7 @@
 """One parcel: its value split into feature contributions that add up exactly, prior value, sales, flags."""
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 from textual import on
@@ -8,14 +9,17 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
-from reval.service import views
-from reval.service.types import ParcelDetail, Record
+from reval.service import actions, views
+from reval.service.types import ComparableGrid, ParcelDetail, Record
+from reval.service.wording import grid_table, indicated_range
 
 from .. import keys
 from ..format import SHORT_CAUTION, cells, money, number, percent, shown, signed_money
 from ..jobs import Loaded, StatusBar
+from ..outcomes import describe_parcel_report
 from ..plain import Plain
 from .base import DataScreen, footer
+from .prompt import PromptScreen
 
 
 def feature_text(f: Record) -> str:
@@ -45,6 +49,9 @@ class ParcelScreen(DataScreen):
             yield Plain("Contributions", classes="section", id="parts-title")
             yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
             yield Plain("", id="parcel-parts-note")
+            yield Static("Comparable sales adjusted by the model", classes="section")
+            yield Plain("reading…", id="parcel-comparables-note")
+            yield DataTable(id="parcel-comparables", cursor_type="none", show_cursor=False)
             yield Static("Sales", classes="section")
             yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
             yield Static("Flags", classes="section")
@@ -59,9 +66,11 @@ class ParcelScreen(DataScreen):
 
     def reload(self) -> None:
         self.fetch("parcel", views.parcel_detail, self.reval.folder, self.parcel_id)
+        self.fetch("comparables", views.parcel_comparables, self.reval.folder, self.parcel_id)
 
     def on_load_failed(self, message: Any) -> None:
-        self.query_one("#parcel-title", Static).update(f"✗ {message.error}")
+        target = "#parcel-comparables-note" if message.tag == "comparables" else "#parcel-title"
+        self.query_one(target, Static).update(f"✗ {message.error}")
         super().on_load_failed(message)
         self.fetch("suggestions", views.parcel_suggestions, self.reval.folder, self.parcel_id)
 
@@ -77,6 +86,9 @@ class ParcelScreen(DataScreen):
     def show_parcel(self, message: Loaded) -> None:
         if message.tag == "suggestions":
             self.offer(message.data)
+            return
+        if message.tag == "comparables":
+            self._comparables(message.data)
             return
         d = self.data = message.data
         self.query_one("#parcel-title", Static).update(
@@ -138,6 +150,32 @@ class ParcelScreen(DataScreen):
                           number(s["oof_ratio"], ".3f")))
         if not d["sales"]:
             table.add_row(*cells("no recorded sale", "", "", "", "", ""))
+
+    def _comparables(self, grid: ComparableGrid | None) -> None:
+        table = self.query_one("#parcel-comparables", DataTable)
+        table.clear(columns=True)
+        note = self.query_one("#parcel-comparables-note", Static)
+        if grid is None:
+            note.update("No comparables yet: they are adjusted by a run's model (press f to fit).")
+            return
+        note.update(indicated_range(grid))
+        if grid["comparables"]:
+            header, rows = grid_table(grid)
+            table.add_columns(*header)
+            for row in rows:
+                table.add_row(*cells(*row))
+
+    def action_report(self) -> None:
+        """Ask for a file name, then write the one-page report in the job thread."""
+        def chosen(name: str | None) -> None:
+            if name:
+                target = Path(name) if Path(name).is_absolute() else self.reval.folder / name
+                self.reval.start_job("report", f"Writing the report of parcel {self.parcel_id} to {target}",
+                                     actions.parcel_report, self.reval.folder, self.parcel_id, target,
+                                     describe=describe_parcel_report)
+
+        self.app.push_screen(PromptScreen("Write this parcel's one-page report", "file name (.html or .pdf)",
+                                          required=True, value=f"parcel_{self.parcel_id}.pdf"), chosen)
 
     def action_back(self) -> None:
         self.dismiss()

@@ -9,7 +9,7 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 
-from reval.service import views
+from reval.service import actions, views
 from reval.service.types import Curve, SalesPage, SegmentDetail, SegmentReview
 
 from .. import keys
@@ -28,6 +28,7 @@ from ..format import (
     stat_cell,
 )
 from ..jobs import Loaded, StatusBar
+from ..outcomes import SALE_DECISIONS, describe_sale_decision
 from ..plot import (
     Bars,
     BarsData,
@@ -40,6 +41,7 @@ from ..plot import (
 )
 from ..plain import Plain
 from .base import DataScreen, footer
+from .prompt import PromptScreen
 
 TABS = ("curves", "effects", "equity", "change", "sales", "reference")
 NO_RUN = "No model run yet — press f to fit."
@@ -352,9 +354,9 @@ class SegmentScreen(DataScreen):
     def show_sales(self, s: SalesPage) -> None:
         self.sales_page = s["page"]
         self.query_one("#sales-title", Static).update(
-            f"{s['total']:,} sales, ratios of {s['values']}, farthest from 1 first · page {s['page'] + 1}/"
-            f"{s['pages']} (] [) · ✂ trimmed · {s['downweighted']:,} down-weighted by the fit (weight < 1, "
-            "why at the right) · Enter: parcel")
+            f"{s['total']:,} sales (excluded by you first), ratios of {s['values']}, farthest from 1 first · page "
+            f"{s['page'] + 1}/{s['pages']} (] [) · ✂ trimmed · {s['downweighted']:,} down-weighted by the fit "
+            "(weight < 1, why at the right) · Enter: parcel · e: exclude · i: reinstate")
         table = self.query_one("#sales-table", DataTable)
         table.clear(columns=True)
         table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂", "Weight", "Why")
@@ -364,6 +366,22 @@ class SegmentScreen(DataScreen):
                           money(r["adjusted_price"]), money(r["value"]), number(r["ratio"], ".3f"),
                           "✂" if r["trimmed"] else "", "" if weight is None or weight >= 1 else f"{weight:.2f}",
                           r["weight_reason"] or ""), key=f"{r['sale_id']}/{r['parcel_id']}")
+
+    def action_decide_sale(self, decision: str) -> None:
+        """Exclude or reinstate the highlighted sale with a reason (reval.service.actions.decide_sale, audited)."""
+        if self.sales is None or not self.sales["rows"] or self.query_one(TabbedContent).active != "sales":
+            return
+        sale_id = self.sales["rows"][self.query_one("#sales-table", DataTable).cursor_row]["sale_id"]
+        title, asked = SALE_DECISIONS[decision]
+
+        def answered(reason: str | None) -> None:
+            if reason is None:
+                self.reval.report(f"Sale {sale_id}: nothing changed.", "warning")
+                return
+            self.reval.start_job("sale", f"Sale {sale_id}: {decision}", actions.decide_sale, self.reval.folder,
+                                 sale_id, decision, reason, describe=describe_sale_decision)
+
+        self.reval.push_screen(PromptScreen(title.format(sale_id=sale_id), asked, required=True), answered)
 
     @on(DataTable.RowSelected, "#sales-table")
     def sale_chosen(self) -> None:
