@@ -50,20 +50,50 @@ def _transition(store: Store, batch: dict[str, Any], to: str, kind: str, note: s
                                    **detail}, segment=batch["segment"], run_id=batch["run_id"])
 
 
+def _staged_refusal(live: list[dict[str, Any]], segment: str, action: str) -> str | None:
+    """Why the segment has no staged batch to approve or hold (None when it has one)."""
+    batch = next((b for b in live if b["state"] in ("staged", "held")), None)
+    if batch is None:
+        done = next((b for b in live if b["state"] in ("approved", "exported")), None)
+        if done is not None and done["state"] == "approved":
+            return (f"Cannot {action} {segment}: batch {done['batch_id']} is already approved; revoke that "
+                    "approval first to decide again.")
+        if done is not None:
+            return (f"Cannot {action} {segment}: batch {done['batch_id']} is already exported; exported values "
+                    "are final (a new run makes a new batch).")
+        return f"Cannot {action} {segment}: it has no staged batch; run `reval value` after a run."
+    if batch["state"] == "held":
+        return (f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
+                "a new run and `reval value` stage it again.")
+    if outdated(batch):
+        return (f"Cannot {action} {segment}: batch {batch['batch_id']} is outdated by a data correction or an "
+                f"override made after it was staged; run `reval value {segment}` to stage its values again.")
+    return None
+
+
 def _open_batch(store: Store, segment: str, action: str) -> dict[str, Any]:
     """The segment's staged batch, read inside the caller's transaction; a plain refusal otherwise."""
     live = live_batches(store, segment)
-    batch = next((b for b in live if b["state"] in ("staged", "held")), None)
-    if batch is None:
-        raise UserError(f"Cannot {action} {segment}: it has no staged batch; run `reval value` after a run.")
-    if batch["state"] == "held":
-        raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
-                        "a new run and `reval value` stage it again.")
-    if outdated(batch):
-        raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is outdated by a data correction or "
-                        f"an override made after it was staged; run `reval value {segment}` to stage its values "
-                        "again.")
-    return batch
+    reason = _staged_refusal(live, segment, action)
+    if reason is not None:
+        raise UserError(reason)
+    return next(b for b in live if b["state"] == "staged")
+
+
+def refusal(store: Store, segment: str, action: str) -> str | None:
+    """Why approving, holding or revoking the segment's batch would be refused now for its state (before a
+    note is asked for), or None; the same rules the actions apply. The approval gate on statistics is not
+    judged here: a note can override it."""
+    if segment not in {r[0] for r in store.rows("roll_segments")}:
+        return f"No segment named '{segment}'."
+    live = live_batches(store, segment)
+    if action != "revoke":
+        return _staged_refusal(live, segment, action)
+    try:
+        _approved_batch(live, segment)
+    except UserError as refused:
+        return str(refused)
+    return None
 
 
 def _note(text: str | None) -> str | None:
