@@ -286,3 +286,39 @@ def test_under_the_interval_rule_an_unsure_segment_needs_a_note(staged: Path) ->
     set_section(staged, "standards", 'verdict_rule = "interval"\nprb = [-0.01, 0.01]\n')
     with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*\(inconclusive; standard -0.01 to 0.01\)"):
         approve(staged, PASSING)
+
+
+def test_approve_all_passing_approves_exactly_the_segments_the_single_gate_passes(staged: Path) -> None:
+    # Issue 16: one command approves every staged segment whose verdicts pass, in one transaction, and says
+    # why each other segment was left. The single-segment gate is the reference: each segment it refuses is
+    # left with the same reasons, and each it lets through is approved.
+    from reval.service.actions import approve_all_passing
+
+    hold(staged, PASSING, "waterfront lots look low")
+    segments = [s["segment"] for s in batch_states(staged)["segments"]]
+    expected: dict[str, str] = {}
+    for segment in segments:
+        if segment == PASSING:
+            continue
+        try:
+            approve(staged, segment)   # the single gate decides; an approval is revoked again below
+        except UserError as error:
+            expected[segment] = str(error)
+        else:
+            revoke(staged, segment, "undo: the test compares with --all-passing")
+    result = approve_all_passing(staged)
+    approved = {d["segment"] for d in result["approved"]}
+    left = {x["segment"]: x["reason"] for x in result["left"]}
+    assert approved == set(segments) - set(expected) - {PASSING} and len(approved) >= 5
+    assert FAILING in expected and FAILING in left and "median_ratio" in left[FAILING]
+    assert "held (waterfront lots look low)" in left[PASSING]
+    for segment, message in expected.items():
+        assert left[segment] in message   # the same reasons the single gate gives
+    for segment in approved:
+        assert _batch(staged, segment, "approved")["judged_sha256"]
+    events = [e for e in event_log(staged)["events"] if e["kind"] == "batch_approved"]
+    assert {e["segment"] for e in events[-len(approved):]} == approved
+    assert all(e["detail"]["totals"]["n_parcels"] > 0 for e in events[-len(approved):])
+    again = approve_all_passing(staged)
+    assert again["approved"] == [] and all("nothing staged" in left2["reason"] or "held" in left2["reason"]
+                                           or left2["segment"] in expected for left2 in again["left"])

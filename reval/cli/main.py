@@ -23,6 +23,17 @@ def _folder(args: argparse.Namespace) -> Path:
     return Path(args.project)
 
 
+def _approve(args: argparse.Namespace) -> None:
+    if args.all_passing:
+        if args.segment or args.note:
+            raise UserError("`reval approve --all-passing` takes no segment and no note: it approves only what passes.")
+        render.emit(args, actions.approve_all_passing(_folder(args)), render.all_passing)
+    elif not args.segment:
+        raise UserError("Name a segment to approve, or use --all-passing.")
+    else:
+        render.emit(args, actions.approve(_folder(args), args.segment, args.note), render.decision)
+
+
 def cmd_init(args: argparse.Namespace) -> None:
     path = actions.init_project(Path(args.folder), args.name)
     print(f"Wrote {path}. Edit it to name your files and columns, then run `reval import` in {path.parent}.")
@@ -149,10 +160,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--limit", type=int, default=20, help="parcels beyond the threshold listed per segment")
     p.set_defaults(func=lambda a: render.emit(a, actions.review(_folder(a), a.segment, a.limit), render.review))
 
-    p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch")
-    p.add_argument("segment")
+    p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch (or every passing one)")
+    p.add_argument("segment", nargs="?", help="the segment (omit with --all-passing)")
     p.add_argument("--note", help="why; required to approve over failing out-of-fold statistics")
-    p.set_defaults(func=lambda a: render.emit(a, actions.approve(_folder(a), a.segment, a.note), render.decision))
+    p.add_argument("--all-passing", action="store_true",
+                   help="approve every staged batch whose out-of-fold statistics pass, in one transaction")
+    p.set_defaults(func=_approve)
 
     p = sub.add_parser("hold", parents=[common], help="hold a segment's staged batch")
     p.add_argument("segment")

@@ -19,7 +19,7 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
+    from reval.service.types import (AllPassing, BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
                                      ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
                                      SalesCounts, StagePlan, StageResult, StudyResult)
 
@@ -162,6 +162,14 @@ def approve(folder: Path, segment: str, note: str | None = None) -> Decision:
 
     with open_project(folder, write=True) as (config, store):
         return batches.approve(store, config, segment, note)
+
+
+def approve_all_passing(folder: Path) -> AllPassing:
+    """Approve every staged batch whose out-of-fold statistics pass, in one transaction; say why the rest were left."""
+    from reval.roll import batches
+
+    with open_project(folder, write=True) as (config, store):
+        return batches.approve_all_passing(store, config)
 
 
 def hold(folder: Path, segment: str, reason: str) -> Decision:

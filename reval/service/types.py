@@ -6,14 +6,14 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
+from reval.results import (AllPassing, Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
                            SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
+__all__ = ["AllPassing", "BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
            "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
            "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
            "StandingDecision", "StatCell", "StudyGroup",

@@ -2,7 +2,7 @@
 
 The statistics are reval.ratio_stats (one implementation); this module groups sales, judges each group
 against the standards, labels what the values were, and stores and reads the results. The approval gate
-judges one segment with the same code, now, under the current standards (`segment_judgement`).
+judges segments with the same code, now, under the current standards (`segments_judgement`).
 """
 from __future__ import annotations
 
@@ -124,20 +124,26 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     return load_study(store, values_source, grouping, run_id)
 
 
-def segment_judgement(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
-                      segment: str) -> tuple[StudyGroup, list[StudyGroup]]:
-    """One segment's ratio statistics and verdicts computed now under the current standards and study
-    settings (nothing stored), and those of each of its property classes when it has several: what the
-    approval gate judges."""
+def segments_judgement(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
+                       segments: list[str]) -> dict[str, tuple[StudyGroup, list[StudyGroup]]]:
+    """Each named segment's ratio statistics and verdicts computed now under the current standards and
+    study settings (nothing stored), and those of each of its property classes when it has several: what the
+    approval gate judges. The run's sales are read once for all the segments."""
     sales = sales_for_study(store, values_source, run_id)
-    mine = sales[sales["segment"] == segment]
-    row, _ = _judged(mine, study_id(values_source, run_id, "segment"), segment, config)
-    classes = sorted(str(c) for c in store.frame("study_units").query("segment == @segment")["property_class"])
-    per_class = []
-    if len(classes) > 1:
-        sid = study_id(values_source, run_id, "segment_class")
-        for cls in classes:
-            class_row, _ = _judged(mine[mine["property_class"] == cls], sid, f"{segment}{CLASS_SEPARATOR}{cls}",
-                                   config, cls)
-            per_class.append(group_from_row(class_row, values_source))
-    return group_from_row(row, values_source), per_class
+    rows = sales.groupby(sales["segment"].astype(str)).indices
+    units = store.frame("study_units")
+    classes_of = units.groupby(units["segment"].astype(str))["property_class"].agg(lambda c: sorted(map(str, set(c))))
+    sid, class_sid = study_id(values_source, run_id, "segment"), study_id(values_source, run_id, "segment_class")
+    out = {}
+    for segment in segments:
+        mine = sales.iloc[rows[segment]] if segment in rows else sales.iloc[0:0]
+        row, _ = _judged(mine, sid, segment, config)
+        classes = classes_of.get(segment, [])
+        per_class = []
+        if len(classes) > 1:
+            for cls in classes:
+                class_row, _ = _judged(mine[mine["property_class"] == cls], class_sid,
+                                       f"{segment}{CLASS_SEPARATOR}{cls}", config, cls)
+                per_class.append(group_from_row(class_row, values_source))
+        out[segment] = (group_from_row(row, values_source), per_class)
+    return out
