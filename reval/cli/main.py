@@ -76,7 +76,7 @@ def cmd_study(args: argparse.Namespace) -> None:
 
 def cmd_fit(args: argparse.Namespace) -> None:
     with render.progress_bar(args) as progress:
-        result = actions.fit(_folder(args), progress, args.jobs)
+        result = actions.fit(_folder(args), progress, args.jobs, args.scheduler)
     render.emit(args, result, render.fit)
 
 
@@ -140,6 +140,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
     p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
+    p.add_argument("--scheduler", metavar="tcp://HOST:PORT", default=None,
+                   help="fit on this Dask cluster's workers (default: [model] scheduler; needs reval[cluster])")
     p.set_defaults(func=cmd_fit)
 
     p = sub.add_parser("compare", parents=[common], help="reference models' accuracy beside ours, on the same folds")

@@ -104,12 +104,14 @@ def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id:
         return run_study(store, config, source, by, run)
 
 
-def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> FitSummary:
-    """Fit every segment's model, validate out of fold, compare with the reference models, store a run."""
+def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None,
+        scheduler: str | None = None) -> FitSummary:
+    """Fit every segment's model, validate out of fold, compare with the reference models, store a run; the fits
+    run on `jobs` local processes or on the Dask cluster at `scheduler` (default: the config's)."""
     from reval.model.run import fit_run
 
     with open_project(folder, write=True) as (config, store):
-        return fit_run(store, config, progress, jobs)
+        return fit_run(store, config, progress, jobs, scheduler=scheduler)
 
 
 def compare(folder: Path, run_id: str | None = None) -> CompareResult:
