@@ -44,7 +44,9 @@ def test_fits_on_a_local_dask_cluster_equal_the_local_run_exactly(prepared: Path
     assert np.isfinite(a["log_value"]).all()
 
 
-def test_an_unreachable_scheduler_is_a_user_error_and_nothing_is_stored(prepared: Path, tmp_path: Path) -> None:
+def test_an_unreachable_scheduler_is_a_user_error_and_nothing_is_stored(prepared: Path, tmp_path: Path,
+                                                                        monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr("reval.model.workers.CONNECT_SECONDS", 1)
     folder = copy_project(prepared, tmp_path / "p")
     with pytest.raises(UserError, match="Cannot reach the Dask scheduler at tcp://127.0.0.1:9"):
         fit(folder, scheduler="tcp://127.0.0.1:9")

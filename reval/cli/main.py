@@ -66,7 +66,13 @@ def cmd_sales(args: argparse.Namespace) -> None:
 
 
 def cmd_study(args: argparse.Namespace) -> None:
-    result = actions.study(_folder(args), args.values, args.by, args.run, args.in_sample)
+    if args.projects:
+        if args.by != "segment" or args.run:
+            raise UserError("`reval study --projects` studies each project whole and all together; "
+                            "it takes no --by or --run (each project's latest run is used).")
+        result = actions.combined_study([Path(p) for p in args.projects], args.values, args.in_sample)
+    else:
+        result = actions.study(_folder(args), args.values, args.by, args.run, args.in_sample)
     if args.segment:
         result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
         if not result["groups"]:
@@ -136,6 +142,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.add_argument("--projects", nargs="+", metavar="FOLDER", help="a combined study across these projects (each "
+                   "read only; judged under the first one's standards)")
     p.set_defaults(func=cmd_study)
 
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")

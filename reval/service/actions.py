@@ -104,6 +104,25 @@ def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id:
         return run_study(store, config, source, by, run)
 
 
+def combined_study(folders: list[Path], values: str = "prior", in_sample: bool = False) -> StudyResult:
+    """A ratio study across projects, each read only (its latest run for model values), one group per project
+    and all together, judged under the first project's standards and study settings."""
+    from reval.roll.valuation import resolve_run
+    from reval.stats.study import combined_study as study_across, sales_for_study
+
+    source: ValuesSource = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    names = [f.resolve().name for f in folders]
+    if len(set(names)) < len(names):
+        names = [str(f) for f in folders]
+    frames, configs = [], []
+    for name, folder in zip(names, folders, strict=True):
+        with open_project(folder) as (config, store):
+            run = None if source == "prior" else resolve_run(store, None)
+            frames.append((name, sales_for_study(store, source, run)))
+            configs.append(config)
+    return study_across(frames, configs[0], source)
+
+
 def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None,
         scheduler: str | None = None) -> FitSummary:
     """Fit every segment's model, validate out of fold, compare with the reference models, store a run; the fits

@@ -20,6 +20,7 @@ from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
 from reval.states import Grouping, ValuesSource
+from reval.stats.sources import SOURCE_LABELS
 from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, study_id
 
 GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_area": ("market_area",),
@@ -147,3 +148,18 @@ def segments_judgement(store: Store, config: Config, values_source: ValuesSource
                 per_class.append(group_from_row(class_row, values_source))
         out[segment] = (group_from_row(row, values_source), per_class)
     return out
+
+
+ALL_PROJECTS = "all projects"
+
+
+def combined_study(projects: list[tuple[str, pd.DataFrame]], config: Config, values_source: ValuesSource) -> StudyResult:
+    """A ratio study across projects (nothing stored): each project's sales (`sales_for_study` of its store) as
+    one group and all of them together, judged by the same code under `config`'s standards and study settings."""
+    sid = study_id(values_source, None, "projects")
+    frames = [(name, frame) for name, frame in projects] + [(ALL_PROJECTS, pd.concat([f for _, f in projects],
+                                                                                     ignore_index=True))]
+    groups = [group_from_row(_judged(frame, sid, name, config)[0], values_source) for name, frame in frames]
+    return {"study_id": sid, "values_source": values_source, "values": SOURCE_LABELS[values_source], "run_id": None,
+            "by": "all", "trim_iqr_k": config.study.trim_iqr_k, "confidence": config.study.confidence,
+            "groups": groups}
