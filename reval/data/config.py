@@ -71,6 +71,8 @@ class Files(Declared):
     date_format: str | None = setting(None, "sale date format if not YYYY-MM-DD (strptime directives; it must "
                                       "name a year)", example="%d/%m/%Y", check=_date_format, type_text="text")
     max_amount: float = setting(1e10, "the largest sale price or prior value an import accepts", lo=0, lo_open=True)
+    memory_mb: int = setting(1024, "most memory (MB) the project's DuckDB database holds; beyond it, work spills to "
+                             "temporary files beside the database (reval's own arrays come on top)", lo=64, hi=1_048_576)
 
 
 def _column(doc: str, example: str, required: bool = False, active: bool = True) -> Any:
@@ -275,6 +277,7 @@ class Config:
     model: ModelSettings = field(default_factory=ModelSettings)
     assessment: AssessmentSettings = field(default_factory=AssessmentSettings)
     max_amount: float = 1e10      # [files] max_amount
+    memory_mb: int = 1024         # [files] memory_mb
     sha256: str = ""
 
     @property
@@ -332,6 +335,7 @@ def load_config(path: Path | str) -> Config:
         model=sections["model"],
         assessment=sections["assessment"],
         max_amount=files.max_amount,
+        memory_mb=files.memory_mb,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )
 
