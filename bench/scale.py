@@ -35,7 +35,7 @@ import json, sys, time
 from pathlib import Path
 from reval.service.views import overview, segment_detail
 folder = Path(sys.argv[1])
-start = time.perf_counter(); rows = overview(folder)["rows"]; took = time.perf_counter() - start
+start = time.perf_counter(); rows = overview(folder)["segments"]; took = time.perf_counter() - start
 if sys.argv[2] == "overview":
     print(json.dumps({"seconds": took, "rows": len(rows)}))
 else:

@@ -322,3 +322,27 @@ def test_approve_all_passing_approves_exactly_the_segments_the_single_gate_passe
     again = approve_all_passing(staged)
     assert again["approved"] == [] and all("nothing staged" in left2["reason"] or "held" in left2["reason"]
                                            or left2["segment"] in expected for left2 in again["left"])
+
+
+def test_the_gate_reads_a_stored_study_only_of_the_same_sales_under_the_same_basis(staged: Path) -> None:
+    # Issue 16: judging 300 segments afresh repeats 300+ bootstraps; a stored study of the run computed on the
+    # same sales under the same judging basis is that computation, so the gate reads it. The test marks a
+    # stored value, sees the gate read it, then changes the study settings and sees it judged afresh.
+    from reval.roll.batches import segment_statistics
+    from reval.service.project import open_project
+
+    def gate_median() -> float:
+        with open_project(staged) as (config, store):
+            return segment_statistics(store, config, "run-a", PASSING)["median_ratio"]
+
+    fresh = gate_median()
+    study(staged, values="model")
+    study(staged, values="model", by="segment_class")
+    assert gate_median() == fresh   # the stored study is the same computation
+    con = __import__("duckdb").connect(str(staged / "reval.duckdb"))
+    con.execute("UPDATE study_groups SET median_ratio = 0.5 WHERE group_name = ? AND study_id LIKE 'model_out_of_fold/%'",
+                [PASSING])
+    con.close()
+    assert gate_median() == 0.5     # read, not recomputed
+    set_section(staged, "study", "trim_iqr_k = 3.0\nbootstrap = 1001")
+    assert gate_median() == fresh   # another judging basis: judged afresh

@@ -3,8 +3,9 @@
 staged -> approved | held; held -> staged again only through a new value step (`reval value SEGMENT
 --replace` after a new run or a changed basis); approved -> exported (reval.export), or back to staged when
 revoked before export (to 'replaced' when a newer open batch already exists). Approval needs the segment's
-out-of-fold ratio statistics of the batch's run, computed at that moment under the current standards and
-study settings (never a stored study's older verdicts), to pass, or an override note, which is stored.
+out-of-fold ratio statistics of the batch's run, judged at that moment under the current standards and
+study settings (a stored study only when it was computed on the same sales under the same basis, which is
+the same computation), to pass, or an override note, which is stored.
 The event keeps that snapshot and the batch the fingerprint of the standards it was judged under
 (reval/stats/judging.py). Approving a newer batch marks the segment's earlier approved one 'superseded'.
 Approved values never change.

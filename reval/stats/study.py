@@ -7,6 +7,7 @@ judges segments with the same code, now, under the current standards (`segments_
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 import json
 from typing import Any
 
@@ -21,7 +22,7 @@ from reval.data.store import Store
 from reval.plain import number
 from reval.states import Grouping, ValuesSource
 from reval.stats.sources import SOURCE_LABELS
-from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, study_id
+from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, stored_groups, study_id
 
 GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_area": ("market_area",),
                                              "class": ("property_class",),
@@ -39,6 +40,13 @@ def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.
     column = "oof_value" if values_source == "model_out_of_fold" else "insample_value"
     frame = store.frame("study_sales_model", [run_id])
     return frame.assign(value=frame[column]).drop(columns=["oof_value", "insample_value"])
+
+
+def sales_sha256(sales: pd.DataFrame) -> str:
+    """Fingerprint of a study's sales: everything a group's statistics and verdicts are computed from."""
+    columns = sales[["sale_id", "price", "value", "segment", "property_class"]].astype(
+        {"segment": str, "property_class": str})
+    return hashlib.sha256(pd.util.hash_pandas_object(columns, index=False).to_numpy().tobytes()).hexdigest()
 
 
 def _group_class(frame: pd.DataFrame) -> str | None:
@@ -118,35 +126,54 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     with store.transaction():
         store.run("delete_study", [sid])
         store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
-                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config)])
+                                   opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config),
+                                   sales_sha256(sales)])
         store.insert("insert_study_groups", groups_frame)
         store.insert("insert_study_trimmed", trimmed_frame)
         store.insert("insert_study_downweighted", downweighted_frame)
     return load_study(store, values_source, grouping, run_id)
 
 
+def _stored_groups(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
+                   sales: pd.DataFrame) -> dict[str, StudyGroup] | None:
+    """The run's stored studies by segment and by segment x class, by group name, when both were computed on
+    these very sales under the judging basis in force (then they are what judging now would give); else None."""
+    wanted = (judging_sha256(config), sales_sha256(sales))
+    out: dict[str, StudyGroup] = {}
+    for grouping in ("segment", "segment_class"):
+        sid = study_id(values_source, run_id, grouping)
+        header = store.records("study_header", [sid])
+        if not header or (header[0]["judged_sha256"], header[0]["sales_sha256"]) != wanted:
+            return None
+        out |= {g["group"]: g for g in stored_groups(store, sid, values_source)}
+    return out
+
+
 def segments_judgement(store: Store, config: Config, values_source: ValuesSource, run_id: str | None,
                        segments: list[str]) -> dict[str, tuple[StudyGroup, list[StudyGroup]]]:
-    """Each named segment's ratio statistics and verdicts computed now under the current standards and
-    study settings (nothing stored), and those of each of its property classes when it has several: what the
-    approval gate judges. The run's sales are read once for all the segments."""
+    """Each named segment's ratio statistics and verdicts under the current standards and study settings, and
+    those of each of its property classes when it has several: what the approval gate judges. The run's sales
+    are read once; a stored study of the same sales under the same judging basis is the same computation (a
+    seeded bootstrap) and is read instead of repeated, which makes judging hundreds of segments fast."""
     sales = sales_for_study(store, values_source, run_id)
-    rows = sales.groupby(sales["segment"].astype(str)).indices
     units = store.frame("study_units")
     classes_of = units.groupby(units["segment"].astype(str))["property_class"].agg(lambda c: sorted(map(str, set(c))))
+    stored = _stored_groups(store, config, values_source, run_id, sales)
+    rows = sales.groupby(sales["segment"].astype(str)).indices
     sid, class_sid = study_id(values_source, run_id, "segment"), study_id(values_source, run_id, "segment_class")
+
+    def judged(frame: pd.DataFrame, study: str, name: str, cls: str | None = None) -> StudyGroup:
+        if stored is not None and name in stored:
+            return stored[name]
+        return group_from_row(_judged(frame, study, name, config, cls)[0], values_source)
+
     out = {}
     for segment in segments:
         mine = sales.iloc[rows[segment]] if segment in rows else sales.iloc[0:0]
-        row, _ = _judged(mine, sid, segment, config)
         classes = classes_of.get(segment, [])
-        per_class = []
-        if len(classes) > 1:
-            for cls in classes:
-                class_row, _ = _judged(mine[mine["property_class"] == cls], class_sid,
-                                       f"{segment}{CLASS_SEPARATOR}{cls}", config, cls)
-                per_class.append(group_from_row(class_row, values_source))
-        out[segment] = (group_from_row(row, values_source), per_class)
+        per_class = [judged(mine[mine["property_class"] == cls], class_sid, f"{segment}{CLASS_SEPARATOR}{cls}", cls)
+                     for cls in classes] if len(classes) > 1 else []
+        out[segment] = (judged(mine, sid, segment), per_class)
     return out
 
 
