@@ -28,8 +28,9 @@ PEAK_TARGET_MB = 2048
 TARGET_S = {"import": 20.0, "approve --all-passing": 5.0, "app overview": 1.0, "app drill-in": 2.0}
 CHAIN_TARGET_S = 240.0
 
-# The app's overview and one drill-in (its busiest segment), timed inside the child after imports, as the app
-# calls them (reval.service.views).
+# The app's overview and a drill-in (its busiest segment), timed inside the child as the app calls them
+# (reval.service.views): the first drill-in of a session loads pandas and SciPy (the app starts without them),
+# the next one does not, so both are reported.
 VIEWS = """
 import json, sys, time
 from pathlib import Path
@@ -39,9 +40,10 @@ start = time.perf_counter(); rows = overview(folder)["segments"]; took = time.pe
 if sys.argv[2] == "overview":
     print(json.dumps({"seconds": took, "rows": len(rows)}))
 else:
-    busiest = max(rows, key=lambda r: r["sales"])["segment"]
-    start = time.perf_counter(); segment_detail(folder, busiest); took = time.perf_counter() - start
-    print(json.dumps({"seconds": took, "segment": busiest}))
+    first, second = [r["segment"] for r in sorted(rows, key=lambda r: -r["sales"])[:2]]
+    start = time.perf_counter(); segment_detail(folder, first); took = time.perf_counter() - start
+    start = time.perf_counter(); segment_detail(folder, second); warm = time.perf_counter() - start
+    print(json.dumps({"seconds": took, "next_seconds": warm, "segment": first}))
 """
 
 
@@ -107,7 +109,10 @@ def measure(n_parcels: int, jobs: int, keep: Path | None, stop_after: str | None
             seconds, peak_mb, stdout = run_step(argv, Path(__file__).resolve().parents[1])
             row: dict[str, object] = {"step": name, "seconds": round(seconds, 2), "peak_mb": round(peak_mb)}
             if name.startswith("app "):
-                row["in_view_seconds"] = round(json.loads(stdout)["seconds"], 3)
+                timed = json.loads(stdout)
+                row["in_view_seconds"] = round(timed["seconds"], 3)
+                if "next_seconds" in timed:
+                    row["next_drill_in_seconds"] = round(timed["next_seconds"], 3)
             rows.append(row)
             print(f"  {name}: {row['seconds']} s, {row['peak_mb']} MB", flush=True)
             if name == stop_after:
@@ -130,6 +135,8 @@ def verdicts(result: dict[str, object]) -> dict[str, object]:
         if step in rows:
             seconds = rows[step].get("in_view_seconds", rows[step]["seconds"])
             out[f"{step} met"] = float(seconds) <= limit
+    if "app drill-in" in rows:
+        out["next drill-in met"] = float(rows["app drill-in"]["next_drill_in_seconds"]) <= TARGET_S["app drill-in"]
     return out
 
 
@@ -146,9 +153,10 @@ def main() -> None:
     RESULTS.mkdir(exist_ok=True)
     path = RESULTS / f"scale_{args.parcels}.json"
     path.write_text(json.dumps(result, indent=2) + "\n")
-    print(f"\n{'step':<24}{'wall s':>10}{'peak MB':>10}{'in view s':>11}")
+    print(f"\n{'step':<24}{'wall s':>10}{'peak MB':>10}{'in view s':>11}{'next s':>9}")
     for r in result["steps"]:  # type: ignore[attr-defined]
-        print(f"{r['step']:<24}{r['seconds']:>10.2f}{r['peak_mb']:>10}{r.get('in_view_seconds', ''):>11}")
+        print(f"{r['step']:<24}{r['seconds']:>10.2f}{r['peak_mb']:>10}{r.get('in_view_seconds', ''):>11}"
+              f"{r.get('next_drill_in_seconds', ''):>9}")
     print(f"\nchain (CSV to exported roll): {result['targets']['chain_seconds']} s; targets: "  # type: ignore[index]
           f"{json.dumps(result['targets'])}\nwrote {path}")
 
