@@ -220,3 +220,14 @@ class Manifest(TypedDict):
 class ExportResult(Manifest):
     path: str
     manifest: str
+
+
+class ReportResult(TypedDict):
+    """Where the ratio-study report was written and what it holds (reval/report/study_report.py)."""
+
+    path: str
+    values: str
+    run_id: str | None
+    figures: int
+    studied: list[str]          # groupings studied (and stored) for the report because none was stored
+    seconds: float

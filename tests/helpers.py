@@ -357,3 +357,28 @@ async def type_text(pilot: Pilot[Any], text: str) -> None:
 
 def table_rows(table: DataTable[Any]) -> list[list[str]]:
     return [[str(c) for c in table.get_row_at(i)] for i in range(table.row_count)]
+
+
+def pdf_text(path: Path) -> str:
+    """The text of a PDF written by matplotlib (Type 42 fonts: strings of UTF-16BE codes in TJ arrays), read with
+    the standard library only, so a test proves the text is in the file and not only drawn."""
+    import re
+    import zlib
+
+    data = path.read_bytes()
+    out = []
+    for match in re.finditer(rb"stream\r?\n(.*?)\r?\nendstream", data, re.S):
+        try:
+            content = zlib.decompress(match.group(1))
+        except zlib.error:
+            continue
+        for array in re.finditer(rb"\[(.*?)\]\s*TJ", content, re.S):
+            pieces = re.findall(rb"\(((?:\\.|[^\\)])*)\)", array.group(1), re.S)
+            raw = b"".join(re.sub(rb"\\(.)", rb"\1", p, flags=re.S) for p in pieces)
+            out.append(raw.decode("utf-16-be", errors="replace"))
+    return "\n".join(out)
+
+
+def pdf_image_count(path: Path) -> int:
+    """How many raster images a PDF holds (each report figure is one)."""
+    return path.read_bytes().count(b"/Subtype /Image")

@@ -25,8 +25,8 @@ from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
-from .outcomes import (DECISIONS, Describe, describe_decision, describe_export, describe_fit, describe_values,
-                       staging_lines)
+from .outcomes import (DECISIONS, REPORT_NAME, Describe, describe_decision, describe_export, describe_fit,
+                       describe_report, describe_values, staging_lines)
 
 
 def error_text(error: BaseException) -> str:
@@ -231,6 +231,11 @@ class RevalApp(App[None]):
 
         title = "Re-stage, setting decisions aside" if plan["set_aside"] else "Stage values for review"
         self.push_screen(ConfirmScreen(title, staging_lines(plan), extra=extra), answered)
+
+    def action_write_report(self) -> None:
+        target = self.folder / REPORT_NAME
+        self.start_job("report", f"Writing the ratio-study report to {target}", actions.report, self.folder, target,
+                       None, describe=describe_report)
 
     def action_export(self) -> None:
         def chosen(answer: tuple[Path, bool] | None) -> None:

@@ -48,6 +48,9 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Cancel the fit or valuation that is running", show=False),
     KeyAction("app.theme", "ctrl+t", "app.toggle_dark", "app", "Light/dark", "Switch between light and dark theme",
               show=False),
+    KeyAction("app.report", "w", "app.write_report", "app", "Report",
+              "Write the ratio-study report (HTML) to the project folder: model values of the latest run, "
+              "prior values before any", show=False),
     # overview
     KeyAction("overview.down", "j,down", "cursor_down", "overview", "Down", "Next segment", show=False),
     KeyAction("overview.up", "k,up", "cursor_up", "overview", "Up", "Previous segment", show=False),

@@ -5,7 +5,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, StagePlan, StageResult
+from reval.service.types import Decision, ExportResult, FitSummary, ReportResult, StagePlan, StageResult
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
@@ -34,6 +34,14 @@ def describe_export(result: ExportResult) -> str:
         text += "; certified values written where a newer batch is pending: " + ", ".join(
             f"{p['segment']} (run {p['run_id']} {p['state']})" for p in result["pending_batches"])
     return text + "."
+
+
+REPORT_NAME = "ratio_study_report.html"   # where the app writes the report, in the project folder
+
+
+def describe_report(result: ReportResult) -> str:
+    return (f"Ratio-study report of {result['values']} written to {result['path']} ({result['figures']} plots); "
+            "for a PDF: reval report NAME.pdf.")
 
 
 def describe_fit(result: FitSummary) -> str:

@@ -137,7 +137,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("study", parents=[common], help="ratio study (median ratio, COD, PRD, PRB) against the standards")
     p.add_argument("--segment", help="show only this group")
     p.add_argument("--by", choices=list(GROUPINGS), default="segment",
-                   help="groups: segment, market area, property class, segment x class, or all sales")
+                   help="groups: segment, market area, property class, segment x class, all sales, value range (quintiles of "
+                        "the value proxy), age (decades of the age feature) or size (quintile bands of the size feature)")
     p.add_argument("--values", choices=["prior", "model"], default="prior",
                    help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
@@ -145,6 +146,14 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--projects", nargs="+", metavar="FOLDER", help="a combined study across these projects (each "
                    "read only; judged under the first one's standards)")
     p.set_defaults(func=cmd_study)
+
+    p = sub.add_parser("report", parents=[common], help="write the ratio-study report (HTML or PDF) for a reviewer or "
+                       "an oversight body: tables, plots, the sales used, the model and the decisions")
+    p.add_argument("out", type=Path, help="the file to write: NAME.html (one self-contained file) or NAME.pdf")
+    p.add_argument("--values", choices=["prior", "model"], default="prior",
+                   help="prior roll values, or the latest run's out-of-fold model values")
+    p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.report(_folder(a), a.out, a.values, a.run), render.report))
 
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
     p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")

@@ -150,6 +150,13 @@ def study(result: dict[str, Any], console: Console) -> None:
     console.print(CAUTION)
 
 
+def report(result: dict[str, Any], console: Console) -> None:
+    studied = f"; studied first and stored: {', '.join(result['studied'])}" if result["studied"] else ""
+    console.print(f"Report of {result['values']} written to {shown(result['path'])} ({result['figures']} plots, "
+                  f"{result['seconds']:.1f} s{studied}).")
+    console.print(CAUTION)
+
+
 def _by_name(rows: list[dict[str, Any]], *drop: str) -> list[dict[str, Any]]:
     """Rows for a human reader: the model's display name stands for its id (the JSON keeps both)."""
     return [{k: v for k, v in r.items() if k not in ("model", *drop)} for r in rows]

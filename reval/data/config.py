@@ -178,6 +178,10 @@ class StudySettings(Declared):
     confidence: float = setting(0.95, "level of the confidence intervals", lo=0.5, hi=1, lo_open=True, hi_open=True)
     bootstrap: int = setting(1000, "resamples for the COD and PRD confidence intervals", lo=100, hi=100_000)
     seed: int = setting(2026, "seed of the bootstrap, so studies are reproducible", lo=0)
+    age_feature: str = setting("year_built", "the feature whose decade groups sales by age (`--by age`); "
+                               "that grouping is skipped when no such feature is declared")
+    size_feature: str = setting("living_area", "the feature whose quintile bands group sales by size (`--by size`); "
+                                "that grouping is skipped when no such feature is declared")
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -29,9 +29,8 @@ from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models
 from reval.model.names import IMPORTANCE_MODELS, OURS, OURS_NO_INTERACTIONS, named
 from reval.data.store import Store
 from reval.plain import records
-from reval.stats.study import run_study
+from reval.stats.study import BANDED_GROUPINGS, available_groupings, run_study
 from reval.results import FitSummary
-from reval.states import GROUPINGS
 
 Progress = Callable[[str, int, int], None]
 LIBRARIES = ("numpy", "scipy", "pandas", "scikit-learn", "statsmodels", "pygam", "duckdb", "joblib")
@@ -124,9 +123,10 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         downweighted = int((weights["weight"] < 1).sum())
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
-        for source in ("model_out_of_fold", "model_in_sample"):
-            for by in GROUPINGS:
-                run_study(store, config, source, by, run_id)
+        for by in available_groupings(store, config):
+            run_study(store, config, "model_out_of_fold", by, run_id)
+            if by not in BANDED_GROUPINGS:   # in-sample banded studies on demand: each costs a study of all sales
+                run_study(store, config, "model_in_sample", by, run_id)
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings, "downweighted_sales": downweighted,

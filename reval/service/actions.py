@@ -20,7 +20,7 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
     from reval.service.types import (AllPassing, BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
-                                     ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
+                                     ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
                                      SalesCounts, StagePlan, StageResult, StudyResult)
 
 Progress = Callable[[str, int, int], None]
@@ -121,6 +121,21 @@ def combined_study(folders: list[Path], values: str = "prior", in_sample: bool =
             frames.append((name, sales_for_study(store, source, run)))
             configs.append(config)
     return study_across(frames, configs[0], source)
+
+
+def report(folder: Path, out: Path, values: str | None = "prior", run_id: str | None = None) -> ReportResult:
+    """Write the ratio-study report (HTML or PDF, by the suffix of `out`) for prior or model values (out-of-fold,
+    the latest run unless named; values None: model values if there is a run, else prior); groupings not
+    studied with those values since the sales last changed are studied and stored first."""
+    from reval.report.study_report import write_report
+    from reval.roll.valuation import resolve_run
+
+    with open_project(folder, write=True) as (config, store):
+        latest = store.rows("app_latest_run")
+        source: ValuesSource = "prior" if values == "prior" or (values is None and not latest) else "model_out_of_fold"
+        run = None if source == "prior" else resolve_run(store, run_id)
+        model_run = run or (str(latest[0][0]) if latest else None)
+        return write_report(store, config, out, source, run, model_run)
 
 
 def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None,

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (AllPassing, Decision, ExportResult, FitSummary, ImportSummary, ReviewReport, SaleDecision,
+from reval.results import (AllPassing, Decision, ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
                            SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
@@ -15,7 +15,7 @@ from reval.stats.stored import StudyGroup, StudyResult
 
 __all__ = ["AllPassing", "BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
            "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
+           "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
            "StandingDecision", "StatCell", "StudyGroup",
            "StudyResult", "ValueChange", "ValueSplit"]
 

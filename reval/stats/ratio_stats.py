@@ -219,6 +219,24 @@ def iqr_fences(ratios: np.ndarray, k: float) -> tuple[float, float]:
     return float(q1 - k * (q3 - q1)), float(q3 + k * (q3 - q1))
 
 
+def decile_bins(key: np.ndarray) -> np.ndarray:
+    """The decile (0..9) of each key: edge_j <= key < edge_{j+1}, edges the 10th..90th percentiles (numpy linear)."""
+    edges = np.percentile(key, np.arange(1, DECILES) * (100.0 / DECILES))
+    return np.searchsorted(edges, key, side="right")
+
+
+def decile_median_cis(ratios: np.ndarray, key: np.ndarray, confidence: float = 0.95) -> np.ndarray:
+    """(median, CI low, CI high) of the ratios in each decile of `key` (rows; NaN where empty): the medians are
+    decile_medians', the intervals median_ci's."""
+    out = np.full((DECILES, 3), np.nan)
+    bins = decile_bins(key)
+    for j in range(DECILES):
+        r = ratios[bins == j]
+        if r.size:
+            out[j] = (np.median(r), *median_ci(r, confidence))
+    return out
+
+
 def decile_medians(ratios: np.ndarray, prices: np.ndarray) -> np.ndarray:
     """Median ratio in each of 10 deciles of `prices` (or any positive key, e.g. the value proxy); NaN where empty.
 
@@ -233,8 +251,7 @@ def decile_medians(ratios: np.ndarray, prices: np.ndarray) -> np.ndarray:
     out = np.full(DECILES, np.nan)
     if r.size == 0:
         return out
-    edges = np.percentile(p, np.arange(1, DECILES) * (100.0 / DECILES))
-    bins = np.searchsorted(edges, p, side="right")
+    bins = decile_bins(p)
     sorted_r = r[np.lexsort((r, bins))]
     counts = np.bincount(bins, minlength=DECILES)
     starts = np.cumsum(counts) - counts

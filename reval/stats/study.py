@@ -6,21 +6,22 @@ judges segments with the same code, now, under the current standards (`segments_
 """
 from __future__ import annotations
 
-import datetime as dt
 import hashlib
 import json
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
+from reval.clock import utc_now
 from reval.data.config import Config
 from reval.errors import UserError
 from reval.stats.judging import judging_sha256
-from reval.stats.ratio_stats import RatioStudy, ratio_study
+from reval.stats.ratio_stats import RatioStudy, ratio_study, value_proxy
 from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
-from reval.states import Grouping, ValuesSource
+from reval.states import GROUPINGS, Grouping, ValuesSource
 from reval.stats.sources import SOURCE_LABELS
 from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, stored_groups, study_id
 
@@ -28,6 +29,67 @@ GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_ar
                                              "class": ("property_class",),
                                              "segment_class": ("segment", "property_class"), "all": ()}
 CLASS_SEPARATOR = " / "   # the group name of a segment x class study: "ASKR / single_family"
+BANDS = 5                 # value ranges and size bands are quintiles (common practice)
+BANDED_GROUPINGS: tuple[Grouping, ...] = ("value_range", "age", "size")   # groups made from values, not names
+UNKNOWN = "unknown"       # the age or size group of parcels without the feature's value
+
+
+def available_groupings(store: Store, config: Config) -> tuple[Grouping, ...]:
+    """Every grouping this project can be studied by: age and size need their configured feature declared."""
+    names = {r["name"] for r in store.records("feature_list")}
+    needs = {"age": config.study.age_feature, "size": config.study.size_feature}
+    return tuple(g for g in GROUPINGS if g not in needs or needs[g] in names)
+
+
+def _feature_position(store: Store, name: str, key: str) -> int:
+    for r in store.records("feature_list"):
+        if r["name"] == name:
+            return int(r["position"])
+    raise UserError(f"No feature named '{name}' is declared; set [study] {key} to a declared feature.")
+
+
+def _band_labels(edges: list[float]) -> list[str]:
+    """Names of the bands cut at `edges`, numbered so they sort in order: "1: under 1,200", "2: 1,200 to 1,600" ..."""
+    if not edges:
+        return ["1: all"]
+    cuts = [f"{e:,.0f}" for e in edges]
+    return ([f"1: under {cuts[0]}"] + [f"{i + 2}: {a} to {b}" for i, (a, b) in enumerate(zip(cuts, cuts[1:]))]
+            + [f"{len(cuts) + 1}: {cuts[-1]} and over"])
+
+
+def _nice_edges(values: np.ndarray) -> list[float]:
+    """Distinct cut points rounded to two significant digits, so band names read plainly."""
+    return sorted({float(f"{v:.2g}") for v in values if np.isfinite(v)})
+
+
+def _in_bands(x: np.ndarray, edges: list[float]) -> np.ndarray:
+    labels = np.array(_band_labels(edges) + [UNKNOWN], dtype=object)
+    index = np.searchsorted(np.asarray(edges, dtype=float), x, side="right")
+    return labels[np.where(np.isnan(x), len(labels) - 1, index)]
+
+
+def _banded(store: Store, config: Config, sales: pd.DataFrame, grouping: Grouping) -> tuple[pd.Series, list[str]]:
+    """Each sale's group and every group name of a banded grouping: value range (quintiles of the sales' IAAO
+    value proxy, with the median ratio of all the study's sales), age (decade of the age feature) or size
+    (quintile bands of the size feature over all parcels); age and size list the groups without sales."""
+    probabilities = [k / BANDS for k in range(1, BANDS)]
+    if grouping == "value_range":
+        v, p = sales["value"].to_numpy(float), sales["price"].to_numpy(float)
+        proxy = value_proxy(v, p, float(np.median(v / p))) if len(v) else v
+        edges = _nice_edges(np.quantile(proxy, probabilities)) if len(v) else []
+        return pd.Series(_in_bands(proxy, edges), index=sales.index), _band_labels(edges)
+    key = "age_feature" if grouping == "age" else "size_feature"
+    position = _feature_position(store, getattr(config.study, key), key)
+    features = store.frame("study_sale_feature", [position]).set_index("parcel_id")["value"]
+    x = sales["parcel_id"].map(features).to_numpy(float)
+    if grouping == "age":
+        decades = [d for (d,) in store.rows("study_feature_decades", [position])]
+        units = [UNKNOWN if d is None else f"{int(d)}s" for d in decades]
+        keys = np.where(np.isnan(x), UNKNOWN, np.char.add((np.floor(np.nan_to_num(x) / 10) * 10).astype(int).astype(str), "s"))
+        return pd.Series(keys, index=sales.index, dtype=object), units
+    quantiles, missing = store.rows("study_feature_quantiles", [position, probabilities])[0]
+    edges = _nice_edges(np.asarray(quantiles or [], dtype=float))
+    return pd.Series(_in_bands(x, edges), index=sales.index), _band_labels(edges) + ([UNKNOWN] if missing else [])
 
 
 def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.DataFrame:
@@ -90,8 +152,13 @@ def _downweighted(frame: pd.DataFrame, sid: str, name: str) -> pd.DataFrame:
                          "parcel_id": light["parcel_id"], "weight": light["weight"], "reason": light["weight_reason"]})
 
 
-def _groups(store: Store, sales: pd.DataFrame, grouping: Grouping) -> list[tuple[str, str | None, pd.DataFrame]]:
+def _groups(store: Store, config: Config, sales: pd.DataFrame,
+            grouping: Grouping) -> list[tuple[str, str | None, pd.DataFrame]]:
     """(name, own class or None, sales) of every group of the grouping, those without sales included."""
+    if grouping not in GROUP_COLUMNS:
+        keys, names = _banded(store, config, sales, grouping)
+        at = keys.groupby(keys).indices
+        return [(name, None, sales.iloc[at[name]] if name in at else sales.iloc[0:0]) for name in names]
     columns = list(GROUP_COLUMNS[grouping])
     if not columns:
         return [("all", None, sales)]
@@ -116,7 +183,7 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     sales = sales_for_study(store, values_source, run_id)
     sid = study_id(values_source, run_id, grouping)
     opts = config.study
-    groups = _groups(store, sales, grouping)
+    groups = _groups(store, config, sales, grouping)
     judged = [_judged(frame, sid, name, config, cls) for name, cls, frame in groups]
     groups_frame = pd.DataFrame([row for row, _ in judged])
     cut = [t for _, t in judged]
@@ -125,7 +192,7 @@ def run_study(store: Store, config: Config, values_source: ValuesSource = "prior
     downweighted_frame = pd.concat(light, ignore_index=True) if light else pd.DataFrame()
     with store.transaction():
         store.run("delete_study", [sid])
-        store.run("insert_study", [sid, dt.datetime.now(), values_source, run_id, grouping, opts.trim_iqr_k,
+        store.run("insert_study", [sid, utc_now(), values_source, run_id, grouping, opts.trim_iqr_k,
                                    opts.confidence, opts.bootstrap, opts.seed, config.sha256, judging_sha256(config),
                                    sales_sha256(sales)])
         store.insert("insert_study_groups", groups_frame)
