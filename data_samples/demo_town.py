@@ -3,8 +3,13 @@
 Every name is invented; the coordinates lie in an empty stretch of the South Pacific so that
 no real place is implied. The same seed always gives the same town, at any size.
 
-The town has 22 neighbourhoods in 4 market areas and three property classes (single_family,
-townhouse, condominium; condominiums are "apartment" style with lot_size 0). At the default
+The town has 22 neighbourhoods in 4 market areas and three property classes of built parcels
+(single_family, townhouse, condominium; condominiums are "apartment" style with lot_size 0). After them
+come, from a random stream of their own (so the built parcels, their sales and ids are those of a town
+without them), 120 vacant lots (class vacant_land: lot size, waterfront, no building; 24 of them sold)
+spread over the neighbourhoods with houses, and 6 institutional parcels (a hall, a chapel: built, never
+sold) in Gaulden Terrace; the demo's reval.toml values the first by the land schedule and leaves the
+second for a manual value. At the default
 20,000 parcels it has about 4,100 sales dated 2023-01-01 .. 2025-12-31 plus about 30 dated 2022
 (outside the 36-month window). Three neighbourhoods are thin on purpose: Torvel Hollow has no
 qualified sale (two non-arm's-length ones), Lyskeld Point 5 and Gaulden Terrace 15; the others
@@ -24,7 +29,7 @@ scored on how well it recovers it:
 
 where the quality index runs 0 (low) .. 5 (excellent) and the condition index 0 (poor) .. 4
 (very_good). `true_curve` returns each main-effect shape centred so that its mean over the
-parcels of the default demo (`generate()`, i.e. data_samples/demo/parcels.csv) is 0. The
+built parcels of the default demo (`generate()`, i.e. data_samples/demo/parcels.csv) is 0. The
 living-area shape is that of a neighbourhood with size_slope 1, and every shape holds at the
 reference point of its interaction partner, where the interaction term vanishes: quality
 "average" for living_area, 1,600 sq ft for quality, condition "average" for year_built, age 50
@@ -39,9 +44,15 @@ its correct, not its recorded, features.
 
 The prior value is an older roll: about 0.9 of market value, regressive (slope < 1 on log value
 around 350,000), with neighbourhood-specific level, slope and scatter so that some neighbourhoods
-pass a ratio study on it and some fail.
+pass a ratio study on it and some fail. It is written twice: `prior_market_value`, and
+`prior_assessed_value` = the same figure, because Vellmarsh assessed at full market value without
+caps on its prior roll (derived, so no random draw changes). `new_construction` is "yes" for a
+house built in the year before the valuation date (after the prior roll), from year_built.
 
-Land schedule (land_schedule.csv, one or two rows per neighbourhood): for a parcel with
+A vacant lot's true value is the land value the default town's land schedule gives its lot (the schedule is
+the market for land, at every size and seed); its prior value is about 0.9 of that.
+
+Land schedule (land_schedule.csv, one or two rows per neighbourhood, from the built parcels): for a parcel with
 lot_size > 0, land value = base_land_value * (lot_size / base_lot_size) ** size_exponent using the
 neighbourhood's row with base_lot_size > 0 (size_exponent 0.3-0.6). The row with base_lot_size 0
 (size_exponent 0) gives every parcel with lot_size 0 (condominium units) the flat
@@ -69,7 +80,8 @@ MIN_PARCELS = 2_000
 NOISE_SD = 0.10
 CONFIG_PATH = Path(__file__).with_name("demo") / "reval.toml"
 
-PROPERTY_CLASSES = ("single_family", "townhouse", "condominium")
+PROPERTY_CLASSES = ("single_family", "townhouse", "condominium", "vacant_land", "institutional")
+VACANT, INSTITUTIONAL = 3, 4   # codes of the classes appended after the built parcels (see `_appended`)
 QUALITY_LEVELS = ("low", "fair", "average", "good", "very_good", "excellent")
 CONDITION_LEVELS = ("poor", "fair", "average", "good", "very_good")
 STYLE_LEVELS = ("one_storey", "two_storey", "split_level", "apartment")
@@ -98,6 +110,13 @@ INDEX_DIP_WIDTH = 0.35
 # Extra sales at the default size: multi-parcel packages and 2022 sales outside the window.
 MULTI_PARCEL_SALES = 6
 EARLY_SALES = 30
+
+# Appended at the default size, from their own random stream: vacant lots (some sold) and institutional parcels.
+VACANT_LOTS = 120
+VACANT_SALES = 24
+INSTITUTIONAL_PARCELS = 6
+INSTITUTIONAL_NEIGHBOURHOOD = "GAUL"
+APPENDED_STREAM = 1                # the appended parcels' generator: default_rng([seed, APPENDED_STREAM])
 
 
 @dataclass(frozen=True)
@@ -386,33 +405,62 @@ def _log_value(
     )
 
 
+def _vacant_log_value(geo: Geography, nb: np.ndarray, lot_size: np.ndarray) -> np.ndarray:
+    """True log market value of vacant lots: the default town's land schedule (see the module docstring); a
+    generated neighbourhood takes its recipe's row, moved by its difference in log-value level from the recipe."""
+    sized = _vacant_schedule()
+    recipe = nb % len(NEIGHBOURHOODS)
+    level = geo.base[nb] - geo.base[recipe]
+    return (level + np.log(sized["base_land_value"].to_numpy(float)[recipe])
+            + sized["size_exponent"].to_numpy(float)[recipe]
+            * np.log(lot_size / sized["base_lot_size"].to_numpy(float)[recipe]))
+
+
+@lru_cache(maxsize=1)
+def _vacant_schedule() -> pd.DataFrame:
+    """The default town's land schedule rows for lots, one per neighbourhood in order (a neighbourhood without
+    houses, which gets no vacant lot, borrows the first row)."""
+    schedule = _built(DEFAULT_PARCELS, DEFAULT_SEED, NOISE_SD).land_schedule
+    sized = schedule[schedule["base_lot_size"] > 0].set_index("neighbourhood")
+    return sized.reindex(list(NEIGHBOURHOOD_IDS)).fillna(sized.iloc[0]).reset_index()
+
+
 def true_log_value(parcels: pd.DataFrame) -> np.ndarray:
-    """True log market value at the valuation date of each parcel, from its recorded features."""
+    """True log market value at the valuation date of each parcel, from its recorded features (a vacant lot's from
+    its neighbourhood and lot size)."""
     geo = _geography_of(parcels["neighbourhood"])
-    return _log_value(
+    nb = _codes(parcels["neighbourhood"], geo.ids, "neighbourhood")
+    vacant = (parcels["property_class"] == PROPERTY_CLASSES[VACANT]).to_numpy() if "property_class" in parcels \
+        else np.zeros(len(parcels), dtype=bool)
+    built = parcels[~vacant]
+    out = np.empty(len(parcels))
+    out[~vacant] = _log_value(
         geo,
-        _codes(parcels["neighbourhood"], geo.ids, "neighbourhood"),
-        parcels["living_area"].to_numpy(dtype=float),
-        parcels["lot_size"].to_numpy(dtype=float),
-        parcels["year_built"].to_numpy(dtype=float),
-        _codes(parcels["quality"], QUALITY_LEVELS, "quality"),
-        _codes(parcels["condition"], CONDITION_LEVELS, "condition"),
-        parcels["bathrooms"].to_numpy(dtype=float),
-        parcels["garage_spaces"].to_numpy(dtype=float),
-        _codes(parcels["style"], STYLE_LEVELS, "style"),
-        parcels["waterfront"].to_numpy(dtype=float),
+        nb[~vacant],
+        built["living_area"].to_numpy(dtype=float),
+        built["lot_size"].to_numpy(dtype=float),
+        built["year_built"].to_numpy(dtype=float),
+        _codes(built["quality"], QUALITY_LEVELS, "quality"),
+        _codes(built["condition"], CONDITION_LEVELS, "condition"),
+        built["bathrooms"].to_numpy(dtype=float),
+        built["garage_spaces"].to_numpy(dtype=float),
+        _codes(built["style"], STYLE_LEVELS, "style"),
+        built["waterfront"].to_numpy(dtype=float),
     )
+    out[vacant] = _vacant_log_value(geo, nb[vacant], parcels["lot_size"].to_numpy(dtype=float)[vacant])
+    return out
 
 
 @lru_cache(maxsize=1)
 def _curve_offsets() -> dict[str, float]:
-    """Mean of each raw main effect over the default demo's parcels (generated once)."""
+    """Mean of each raw main effect over the default demo's built parcels (generated once)."""
     parcels = generate().parcels
+    parcels = parcels[parcels["property_class"] != PROPERTY_CLASSES[VACANT]]
     return {f: float(np.mean(curve(parcels[f]))) for f, curve in _MAIN_EFFECTS.items()}
 
 
 def true_curve(feature: str, x: np.ndarray) -> np.ndarray:
-    """Main-effect shape of a feature in log-value units, mean 0 over the default demo's parcels.
+    """Main-effect shape of a feature in log-value units, mean 0 over the default demo's built parcels.
 
     `x` holds feature values (labels for quality, condition and style; 0/1 for waterfront).
     """
@@ -509,6 +557,9 @@ def _features(rng: np.random.Generator, nb: np.ndarray, geo: Geography) -> dict[
         "style": style,
         "waterfront": waterfront,
     }
+
+
+PRIOR_LEVEL = 1  # the prior roll's assessment level (full value, no caps): prior assessed = prior market value
 
 
 def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray, geo: Geography) -> np.ndarray:
@@ -700,13 +751,99 @@ def _land_schedule(
     return schedule.sort_values(["neighbourhood", "base_lot_size"], ignore_index=True)
 
 
+# ---- appended parcels: vacant lots and institutional parcels ------------------------------
+
+
+def _appended(seed: int, scale: float, last_id: int, last_sale: int,
+              geo: Geography) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Vacant lots (a few sold) and institutional parcels, drawn from their own stream so the built parcels stay
+    as they are; ids continue after `last_id`, sale numbers after `last_sale`. Returns parcels and sales."""
+    rng = np.random.default_rng([seed, APPENDED_STREAM])
+    with_lots = np.array([n.class_mix[0] > 0 for n in geo.neighbourhoods])
+    weights = np.where(with_lots, geo.column("parcels"), 0.0)
+    n_vacant = max(1, int(round(VACANT_LOTS * scale)))
+    vacant_nb = np.sort(rng.choice(len(geo.neighbourhoods), n_vacant, p=weights / weights.sum()))
+    lot = np.rint(np.clip(geo.column("lot_median")[vacant_nb] * np.exp(0.45 * rng.standard_normal(n_vacant)),
+                          1500, 200_000) / 10.0) * 10.0
+    waterfront = (rng.random(n_vacant) < geo.column("waterfront")[vacant_nb]).astype(np.int64)
+    n_inst = max(1, int(round(INSTITUTIONAL_PARCELS * scale)))
+    inst_nb = np.full(n_inst, geo.ids.index(INSTITUTIONAL_NEIGHBOURHOOD))
+    inst = _features(rng, inst_nb, geo)
+    nb = np.concatenate([vacant_nb, inst_nb])
+    n = nb.size
+    ids = last_id + np.cumsum(rng.integers(1, 9, n))
+    width = max(7, len(str(ids[-1])))
+    vacant_value = _vacant_log_value(geo, vacant_nb, lot)
+    inst_value = _log_value(geo, inst_nb, *(inst[c] for c in ("living_area", "lot_size", "year_built", "quality",
+                                                              "condition", "bathrooms", "garage_spaces", "style",
+                                                              "waterfront")))
+    centre = geo.rows("centre")[vacant_nb]
+    location = np.round(centre + 0.006 * rng.standard_normal((n_vacant, 2)), 6)
+    log_prior = np.log(0.9) + np.concatenate([vacant_value, inst_value]) + 0.08 * rng.standard_normal(n)
+    blank = np.full(n_vacant, np.nan)
+    prior = (np.rint(np.exp(log_prior) / 100.0) * 100.0).astype(np.int64)
+
+    def both(vacant: np.ndarray, built: np.ndarray) -> np.ndarray:
+        return np.concatenate([vacant, built])
+
+    parcels = pd.DataFrame({
+        "parcel_id": np.char.zfill(ids.astype(f"U{width}"), width),
+        "neighbourhood": pd.Categorical.from_codes(nb, geo.ids),
+        "market_area": pd.Categorical.from_codes(geo.market_area_of[nb], geo.market_areas),
+        "property_class": pd.Categorical.from_codes(np.r_[np.full(n_vacant, VACANT), np.full(n_inst, INSTITUTIONAL)],
+                                                    PROPERTY_CLASSES),
+        "prior_market_value": prior,
+        "prior_assessed_value": prior * PRIOR_LEVEL,
+        "new_construction": np.where(both(np.zeros(n_vacant), inst["year_built"]) >= VALUATION_YEAR - 1, "yes", "no"),
+        "latitude": both(location[:, 0], inst["latitude"]),
+        "longitude": both(location[:, 1], inst["longitude"]),
+        "living_area": pd.array(both(blank, inst["living_area"]), dtype="Int64"),
+        "lot_size": both(lot, inst["lot_size"]).astype(np.int64),
+        "year_built": pd.array(both(blank, inst["year_built"]), dtype="Int64"),
+        "quality": pd.Categorical.from_codes(both(np.full(n_vacant, -1), inst["quality"]), QUALITY_LEVELS,
+                                             ordered=True),
+        "condition": pd.Categorical.from_codes(both(np.full(n_vacant, -1), inst["condition"]), CONDITION_LEVELS,
+                                               ordered=True),
+        "bathrooms": both(np.zeros(n_vacant), inst["bathrooms"]),
+        "garage_spaces": both(np.zeros(n_vacant, dtype=np.int64), inst["garage_spaces"]),
+        "style": pd.Categorical.from_codes(both(np.full(n_vacant, -1), inst["style"]), STYLE_LEVELS),
+        "waterfront": both(waterfront, inst["waterfront"]),
+    })
+    n_sold = min(n_vacant, max(1, int(round(VACANT_SALES * scale))))
+    sold = np.sort(rng.choice(n_vacant, n_sold, replace=False))
+    window_days = int((VALUATION_DATE - WINDOW_START).astype(np.int64))
+    date = WINDOW_START + rng.integers(0, window_days, n_sold)
+    price = np.exp(vacant_value[sold] + true_log_index(date) + NOISE_SD * rng.standard_normal(n_sold))
+    order = np.argsort(date, kind="stable")
+    sales = pd.DataFrame({
+        "sale_id": np.char.add("S", np.char.zfill((last_sale + 1 + np.arange(n_sold)).astype("U7"), 7)),
+        "parcel_id": parcels["parcel_id"].to_numpy()[sold[order]],
+        "sale_date": date[order].astype("datetime64[s]"),
+        "sale_price": (np.rint(price[order] / 100.0) * 100.0).astype(np.int64),
+        "validity": pd.Categorical.from_codes(np.zeros(n_sold, dtype=np.intp), VALIDITY_CODES),
+    })
+    return parcels, sales
+
+
 # ---- public API ----------------------------------------------------------------------------
 
 
 def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_sd: float = NOISE_SD) -> DemoTown:
-    """Generate Vellmarsh with `n_parcels` parcels; the same arguments give the same town."""
+    """Generate Vellmarsh with `n_parcels` built parcels, then its vacant lots and institutional parcels; the same
+    arguments give the same town."""
     if n_parcels < MIN_PARCELS:
         raise ValueError(f"n_parcels must be at least {MIN_PARCELS}")
+    town = _built(n_parcels, seed, noise_sd)
+    last_sale = int(town.sales["sale_id"].str[1:].astype(int).max())
+    extra_parcels, extra_sales = _appended(seed, n_parcels / DEFAULT_PARCELS, int(town.parcels["parcel_id"].iloc[-1]),
+                                           last_sale, geography(neighbourhood_count(n_parcels)))
+    return DemoTown(parcels=pd.concat([town.parcels, extra_parcels], ignore_index=True),
+                    sales=pd.concat([town.sales, extra_sales], ignore_index=True),
+                    land_schedule=town.land_schedule, planted_errors=town.planted_errors)
+
+
+def _built(n_parcels: int, seed: int, noise_sd: float) -> DemoTown:
+    """The built parcels (houses, townhouses, condominiums), their sales and land schedule."""
     rng = np.random.default_rng(seed)
     geo = geography(neighbourhood_count(n_parcels))
     counts = _allocate(geo.column("parcels"), n_parcels)
@@ -729,7 +866,9 @@ def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_s
             "neighbourhood": pd.Categorical.from_codes(nb, geo.ids),
             "market_area": pd.Categorical.from_codes(geo.market_area_of[nb], geo.market_areas),
             "property_class": pd.Categorical.from_codes(f["property_class"], PROPERTY_CLASSES),
-            "prior_value": prior,
+            "prior_market_value": prior,
+            "prior_assessed_value": prior * PRIOR_LEVEL,
+            "new_construction": np.where(f["year_built"] >= VALUATION_YEAR - 1, "yes", "no"),
             "latitude": f["latitude"],
             "longitude": f["longitude"],
             "living_area": f["living_area"].astype(np.int64),

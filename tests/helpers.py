@@ -35,6 +35,8 @@ from textual.widgets import DataTable
 from textual.worker import WorkerFailed
 
 from data_samples.demo_town import true_log_value
+from reval.data.fingerprint import record_fingerprints
+from reval.data.store import Store
 from reval.service import actions
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -57,7 +59,7 @@ parcel_id = "pid"
 segment = "nbhd"
 market_area = "area"
 property_class = "class"
-prior_value = "prior"
+prior_market_value = "prior"
 sale_id = "sale_id"
 sale_date = "date"
 sale_price = "price"
@@ -223,7 +225,8 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
     try:
         stored = con.execute("SELECT parcel_id, segment, prior_value FROM parcels").df()
         sales = con.execute("SELECT sale_id, parcel_id, adjusted_price FROM adjusted_sales").df()
-        frame = stored.merge(parcels.drop(columns=["prior_value"]), on="parcel_id", validate="one_to_one")
+        own = parcels.drop(columns=["prior_market_value", "prior_assessed_value", "new_construction"])
+        frame = stored.merge(own, on="parcel_id", validate="one_to_one")
         log_value = true_log_value(frame) + rng.normal(0.0, noise_sd, len(frame))
         for segment, factor in (scale or {}).items():
             log_value[(frame["segment"] == segment).to_numpy()] += np.log(factor)
@@ -247,12 +250,36 @@ def insert_run(folder: Path, run_id: str, seed: int, *, noise_sd: float = 0.05, 
                      json.dumps({"numpy": np.__version__, "source": "tests/run_fixture.py"})])
         con.register("estimates_frame", estimates)
         con.register("predictions_frame", predictions)
-        con.execute("INSERT INTO parcel_estimates SELECT * FROM estimates_frame")
+        con.execute("INSERT INTO parcel_estimates BY NAME SELECT * FROM estimates_frame")
         con.execute("INSERT INTO sale_predictions SELECT * FROM predictions_frame")
         con.commit()
     finally:
         con.close()
+    _fingerprint(folder, run_id)
     return run_id
+
+
+def insert_estimates(folder: Path, run_id: str, values: dict[str, float]) -> str:
+    """A fixture run valuing each listed parcel at the given market value (hand-worked examples)."""
+    con = duckdb.connect(str(folder / "reval.duckdb"))
+    try:
+        frame = pd.DataFrame({"parcel_id": list(values), "value": list(values.values())})
+        con.register("values_frame", frame)
+        con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', 0, 5, '{}', '{}', '{}')",
+                    [run_id, _created(0)])
+        con.execute("""INSERT INTO parcel_estimates (run_id, parcel_id, segment, log_value, market_value)
+                       SELECT ?, p.parcel_id, p.segment, ln(v.value), v.value
+                       FROM parcels p JOIN values_frame v USING (parcel_id)""", [run_id])
+    finally:
+        con.close()
+    _fingerprint(folder, run_id)
+    return run_id
+
+
+def _fingerprint(folder: Path, run_id: str) -> None:
+    """Record the data a fixture run stands for, as a real run does (reval.data.fingerprint)."""
+    with Store(folder / "reval.duckdb") as store, store.transaction():
+        record_fingerprints(store, run_id)
 
 
 def set_section(folder: Path, section: str, lines: str) -> None:
@@ -282,7 +309,7 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
         con.begin()
         con.execute("INSERT INTO runs VALUES (?, ?, 'fixture', 'fixture', 0, 5, '{}', '{}', '{}')",
                     [run_id, _created(order)])
-        con.execute("""INSERT INTO parcel_estimates
+        con.execute("""INSERT INTO parcel_estimates (run_id, parcel_id, segment, log_value, market_value)
                        SELECT ?, parcel_id, segment, ln(coalesce(prior_value, ?) * ?), coalesce(prior_value, ?) * ?
                        FROM parcels""", [run_id, missing_prior, factor, missing_prior, factor])
         con.execute("""INSERT INTO sale_predictions
@@ -291,14 +318,22 @@ def insert_prior_run(folder: Path, run_id: str, factor: float, *, order: int = 0
         con.commit()
     finally:
         con.close()
+    _fingerprint(folder, run_id)
     return run_id
 
 
-def roll_project(demo_project: Path, target: Path, assessment: str | None = "", **run: object) -> Path:
+ALL_VALUED = 'land_schedule = ["vacant_land"]\n'   # [classes] that leave no parcel without a value
+
+
+def roll_project(demo_project: Path, target: Path, assessment: str | None = "", classes: str = ALL_VALUED,
+                 **run: object) -> Path:
     """A copy of the demo project with one fixture run 'run-a' (seed 1). The [assessment] section uses the
-    demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults)."""
+    demo's land schedule plus the `assessment` lines; with None it is empty (no schedule, defaults). [classes]
+    values vacant lots by the schedule (when there is one) and the rest by the model, so every segment can be
+    approved; give the demo's own lines to leave its institutional parcels without a value."""
     shutil.copytree(demo_project, target)
     set_assessment(target, "" if assessment is None else f'land_schedule = "land_schedule.csv"\n{assessment}')
+    set_section(target, "classes", classes if assessment is not None else "")
     insert_run(target, "run-a", 1, **run)  # type: ignore[arg-type]
     return target
 
@@ -382,3 +417,144 @@ def pdf_text(path: Path) -> str:
 def pdf_image_count(path: Path) -> int:
     """How many raster images a PDF holds (each report figure is one)."""
     return path.read_bytes().count(b"/Subtype /Image")
+# ---- a project with a planted case of every `reval check` code ---------------------------------------------------
+
+# A small project with one planted case of every `reval check` code (and clean parcels that must raise none).
+#
+# Segment north holds ten ordinary sold houses (N01-N10: 1,200-2,100 sq ft, 1-3 bathrooms, built 1950-2004,
+# about 150 per sq ft, prior values near 90 % of the price) and one planted parcel per check; segment south
+# has two ordinary sold houses (S01, S02) and parcels without sales. Valuation date 2025-01-01, a 24-month sale
+# window (2023-01-01 to 2025-01-01). The planted cases (parcel: what the check must say):
+#
+#     P11 living_area blank                         -> missing
+#     P12 living_area 5,000 (north sold: <= 2,100)  -> beyond_sold
+#     P13 300 sq ft with 4 bathrooms                -> area_per_bathroom (and beyond_sold: below the sold minimum)
+#     P14 1,500 sq ft with 0 bathrooms              -> no_bathroom
+#     P15 built 2026, after the valuation date      -> built_after_valuation
+#     P16 sold 2023-05-01, built 2024               -> built_after_sale (sale T16)
+#     P17 sold for 2,000,000 with 1,500 sq ft       -> price_per_area (sale T17; also price_vs_prior)
+#     P18 sold for 300,000, prior value 50,000      -> price_vs_prior (sale T18)
+#     P19 two sales on 2024-02-01 (T19a, T19b)      -> duplicate_sale (both listed)
+#     P20 sold 2023-06-01 (T20a) and 2024-06-01 (T20b) -> repeat_sale (both listed)
+#     P21 quality "good" (north sold: low, average) -> beyond_sold (quality)
+#     P22 waterfront yes (no north sale is)         -> beyond_sold (waterfront)
+#     P23 living_area 210: inside the imported range [200, 8000], outside a range tightened to [250, 8000]
+#                                                   -> beyond_range once the config says so (and beyond_sold)
+
+CHECK_CONFIG = """\
+[jurisdiction]
+name = "Check township"
+valuation_date = 2025-01-01
+sale_window_months = 24
+
+[files]
+parcels = "parcels.csv"
+sales = "sales.csv"
+
+[columns]
+parcel_id = "pid"
+segment = "nbhd"
+market_area = "area"
+property_class = "class"
+prior_value = "prior"
+sale_id = "sale_id"
+sale_date = "date"
+sale_price = "price"
+sale_validity = "code"
+
+[[features]]
+name = "living_area"
+column = "sqft"
+type = "continuous"
+log = true
+range = [200, 8000]
+
+[[features]]
+name = "bathrooms"
+type = "continuous"
+range = [0, 10]
+
+[[features]]
+name = "year_built"
+type = "continuous"
+range = [1800, 2030]
+
+[[features]]
+name = "quality"
+type = "ordinal"
+levels = ["low", "average", "good"]
+
+[[features]]
+name = "waterfront"
+type = "binary"
+
+[sales]
+validity_codes_kept = ["valid"]
+"""
+
+# pid, nbhd, sqft, bathrooms, year_built, quality, waterfront, prior
+_PARCELS = [
+    ("N01", "north", 1200, 1, 1950, "low", "no", 170000),
+    ("N02", "north", 1300, 1, 1955, "average", "no", 175000),
+    ("N03", "north", 1400, 2, 1960, "low", "no", 190000),
+    ("N04", "north", 1500, 2, 1965, "average", "no", 205000),
+    ("N05", "north", 1600, 2, 1970, "average", "no", 215000),
+    ("N06", "north", 1700, 2, 1980, "low", "no", 230000),
+    ("N07", "north", 1800, 2, 1990, "average", "no", 240000),
+    ("N08", "north", 1900, 3, 1995, "average", "no", 255000),
+    ("N09", "north", 2000, 3, 2000, "low", "no", 270000),
+    ("N10", "north", 2100, 3, 2004, "average", "no", 285000),
+    ("P11", "north", None, 2, 1975, "average", "no", 200000),
+    ("P12", "north", 5000, 3, 1985, "average", "no", 600000),
+    ("P13", "north", 300, 4, 1985, "average", "no", 90000),
+    ("P14", "north", 1500, 0, 1985, "average", "no", 200000),
+    ("P15", "north", 1500, 2, 2026, "average", "no", 200000),
+    ("P16", "north", 1500, 2, 2024, "average", "no", 200000),
+    ("P17", "north", 1500, 2, 1985, "average", "no", 200000),
+    ("P18", "north", 2000, 2, 1985, "average", "no", 50000),
+    ("P19", "north", 1500, 2, 1985, "average", "no", 200000),
+    ("P20", "north", 1500, 2, 1985, "average", "no", 200000),
+    ("P21", "north", 1500, 2, 1985, "good", "no", 200000),
+    ("P22", "north", 1500, 2, 1985, "average", "yes", 200000),
+    ("P23", "north", 210, 1, 1985, "average", "no", 60000),
+    ("S01", "south", 1400, 2, 1970, "average", "no", 190000),
+    ("S02", "south", 1600, 2, 1975, "average", "no", 215000),
+    ("S03", "south", 1500, 2, 1972, "average", "no", 200000),
+]
+
+# sale_id, pid, date, price
+_SALES = [
+    ("T01", "N01", "2023-02-01", 180000), ("T02", "N02", "2023-04-01", 195000),
+    ("T03", "N03", "2023-06-01", 210000), ("T04", "N04", "2023-08-01", 225000),
+    ("T05", "N05", "2023-10-01", 240000), ("T06", "N06", "2024-01-15", 255000),
+    ("T07", "N07", "2024-03-01", 270000), ("T08", "N08", "2024-05-01", 285000),
+    ("T09", "N09", "2024-07-01", 300000), ("T10", "N10", "2024-09-01", 315000),
+    ("T16", "P16", "2023-05-01", 225000),
+    ("T17", "P17", "2024-04-01", 2000000),
+    ("T18", "P18", "2024-02-01", 300000),
+    ("T19a", "P19", "2024-02-01", 225000), ("T19b", "P19", "2024-02-01", 225000),
+    ("T20a", "P20", "2023-06-01", 215000), ("T20b", "P20", "2024-06-01", 230000),
+    ("U01", "S01", "2023-09-01", 210000), ("U02", "S02", "2024-08-01", 240000),
+]
+
+PLANTED = {("P11", "missing", "living_area"), ("P12", "beyond_sold", "living_area"),
+           ("P13", "area_per_bathroom", "bathrooms"), ("P13", "beyond_sold", "living_area"),
+           ("P14", "no_bathroom", "bathrooms"), ("P15", "built_after_valuation", "year_built"),
+           ("P16", "built_after_sale", "year_built"), ("P17", "price_per_area", "living_area"),
+           ("P17", "price_vs_prior", None), ("P18", "price_vs_prior", None),
+           ("P19", "duplicate_sale", None), ("P20", "repeat_sale", None),
+           ("P21", "beyond_sold", "quality"), ("P22", "beyond_sold", "waterfront"),
+           ("P23", "beyond_sold", "living_area")}
+CLEAN = {p[0] for p in _PARCELS if p[0][0] in "NS"}
+
+
+def _cell(v: object) -> str:
+    return "" if v is None else str(v)
+
+
+def write_check_project(folder: Path) -> Path:
+    parcels = "pid,nbhd,area,class,prior,sqft,bathrooms,year_built,quality,waterfront\n" + "".join(
+        f"{pid},{nbhd},A,single_family,{prior},{_cell(sqft)},{baths},{year},{quality},{water}\n"
+        for pid, nbhd, sqft, baths, year, quality, water, prior in _PARCELS)
+    sales = "sale_id,pid,date,price,code\n" + "".join(f"{s},{p},{d},{price},valid\n" for s, p, d, price in _SALES)
+    return write_project(folder, CHECK_CONFIG, parcels, sales)

@@ -97,7 +97,7 @@ BOUNDS = [
     ("[[assessment.caps]]\nmax_increase = nan", "assessment.caps[0].max_increase", "finite"),
     ('[[assessment.caps]]\nproperty_classes = "x"\nmax_increase = 0.1', "assessment.caps[0].property_classes",
      "expected a list of text"),
-    ("[[assessment.caps]]\nproperty_classes = []", "assessment.caps[0].max_increase", "missing"),
+    ("[[assessment.caps]]\nproperty_classes = []", "assessment.caps[0].max_increase", "a cap needs max_increase"),
     ("[[assessment.caps]]\nmax_increase = 0.1\nlimit = 2", "assessment.caps[0].limit", "unknown key"),
     ("[study]\nconfidence = 1", "study.confidence", "greater than 0.5 and less than 1"),
     ("[study]\nseed = -1", "study.seed", "at least 0"),
@@ -259,7 +259,8 @@ def test_every_key_is_in_the_starter_and_each_example_is_valid(tmp_path: Path) -
     (folder / "reval.toml").write_text(uncommented, encoding="utf-8")
     config = load_config(folder)
     assert config.date_format == "%d/%m/%Y" and config.study.trim_iqr_k == 3.0
-    assert config.assessment.caps == ({"property_classes": ["single_family"], "max_increase": 0.1},)
+    assert config.assessment.caps == ({"property_classes": ["single_family"], "max_increase": 0.1, "max_decrease": 0.1,
+                                       "exclude_new_construction": True, "reset_on_sale": True},)
     assert config.columns["latitude"] == "latitude"
 
 

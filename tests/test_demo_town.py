@@ -43,7 +43,8 @@ def sold(town: demo_town.DemoTown) -> pd.DataFrame:
     frame["in_window"] = (frame["sale_date"] >= WINDOW_START) & (frame["sale_date"] < VALUATION)
     frame["multi"] = frame["sale_id"].duplicated(keep=False)
     frame["planted"] = frame["sale_id"].isin(town.planted_errors["sale_id"])
-    frame["qualified"] = (frame["validity"] == "valid") & frame["in_window"] & ~frame["multi"]
+    modelled = ~frame["property_class"].isin(CONFIG["classes"]["land_schedule"] + CONFIG["classes"]["not_valued"])
+    frame["qualified"] = (frame["validity"] == "valid") & frame["in_window"] & ~frame["multi"] & modelled
     frame["adjusted_price"] = frame["sale_price"] * np.exp(-true_log_index(frame["sale_date"]))
     return frame
 
@@ -58,12 +59,18 @@ def test_same_seed_gives_same_town_and_other_seed_differs() -> None:
 
 def test_town_has_the_briefed_structure(town: demo_town.DemoTown, sold: pd.DataFrame) -> None:
     parcels = town.parcels
-    assert len(parcels) == 20_000
-    assert parcels["parcel_id"].is_unique
+    built = parcels["property_class"].isin(["single_family", "townhouse", "condominium"])
+    assert built.sum() == 20_000 and built[:20_000].all()          # the appended parcels come after the built ones
+    assert parcels["parcel_id"].is_unique and parcels["parcel_id"].is_monotonic_increasing
     assert parcels["neighbourhood"].nunique() == 22
     assert parcels["market_area"].nunique() == 4
     assert parcels.groupby("neighbourhood", observed=True)["market_area"].nunique().eq(1).all()
-    assert set(parcels["property_class"]) == {"single_family", "townhouse", "condominium"}
+    assert parcels["property_class"].value_counts()[["vacant_land", "institutional"]].tolist() == [120, 6]
+    lots = parcels[parcels["property_class"] == "vacant_land"]
+    assert lots[["living_area", "year_built", "quality", "condition", "style"]].isna().all().all()
+    assert (lots["lot_size"] > 0).all() and (lots["neighbourhood"] != "TAML").all()   # no lots in the flats' yard
+    assert set(parcels.loc[parcels["property_class"] == "institutional", "neighbourhood"]) == {"GAUL"}
+    assert sold["property_class"].eq("vacant_land").sum() == 24
     condos = parcels[parcels["property_class"] == "condominium"]
     assert (condos["style"] == "apartment").all() and (condos["lot_size"] == 0).all()
     assert (condos["garage_spaces"] == 0).mean() > 0.8
@@ -139,6 +146,8 @@ def test_values_respect_the_declared_columns_ranges_and_levels(town: demo_town.D
         assert column in parcels.columns or column in sales.columns, column
     for name, feature in FEATURES.items():
         values = parcels[name]
+        assert (values.isna() <= (parcels["property_class"] == "vacant_land")).all(), name   # only lots lack features
+        values = values.dropna()
         if feature["type"] == "continuous":
             low, high = feature["range"]
             assert values.between(low, high).all(), name
@@ -189,7 +198,7 @@ def test_valid_prices_follow_the_documented_model(noise_sd: float) -> None:
 
 def test_prior_roll_is_low_regressive_and_mixed_across_neighbourhoods(sold: pd.DataFrame) -> None:
     sales = sold[sold["qualified"] & ~sold["planted"]]
-    ratio = sales["prior_value"] / sales["adjusted_price"]
+    ratio = sales["prior_market_value"] / sales["adjusted_price"]
     assert 0.85 <= ratio.median() <= 0.95
     # Regressive: ratios fall as price rises (Spearman rank correlation, scipy.stats.spearmanr).
     assert stats.spearmanr(ratio, sales["adjusted_price"]).statistic < -0.1
@@ -237,8 +246,20 @@ def test_curves_have_the_documented_shapes() -> None:
 
 
 def test_curves_are_centred_on_the_demo_parcels(town: demo_town.DemoTown) -> None:
+    built = town.parcels[town.parcels["property_class"] != "vacant_land"]
     for name in FEATURES:
-        assert abs(np.mean(true_curve(name, town.parcels[name]))) < 1e-9, name
+        assert abs(np.mean(true_curve(name, built[name]))) < 1e-9, name
+
+
+def test_vacant_lots_are_worth_what_the_land_schedule_gives_them(town: demo_town.DemoTown) -> None:
+    # The module docstring: a vacant lot's true value is its land value by the default town's schedule (lot rows:
+    # base_land_value x (lot / base_lot_size) ^ size_exponent); its prior value about 0.9 of that.
+    lots = town.parcels[town.parcels["property_class"] == "vacant_land"]
+    rows = town.land_schedule.set_index("neighbourhood").query("base_lot_size > 0").loc[lots["neighbourhood"]]
+    land = rows["base_land_value"].to_numpy() * (lots["lot_size"].to_numpy() / rows["base_lot_size"].to_numpy()
+                                                 ) ** rows["size_exponent"].to_numpy()
+    np.testing.assert_allclose(np.exp(true_log_value(lots)), land, rtol=1e-12)
+    assert 0.85 <= np.median(lots["prior_market_value"] / land) <= 0.95
 
 
 def _vary(row: pd.DataFrame, **columns: list[object]) -> pd.DataFrame:
@@ -314,7 +335,7 @@ def test_land_schedule_covers_every_neighbourhood(town: demo_town.DemoTown) -> N
 
 def test_sales_scale_with_parcels_and_tiny_towns_are_refused(town: demo_town.DemoTown) -> None:
     small = generate(5_000)
-    assert len(small.parcels) == 5_000
+    assert len(small.parcels) == 5_000 + 30 + 2        # and a quarter of the vacant lots and institutional parcels
     assert small.sales["sale_id"].nunique() == pytest.approx(town.sales["sale_id"].nunique() / 4, rel=0.05)
     assert len(small.planted_errors) == 8
     with pytest.raises(ValueError):
@@ -326,7 +347,7 @@ def test_command_line_writes_a_project(tmp_path: Path) -> None:
     arguments = ["--parcels", "2500", "--out", str(tmp_path), "--seed", "5"]
     subprocess.run([sys.executable, "-m", "data_samples.demo_town", *arguments], cwd=root, check=True)
     parcels = pd.read_csv(tmp_path / "parcels.csv", dtype={"parcel_id": str})
-    assert len(parcels) == 2_500
+    assert len(parcels) == 2_500 + 15 + 1       # 120 and 6 appended parcels at an eighth of the size
     assert (tmp_path / "reval.toml").read_text() == (DEMO / "reval.toml").read_text()
     assert {"sales.csv", "land_schedule.csv"} <= {p.name for p in tmp_path.iterdir()}
 

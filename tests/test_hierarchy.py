@@ -9,6 +9,7 @@ import numpy as np
 import pytest
 
 from reval.model.hierarchy import fit_hierarchy, fold_ids, out_of_fold
+from reval.model.reference import reference_parcels
 from reval.model.settings import ModelSettings
 
 FEATURES = [
@@ -56,9 +57,11 @@ def test_contributions_add_up_to_the_prediction_exactly() -> None:
     seg_new = np.repeat(["s1a", "s3b", "s9b", "zz"], [20, 20, 10, 10])
     ma_new = np.repeat(["MA", "MB", "MB", "MC"], [20, 20, 10, 10])
     X_new[0, 1] = np.nan  # a missing value is imputed the same way on both paths
-    intercept, terms = model.contributions(X_new, seg_new, ma_new)
+    reference = reference_parcels(X_new, seg_new, FEATURES, {}).rows  # type: ignore[arg-type]
+    intercept, terms = model.contributions(X_new, seg_new, ma_new, reference)
     total = intercept + np.sum(list(terms.values()), axis=0)
     np.testing.assert_allclose(total, model.predict(X_new, seg_new, ma_new), atol=1e-10)
+    np.testing.assert_allclose(intercept, model.predict(reference, seg_new, ma_new), atol=1e-12)
     assert set(terms) >= {"area", "age", "grade", "pool"}
     assert any(":" in t for t in terms), "selected interactions appear as their own terms"
 
@@ -165,6 +168,7 @@ def demo() -> SimpleNamespace:
     town = demo_town.generate()
     sales = town.sales[(town.sales.validity == "valid") & ~town.sales.sale_id.duplicated(keep=False)]
     data = sales.merge(town.parcels, on="parcel_id")
+    data = data[data.property_class != "vacant_land"]   # the demo values vacant lots by its land schedule alone
     features = [
         SimpleNamespace(name="living_area", kind="continuous", log=True, levels=()),
         SimpleNamespace(name="lot_size", kind="continuous", log=False, levels=()),

@@ -100,7 +100,7 @@ def test_an_analyst_exclusion_requalifies_is_logged_and_survives_reimport(demo_c
     assert kind == "sale_exclude" and json.loads(str(detail))["note"] == "deed shows a family transfer"
     # A re-import (a changed parcels file) and a new sales step keep the decision.
     parcels = pd.read_csv(demo_copy / "parcels.csv", dtype=str, keep_default_na=False)
-    parcels.loc[0, "prior_value"] = str(int(parcels.loc[0, "prior_value"]) + 100)
+    parcels.loc[0, "prior_market_value"] = str(int(parcels.loc[0, "prior_market_value"]) + 100)
     parcels.to_csv(demo_copy / "parcels.csv", index=False)
     assert actions.import_data(demo_copy)["changed"]
     actions.prepare_sales(demo_copy)

@@ -116,5 +116,5 @@ def test_ids_and_prior_values_come_out_of_the_export_as_they_went_in(parcels: li
         export_roll(folder, out)
         with out.open(newline="", encoding="utf-8") as handle:
             rows = list(csv.DictReader(handle))
-    read = {r["parcel_id"][1:] if r["parcel_id"].startswith("'") else r["parcel_id"]: r["prior_value"] for r in rows}
+    read = {r["parcel_id"][1:] if r["parcel_id"].startswith("'") else r["parcel_id"]: r["prior_market_value"] for r in rows}
     assert read == prior

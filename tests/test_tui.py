@@ -373,6 +373,30 @@ async def _parcel_view_parts_add_up_to_the_stored_value(fitted_demo: Path) -> No
     assert math.isclose(sum(float(r[1]) for r in rows[:-1]), log_value, abs_tol=5e-4 * len(rows))
 
 
+def test_parcel_view_shows_the_comparable_grid_and_writes_the_report(demo_copy: Path) -> None:
+    asyncio.run(_parcel_view_shows_the_comparable_grid_and_writes_the_report(demo_copy))
+
+
+async def _parcel_view_shows_the_comparable_grid_and_writes_the_report(demo_copy: Path) -> None:
+    parcel_id = str(query_frame(demo_copy, "SELECT min(parcel_id) p FROM parcel_estimates")["p"].iloc[0])
+    grid = views.parcel_comparables(demo_copy, parcel_id)
+    assert grid is not None and grid["comparables"]
+    app = RevalApp(demo_copy)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        app.open_parcel(parcel_id)
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, ParcelScreen)
+        rows = table_rows(screen.query_one("#parcel-comparables", DataTable))
+        assert rows[-1][2:] == [f"{c['adjusted_price']:,}" for c in grid["comparables"]]
+        await pilot.press("r")
+        await pilot.press("enter")    # the offered name: parcel_<id>.pdf in the project folder
+        await settle(pilot)
+        assert "written to" in app.messages[-1][1], app.messages
+    assert (demo_copy / f"parcel_{parcel_id}.pdf").stat().st_size > 0
+
+
 def test_unknown_parcel_is_reported_not_fatal(fitted_demo: Path) -> None:
     asyncio.run(_unknown_parcel_is_reported_not_fatal(fitted_demo))
 

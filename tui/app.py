@@ -26,7 +26,7 @@ from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
 from .outcomes import (DECISIONS, REPORT_NAME, Describe, describe_decision, describe_export, describe_fit,
-                       describe_report, describe_values, staging_lines)
+                       describe_override, describe_report, describe_values, parse_override, staging_lines)
 
 
 def error_text(error: BaseException) -> str:
@@ -194,6 +194,39 @@ class RevalApp(App[None]):
 
         self.push_screen(PromptScreen(title.format(segment=segment), asked, required=required, detail=detail),
                          answered)
+
+    def override(self, parcel_id: str, reasons: list[str], model_value: float | None) -> None:
+        """Ask for the value, reason code and note in one line, then set the parcel's override (the core checks
+        the reason and the amount and says why it refuses)."""
+        def answered(text: str | None) -> None:
+            if text is None:
+                self.report(f"Override of parcel {parcel_id} cancelled.", "warning")
+                return
+            try:
+                value, reason, note = parse_override(text)
+            except ValueError as exc:
+                self.report(str(exc), "error")
+                return
+            self.start_job("override", f"Override {parcel_id}", actions.set_override, self.folder, parcel_id, value,
+                           reason, note, describe=describe_override)
+
+        model = f"The model's value: {model_value:,.0f}. " if model_value is not None else ""
+        detail = (f"{model}Write: value reason-code note, e.g. 245000 {reasons[0]} board decision 14. "
+                  f"Reason codes: {', '.join(reasons)}.")
+        self.push_screen(PromptScreen(f"Override the value of parcel {parcel_id}", "value reason note",
+                                      required=True, detail=detail), answered)
+
+    def remove_override(self, parcel_id: str) -> None:
+        """Ask for a note, then remove the parcel's override."""
+        def answered(text: str | None) -> None:
+            if text is None:
+                self.report(f"Removal of the override of parcel {parcel_id} cancelled.", "warning")
+                return
+            self.start_job("override", f"Remove the override of {parcel_id}", actions.remove_override, self.folder,
+                           parcel_id, text, describe=describe_override)
+
+        self.push_screen(PromptScreen(f"Remove the override of parcel {parcel_id}", "note saying why",
+                                      required=True), answered)
 
     def action_fit(self) -> None:
         self.start_job("fit", "Fitting every segment", actions.fit, self.folder, jobs=1, progress=True,

@@ -6,9 +6,9 @@ from typing import Any
 from rich.text import Text
 
 from reval.service.types import OverviewRow, StatCell
-from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown, signed_money
+from reval.service.wording import CAUTION, NAME_WIDTH, measured_from, money, percent, shown, signed_money
 
-__all__ = ["CAUTION", "NAME_WIDTH", "money", "percent", "shown", "signed_money"]
+__all__ = ["CAUTION", "NAME_WIDTH", "measured_from", "money", "percent", "shown", "signed_money"]
 
 MARKS = {"pass": "✓", "fail": "✗ FAIL", "inconclusive": "? unsure", "too_few_sales": "~ few", "no_sales": "– none"}
 SHORT_MARKS = {"pass": "✓", "fail": "✗", "inconclusive": "?", "too_few_sales": "~", "no_sales": "–"}

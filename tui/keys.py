@@ -14,6 +14,7 @@ SCOPES = {
     "overview": "Segments overview",
     "segment": "Segment drill-in",
     "parcel": "Parcel view",
+    "check": "Data check",
     "help": "Help",
 }
 
@@ -65,7 +66,7 @@ REGISTRY: tuple[KeyAction, ...] = (
               show=False),
     KeyAction("overview.failing", "F", "toggle_failing", "overview", "Failing",
               "Show only segments that cannot be approved without a note: a standard failed or inconclusive, "
-              "too few or no sales (again: all)"),
+              "too few or no sales, or a parcel left without a value (again: all)"),
     KeyAction("overview.area", "m", "cycle_area", "overview", "Area", "Filter by market area (cycles)",
               show=False),
     KeyAction("overview.state", "t", "cycle_state", "overview", "State", "Filter by batch state (cycles)",
@@ -82,6 +83,8 @@ REGISTRY: tuple[KeyAction, ...] = (
               "Re-stage the segment from the latest run, setting its hold or approval aside (asks first)", show=False),
     KeyAction("overview.refresh", "ctrl+r", "refresh", "overview", "Refresh", "Read the database again",
               show=False),
+    KeyAction("overview.check", "d", "open_check", "overview", "Check",
+              "Open the data check: problems per segment to work through before fitting", show=False),
     # segment drill-in
     KeyAction("segment.back", "escape,backspace", "back", "segment", "Back", "Back to the overview"),
     KeyAction("segment.next", "right_square_bracket,n", "page(1)", "segment", "Next",
@@ -97,9 +100,32 @@ REGISTRY: tuple[KeyAction, ...] = (
               show=False),
     KeyAction("segment.parcel", "enter", "open_sale_parcel", "segment", "Parcel",
               "On the sales tab: open the parcel of the highlighted sale", show=False),
+    KeyAction("segment.exclude", "e", "decide_sale('exclude')", "segment", "Exclude sale",
+              "On the sales tab: exclude the highlighted sale from models and ratio studies (with a reason)",
+              show=False),
+    KeyAction("segment.include", "i", "decide_sale('include')", "segment", "Reinstate sale",
+              "On the sales tab: reinstate the highlighted sale, excluded by you, at full weight (with a reason)",
+              show=False),
     # parcel
     KeyAction("parcel.back", "escape,backspace", "back", "parcel", "Back", "Back"),
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
+    # data check
+    KeyAction("check.back", "escape,backspace", "back", "check", "Back", "Back to the overview"),
+    KeyAction("check.next", "right_square_bracket,n", "page(1)", "check", "Next", "Next page of the segment's rows",
+              key_display="]"),
+    KeyAction("check.prev", "left_square_bracket,p", "page(-1)", "check", "Prev",
+              "Previous page of the segment's rows", key_display="["),
+    KeyAction("check.filter", "t", "cycle_check", "check", "One check",
+              "Show the segment's rows of one check at a time (cycles; then all again)"),
+    KeyAction("check.parcel", "enter", "open_parcel", "check", "Parcel",
+              "On a segment: go to its rows; on a row: open its parcel", show=False),
+    KeyAction("parcel.report", "r", "report", "parcel", "Parcel report",
+              "Write this parcel's one-page report (HTML or PDF: value, explanation, comparable sales, flags)"),
+    KeyAction("parcel.override", "e", "override", "parcel", "Override",
+              "Set this parcel's value over the model's: value, reason code and note"),
+    KeyAction("parcel.remove_override", "u", "remove_override", "parcel", "Remove override",
+              "Remove this parcel's override (with a note); the model's value applies at the next value step",
+              show=False),
     # help
     KeyAction("help.close", "escape,question_mark,q", "close", "help", "Close", "Close the help"),
 )

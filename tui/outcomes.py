@@ -5,7 +5,9 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import Decision, ExportResult, FitSummary, ReportResult, StagePlan, StageResult
+from reval.service.types import (Decision, ExportResult, FitSummary, OverrideResult, ParcelReport, ReportResult,
+                                 SaleDecision, StagePlan, StageResult)
+from reval.service.wording import money
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
@@ -23,6 +25,42 @@ def describe_decision(result: Decision) -> str:
         text += f", approved over failing statistics ({'; '.join(result['failed'])}); note stored"
     elif result.get("note"):
         text += "; note stored"
+    return text + "."
+
+
+# sale decision -> (prompt title, what is asked for); reval.service.actions.decide_sale
+SALE_DECISIONS: dict[str, tuple[str, str]] = {
+    "exclude": ("Exclude sale {sale_id} from models and ratio studies", "reason (kept in the audit log)"),
+    "include": ("Reinstate sale {sale_id} at full weight in the fit", "reason (kept in the audit log)"),
+}
+
+
+def describe_sale_decision(result: SaleDecision) -> str:
+    done = "excluded" if result["decision"] == "exclude" else "reinstated"
+    state = ("" if result["qualified"] is None else
+             "; qualified" if result["qualified"] else f"; not qualified ({result['qualification']})")
+    return f"Sale {result['sale_id']} {done}: {result['reason']}{state}. The next fit (f) honours it."
+def parse_override(text: str) -> tuple[float, str, str | None]:
+    """The override prompt's line "VALUE REASON [NOTE ...]" as (value, reason, note); ValueError says what is
+    wrong. The value may carry thousands separators (245,000)."""
+    parts = text.split(maxsplit=2)
+    if len(parts) < 2:
+        raise ValueError("Write the value, then the reason code, then an optional note: 245000 appeal_decision ...")
+    try:
+        value = float(parts[0].replace(",", "").replace("_", ""))
+    except ValueError:
+        raise ValueError(f"{parts[0]!r} is not an amount; write the value first, e.g. 245000") from None
+    return value, parts[1], parts[2] if len(parts) > 2 else None
+
+
+def describe_override(result: OverrideResult) -> str:
+    if result["override"] is None:
+        text = f"Override of parcel {result['parcel_id']} removed"
+    else:
+        text = (f"Parcel {result['parcel_id']} overridden at {result['override']['value']:,.0f} "
+                f"({result['override']['reason']})")
+    if result["outdated"]:
+        text += f"; segment {result['segment']} needs its values staged again (v) and a new decision"
     return text + "."
 
 
@@ -48,6 +86,13 @@ def describe_fit(result: FitSummary) -> str:
     seconds = sum(result["timings"].values())
     return (f"Fit done: run {result['run_id']}, {result['segments']} segments, {result['sales']:,} sales, "
             f"{result['parcels']:,} parcels valued in {seconds:.0f} s. Press v to stage values for review.")
+
+
+def describe_parcel_report(result: ParcelReport) -> str:
+    grid = result["comparables"]
+    comparables = f", {len(grid['comparables'])} comparable sales" if grid else ""
+    return (f"Report of parcel {result['parcel_id']} written to {result['report']} "
+            f"(value {money(result['value']['value'])}{comparables}).")
 
 
 def describe_values(result: StageResult) -> str:

@@ -86,6 +86,22 @@ def cmd_fit(args: argparse.Namespace) -> None:
     render.emit(args, result, render.fit)
 
 
+def cmd_parcel(args: argparse.Namespace) -> None:
+    result = actions.parcel_report(_folder(args), args.parcel_id, Path(args.report) if args.report else None)
+    render.emit(args, result, render.parcel)
+def cmd_override(args: argparse.Namespace) -> None:
+    if args.remove:
+        if args.value is not None or args.reason:
+            raise UserError("--remove takes no value and no --reason: `reval override PARCEL --remove --note TEXT`.")
+        result = actions.remove_override(_folder(args), args.parcel_id, args.note or "")
+    else:
+        if args.value is None or not args.reason:
+            raise UserError("Give the value and a reason code: `reval override PARCEL VALUE --reason CODE [--note "
+                            "TEXT]` (or --remove --note TEXT).")
+        result = actions.set_override(_folder(args), args.parcel_id, args.value, args.reason, args.note)
+    render.emit(args, result, render.override)
+
+
 def cmd_tui(args: argparse.Namespace) -> None:
     _launch_app(_folder(args))
 
@@ -116,6 +132,13 @@ def build_parser() -> argparse.ArgumentParser:
                    "the data set it holds)")
     p.set_defaults(func=cmd_import)
 
+    p = sub.add_parser("check", parents=[common], help="data-quality check before fitting: problems per segment and "
+                       "check (blanks, implausible values and combinations, duplicate and repeat sales)")
+    p.add_argument("--csv", metavar="FILE", default=None, help="write every problem found to this CSV (parcel, sale, "
+                   "segment, check, feature, value, problem)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.check_data(_folder(a), None if a.csv is None else Path(a.csv)),
+                                              render.check))
+
     p = sub.add_parser("demo", parents=[common], help="build the demo municipality's project and run every step")
     p.add_argument("folder", nargs="?", default="demo_project", help="where to build it (default: demo_project)")
     p.add_argument("--parcels", type=int, default=None, help="generate this many parcels instead of the shipped sample")
@@ -139,8 +162,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--by", choices=list(GROUPINGS), default="segment",
                    help="groups: segment, market area, property class, segment x class, all sales, value range (quintiles of "
                         "the value proxy), age (decades of the age feature) or size (quintile bands of the size feature)")
-    p.add_argument("--values", choices=["prior", "model"], default="prior",
-                   help="prior roll values, or the latest run's model values (out-of-fold unless --in-sample)")
+    p.add_argument("--values", choices=["prior", "model", "final"], default="prior",
+                   help="prior roll values, the latest run's model values (out-of-fold unless --in-sample; overridden "
+                   "parcels left out), or the final roll values after overrides")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
     p.add_argument("--projects", nargs="+", metavar="FOLDER", help="a combined study across these projects (each "
@@ -174,10 +198,35 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(func=lambda a: render.emit(a, actions.stage_values(_folder(a), a.run, a.segments, a.replace),
                                               render.staged))
 
+    p = sub.add_parser("override", parents=[common], help="set one parcel's market value over the model's, with a "
+                       "reason code ([overrides] reasons), or remove its override")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("value", nargs="?", type=float, help="the market value to put on the roll (not with --remove)")
+    p.add_argument("--reason", help="a reason code from [overrides] reasons in reval.toml")
+    p.add_argument("--note", help="free text kept in the audit log (required with --remove)")
+    p.add_argument("--remove", action="store_true", help="remove the parcel's override: the model's value applies again")
+    p.set_defaults(func=cmd_override)
+
+    p = sub.add_parser("correct", parents=[common], help="correct one parcel's characteristics and revalue it with the "
+                       "run's models, without a refit")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("changes", nargs="+", metavar="FEATURE=VALUE", help="the corrected values, written as in the "
+                   "parcels file (levels by name; empty = missing)")
+    p.add_argument("--note", required=True, help="why; kept in the audit log with the old and new values")
+    p.add_argument("--run", help="the run whose models revalue the parcel (default: the newest)")
+    p.set_defaults(func=lambda a: render.emit(a, actions.correct_parcel(_folder(a), a.parcel_id, a.changes, a.note,
+                                                                        a.run), render.correction))
+
     p = sub.add_parser("review", parents=[common], help="value changes, large changes and the sales-chasing check")
     p.add_argument("--segment", help="only this segment (also lists its largest changes)")
     p.add_argument("--limit", type=int, default=20, help="parcels beyond the threshold listed per segment")
     p.set_defaults(func=lambda a: render.emit(a, actions.review(_folder(a), a.segment, a.limit), render.review))
+
+    p = sub.add_parser("parcel", parents=[common], help="why a parcel has its value: explanation, flags, segment "
+                       "statistics and comparable sales adjusted by the model")
+    p.add_argument("parcel_id", help="the parcel's id")
+    p.add_argument("--report", metavar="FILE", help="also write a one-page report (FILE.html or FILE.pdf)")
+    p.set_defaults(func=cmd_parcel)
 
     p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch (or every passing one)")
     p.add_argument("segment", nargs="?", help="the segment (omit with --all-passing)")

@@ -17,11 +17,13 @@ from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from reval.service.wording import CAUTION, NAME_WIDTH, money, percent, shown
+from reval.service.wording import (CAUTION, FLAG_WORDS, NAME_WIDTH, grid_table, indicated_range, money, percent, shown,
+                                 signed_money)
 
 Render = Callable[[Any, Console], None]
 MARKS = {"pass": "ok", "fail": "FAIL", "inconclusive": "?", "too_few_sales": "few", "no_sales": "no sales"}
 LISTED = 10  # down-weighted sales listed under a study or a review
+LISTED_REPEATS = 40  # repeat sales listed under `reval sales`
 
 
 def console(stderr: bool = False) -> Console:
@@ -90,6 +92,15 @@ def imported(r: dict[str, Any], console: Console) -> None:
     console.print(("Imported" if r["changed"] else "Already imported (files unchanged)")
                   + f": {r['parcels']:,} parcels, {r['sales']:,} sales, {r['segments']} segments in "
                   f"{r['market_areas']} market areas.")
+    _filled_in({k: f"{n:,} parcels" for k, n in r["filled_in"].items() if n}, console,
+               "Missing values the model will fill in with the typical value (each is flagged on the roll)")
+
+
+def _filled_in(counts: dict[str, str], console: Console, title: str) -> None:
+    if counts:
+        console.print(f"{title}:")
+        for feature, what in counts.items():
+            console.print(f"  {name(feature)}: {what}")
 
 
 def demo_summary(summary: dict[str, Any], console: Console) -> None:
@@ -109,6 +120,41 @@ def sales(result: dict[str, Any], console: Console) -> None:
                                          "excluded": s["excluded"]} for s in result["segments"]], console)
     for note in result["trend_notes"]:
         console.print(f"Market trend: {shown(note)}.", highlight=False)
+    repeats = result["repeat_sales"]
+    if repeats:
+        parcels = len({r["parcel_id"] for r in repeats})
+        records_table(f"Repeat sales: {parcels:,} parcels sold more than once in the sale window"
+                      + (f" (the first {LISTED_REPEATS} of {len(repeats):,} sales; all with `reval check --csv FILE`)"
+                         if len(repeats) > LISTED_REPEATS else ""),
+                      [{"parcel": r["parcel_id"], "segment": r["segment"], "sale": r["sale_id"], "date": r["sale_date"],
+                        "price": money(r["sale_price"]), "latest": "yes" if r["latest"] else "",
+                        "sales step": "qualified" if r["qualified"] else r["reason"] or ""}
+                       for r in repeats[:LISTED_REPEATS]], console)
+
+
+def check(r: dict[str, Any], console: Console) -> None:
+    total = sum(r["totals"].values())
+    console.print(f"Data check: {total:,} problems in {sum(1 for s in r['segments'] if s['problems'])} of "
+                  f"{len(r['segments'])} segments (sold ranges from the {r['basis']}, {r['sale_window'][0]} to "
+                  f"{r['sale_window'][1]}).")
+    segments: dict[str, int] = {}
+    for s in r["segments"]:
+        for code in s["counts"]:
+            segments[code] = segments.get(code, 0) + 1
+    records_table("Problems per check", [{"check": code, "rows": n, "segments": segments[code]}
+                                         for code, n in r["totals"].items()], console)
+    for code in r["totals"]:
+        console.print(f"  {code}: {r['checks'][code]}", highlight=False)
+    records_table("Problems per segment", [
+        {"segment": s["segment"], "parcels": s["parcels"], "sold": s["sold_parcels"], "problems": s["problems"],
+         "by check": ", ".join(f"{code} {n:,}" for code, n in sorted(s["counts"].items(), key=lambda kv: -kv[1]))}
+        for s in r["segments"]], console)
+    for n in r["not_run"]:
+        console.print(f"Not run: {n['check']}: {shown(n['reason'])}.", highlight=False)
+    if r["csv"]:
+        console.print(f"Wrote {r['csv']['rows']:,} rows to {shown(r['csv']['path'])}.")
+    elif total:
+        console.print("Every row (parcel, sale, segment, check, feature, value, problem): reval check --csv FILE")
 
 
 def sale_decision(r: dict[str, Any], console: Console) -> None:
@@ -119,6 +165,37 @@ def sale_decision(r: dict[str, Any], console: Console) -> None:
     else:
         state = "qualified" if r["qualified"] else f"not qualified ({r['qualification']})"
         console.print(f"Sales re-qualified: this sale is now {state}. Run `reval fit` for a run that honours it.")
+
+
+def _outdated(r: dict[str, Any], console: Console) -> None:
+    if r["outdated"]:
+        batches = ", ".join(f"{b['batch_id']} ({b['state']})" for b in r["outdated"])
+        console.print(f"Batch(es) {batches} of segment {shown(r['segment'])} are outdated: run `reval value "
+                      f"{shown(r['segment'])}` (with --replace over a held or approved batch), then decide it again.")
+
+
+def override(r: dict[str, Any], console: Console) -> None:
+    model = f"; model value {money(r['model_value'])}" if r["model_value"] is not None else ""
+    if r["override"] is None:
+        console.print(f"Override of parcel {shown(r['parcel_id'])} ({money(r['previous']['value'])}, "
+                      f"{shown(r['previous']['reason'])}) removed{model}.")
+    else:
+        o = r["override"]
+        console.print(f"Parcel {shown(r['parcel_id'])} (segment {shown(r['segment'])}): override {money(o['value'])}, "
+                      f"reason {shown(o['reason'])}{model}.")
+    _outdated(r, console)
+    console.print(CAUTION)
+
+
+def correction(r: dict[str, Any], console: Console) -> None:
+    changed = "; ".join(f"{shown(c['feature'])} {shown(str(c['old']))} -> {shown(str(c['new']))}" for c in r["changes"])
+    console.print(f"Parcel {shown(r['parcel_id'])} corrected: {changed}.")
+    console.print(f"Revalued with run {shown(r['run_id'])} (no refit): {money(r['old_value'])} -> "
+                  f"{money(r['new_value'])}.")
+    if r["sales_in_fit"]:
+        console.print(f"The run was fitted on {r['sales_in_fit']} sale(s) of this parcel with its old data; its ratio "
+                      "studies keep them until the next `reval fit`.")
+    _outdated(r, console)
 
 
 # ---- studies and models ----------------------------------------------------------------------------------------
@@ -167,6 +244,8 @@ def fit(result: dict[str, Any], console: Console) -> None:
                   f"{result['parcels']:,} parcels valued; {result['downweighted_sales']:,} sales down-weighted as far "
                   "from what the other sales say they are worth")
     console.print("  " + ", ".join(f"{k} {v:.1f} s" for k, v in result["timings"].items()))
+    _filled_in({k: f"{f['parcels']:,} parcels filled in with {f['value']}" for k, f in result["filled_in"].items()
+                if f["parcels"]}, console, "Missing values filled in (each is flagged on the roll)")
     records_table("Out-of-fold accuracy, whole jurisdiction (every model on the same sales and folds, none trimmed)",
                   _by_name(result["accuracy"]), console)
     console.print("Next: `reval study --values model` for the out-of-fold ratio study per segment. " + CAUTION)
@@ -211,11 +290,20 @@ def review(r: dict[str, Any], console: Console) -> None:
                      " / ".join("-" if q.get(k) is None else f"{q[k]:.2f}" for k in ("p25", "median", "p75")),
                      f"{s['n_beyond_threshold']:,}", f"{s['n_downweighted']:,}", _cods(s["sales_chasing"]),
                      s["sales_chasing"]["status"].replace("_", " ")])
-    table(f"Value review: change = new market value / prior value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
+    table(f"Value review: change = new market value / prior market value; beyond = more than +/-{100 * r['threshold']:.0f}%; "
           "down-weighted = sales the fit gave less than full weight",
           ["segment", "batch", "parcels", "total", "p25 / median / p75", "beyond", "down-weighted",
            "COD roll / out of fold", "sales chasing"], rows, console)
+    kinds = list(dict.fromkeys(k for s in r["segments"] for k in FLAG_WORDS if s["flags"].get(k)))
+    if kinds:
+        table("Flagged parcels per segment, by kind of flag (the roll and the export list each parcel's flags)",
+              ["segment", *(FLAG_WORDS[k] for k in kinds)],
+              [[s["segment"], *(f"{s['flags'].get(k, 0):,}" for k in kinds)] for s in r["segments"]], console)
     for s in r["segments"]:
+        for blocker in s["blockers"]:
+            console.print(Text(f"{name(s['segment'])} cannot be approved: {blocker}", style="bold"))
+        if len(r["segments"]) == 1 and s["flag_codes"]:
+            console.print("Flags: " + ", ".join(f"{name(code)} {n:,}" for code, n in s["flag_codes"].items()))
         chase = s["sales_chasing"]
         if chase["flagged"]:
             console.print(Text(f"{name(s['segment'])}: possible sales chasing:", style="bold"))
@@ -228,7 +316,7 @@ def review(r: dict[str, Any], console: Console) -> None:
                    for d in s["downweighted"]], console)
         if s["beyond_threshold"] and len(r["segments"]) == 1:
             table(f"{name(s['segment'])}: largest changes beyond the threshold ({s['n_beyond_threshold']:,} in all)",
-                  ["parcel", "class", "prior", "new", "change"],
+                  ["parcel", "class", "prior market", "new market", "change"],
                   [[p["parcel_id"], p["property_class"], money(p["prior_value"]), money(p["market_value"]),
                     percent(p["change"])] for p in s["beyond_threshold"]], console)
 
@@ -280,3 +368,50 @@ def batch_states(r: dict[str, Any], console: Console) -> None:
     table("Batches: the certified values (those an export writes) beside the pending ones",
           ["segment", "state", "certified batch", "open batch"],
           [[s["segment"], s["summary"], show(s["certified"]), show(s["open"])] for s in r["segments"]], console)
+
+
+# ---- one parcel -----------------------------------------------------------------------------------------------
+
+def parcel(r: dict[str, Any], console: Console) -> None:
+    """Why a parcel has its value: value, prior values, flags, segment statistics, explanation, comparables."""
+    console.print(Text.assemble((f"Parcel {shown(r['parcel_id'])}", "bold"),
+                                f" · segment {name(r['segment'])} · market area {name(r['market_area'])} · "
+                                f"{name(r['property_class'])} · {name(r['jurisdiction'])}, valuation date "
+                                f"{r['valuation_date']}"))
+    v = r["value"]
+    console.print(f"Value {money(v['value'])} ({shown(v['source'])}); model value {money(v['model_value'])}"
+                  + (f", run {r['run_id']}" if r["run_id"] else ""))
+    for key, prior in r["prior_values"].items():
+        console.print(f"{key.replace('_', ' ').capitalize()}: {money(prior)}")
+    if r["value_change"] is not None:
+        console.print(f"Change of the model value from the prior value: {percent(r['value_change'])}")
+    table("Characteristics", ["feature", "value"],
+          [[f["name"], "missing" if f["value"] is None else f["label"] or f"{f['value']:.10g}"] for f in r["features"]],
+          console)
+    stats = r["segment_statistics"]
+    if stats:
+        console.print(f"Segment {name(stats['segment'])}, {shown(stats['values'])}: {stats['n']} sales, median ratio "
+                      f"{_num(stats['median_ratio'], '.3f')}, COD {_num(stats['cod'], '.1f')}, PRD "
+                      f"{_num(stats['prd'], '.3f')}, PRB {_num(stats['prb'], '+.3f')}; verdicts "
+                      + ", ".join(f"{k} {MARKS.get(s, s)}" for k, s in stats["verdicts"].items()), highlight=False)
+    x = r["explanation"]
+    if x:
+        table(f"Explanation: the model value from {x['measured_from']}", ["part", "value", "% of value"],
+              [["base", money(x["base"]), ""]]
+              + [[p["term"], signed_money(p["currency"]), percent(p["percent"])] for p in x["parts"]]
+              + [["= model value", money(x["value"]), ""]], console)
+    grid = r["comparables"]
+    if grid:
+        header, rows = grid_table(grid)
+        table(f"Comparable sales adjusted by the model (run {grid['run_id']})", header, rows, console)
+        console.print(indicated_range(grid), highlight=False)
+    console.print("Flags: " + ("none" if not r["flags"] else ""))
+    for flag in r["flags"]:
+        console.print(f"  ! {shown(flag)}", highlight=False)
+    if r.get("report"):
+        console.print(f"Report written to {shown(r['report'])}")
+    console.print(CAUTION)
+
+
+def _num(x: float | None, fmt: str) -> str:
+    return "–" if x is None else format(x, fmt)

@@ -35,7 +35,8 @@ Progress = Callable[[str, int, int], None]
 # How each role's cells are checked (see sql/queries/import_problems.sql).
 ROLE_KINDS = {
     "parcel_id": "id", "segment": "label", "market_area": "label", "property_class": "label",
-    "prior_value": "amount", "latitude": "latitude", "longitude": "longitude",
+    "prior_market_value": "amount", "prior_assessed_value": "amount", "new_construction": "binary",
+    "latitude": "latitude", "longitude": "longitude",
     "sale_id": "id", "sale_date": "date", "sale_price": "price", "sale_validity": "code",
 }
 
@@ -50,10 +51,12 @@ class ImportResult:
     segments: int
     market_areas: int
     files: dict[str, str]
+    missing: dict[str, int]      # parcels the model values lacking each feature: the model fills them in (flagged)
 
     def as_dict(self) -> ImportSummary:
         return {"changed": self.changed, "parcels": self.parcels, "sales": self.sales,
-                "segments": self.segments, "market_areas": self.market_areas, "files": self.files}
+                "segments": self.segments, "market_areas": self.market_areas, "files": self.files,
+                "filled_in": self.missing}
 
 
 def sha256_file(path: Path) -> str:
@@ -73,12 +76,12 @@ def _roles_frame(config: Config) -> pd.DataFrame:
             if role in config.columns and not any(r["file"] == file and r["role"] == role for r in rows):
                 rows.append({"file": file, "col": config.columns[role], "role": role, "name": role,
                              "kind": ROLE_KINDS[role], "position": None, "levels": None,
-                             "lo": None, "hi": None, "log": False})
+                             "lo": None, "hi": None, "log": False, "missing": None})
     for position, f in enumerate(config.features):
         lo, hi = f.range if f.range else (None, None)
         rows.append({"file": str(config.parcels_file), "col": f.column, "role": "feature", "name": f.name,
                      "kind": f.kind, "position": position, "levels": list(f.levels) or None,
-                     "lo": lo, "hi": hi, "log": f.log})
+                     "lo": lo, "hi": hi, "log": f.log, "missing": list(f.missing) or None})
     frame = pd.DataFrame(rows)
     frame["position"] = frame["position"].astype("Int16")
     return frame
@@ -194,7 +197,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
     with open_store(config.database, memory_mb=config.memory_mb) as store:
         current = {role: sha for role, _, sha, _ in store.rows("dataset_files")}
         if current == prints:
-            return _result(store, changed=False, prints=prints)
+            return _result(store, config, changed=False, prints=prints)
         layouts = _check_structure(store, config, allow_empty, report)
         _check_columns(config, roles, store)
         _stage(store, config, roles, layouts, progress)
@@ -218,7 +221,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
                                          "counts": counts, "config_sha256": config.sha256})
         if report.exists():
             report.unlink()
-        return _result(store, changed=True, prints=prints)
+        return _result(store, config, changed=True, prints=prints)
 
 
 def _counts(store: Store) -> dict[str, int]:
@@ -226,7 +229,9 @@ def _counts(store: Store) -> dict[str, int]:
     return {k: int(v) for k, v in frame.iloc[0].items()}
 
 
-def _result(store: Store, changed: bool, prints: dict[str, str]) -> ImportResult:
+def _result(store: Store, config: Config, changed: bool, prints: dict[str, str]) -> ImportResult:
     c = _counts(store)
     files = {k: v for k, v in prints.items() if k != "mapping"}
-    return ImportResult(changed, c["parcels"], c["sales"], c["segments"], c["market_areas"], files)
+    others = list(config.classes.land_schedule + config.classes.not_valued)
+    missing = {str(feature): int(n) for feature, n in store.rows("feature_missing_counts", {"classes": others})}
+    return ImportResult(changed, c["parcels"], c["sales"], c["segments"], c["market_areas"], files, missing)

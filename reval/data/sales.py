@@ -15,7 +15,8 @@ from reval.errors import UserError
 from reval.data.events import record_event
 from reval.data.store import Store
 from reval.data.market_trend import MarketTrend, adjustment_factors, estimate_trends, month_offsets
-from reval.results import SalesCounts, SegmentSales
+from reval.plain import Record
+from reval.results import RepeatSale, SalesCounts, SegmentSales
 
 Progress = Callable[[str, int, int], None]
 
@@ -26,6 +27,7 @@ class SalesSummary:
 
     counts: pd.DataFrame   # segment, outcome, n
     trend_notes: tuple[str, ...] = ()
+    repeats: tuple[Record, ...] = ()   # every sale of a parcel sold more than once in the window (repeat_sales)
 
     def as_dict(self) -> SalesCounts:
         by_reason = self.counts.groupby("outcome")["n"].sum()
@@ -35,10 +37,14 @@ class SalesSummary:
             kept = outcomes.pop("qualified", 0)
             segments.append({"segment": str(segment), "qualified": kept, "excluded": sum(outcomes.values()),
                              "excluded_by_reason": outcomes})
+        repeats: list[RepeatSale] = [
+            {"parcel_id": r["parcel_id"], "segment": r["segment"], "sale_id": r["sale_id"],
+             "sale_date": r["sale_date"].isoformat(), "sale_price": r["sale_price"], "n_sales": r["n_sales"],
+             "latest": r["latest"], "qualified": r["qualified"], "reason": r["reason"]} for r in self.repeats]
         return {"qualified": int(by_reason.get("qualified", 0)),
                 "excluded": int(by_reason.drop("qualified", errors="ignore").sum()),
                 "excluded_by_reason": {str(k): int(v) for k, v in by_reason.drop("qualified", errors="ignore").items()},
-                "segments": segments, "trend_notes": list(self.trend_notes)}
+                "segments": segments, "trend_notes": list(self.trend_notes), "repeat_sales": repeats}
 
 
 def prepare_sales(store: Store, config: Config, progress: Progress | None = None) -> SalesSummary:
@@ -50,7 +56,9 @@ def prepare_sales(store: Store, config: Config, progress: Progress | None = None
                                     list(rules.validity_codes_kept) if rules.validity_codes_kept else None,
                                     rules.exclude_multi_parcel,
                                     list(rules.property_classes) if rules.property_classes else None,
-                                    rules.price_min, rules.price_max])
+                                    rules.price_min, rules.price_max, rules.repeat_sales == "latest",
+                                    list(rules.require_features),
+                                    list(config.classes.land_schedule + config.classes.not_valued)])
         if progress:
             progress("qualifying sales", 1, 2)
         data = qualified_sales(store)
@@ -60,18 +68,25 @@ def prepare_sales(store: Store, config: Config, progress: Progress | None = None
         notes = _time_adjust(store, config, data)
         if progress:
             progress("qualifying sales", 2, 2)
-        summary = SalesSummary(store.frame("sales_counts"), notes)
+        summary = SalesSummary(store.frame("sales_counts"), notes, repeat_sales(store, config))
         counts = summary.as_dict()
         record_event(con, "sales", {"qualified": counts["qualified"], "excluded_by_reason": counts["excluded_by_reason"],
                                     "trend_notes": counts["trend_notes"], "config_sha256": config.sha256})
     return summary
 
 
-def stored_summary(store: Store) -> SalesSummary:
-    """The stored qualification counts and the trend notes of the last sales step."""
+def stored_summary(store: Store, config: Config) -> SalesSummary:
+    """The stored qualification counts, the trend notes of the last sales step and the repeat sales."""
     events = store.rows("latest_sales_event")
     notes = tuple(json.loads(events[0][0]).get("trend_notes", [])) if events else ()
-    return SalesSummary(store.frame("sales_counts"), notes)
+    return SalesSummary(store.frame("sales_counts"), notes, repeat_sales(store, config))
+
+
+def repeat_sales(store: Store, config: Config) -> tuple[Record, ...]:
+    """Every sale of a parcel sold more than once in the sale window, with what the sales step made of it; also
+    left in the temporary table repeat_sales for `reval check` (reval.data.check)."""
+    return tuple(store.records("sales_repeats", {"start": config.sale_window_start,
+                                                 "valuation_date": config.valuation_date}))
 
 
 def trend_factors(config: Config, data: SalesData, rows: np.ndarray) -> tuple[np.ndarray, dict[str, MarketTrend]]:

@@ -39,6 +39,15 @@ def _statements(con: duckdb.DuckDBPyConnection, name: str) -> list[Any]:
     return con.extract_statements(sql_text(name))
 
 
+def _used(statement: Any, params: Sequence[Any] | dict[str, Any] | None) -> Sequence[Any] | dict[str, Any] | None:
+    """The parameters one statement names (a named dict is cut to its names; positional ones pass as they are)."""
+    if not statement.named_parameters:
+        return None
+    if isinstance(params, dict):
+        return {k: v for k, v in params.items() if k in statement.named_parameters}
+    return params
+
+
 def migrations() -> list[tuple[int, Path]]:
     """Forward migrations as (version, file), in version order."""
     found = [(int(m.group(1)), p) for p in (SQL_DIR / "migrations").glob("*.sql") if (m := _MIGRATION.match(p.name))]
@@ -161,9 +170,8 @@ class Store:
         given the parameters it uses (DuckDB binds parameters only for single statements)."""
         statements = _statements(self.con, name)
         for statement in statements[:-1]:
-            self.con.execute(statement, params if statement.named_parameters else None)
-        last = statements[-1]
-        return self.con.execute(last, params if last.named_parameters else None)
+            self.con.execute(statement, _used(statement, params))
+        return self.con.execute(statements[-1], _used(statements[-1], params))
 
     def insert(self, name: str, frame: pd.DataFrame) -> None:
         """Run an insert query that reads the DataFrame as `staged_frame` (columns matched by name)."""

@@ -33,6 +33,7 @@ from joblib import Parallel, delayed
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
+from reval.model import RANGE_WEIGHT
 from reval.model.design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis, typical_value
 from reval.model.interactions import candidate_pairs, select_interactions
 from reval.model.settings import ModelSettings
@@ -42,7 +43,6 @@ from reval.model.shape import Layer, shape_constraint
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
-RANGE_WEIGHT = 0.5  # sales of lower weight do not stretch a layer's curves (see `_counted`)
 Progress = Callable[[int, int], None]
 
 
@@ -82,6 +82,26 @@ class LevelFit:
 
     def contributions(self, X: np.ndarray) -> dict[str, np.ndarray]:
         return {b.term: b.columns @ self.coef[self.slices[b.term]] for b in self.spec.blocks(X, self.pairs)}
+
+    def contributions_from(self, X: np.ndarray, R: np.ndarray) -> dict[str, np.ndarray]:
+        """Each term's part of rows X measured from reference rows R (imputed, same shape); they add up to
+        predict(X) - predict(R). A main term: its part at X minus at R. A product c za zb of standardised
+        features splits around the reference (za0, zb0): the pair keeps c (za - za0)(zb - zb0) and a and b
+        get c zb0 (za - za0) and c za0 (zb - zb0), so a feature at its reference value contributes nothing,
+        to its own term or to a pair (the functional ANOVA split at a point; docs/model.md)."""
+        at_x, at_r = self.contributions(X), self.contributions(R)
+        pairs = {f"{a}:{b}" for a, b in self.pairs}
+        out = {t: at_x[t] - at_r[t] for t in at_x if t != INTERCEPT and t not in pairs}
+        if self.pairs:
+            zx, zr = self.spec.standardised(X), self.spec.standardised(R)
+            for a, b in self.pairs:
+                c = float(self.coef[self.slices[f"{a}:{b}"]][0])
+                ia, ib = self.spec.index(a), self.spec.index(b)
+                da, db = zx[:, ia] - zr[:, ia], zx[:, ib] - zr[:, ib]
+                out[f"{a}:{b}"] = c * da * db
+                out[a] = out.get(a, 0.0) + c * zr[:, ib] * da
+                out[b] = out.get(b, 0.0) + c * zr[:, ia] * db
+        return out
 
     def curves_at(self, X: np.ndarray, names: Sequence[str]) -> dict[str, np.ndarray]:
         """Effect of each named feature at raw rows X (features this layer holds constant are left out)."""
@@ -447,18 +467,20 @@ class FittedHierarchy:
             out[rows] += level.predict(Xi[rows])
         return out
 
-    def contributions(self, X: np.ndarray, segment: np.ndarray,
-                      market_area: np.ndarray) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-        """Intercept and per-term parts of each row's log value; they add up to `predict` exactly."""
+    def contributions(self, X: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
+                      reference: np.ndarray) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+        """Base and per-term parts of each row's log value, measured from `reference` (raw rows: each row's
+        reference parcel, e.g. reval.model.reference.reference_parcels). The base is the reference's log value;
+        a feature at its reference value contributes 0; base + parts = `predict` exactly."""
         Xi = self.spec.impute(np.asarray(X, dtype=float))
+        Ri = self.spec.impute(np.asarray(reference, dtype=float))
         n = Xi.shape[0]
-        intercept = np.zeros(n)
+        base = self.predict(Ri, segment, market_area)
         terms: dict[str, np.ndarray] = {f.name: np.zeros(n) for f in self.features}
         for level, rows in self._layers(segment, market_area):
-            for term, part in level.contributions(Xi[rows]).items():
-                target = intercept if term == INTERCEPT else terms.setdefault(term, np.zeros(n))
-                target[rows] += part
-        return intercept, terms
+            for term, part in level.contributions_from(Xi[rows], Ri[rows]).items():
+                terms.setdefault(term, np.zeros(n))[rows] += part
+        return base, terms
 
     # ---------------------------------------------------------------- reports per segment
     def _segment_chain(self, segment: str) -> tuple[list[LevelFit], SegmentFit]:

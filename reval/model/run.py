@@ -21,11 +21,14 @@ from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_sha
 from reval.data.sales import trend_factors
 from reval.errors import UserError
 from reval.data.events import record_event
+from reval.data.fingerprint import record_fingerprints
 from reval.model import BASE_TERM
 from reval.model.hierarchy import FittedHierarchy, fit_hierarchy, fold_ids, out_of_fold
+from reval.model import stored
 from reval.model.settings import ModelSettings
 from reval.model.comparison import (ALL_SEGMENTS, accuracy_table, compare_models, permutation_importance,
                                     reference_factories)
+from reval.model.reference import baselines, reference_parcels
 from reval.model.names import IMPORTANCE_MODELS, OURS, OURS_NO_INTERACTIONS, named
 from reval.data.store import Store
 from reval.plain import records
@@ -97,7 +100,8 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
 
     start = time.perf_counter()
     parcels, X_all = all_parcels(store, features)
-    estimates, contributions = _value_parcels(model, parcels, X_all)
+    typical = reference_parcels(X_all, parcels["segment"].to_numpy(str), features, baselines(config.features))
+    estimates, contributions = value_parcels(model, parcels, X_all, typical.rows)
     timings["value_parcels"] = time.perf_counter() - start
 
     run_id = "run-" + dt.datetime.now().strftime("%Y%m%d-%H%M%S-%f")
@@ -107,19 +111,24 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         "settings": json.dumps(dataclasses.asdict(settings), default=list), "library_versions": json.dumps(_versions()),
         "timings": json.dumps(timings)}])
     reports = _segment_reports(model, parcels, X_all, run_id)
+    fills = _filled_in(model, config, parcels, X_all)
     sale_predictions = pd.concat([_predictions(run_id, sales, model, folds, oof),
                                   _predictions(run_id, qualified.rows(~in_fit), model)], ignore_index=True)
     weights = _sale_weights(model, sales, y - sale_predictions["insample_log"].to_numpy()[: len(y)], run_id)
     with store.transaction() as con:
         store.insert("insert_runs", header)
+        store.run("insert_run_model", [run_id, *stored.encode(model)])
         for table, frame in reports.items():
             store.insert(f"insert_{table}", frame)
         store.insert("insert_sale_predictions", sale_predictions)
         store.insert("insert_sale_weights", weights)
         store.insert("insert_parcel_estimates", estimates.assign(run_id=run_id))
+        record_fingerprints(store, run_id)
         store.insert("insert_parcel_contributions", contributions.assign(run_id=run_id))
+        store.insert("insert_segment_references", typical.table.assign(run_id=run_id))
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
+        store.insert("insert_run_features", fills.assign(run_id=run_id))
         downweighted = int((weights["weight"] < 1).sum())
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
@@ -130,7 +139,27 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     overall = accuracy[accuracy["segment"] == ALL_SEGMENTS] if len(accuracy) else accuracy
     return {"run_id": run_id, "sales": int(len(y)), "parcels": int(len(parcels)),
             "segments": len(reports["segment_models"]), "timings": timings, "downweighted_sales": downweighted,
-            "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore")))}
+            "accuracy": named(records(overall.drop(columns=["segment"], errors="ignore"))),
+            "filled_in": {str(r.feature): {"parcels": int(r.n_filled), "value": fill_text(features[int(r.position)],
+                                                                                          float(r.fill_value))}
+                          for r in fills.itertuples()}}
+
+
+def fill_text(feature: FeatureSpec, value: float) -> str:
+    """A filled-in value as people read it: the level's name, or the number."""
+    if feature.kind in ("ordinal", "categorical") and 0 <= value < len(feature.levels):
+        return feature.levels[int(value)]
+    return f"{value:,.4g}"
+
+
+def _filled_in(model: FittedHierarchy, config: Config, parcels: pd.DataFrame, X: np.ndarray) -> pd.DataFrame:
+    """Per feature: the value the model takes where a parcel lacks one (the typical value of the sales it was fitted
+    on) and how many parcels of the classes the model values lack it (reval/roll/flags.py flags each of them)."""
+    valued = parcels["property_class"].map(config.classes.rule).to_numpy() == "model"
+    return pd.DataFrame({"feature": [t.name for t in model.spec.transforms],
+                         "position": np.arange(len(model.spec.transforms), dtype=np.int16),
+                         "fill_value": [t.impute for t in model.spec.transforms],
+                         "n_filled": np.isnan(X[valued]).sum(axis=0).astype(np.int64)})
 
 
 def fold_targets(config: Config, sales: SalesData, folds: np.ndarray) -> dict[int, np.ndarray]:
@@ -195,11 +224,13 @@ def _sale_weights(model: FittedHierarchy, sales: SalesData, residual: np.ndarray
                          "analyst_reason": sales.frame["analyst_reason"]})
 
 
-def _value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Every parcel's log value and its exact additive contributions (long form)."""
+def value_parcels(model: FittedHierarchy, parcels: pd.DataFrame, X: np.ndarray,
+                   reference: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Every parcel's log value and its exact additive contributions measured from its segment's reference parcel
+    (long form; the base is the reference parcel's log value)."""
     segment = parcels["segment"].to_numpy(str)
     market_area = parcels["market_area"].to_numpy(str)
-    intercept, terms = model.contributions(X, segment, market_area)
+    intercept, terms = model.contributions(X, segment, market_area, reference)
     log_value = intercept + np.sum(list(terms.values()), axis=0)
     estimates = pd.DataFrame({"parcel_id": parcels["parcel_id"], "segment": segment, "log_value": log_value,
                               "market_value": np.exp(log_value)})

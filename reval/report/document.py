@@ -29,6 +29,8 @@ from typing import Any
 
 import matplotlib
 
+from reval.errors import UserError
+
 matplotlib.use("Agg")   # files only; never a window
 
 from matplotlib.backends.backend_pdf import PdfPages  # noqa: E402
@@ -38,6 +40,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 from matplotlib.text import Text  # noqa: E402
 
 FIGURE_DPI = 130
+SUFFIXES = (".html", ".htm", ".pdf")
 # Ligatures ("fi") become glyphs outside the font's text encoding that text extraction misreads; matplotlib
 # shapes them from 3.11 on and then accepts font features, so the PDF's text is turned off them there.
 PLAIN_TEXT: dict[str, Any] = {"fontfeatures": ["-liga"]} if hasattr(Text, "set_fontfeatures") else {}
@@ -370,3 +373,20 @@ def write_page_png(doc: Document, path: Path, page: int = 1, dpi: int = 60) -> N
     page_no = [1]
     with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}):
         _lay_out(doc, save)
+
+
+def check_path(out: Path) -> None:
+    """Refuse, before any work, a report file that is neither HTML nor PDF."""
+    if out.suffix.lower() not in SUFFIXES:
+        raise UserError(f"{out}: the report is written as .html or .pdf; name the file with one of those endings.")
+
+
+def save(doc: Document, out: Path) -> None:
+    """Write `doc` to a partial file beside `out`, then put it in place: a failed write leaves no half report."""
+    partial = out.parent / f"{out.stem}.partial{out.suffix}"   # the suffix picks the format
+    try:
+        doc.write(partial)
+        partial.replace(out)
+    except OSError as exc:
+        partial.unlink(missing_ok=True)
+        raise UserError(f"Cannot write {out}: {exc.strerror or exc}") from None

@@ -25,7 +25,7 @@ from reval.errors import UserError
 from reval.results import ReportResult
 from reval.model.names import named
 from reval.report import figures
-from reval.report.document import Cell, Document, Num, Section
+from reval.report.document import Cell, Document, Num, Section, check_path, save
 from reval.report.representativeness import CHI_SQUARE, MANN_WHITNEY, compare_features
 from reval.service.wording import CAUTION
 from reval.states import Grouping, ValuesSource
@@ -217,7 +217,7 @@ def _representativeness(doc: Document, config: Config, store: Store) -> None:
 
 def _sales_used(doc: Document, store: Store, config: Config, studies: dict[str, StudyResult]) -> None:
     part = doc.section("Sales used")
-    counts = stored_summary(store).as_dict()
+    counts = stored_summary(store, config).as_dict()
     rows: list[list[Cell]] = [["qualified", counts["qualified"]]]
     rows += [[f"excluded: {reason}", n] for reason, n in sorted(counts["excluded_by_reason"].items())]
     part.table(["sales", "n"], rows, caption="Qualification")
@@ -322,16 +322,9 @@ def build_report(store: Store, config: Config, source: ValuesSource, run: str | 
 def write_report(store: Store, config: Config, out: Path, source: ValuesSource, run: str | None,
                  model_run: str | None) -> ReportResult:
     """Write the report to `out` (.html or .pdf; a partial file is renamed into place only when complete)."""
-    if out.suffix.lower() not in (".html", ".htm", ".pdf"):
-        raise UserError(f"{out}: the report is written as .html or .pdf; name the file with one of those endings.")
+    check_path(out)
     start = time.perf_counter()
     doc, studied = build_report(store, config, source, run, model_run)
-    partial = out.parent / f"{out.stem}.partial{out.suffix}"   # the suffix picks the format
-    try:
-        doc.write(partial)
-        partial.replace(out)
-    except OSError as exc:
-        partial.unlink(missing_ok=True)
-        raise UserError(f"Cannot write {out}: {exc.strerror or exc}") from None
+    save(doc, out)
     return {"path": str(out), "values": SOURCE_LABELS[source], "run_id": run, "figures": doc.figure_count(),
             "studied": studied, "seconds": round(time.perf_counter() - start, 2)}

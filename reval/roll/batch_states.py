@@ -2,12 +2,16 @@
 certified batch (the approved one, else the latest exported one). The one implementation of that rule,
 on plain rows (no pandas), so the app's overview, `reval batches`, the value step and the export read it
 alike. Certified and open are shown side by side ("approved, run 3 · run 4 pending"): the export writes
-the certified values, never the pending ones."""
+the certified values, never the pending ones. A batch is outdated when a data correction or an override of
+one of its parcels came after it was staged (`mark_outdated`): its values stay as they were, but it cannot be
+approved, and the next `reval value` stages the segment again."""
 from __future__ import annotations
 
 from typing import Any, TypedDict
 
+from reval.clock import utc_now
 from reval.data.store import Store
+from reval.results import OutdatedBatch
 from reval.states import OPEN_STATES, BatchState
 
 
@@ -31,6 +35,17 @@ def run_numbers(store: Store) -> dict[str, int]:
     return {str(run): int(number) for run, number in store.rows("run_numbers")}
 
 
+def outdated(batch: dict[str, Any] | None) -> bool:
+    """Whether a batch's values no longer match the data or the overrides of its segment."""
+    return batch is not None and batch.get("outdated_at") is not None
+
+
+def mark_outdated(store: Store, segment: str) -> list[OutdatedBatch]:
+    """Mark the segment's live batches outdated (inside the caller's transaction); returns all its outdated ones."""
+    store.run("batch_mark_outdated", {"segment": segment, "at": utc_now()})
+    return [{"batch_id": int(b), "state": str(s), "run_id": str(r)} for b, s, r in store.rows("batch_outdated", [segment])]
+
+
 def summary(open_batch: dict[str, Any] | None, certified: dict[str, Any] | None, other_standards: bool,
             numbers: dict[str, int]) -> str:
     """Certified and open batch side by side, with their runs by number."""
@@ -44,6 +59,8 @@ def summary(open_batch: dict[str, Any] | None, certified: dict[str, Any] | None,
     if open_batch is not None:
         word = "pending" if open_batch["state"] == "staged" else open_batch["state"]
         parts.append(f"{run(open_batch)} {word}" if certified is not None else f"{open_batch['state']}, {run(open_batch)}")
+    if outdated(open_batch) or (open_batch is None and outdated(certified)):
+        parts.append("outdated by a correction or override: value again")
     return " · ".join(parts) or "no batch"
 
 
@@ -75,7 +92,12 @@ def standing_decision(entry: SegmentBatches) -> dict[str, Any] | None:
     return None
 
 
+def current_batch(entry: SegmentBatches) -> dict[str, Any] | None:
+    """The batch whose values a segment shows now: its open batch, else its certified batch."""
+    return entry["open"] or entry["certified"]
+
+
 def state_of(entry: SegmentBatches) -> BatchState | None:
     """A segment's state in one word: its open batch's, else its certified batch's, else None."""
-    batch = entry["open"] or entry["certified"]
+    batch = current_batch(entry)
     return None if batch is None else batch["state"]

@@ -5,7 +5,8 @@ staged -> approved | held; held -> staged again only through a new value step (`
 revoked before export (to 'replaced' when a newer open batch already exists). Approval needs the segment's
 out-of-fold ratio statistics of the batch's run, judged at that moment under the current standards and
 study settings (a stored study only when it was computed on the same sales under the same basis, which is
-the same computation), to pass, or an override note, which is stored.
+the same computation), to pass, or an override note, which is stored; a batch with a parcel left without a
+value (reval/roll/flags.py `approval_blockers`) cannot be approved at all.
 The event keeps that snapshot and the batch the fingerprint of the standards it was judged under
 (reval/stats/judging.py). Approving a newer batch marks the segment's earlier approved one 'superseded'.
 Approved values never change.
@@ -21,7 +22,8 @@ from reval.errors import UserError
 from reval.data.events import record_event
 from reval.stats.judging import failures, judging_basis, judging_sha256
 from reval.data.store import Store
-from reval.roll.batch_states import live_batches
+from reval.roll.batch_states import live_batches, outdated
+from reval.roll.flags import approval_blockers
 from reval.states import BatchState, ValuesSource
 from reval.stats.study import segments_judgement
 from reval.results import AllPassing, Decision, LeftSegment
@@ -82,7 +84,15 @@ def _open_batch(store: Store, segment: str, action: str) -> dict[str, Any]:
     if batch["state"] == "held":
         raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
                         "a new run and `reval value` stage it again.")
+    if outdated(batch):
+        raise UserError(f"Cannot {action} {segment}: {_outdated_reason(batch)}.")
     return batch
+
+
+def _outdated_reason(batch: dict[str, Any]) -> str:
+    """Why an outdated batch cannot be approved or held, and what stages it again."""
+    return (f"batch {batch['batch_id']} is outdated by a data correction or an override made after it was staged; "
+            f"run `reval value {batch['segment']}` to stage its values again")
 
 
 def _note(text: str | None) -> str | None:
@@ -93,7 +103,11 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
     """Approve the segment's staged batch when its out-of-fold statistics pass, or with an override note."""
     _known(store, segment)
     note = _note(note)
-    run_id = _open_batch(store, segment, "approve")["run_id"]
+    staged = _open_batch(store, segment, "approve")
+    run_id = staged["run_id"]
+    blockers = approval_blockers(store, [staged["batch_id"]]).get(staged["batch_id"])
+    if blockers:
+        raise UserError(f"Cannot approve {segment}: {'; '.join(blockers)}. A note does not override this.")
     statistics = segment_statistics(store, config, run_id, segment)
     reasons = failures(statistics)
     if reasons and note is None:
@@ -101,7 +115,7 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
                         f"the standards: {'; '.join(reasons)}. Approve with a note to override (the note is stored).")
     with store.transaction():
         batch = _open_batch(store, segment, "approve")
-        if batch["run_id"] != run_id:
+        if batch["batch_id"] != staged["batch_id"]:
             raise UserError(f"The batch of {segment} changed while approving; try again.")
         totals = _totals(store, [batch["batch_id"]])[batch["batch_id"]]
         earlier = [b for b in live_batches(store, segment) if b["state"] == "approved"]
@@ -181,23 +195,30 @@ def _not_staged(segment: str, live: list[dict[str, Any]], open_batch: dict[str, 
 
 def approve_all_passing(store: Store, config: Config) -> AllPassing:
     """Approve, in one transaction, every staged batch whose out-of-fold statistics pass the standards in force
-    (the rule of `failures`, as a single approval judges it); report every other segment and why it was left."""
+    (the rule of `failures`, as a single approval judges it); report every other segment and why it was left,
+    outdated batches and batches with rows `approval_blockers` names included (as a single approval refuses)."""
     live = live_batches(store)
     opened = _open_batches(live)
     staged = {s: b for s, b in opened.items() if b["state"] == "staged"}
-    statistics = segments_statistics(store, config, {s: b["run_id"] for s, b in staged.items()})
+    blocked = {s: _outdated_reason(b) for s, b in staged.items() if outdated(b)}
+    blockers = approval_blockers(store, [b["batch_id"] for s, b in staged.items() if s not in blocked])
+    blocked |= {s: "; ".join(blockers[b["batch_id"]]) for s, b in staged.items() if b["batch_id"] in blockers}
+    statistics = segments_statistics(store, config, {s: b["run_id"] for s, b in staged.items() if s not in blocked})
     left: list[LeftSegment] = []
     passing = []
     for segment in sorted(r[0] for r in store.rows("roll_segments")):
         if segment not in staged:
             left.append({"segment": segment, "reason": _not_staged(segment, live, opened.get(segment))})
+        elif segment in blocked:
+            left.append({"segment": segment, "reason": blocked[segment]})
         elif reasons := failures(statistics[segment]):
             left.append({"segment": segment, "reason": "; ".join(reasons)})
         else:
             passing.append(staged[segment])
     with store.transaction():
         now = live_batches(store)
-        if {s: b["batch_id"] for s, b in _open_batches(now).items()} != {s: b["batch_id"] for s, b in opened.items()}:
+        if ({s: (b["batch_id"], outdated(b)) for s, b in _open_batches(now).items()}
+                != {s: (b["batch_id"], outdated(b)) for s, b in opened.items()}):
             raise UserError("The batches changed while approving; try again.")
         ids = {b["segment"]: b["batch_id"] for b in passing}
         earlier = [b for b in now if b["state"] == "approved" and b["segment"] in ids]

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import logging
 import os
 from pathlib import Path
 from typing import Any
@@ -31,10 +32,11 @@ from reval.data.lock import lock_path
 from reval.data.store import Store
 from reval.errors import UserError
 from reval.results import ExportResult, Manifest, PendingBatch
-from reval.roll.batch_states import segment_states
+from reval.roll.batch_states import outdated, segment_states
 from reval.roll.land import schedule_path
 from reval.roll.valuation import refuse_bad_values
 
+log = logging.getLogger("reval")
 PARTIAL_SUFFIX = ".partial"
 CHUNK = 1 << 20
 TEXT_CELLS = ("a text cell starting with = + - @ ' a tab or a carriage return was written with one more leading "
@@ -77,6 +79,10 @@ def _plan(store: Store, partial: bool) -> tuple[list[dict[str, Any]], list[str],
     certified = [s["certified"] for s in states if s["certified"] is not None]
     if not certified:
         raise UserError("Nothing to export: no segment is approved.")
+    stale = [str(b["segment"]) for b in certified if outdated(b)]
+    if stale:
+        log.warning("the certified values of %s predate a later correction or override, which is not in this roll "
+                    "until the segment is valued and approved again", ", ".join(stale))
     pending: list[PendingBatch] = [
         {"segment": s["segment"], "batch_id": int(s["open"]["batch_id"]), "run_id": str(s["open"]["run_id"]),
          "state": s["open"]["state"]} for s in states if s["certified"] is not None and s["open"] is not None]
@@ -134,6 +140,7 @@ def export_roll(store: Store, config: Config, path: Path, partial: bool = False,
 def _write_files(store: Store, config: Config, path: Path, tmp: Path, tmp_manifest: Path, ids: list[int],
                  missing: list[str], pending: list[PendingBatch]) -> Manifest:
     """The roll and its manifest in their temporary files, fsync'd; returns the manifest."""
+    store.run("csv_cells")
     store.run("export_roll_csv", {"path": str(tmp), "batch_ids": ids})
     _fsync(tmp)
     totals = store.records("export_totals", {"batch_ids": ids})

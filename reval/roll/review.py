@@ -1,8 +1,9 @@
 """Review of staged values per segment: how values move against the prior roll, the sales the fit down-weighted,
-and a sales-chasing check.
+the flags on its values (reval/roll/flags.py) and what blocks its approval, and a sales-chasing check.
 
 Value change = new market value / prior value (parcels with a prior value). The report gives its
-quantiles, the totals, and the parcels beyond +/- `assessment.review_change_threshold`.
+quantiles, the totals, and the parcels beyond +/- `assessment.review_change_threshold` (the rule of the
+`far_from_prior` flag, applied once when the values are staged).
 
 Sales chasing is making sold parcels' values follow their prices. The IAAO Standard on Ratio Studies
 (2013), Appendix E on sales-chasing detection (from memory; its text was not at hand), lists ways to see
@@ -40,6 +41,7 @@ from reval.errors import UserError
 from reval.data.store import Store
 from reval.plain import number, records
 from reval.results import ReviewReport, SalesChasing, SegmentReview
+from reval.roll.flags import approval_blockers
 from reval.stats.ratio_stats import cod
 
 CHASING_P_VALUE = 0.01
@@ -153,11 +155,16 @@ def review(store: Store, config: Config, segment: str | None = None, limit: int 
         raise UserError(f"No batch to review{' for ' + segment if segment else ''}: run `reval value` first.")
     threshold = config.assessment.review_change_threshold
     ids = batches["batch_id"].tolist()
-    summary = store.frame("review_summary", {"batch_ids": ids, "threshold": threshold}).set_index("batch_id")
-    beyond = store.frame("review_beyond", {"batch_ids": ids, "threshold": threshold, "limit": limit})
+    summary = store.frame("review_summary", {"batch_ids": ids}).set_index("batch_id")
+    beyond = store.frame("review_beyond", {"batch_ids": ids, "limit": limit})
     changes = store.frame("review_changes", {"batch_ids": ids})
     light = store.frame("review_downweighted", {"batch_ids": ids, "limit": limit})
     sold_sales = store.frame("review_sales", {"batch_ids": ids})
+    flags = store.frame("review_flags", {"batch_ids": ids})
+    blocked = approval_blockers(store, ids)
+    counts: dict[tuple[int, str], dict[str, int]] = {}
+    for f in flags.itertuples():
+        counts.setdefault((int(f.batch_id), str(f.level)), {})[str(f.flag)] = int(f.n)
     by_batch = dict(list(changes.groupby("batch_id")))
     sales_by_batch = dict(list(sold_sales.groupby("batch_id")))
     listed = dict(list(beyond.groupby("batch_id")))
@@ -182,6 +189,8 @@ def review(store: Store, config: Config, segment: str | None = None, limit: int 
             "sales_chasing": sales_chasing(moved["ratio"].to_numpy(float), moved["sold"].to_numpy(bool),
                                            config.standards.min_sales, sales_by_batch.get(b.batch_id, no_sales),
                                            config.standards.cod_min, config.assessment.rounding),
+            "flags": counts.get((int(b.batch_id), "kind"), {}), "flag_codes": counts.get((int(b.batch_id), "code"), {}),
+            "blockers": blocked.get(int(b.batch_id), []) if b.state in ("staged", "held") else [],
         })
     return {"threshold": threshold, "listed_per_segment": limit, "segments": segments}
 

@@ -4,7 +4,9 @@ The model values a parcel as exp(base + sum of log parts). A reader wants curren
 exp(base) and the rest is shared in proportion to the log parts, i.e. each part times the logarithmic
 mean L(value, base) of the value and the base: the log-mean Divisia split (Ang 2004, "Decomposition
 analysis for policymaking in energy", Energy Policy 32:1131-1139), which leaves no residual and stays
-finite when the parts cancel. Parts are then rounded to whole units by the largest-remainder method.
+finite when the parts cancel. Parts are then rounded to whole units by the largest-remainder method; for two
+parts that is rounding the first half up, which is how sql/queries/roll_insert_values.sql splits the assessed
+value into land and improvement set-based (tests/test_caps.py checks it against `apportion`).
 numpy is imported inside the functions: the app's overview, which imports this module's callers, starts
 faster without it.
 """

@@ -1,11 +1,16 @@
 """Values for every parcel from a model run, staged as one batch per segment (set-based, in DuckDB).
 
 market value = the run's estimate, rounded to the nearest `assessment.rounding`;
-assessed value = market value x `assessment.level`, rounded, then capped: a `[[assessment.caps]]` entry
-limits the assessed value of its property classes (all classes when it names none) to at most
-prior value x (1 + max_increase), rounded down; the tightest cap of a class applies;
-land value from the land schedule (reval.land), never above the total; improvement = total - land.
-Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%").
+assessed value = market value x `assessment.level`, rounded, then capped: a `[[assessment.caps]]` rule
+keeps the assessed value of its property classes within prior assessed value x (1 + max_increase), rounded
+down, and x (1 - max_decrease), rounded up; a class takes the first rule naming it, else the first naming no
+class; a rule may leave new construction or parcels sold since the prior roll uncapped (flagged
+"cap:lifted_..." when the cap would have bound). Caps never read the prior market value;
+land value from the land schedule (reval.land), never above the total; improvement = total - land; the
+assessed value is split into land and improvement in the same proportion, in whole units that add up.
+A property class the model does not value (`[classes]`) takes its land value alone, or no value.
+Every rule that changed or withheld a value leaves a flag on the parcel (e.g. "cap:max_increase_10%"), and so
+does every value a reviewer would question (reval/roll/flags.py).
 No value that is not finite, or not positive, is ever staged or exported (`refuse_bad_values`).
 
 Staging is per segment: the named segments, by default those without a standing decision (a held batch
@@ -22,9 +27,11 @@ import pandas as pd
 
 from reval.clock import utc_now
 from reval.data.config import Config
-from reval.errors import ConfigError, UserError
+from reval.errors import UserError
 from reval.data.events import record_event
+from reval.data.fingerprint import refuse_changed_data
 from reval.roll.batch_states import SegmentBatches, segment_states, standing_decision
+from reval.roll.flags import class_rules, flag_values
 from reval.roll.land import LandSchedule, load_land_schedule
 from reval.data.store import Store
 from reval.results import StagePlan, StageResult, StagedBatch, StandingDecision
@@ -42,20 +49,11 @@ def resolve_run(store: Store, run_id: str | None) -> str:
     return run_id
 
 
-def _check_coverage(store: Store, run_id: str) -> None:
-    missing, unknown, first_missing, first_unknown = store.rows("roll_run_coverage", [run_id])[0]
-    if missing:
-        raise UserError(f"Run {run_id} has no value for {missing:,} imported parcel(s) (e.g. {first_missing}); "
-                        "it was fitted on another data set: run `reval fit` again.")
-    if unknown:
-        raise UserError(f"Run {run_id} values {unknown:,} parcel(s) that are no longer imported "
-                        f"(e.g. {first_unknown}): run `reval fit` again.")
-
-
 def refuse_bad_values(store: Store, batch_ids: list[int], step: str) -> None:
     """Refuse a step (staging, export) whose batches hold a value that cannot go on a roll: market and assessed
     values must be finite and positive, prior, land and improvement values finite and not negative; the
-    message names the parcels."""
+    message names the parcels. A row without a value (a class left for a manual value) is not refused here: it
+    blocks its segment's approval (reval/roll/flags.py)."""
     rows = store.records("roll_bad_values", {"batch_ids": batch_ids})
     if not rows:
         return
@@ -66,26 +64,37 @@ def refuse_bad_values(store: Store, batch_ids: list[int], step: str) -> None:
 
 
 def cap_table(config: Config, classes: list[str]) -> pd.DataFrame:
-    """Each property class's tightest cap: property_class, max_increase, label (classes without a cap left out)."""
-    best: dict[str, float] = {}
-    for i, cap in enumerate(config.assessment.caps):
-        key = f"assessment.caps[{i}]"
-        limit = float(cap["max_increase"])
-        if limit < 0:
-            raise ConfigError(config.path, f"{key}.max_increase", "cannot be negative")
+    """Each property class's cap rule (the first naming it, else the first naming no class; classes without a
+    rule left out): property_class, max_increase, max_decrease (NaN = no limit), exclude_new_construction,
+    reset_on_sale, and the flag each limit leaves."""
+    chosen: dict[str, Mapping[str, Any]] = {}
+    for cap in config.assessment.caps:
         named = cap.get("property_classes")
-        if named is not None and (not isinstance(named, list) or not all(isinstance(c, str) for c in named)):
-            raise ConfigError(config.path, f"{key}.property_classes", "expected a list of strings")
-        for cls in classes if named is None else [c for c in named if c in classes]:
-            best[cls] = min(limit, best.get(cls, limit))
-    return pd.DataFrame({"property_class": pd.Series(list(best), dtype=str),
-                         "max_increase": pd.Series(list(best.values()), dtype=float),
-                         "label": pd.Series([f"cap:max_increase_{v * 100:g}%" for v in best.values()], dtype=str)})
+        for cls in [c for c in named if c in classes] if named is not None else []:
+            chosen.setdefault(cls, cap)
+    for cap in config.assessment.caps:
+        if cap.get("property_classes") is None:
+            for cls in classes:
+                chosen.setdefault(cls, cap)
+    rows = [{"property_class": cls, "max_increase": cap.get("max_increase"), "max_decrease": cap.get("max_decrease"),
+             "exclude_new_construction": bool(cap.get("exclude_new_construction", False)),
+             "reset_on_sale": bool(cap.get("reset_on_sale", False)),
+             "increase_label": _label("max_increase", cap.get("max_increase")),
+             "decrease_label": _label("max_decrease", cap.get("max_decrease"))} for cls, cap in chosen.items()]
+    columns = {"property_class": str, "max_increase": float, "max_decrease": float, "exclude_new_construction": bool,
+               "reset_on_sale": bool, "increase_label": object, "decrease_label": object}
+    return pd.DataFrame({k: pd.Series([r[k] for r in rows], dtype=t) for k, t in columns.items()})
 
 
-def _basis(config: Config, schedule: LandSchedule | None) -> str:
-    """Fingerprint of what the values depend on besides the run: the config and the land schedule."""
-    return hashlib.sha256(f"{config.sha256}:{schedule.sha256 if schedule else '-'}".encode()).hexdigest()
+def _label(limit: str, value: float | None) -> str | None:
+    return None if value is None else f"cap:{limit}_{value * 100:g}%"
+
+
+def _basis(store: Store, config: Config, schedule: LandSchedule | None) -> str:
+    """Fingerprint of what the values depend on besides the run: the config, the land schedule and the imported
+    files (a re-import that changes only prior values, which caps read, still gives new batches)."""
+    files = ",".join(str(r[2]) for r in store.rows("dataset_files"))
+    return hashlib.sha256(f"{config.sha256}:{schedule.sha256 if schedule else '-'}:{files}".encode()).hexdigest()
 
 
 def _lot_position(store: Store, schedule: LandSchedule | None) -> int | None:
@@ -133,8 +142,9 @@ def plan_staging(store: Store, config: Config, run_id: str | None = None, segmen
                  replace: bool = False) -> StagePlan:
     """What `stage_values` would do, without doing it: what the app's confirmation lists."""
     run = resolve_run(store, run_id)
+    refuse_changed_data(store, run)
     chosen, kept, set_aside = _choose(store, segments, replace)
-    basis = _basis(config, load_land_schedule(config, [r[0] for r in store.rows("roll_segments")]))
+    basis = _basis(store, config, load_land_schedule(config, [r[0] for r in store.rows("roll_segments")]))
     fresh = {r[0] for r in store.rows("roll_segments_to_stage", {"run": run, "basis": basis, "segments": chosen})}
     return {"run_id": run, "stage": [s for s in chosen if s in fresh], "unchanged": [s for s in chosen if s not in fresh],
             "kept": kept, "set_aside": [d for d in set_aside if d["segment"] in fresh]}
@@ -146,17 +156,18 @@ def stage_values(store: Store, config: Config, run_id: str | None = None, segmen
     segment's open batch; a held or approved batch only with `replace`; exported batches are never touched.
     One transaction."""
     run = resolve_run(store, run_id)
-    _check_coverage(store, run)
+    refuse_changed_data(store, run)
     every = [r[0] for r in store.rows("roll_segments")]
     schedule = load_land_schedule(config, every)
-    basis = _basis(config, schedule)
-    caps = cap_table(config, [r[0] for r in store.rows("roll_property_classes")])
+    basis = _basis(store, config, schedule)
+    classes = [r[0] for r in store.rows("roll_property_classes")]
+    caps = cap_table(config, classes)
     lot_position = _lot_position(store, schedule)
     land_rows = schedule.rows if schedule else pd.DataFrame(
         {"segment": pd.Series(dtype=str), "base_lot_size": pd.Series(dtype=float),
          "base_land_value": pd.Series(dtype=float), "size_exponent": pd.Series(dtype=float)})
     at = utc_now()
-    frames = {"roll_land_schedule": land_rows, "roll_caps": caps}
+    frames = {"roll_land_schedule": land_rows, "roll_caps": caps, "roll_classes": class_rules(config, classes)}
     for name, frame in frames.items():
         store.con.register(name, frame)
     try:
@@ -173,7 +184,9 @@ def stage_values(store: Store, config: Config, run_id: str | None = None, segmen
             new_ids = staged["batch_id"].tolist()
             store.run("roll_insert_values", {"run": run, "batch_ids": new_ids, "level": config.assessment.level,
                                              "rounding": config.assessment.rounding,
+                                             "prior_roll_date": config.assessment.prior_roll_date,
                                              "allocate": schedule is not None, "lot_position": lot_position})
+            flag_values(store, config, run, new_ids)
             refuse_bad_values(store, new_ids, "Staging")
             _record_staging(con, run, basis, staged, replaced)
             flags = dict(store.rows("roll_flag_counts", {"batch_ids": new_ids}))

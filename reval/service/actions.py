@@ -19,9 +19,10 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (AllPassing, BatchStates, CompareResult, Decision, DemoSummary, Event, EventLog,
-                                     ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
-                                     SalesCounts, StagePlan, StageResult, StudyResult)
+    from reval.service.types import (AllPassing, BatchStates, CheckReport, CompareResult, CorrectionResult, Decision,
+                                     DemoSummary, Event, EventLog, Explanation, ExportResult, FitSummary,
+                                     ImportSummary, OverrideResult, ParcelReport, ReportResult, ReviewReport,
+                                     SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult, ValueSplit)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -76,11 +77,20 @@ def decide_sale(folder: Path, sale_id: str, decision: SaleChoice, reason: str) -
 
 
 def sales_report(folder: Path) -> SalesCounts:
-    """The stored qualification counts."""
+    """The stored qualification counts and the repeat sales."""
     from reval.data.sales import stored_summary
 
-    with open_project(folder) as (_, store):
-        return stored_summary(store).as_dict()
+    with open_project(folder) as (config, store):
+        return stored_summary(store, config).as_dict()
+
+
+def check_data(folder: Path, csv_path: Path | None = None) -> CheckReport:
+    """The data-quality check before fitting: problems per segment and check, and every row in a CSV when
+    `csv_path` is given (the database is only read)."""
+    from reval.data import check
+
+    with open_project(folder) as (config, store):
+        return check.check_report(store, config, csv_path)
 
 
 def segment_overview(folder: Path) -> list[Record]:
@@ -94,13 +104,14 @@ def segment_overview(folder: Path) -> list[Record]:
 def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id: str | None = None,
           in_sample: bool = False) -> StudyResult:
     """Run and store a ratio study; model values (the latest run unless named) are out-of-fold unless
-    in_sample is asked for."""
+    in_sample is asked for; final values are the roll's after overrides."""
     from reval.roll.valuation import resolve_run
     from reval.stats.study import run_study
 
-    source: ValuesSource = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    source: ValuesSource = ("prior" if values == "prior" else "final" if values == "final"
+                            else "model_in_sample" if in_sample else "model_out_of_fold")
     with open_project(folder, write=True) as (config, store):
-        run = None if source == "prior" else resolve_run(store, run_id)
+        run = None if source in ("prior", "final") else resolve_run(store, run_id)
         return run_study(store, config, source, by, run)
 
 
@@ -192,6 +203,53 @@ def review(folder: Path, segment: str | None = None, limit: int = 20) -> ReviewR
         return review_batches(store, config, segment, limit)
 
 
+def parcel_report(folder: Path, parcel_id: str, page: Path | None = None) -> ParcelReport:
+    """Why one parcel has its value: the value (roll, else model), prior values, flags, its segment's ratio
+    statistics, the explanation feature by feature (largest first) and the comparable sales adjusted by the
+    latest run's model; with `page`, also written as a one-page report (.html or .pdf). An unknown id is refused
+    with the closest ids."""
+    from reval.report.document import check_path
+    from reval.roll.comparables import comparable_grid
+    from reval.service.views import read_parcel, segment_statistics
+    from reval.service.wording import CAUTION
+
+    if page is not None:
+        check_path(page)
+    with open_project(folder) as (config, store):
+        d = read_parcel(store, config, parcel_id)
+        estimate, roll = d["estimate"], (d["roll"][0] if d["roll"] else None)
+        model_value = round(estimate["market_value"]) if estimate else None
+        value = round(roll["market_value"]) if roll else model_value
+        source = (f"roll, batch {roll['batch_id']} ({roll['state']})" if roll
+                  else f"model, run {d['run_id']}" if estimate else "no value yet (run `reval fit`)")
+        grid = comparable_grid(store, config, d["run_id"], d["parcel_id"]) if estimate and d["run_id"] else None
+        result: ParcelReport = {
+            "jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
+            "parcel_id": d["parcel_id"], "segment": d["segment"], "market_area": d["market_area"],
+            "property_class": d["property_class"], "run_id": d["run_id"], "features": d["features"],
+            "value": {"value": value, "source": source, "model_value": model_value, "roll": roll},
+            "prior_values": d["prior_values"], "value_change": d["value_change"], "flags": d["flags"],
+            "segment_statistics": segment_statistics(store, config, d["run_id"], d["segment"]),
+            "explanation": _explanation(d["segment"], d["split"]), "comparables": grid, "caution": CAUTION,
+            "report": None}
+    if page is not None:
+        from reval.report.parcel_page import write_parcel_page
+
+        result["report"] = str(write_parcel_page(result, page))
+    return result
+
+
+def _explanation(segment: str, split: ValueSplit | None) -> Explanation | None:
+    """The value split (reval.roll.split) as a reader wants it: parts largest first, each with its share."""
+    if split is None:
+        return None
+    parts = sorted(split["parts"], key=lambda p: -abs(p["currency"]))
+    return {"measured_from": f"segment {segment}'s base (every part at zero)",
+            "base": split["base"], "value": split["value"],
+            "parts": [{"term": p["term"], "currency": p["currency"], "percent": p["currency"] / split["value"],
+                       "log": p["log"]} for p in parts]}
+
+
 def approve(folder: Path, segment: str, note: str | None = None) -> Decision:
     """Approve a segment's staged batch (its out-of-fold statistics must pass, or give an override note)."""
     from reval.roll import batches
@@ -222,6 +280,33 @@ def revoke(folder: Path, segment: str, note: str) -> Decision:
 
     with open_project(folder, write=True) as (config, store):
         return batches.revoke(store, config, segment, note)
+
+
+def set_override(folder: Path, parcel_id: str, value: float, reason: str, note: str | None = None) -> OverrideResult:
+    """Set one parcel's market value over the model's, with a reason code from [overrides] reasons; the segment's
+    batches become outdated until it is valued and decided again."""
+    from reval.roll.overrides import set_override as set_value
+
+    with open_project(folder, write=True) as (config, store):
+        return set_value(store, config, parcel_id, value, reason, note)
+
+
+def remove_override(folder: Path, parcel_id: str, note: str) -> OverrideResult:
+    """Remove one parcel's override, with a note; the model's value applies again at the next value step."""
+    from reval.roll.overrides import remove_override as remove
+
+    with open_project(folder, write=True) as (_, store):
+        return remove(store, parcel_id, note)
+
+
+def correct_parcel(folder: Path, parcel_id: str, changes: list[str], note: str,
+                   run_id: str | None = None) -> CorrectionResult:
+    """Correct one parcel's characteristics (`feature=value` each) and revalue it with the run's stored models
+    (no refit); the segment's batches become outdated until it is valued and decided again."""
+    from reval.data.corrections import correct_parcel as correct
+
+    with open_project(folder, write=True) as (config, store):
+        return correct(store, config, parcel_id, changes, note, run_id)
 
 
 def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> ExportResult:
@@ -271,6 +356,8 @@ def build_demo(folder: Path, n_parcels: int | None, progress: Progress | None = 
     sales = prepare_sales(folder, progress)
     steps.append(f"sales: {sales['qualified']:,} qualified, {sales['excluded']:,} excluded (with reasons)")
     steps += [f"market trend: {note}" for note in sales["trend_notes"]]
+    checked = check_data(folder)
+    steps.append(f"data check: {sum(checked['totals'].values()):,} rows to look at (reval check --csv FILE)")
     for by in ("market_area", "class", "all", "segment"):
         prior = study(folder, "prior", by)
     steps.append(_failing("ratio study of prior values", prior))

@@ -6,18 +6,22 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (AllPassing, Decision, ExportResult, FitSummary, ImportSummary, ReportResult, ReviewReport, SaleDecision,
+from reval.results import (AllPassing, CheckNotRun, CheckPage, CheckReport, CheckSegment, ComparableGrid,
+                           ComparableSale, CorrectionResult, Decision, ExportResult, FitSummary, GridRow,
+                           ImportSummary, OverrideResult, RepeatSale, ReportResult, ReviewReport, SaleDecision,
                            SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["AllPassing", "BatchStates", "CompareResult", "Curve", "Decision", "DemoSummary", "Equity", "Event", "EventLog",
-           "ExportResult", "FitSummary", "ImportSummary", "Overview", "OverviewRow", "ParcelDetail", "Record",
-           "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts", "SalesPage", "SegmentDetail", "StagePlan", "StageResult",
-           "StandingDecision", "StatCell", "StudyGroup",
-           "StudyResult", "ValueChange", "ValueSplit"]
+__all__ = ["AllPassing", "BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "ComparableGrid",
+           "ComparableSale", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity",
+           "Event", "EventLog", "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow",
+           "ImportSummary", "OverrideResult", "Overview", "OverviewRow", "ParcelDetail", "ParcelReport",
+           "ParcelValue", "Record", "RepeatSale", "ReportResult", "ReviewReport", "SaleDecision", "SalesCounts",
+           "SalesPage", "SegmentDetail", "SegmentStatistics", "StagePlan", "StageResult", "StandingDecision",
+           "StatCell", "StudyGroup", "StudyResult", "ValueChange", "ValueSplit"]
 
 
 class DemoSummary(TypedDict):
@@ -84,7 +88,7 @@ class OverviewRow(TypedDict):
     value_change: float | None
     stats: dict[str, StatCell]   # by statistic: median_ratio, cod, prd, prb
     n: int
-    failing: bool                # cannot be approved without a note: a verdict not a pass, or no study
+    failing: bool                # cannot be approved without a note: a verdict not a pass, no study, or a parcel without a value
     state: BatchState | None
     batches: str                 # certified and open batch side by side, e.g. "approved, run 3 · run 4 pending"
 
@@ -179,14 +183,80 @@ class ParcelDetail(TypedDict):
     segment: str
     market_area: str
     property_class: str
-    prior_value: float | None
+    prior_value: float | None            # the prior market value
+    prior_assessed_value: float | None
+    prior_values: dict[str, Any]   # every prior_* column of the parcel (prior market value, prior assessed value)
     latitude: float | None
     longitude: float | None
     run_id: str | None
     features: list[Record]
     estimate: Record | None
     split: ValueSplit | None
+    reference: list[Record]              # the segment's reference parcel the split is measured from
     roll: list[Record]
     value_change: float | None
     sales: list[Record]
     flags: list[str]
+    override: Record | None        # the standing override (value, reason, note, set_at, who)
+    override_reasons: list[str]    # the reason codes the config accepts
+
+
+class SegmentStatistics(TypedDict):
+    """A segment's group in the stored study the app shows, with its verdict per statistic."""
+
+    segment: str
+    study_id: str
+    values: str
+    n: int
+    median_ratio: float | None
+    cod: float | None
+    prd: float | None
+    prb: float | None
+    verdicts: dict[str, str]
+
+
+class ParcelValue(TypedDict):
+    """The value shown for a parcel: its newest roll row's market value when staged or certified, else the model's."""
+
+    value: int | None
+    source: str
+    model_value: int | None
+    roll: Record | None
+
+
+class ExplanationPart(TypedDict):
+    term: str
+    currency: int
+    percent: float   # share of the value
+    log: float
+
+
+class Explanation(TypedDict):
+    """The model value split into its base and one currency part per feature, largest first (they add up to it)."""
+
+    measured_from: str
+    base: int
+    value: int
+    parts: list[ExplanationPart]
+
+
+class ParcelReport(TypedDict):
+    """Everything that defends one parcel's value (`reval parcel ID`, its report page and the app)."""
+
+    jurisdiction: str
+    valuation_date: str
+    parcel_id: str
+    segment: str
+    market_area: str
+    property_class: str
+    run_id: str | None
+    features: list[Record]
+    value: ParcelValue
+    prior_values: dict[str, Any]
+    value_change: float | None
+    flags: list[str]
+    segment_statistics: SegmentStatistics | None
+    explanation: Explanation | None
+    comparables: ComparableGrid | None
+    caution: str
+    report: str | None   # the one-page report's file, when one was written

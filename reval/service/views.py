@@ -21,9 +21,11 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (Curve, Equity, Overview, OverviewRow, ParcelDetail, Record, SalesPage,
-                                 SegmentDetail, SegmentReview, StatCell, ValueChange)
+from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, Overview, OverviewRow, ParcelDetail,
+                                 Record, SalesPage, SegmentDetail, SegmentReview, SegmentStatistics, StatCell,
+                                 ValueChange)
 from reval.states import BatchState
+from reval.roll.flags import approval_blockers
 from reval.stats.judging import failures, judging_sha256
 from reval.stats.sources import SOURCE_LABELS
 from reval.states import ValuesSource
@@ -127,6 +129,8 @@ def overview(folder: Path) -> Overview:
         run_id = latest_run(store)
         study, note = _study(store, config, run_id)
         by_group = {g["group"]: g for g in (study["groups"] if study else [])}
+        open_ids = {e["segment"]: int(e["open"]["batch_id"]) for e in states.values() if e["open"] is not None}
+        blocked = approval_blockers(store, list(open_ids.values()))
         rows: list[OverviewRow] = []
         for r in store.records("app_segments", [run_id]):
             group = by_group.get(r["segment"])
@@ -135,7 +139,7 @@ def overview(folder: Path) -> Overview:
                          "sales": r["sales"], "kind": r["kind"], "borrowed_share": r["borrowed_share"],
                          "reason": r["reason"], "value_change": r["value_change"], "stats": stats,
                          "n": group["n"] if group else 0,
-                         "failing": not _approvable(group, study),
+                         "failing": not _approvable(group, study) or open_ids.get(r["segment"]) in blocked,
                          "state": _state(states.get(r["segment"])),
                          "batches": states[r["segment"]]["summary"] if r["segment"] in states else "no batch"})
         return {"jurisdiction": config.jurisdiction, "valuation_date": config.valuation_date.isoformat(),
@@ -283,8 +287,9 @@ def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
 
 
 def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50) -> SalesPage:
-    """One page of a segment's sales (largest ratio deviations first) with the values under study, and each sale's
-    weight in the latest run's fit with why it is below 1."""
+    """One page of a segment's sales: those the analyst excluded first (so they can be reinstated), then the
+    qualified ones, largest ratio deviations first, with the values under study and each sale's weight in the
+    latest run's fit with why it is below 1."""
     with open_project(folder) as (config, store):
         run_id = latest_run(store)
         study, _ = _study(store, config, run_id)
@@ -302,11 +307,28 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
                 "values": "out-of-fold model values" if model else "prior roll values", "downweighted": light}
 
 
+# ---- the data-quality check -----------------------------------------------------------------------------
+
+def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | None = None,
+               code: str | None = None, sort: str = "segment") -> CheckPage:
+    """One page of the data-quality check's rows, filtered by segment and check and sorted in SQL. The check is
+    built afresh on a read-only connection (it always shows the data as they are), for the one segment asked for
+    when there is one: a page of a segment's rows costs that segment's work."""
+    from reval.data import check  # loads numpy: only the check screen needs it
+
+    with open_project(folder) as (config, store):
+        check.build_check(store, config, segment)
+        return check.rows_page(store, page, page_size, segment, code, sort)
+
+
 # ---- one parcel ----------------------------------------------------------------------------------------
 
 def _parcel_flags(config: Config, parcel: Record, features: list[Record], estimate: Record | None,
-                  sales: list[Record], trimmed: list[str], roll: list[Record]) -> list[str]:
+                  sales: list[Record], trimmed: list[str], roll: list[Record], override: Record | None) -> list[str]:
     flags = []
+    if override is not None:
+        flags.append(f"overridden: {override['value']:,.0f} ({override['reason']}) over the model's value"
+                     + ("" if any(r["override_reason"] for r in roll[:1]) else "; not on the roll until valued again"))
     missing = [f["name"] for f in features if f["value"] is None]
     if missing:
         flags.append("missing feature values (the model used typical values): " + ", ".join(missing))
@@ -321,42 +343,78 @@ def _parcel_flags(config: Config, parcel: Record, features: list[Record], estima
         flags.append(f"valued with its parent's model: {estimate['reason'] or 'too few sales'}")
     flags += [f"sale {s['sale_id']} excluded: {s['reason']}" for s in sales if s["qualified"] is False]
     flags += [f"sale {t} trimmed as a ratio outlier" for t in trimmed]
-    flags += [f"roll (batch {r['batch_id']}, {r['state']}): {flag}" for r in roll for flag in r["flags"]]
+    flags += [f"roll (batch {r['batch_id']}, {r['state']}): {text}" for r in roll
+              for text in (r["flag_text"].split("; ") if r["flag_text"] else r["flags"])]
     return flags
 
 
 def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
+    with open_project(folder) as (config, store):
+        return read_parcel(store, config, parcel_id)
+
+
+def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
+    """`parcel_detail` on an open project (the parcel report builds on it)."""
+    parcel_id = parcel_id.strip()
+    found = store.records("app_parcel", [parcel_id])
+    if not found:
+        near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
+        hint = f"; did you mean {', '.join(near)}?" if near else ""
+        raise UserError(f"No parcel with id {parcel_id!r}{hint}")
+    parcel = found[0]
+    run_id = latest_run(store)
+    features = store.records("app_parcel_features", [parcel_id])
+    estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
+    parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
+    reference = store.records("app_segment_reference", [run_id, parcel["segment"]]) if estimate else []
+    sales = store.records("app_parcel_sales", [run_id, parcel_id])
+    for s in sales:
+        s["sale_date"] = s["sale_date"].isoformat()
+    trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
+    roll = store.records("app_parcel_roll", [parcel_id])
+    override = next(iter(store.records("override_get", [parcel_id])), None)
+    for r in roll:
+        r["flags"] = list(r["flags"] or [])
+    split = None
+    if parts:
+        logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
+        base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
+        split = value_split(base, logs)
+    prior = parcel["prior_value"]
+    value = estimate["market_value"] if estimate else None
+    return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
+            "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
+            "prior_values": {k: v for k, v in parcel.items() if k.startswith("prior_")},
+            "prior_assessed_value": parcel["prior_assessed_value"], "reference": reference,
+            "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
+            "features": features, "estimate": estimate, "split": split, "roll": roll,
+            "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
+            "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll, override),
+            "override": override, "override_reasons": list(config.overrides.reasons)}
+
+
+def segment_statistics(store: Store, config: Config, run_id: str | None, segment: str) -> SegmentStatistics | None:
+    """The segment's group in the study the app shows (out-of-fold for the run when stored, else prior values)."""
+    study, _ = _study(store, config, run_id)
+    group = next((g for g in (study["groups"] if study else []) if g["group"] == segment), None)
+    if study is None or group is None:
+        return None
+    return {"segment": segment, "study_id": study["study_id"],
+            "values": SOURCE_LABELS.get(study["values_source"], study["values_source"]), "n": group["n"],
+            "median_ratio": group["median_ratio"], "cod": group["cod"], "prd": group["prd"], "prb": group["prb"],
+            "verdicts": {stat: v["status"] for stat, v in group["verdicts"].items()}}
+
+
+def parcel_comparables(folder: Path, parcel_id: str) -> ComparableGrid | None:
+    """The parcel's comparable sales adjusted by the latest run's model (None before the first run or when the
+    run did not value it)."""
+    from reval.roll.comparables import comparable_grid  # numpy: only the parcel view needs it
+
     parcel_id = parcel_id.strip()
     with open_project(folder) as (config, store):
-        found = store.records("app_parcel", [parcel_id])
-        if not found:
-            near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
-            hint = f"; did you mean {', '.join(near)}?" if near else ""
-            raise UserError(f"No parcel with id {parcel_id!r}{hint}")
-        parcel = found[0]
         run_id = latest_run(store)
-        features = store.records("app_parcel_features", [parcel_id])
-        estimate = next(iter(store.records("app_parcel_estimate", [run_id, parcel_id])), None) if run_id else None
-        parts = store.records("app_parcel_contributions", [run_id, parcel_id]) if estimate else []
-        sales = store.records("app_parcel_sales", [run_id, parcel_id])
-        for s in sales:
-            s["sale_date"] = s["sale_date"].isoformat()
-        trimmed = sorted({r["sale_id"] for r in store.records("app_parcel_trimmed", [parcel_id])})
-        roll = store.records("app_parcel_roll", [parcel_id])
-        for r in roll:
-            r["flags"] = list(r["flags"] or [])
-        split = None
-        if parts:
-            logs = {p["term"]: p["contribution"] for p in parts if p["term"] != BASE_TERM}
-            base = sum(p["contribution"] for p in parts if p["term"] == BASE_TERM)
-            split = value_split(base, logs)
-        prior = parcel["prior_value"]
-        value = estimate["market_value"] if estimate else None
-        return {"parcel_id": parcel["parcel_id"], "segment": parcel["segment"], "market_area": parcel["market_area"],
-                "property_class": parcel["property_class"], "prior_value": parcel["prior_value"],
-                "latitude": parcel["latitude"], "longitude": parcel["longitude"], "run_id": run_id,
-                "features": features, "estimate": estimate, "split": split, "roll": roll,
-                "value_change": (value / prior - 1) if value and prior else None, "sales": sales,
-                "flags": _parcel_flags(config, parcel, features, estimate, sales, trimmed, roll)}
+        if run_id is None or not store.rows("app_parcel_estimate", [run_id, parcel_id]):
+            return None
+        return comparable_grid(store, config, run_id, parcel_id)

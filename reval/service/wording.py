@@ -2,12 +2,29 @@
 from __future__ import annotations
 
 import re
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from reval.results import ComparableGrid
 
 from rich.cells import cell_len
+
+from reval.states import FlagKind
 
 CAUTION = ("Values are estimates for review by a qualified assessor; assessment level, caps, exemptions, "
            "notices and appeals follow local law.")
 MISSING = "–"
+
+# Each kind of roll flag (reval.states.FlagKind, reval/roll/flags.py) in a few words, for column heads and counts.
+FLAG_WORDS: dict[FlagKind, str] = {
+    "filled": "filled in", "beyond": "beyond the sales", "few_sales": "few sales", "far_from_prior": "far from prior",
+    "class": "class rule", "cap": "capped", "land": "land rule", "override": "override",
+}
+
+
+def flag_counts(flags: dict[str, int]) -> str:
+    """Parcels per kind of flag in one line ("12 filled in, 3 beyond the sales"), or "none"."""
+    return ", ".join(f"{n:,} {FLAG_WORDS.get(k, k)}" for k, n in flags.items() if k in FLAG_WORDS and n) or "none"
 
 
 def money(value: float | None) -> str:
@@ -23,6 +40,13 @@ def signed_money(value: float | None) -> str:
 def percent(value: float | None, digits: int = 1) -> str:
     """A fraction as a signed percentage (+12.5%), or – when there is no value."""
     return MISSING if value is None else f"{value:+.{digits}%}"
+
+
+def measured_from(segment: str, reference: list[dict[str, str]]) -> str:
+    """What a parcel's contributions are measured from: its segment's reference parcel (reval/model/reference.py)."""
+    listed = "; ".join(f"{r['feature']} {r['shown']} ({r['how']})" for r in reference)
+    return (f"Each part is measured from the reference parcel of segment {segment}, whose value is the base: "
+            f"{listed}. A feature at its reference value adds 0.")
 
 
 NAME_WIDTH = 40        # terminal cells a name may take in a table before it is cut with an ellipsis
@@ -50,3 +74,38 @@ def shown(text: object, width: int | None = None, *, lines: bool = False) -> str
         kept.append(char)
         used += size
     return "".join(kept) + ELLIPSIS
+
+
+def grid_table(grid: ComparableGrid) -> tuple[list[str], list[list[str]]]:
+    """The adjustment grid as the trade lays it out, for every front-end: a column per comparable (the subject
+    first), a row per feature with the comparable's value and the model's adjustment, then net and gross
+    adjustment and the adjusted price (the subject's column shows its model value there)."""
+    comps = grid["comparables"]
+    header = ["", "Subject", *(f"Sale {c['sale_id']}" for c in comps)]
+    rows = [["Parcel", grid["parcel_id"], *(c["parcel_id"] for c in comps)],
+            ["Sale date", "", *(c["sale_date"] for c in comps)],
+            ["Sale price", "", *(money(c["sale_price"]) for c in comps)],
+            ["Time-adjusted price", "", *(money(c["time_adjusted_price"]) for c in comps)]]
+    for r in grid["rows"]:
+        rows.append([r["term"], r["subject"],
+                     *(f"{v}  {signed_money(a)}".strip() for v, a in zip(r["values"], r["adjustments"]))])
+    rows += [["Net adjustment", "", *(f"{signed_money(c['net_adjustment'])} ({percent(c['net_percent'])})"
+                                      for c in comps)],
+             ["Gross adjustment", "", *(f"{c['gross_percent']:.1%}" + (" !" if c["over_max_gross"] else "")
+                                        for c in comps)],
+             ["Adjusted price", f"model {money(grid['model_value'])}", *(money(c["adjusted_price"]) for c in comps)]]
+    return header, rows
+
+
+def indicated_range(grid: ComparableGrid) -> str:
+    """One sentence: the value the comparables indicate and their range beside the model value."""
+    if not grid["comparables"]:
+        return f"No comparable sale found (searched: {grid['searched'].replace('_', ' ')})."
+    inside = "inside" if grid["brackets"] else "outside"
+    over = sum(c["over_max_gross"] for c in grid["comparables"])
+    beyond = (f" {over} sale(s) marked ! need more than the maximum gross adjustment of "
+              f"{grid['max_gross_adjustment']:.0%}: too few sales were within it." if over else "")
+    return (f"Indicated value {money(grid['indicated_value'])} (weighted median of {len(grid['comparables'])} "
+            f"adjusted sales, range {money(grid['low'])} to {money(grid['high'])}); the model value "
+            f"{money(grid['model_value'])} is {inside} the range. Searched the {grid['searched'].replace('_', ' ')}: "
+            f"{grid['candidates']} candidate sales.{beyond}")

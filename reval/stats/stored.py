@@ -9,7 +9,7 @@ from reval.data.store import Store
 from reval.errors import UserError
 from reval.plain import number
 from reval.states import Grouping, ValuesSource, VerdictStatus
-from reval.stats.sources import IN_SAMPLE_WARNING, SOURCE_LABELS
+from reval.stats.sources import FINAL_WARNING, IN_SAMPLE_WARNING, SOURCE_LABELS
 
 STATS = ("median_ratio", "cod", "prd", "prb")
 CI_COLUMNS = {"median_ratio": "median", "cod": "cod", "prd": "prd", "prb": "prb"}  # stored as <name>_lo, _hi
@@ -123,4 +123,6 @@ def load_study(store: Store, values_source: ValuesSource, grouping: Grouping, ru
                         "confidence": float(h["confidence"]), "groups": groups}
     if h["values_source"] == "model_in_sample":
         out["warning"] = IN_SAMPLE_WARNING
+    elif h["values_source"] == "final":
+        out["warning"] = FINAL_WARNING
     return out

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import logging
 from typing import Any
 
 import numpy as np
@@ -21,6 +22,7 @@ from reval.stats.ratio_stats import RatioStudy, ratio_study, value_proxy
 from reval.stats.standards import judge
 from reval.data.store import Store
 from reval.plain import number
+from reval.roll.batch_states import current_batch, outdated, segment_states
 from reval.states import GROUPINGS, Grouping, ValuesSource
 from reval.stats.sources import SOURCE_LABELS
 from reval.stats.stored import StudyGroup, StudyResult, group_from_row, load_study, stored_groups, study_id
@@ -29,6 +31,23 @@ GROUP_COLUMNS: dict[str, tuple[str, ...]] = {"segment": ("segment",), "market_ar
                                              "class": ("property_class",),
                                              "segment_class": ("segment", "property_class"), "all": ()}
 CLASS_SEPARATOR = " / "   # the group name of a segment x class study: "ASKR / single_family"
+log = logging.getLogger("reval")
+
+
+def final_batches(store: Store) -> list[int]:
+    """The batches whose roll values a study of final values reads: each segment's current batch (open, else
+    certified); a notice names the segments whose batch is outdated by a later correction or override."""
+    states = segment_states(store)
+    current = [(e["segment"], b) for e in states if (b := current_batch(e)) is not None]
+    if not current:
+        raise UserError("No values on the roll yet: run `reval value` before a study of final values.")
+    stale = [s for s, b in current if outdated(b)]
+    if stale:
+        log.warning("final values of %s predate a correction or override: run `reval value` to include it",
+                    ", ".join(stale))
+    return [int(b["batch_id"]) for _, b in current]
+
+
 BANDS = 5                 # value ranges and size bands are quintiles (common practice)
 BANDED_GROUPINGS: tuple[Grouping, ...] = ("value_range", "age", "size")   # groups made from values, not names
 UNKNOWN = "unknown"       # the age or size group of parcels without the feature's value
@@ -94,11 +113,15 @@ def _banded(store: Store, config: Config, sales: pd.DataFrame, grouping: Groupin
 
 def sales_for_study(store: Store, values_source: str, run_id: str | None) -> pd.DataFrame:
     """Sales with columns sale_id, parcel_id, price (time-adjusted), value, segment, market_area, property_class;
-    for model values also the sale's weight in the run's fit and why it is below 1."""
+    for model values also the sale's weight in the run's fit and why it is below 1. Model values leave out the
+    sales of overridden parcels (the analyst set the model's value aside there); final values (the roll after
+    overrides) include them."""
     if store.rows("count_adjusted_sales")[0][0] == 0:
         raise UserError("No prepared sales yet: run `reval sales` first.")
     if values_source == "prior":
         return store.frame("study_sales_prior")
+    if values_source == "final":
+        return store.frame("study_sales_final", {"batch_ids": final_batches(store)})
     column = "oof_value" if values_source == "model_out_of_fold" else "insample_value"
     frame = store.frame("study_sales_model", [run_id])
     return frame.assign(value=frame[column]).drop(columns=["oof_value", "insample_value"])

@@ -1,3 +1,2 @@
--- One parcel's identity and prior value. $1 parcel id.
-SELECT parcel_id, segment, market_area, property_class, prior_value, latitude, longitude
-FROM parcels WHERE parcel_id = $1;
+-- One parcel's identity and prior values (every prior_* column). $1 parcel id.
+SELECT * EXCLUDE (source_line) FROM parcels WHERE parcel_id = $1;

@@ -2,10 +2,16 @@
 -- A "sale line" is a row of the sales file that carries a sale; in a combined file (parcels and sales in
 -- one file, as in research data) a row without sale date and price is an unsold parcel.
 -- $1: parcels file key, $2: sales file key (equals $1 when one file holds both), $3: date format (NULL = ISO
--- dates, YYYY-MM-DD).
+-- dates, YYYY-MM-DD). A feature cell equal to one of the feature's `missing` codes (as text, or as a number
+-- when both read as numbers: 0 and 0.0) is read as missing.
 CREATE OR REPLACE TEMP TABLE import_cells AS
 WITH joined AS (
-    SELECT c.file, c.line, c.col, c.val, r.role, r.name, r.kind, r.position, r.levels, r.lo, r.hi, r.log
+    SELECT c.file, c.line, c.col,
+           CASE WHEN len(r.missing) > 0
+                     AND list_bool_or(list_transform(r.missing, lambda m: m = c.val
+                                                     OR TRY_CAST(m AS DOUBLE) = TRY_CAST(c.val AS DOUBLE)))
+                THEN NULL ELSE c.val END AS val,
+           r.role, r.name, r.kind, r.position, r.levels, r.lo, r.hi, r.log
     FROM raw_cells c JOIN import_roles r USING (file, col)
 ),
 sale_lines AS (

@@ -8,8 +8,9 @@ DELETE FROM features;
 DELETE FROM dataset_files;
 INSERT INTO features
 SELECT DISTINCT position, name, kind, log, levels, lo, hi FROM import_roles WHERE role = 'feature';
-INSERT INTO parcels
-SELECT parcel_id, segment, market_area, property_class, prior_value, latitude, longitude, source_line
+INSERT INTO parcels BY NAME
+SELECT parcel_id, segment, market_area, property_class, prior_value, prior_assessed_value, new_construction,
+       latitude, longitude, source_line
 FROM new_parcels ORDER BY parcel_id;
 INSERT INTO feature_values SELECT * FROM new_feature_values ORDER BY parcel_id, position;
 INSERT INTO sales

@@ -4,7 +4,7 @@
 CREATE OR REPLACE TEMP TABLE raw_cells (file VARCHAR, line BIGINT, col VARCHAR, val VARCHAR);
 CREATE OR REPLACE TEMP TABLE import_roles (
     file VARCHAR, col VARCHAR, role VARCHAR, name VARCHAR, kind VARCHAR, position SMALLINT,
-    levels VARCHAR[], lo DOUBLE, hi DOUBLE, log BOOLEAN
+    levels VARCHAR[], lo DOUBLE, hi DOUBLE, log BOOLEAN, missing VARCHAR[]
 );
 -- (trimming with a set of characters costs four times a plain trim: only cells with white space at an edge pay it)
 CREATE OR REPLACE TEMP MACRO import_space(c) AS c IN (' ', chr(9), chr(10), chr(11), chr(12), chr(13), chr(160), chr(65279));

@@ -170,6 +170,11 @@ class OverviewScreen(DataScreen):
         if segment is not None:
             self.reval.open_segment(segment)
 
+    def action_open_check(self) -> None:
+        from .check import CheckScreen  # loads when first opened, like the drill-ins
+
+        self.app.push_screen(CheckScreen())
+
     @on(DataTable.RowSelected)
     def row_chosen(self) -> None:
         self.action_open_segment()

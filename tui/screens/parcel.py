@@ -1,6 +1,7 @@
 """One parcel: its value split into feature contributions that add up exactly, prior value, sales, flags."""
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 from textual import on
@@ -8,14 +9,17 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
-from reval.service import views
-from reval.service.types import ParcelDetail, Record
+from reval.service import actions, views
+from reval.service.types import ComparableGrid, ParcelDetail, Record
+from reval.service.wording import grid_table, indicated_range
 
 from .. import keys
-from ..format import CAUTION, cells, money, number, percent, signed_money
+from ..format import CAUTION, cells, measured_from, money, number, percent, signed_money
 from ..jobs import Loaded, StatusBar
+from ..outcomes import describe_parcel_report
 from ..plain import Plain
 from .base import DataScreen, footer
+from .prompt import PromptScreen
 
 
 def feature_text(f: Record) -> str:
@@ -45,6 +49,9 @@ class ParcelScreen(DataScreen):
             yield Static("Contributions", classes="section")
             yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
             yield Plain("", id="parcel-parts-note")
+            yield Static("Comparable sales adjusted by the model", classes="section")
+            yield Plain("reading…", id="parcel-comparables-note")
+            yield DataTable(id="parcel-comparables", cursor_type="none", show_cursor=False)
             yield Static("Sales", classes="section")
             yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
             yield Static("Flags", classes="section")
@@ -59,13 +66,18 @@ class ParcelScreen(DataScreen):
 
     def reload(self) -> None:
         self.fetch("parcel", views.parcel_detail, self.reval.folder, self.parcel_id)
+        self.fetch("comparables", views.parcel_comparables, self.reval.folder, self.parcel_id)
 
     def on_load_failed(self, message: Any) -> None:
-        self.query_one("#parcel-title", Static).update(f"✗ {message.error}")
+        target = "#parcel-comparables-note" if message.tag == "comparables" else "#parcel-title"
+        self.query_one(target, Static).update(f"✗ {message.error}")
         super().on_load_failed(message)
 
     @on(Loaded)
     def show_parcel(self, message: Loaded) -> None:
+        if message.tag == "comparables":
+            self._comparables(message.data)
+            return
         d = self.data = message.data
         self.query_one("#parcel-title", Static).update(
             f"Parcel {d['parcel_id']} · segment {d['segment']} · market area {d['market_area']} · "
@@ -88,14 +100,21 @@ class ParcelScreen(DataScreen):
         table.add_columns("Value", "Amount")
         estimate = d["estimate"]
         table.add_row(*cells("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)"))
-        table.add_row(*cells("Prior value", money(d["prior_value"])))
+        table.add_row(*cells("Prior market value", money(d["prior_value"])))
+        table.add_row(*cells("Prior assessed value", money(d["prior_assessed_value"])))
         table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
             table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
+        override = d["override"]
+        if override is not None:
+            table.add_row(*cells("Override", f"{money(override['value'])} ({override['reason']})"))
         for r in d["roll"][:1]:
             table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
-            for name in ("market", "land", "improvement", "assessed"):
-                table.add_row(*cells(f"{name.capitalize()} value (roll)", money(r[f"{name}_value"])))
+            for name in ("market", "land", "improvement", "assessed", "assessed_land", "assessed_improvement"):
+                label = name.replace("_", " ").capitalize()
+                table.add_row(*cells(f"{label} value (roll)", money(r[f"{name}_value"])))
+            if r["override_reason"]:
+                table.add_row(*cells("Overridden (roll)", f"{r['override_reason']}; model {money(r['model_value'])}"))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -106,7 +125,7 @@ class ParcelScreen(DataScreen):
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
         table.add_columns("Part", "Log value", "Value", "% of value")
-        table.add_row(*cells("base (the segment's average parcel)", number(split["base_log"], ".4f"),
+        table.add_row(*cells("base (the segment's reference parcel)", number(split["base_log"], ".4f"),
                       money(split["base"]), ""))
         for p in split["parts"]:
             table.add_row(*cells(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
@@ -114,7 +133,8 @@ class ParcelScreen(DataScreen):
         total = split["base"] + sum(p["currency"] for p in split["parts"])
         table.add_row(*cells("= value", number(estimate["log_value"], ".4f"), money(total), ""))
         note.update(f"The parts add up to the value exactly ({money(total)}). The log parts add up to the "
-                    "log value; the value beyond the base is shared in proportion to them.")
+                    "log value; the value beyond the base is shared in proportion to them. "
+                    + measured_from(d["segment"], d["reference"]))
 
     def _sales(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-sales", DataTable)
@@ -127,8 +147,44 @@ class ParcelScreen(DataScreen):
         if not d["sales"]:
             table.add_row(*cells("no recorded sale", "", "", "", "", ""))
 
+    def _comparables(self, grid: ComparableGrid | None) -> None:
+        table = self.query_one("#parcel-comparables", DataTable)
+        table.clear(columns=True)
+        note = self.query_one("#parcel-comparables-note", Static)
+        if grid is None:
+            note.update("No comparables yet: they are adjusted by a run's model (press f to fit).")
+            return
+        note.update(indicated_range(grid))
+        if grid["comparables"]:
+            header, rows = grid_table(grid)
+            table.add_columns(*header)
+            for row in rows:
+                table.add_row(*cells(*row))
+
+    def action_report(self) -> None:
+        """Ask for a file name, then write the one-page report in the job thread."""
+        def chosen(name: str | None) -> None:
+            if name:
+                target = Path(name) if Path(name).is_absolute() else self.reval.folder / name
+                self.reval.start_job("report", f"Writing the report of parcel {self.parcel_id} to {target}",
+                                     actions.parcel_report, self.reval.folder, self.parcel_id, target,
+                                     describe=describe_parcel_report)
+
+        self.app.push_screen(PromptScreen("Write this parcel's one-page report", "file name (.html or .pdf)",
+                                          required=True, value=f"parcel_{self.parcel_id}.pdf"), chosen)
+
     def action_back(self) -> None:
         self.dismiss()
+
+    def action_override(self) -> None:
+        if self.data is not None:
+            estimate = self.data["estimate"]
+            self.reval.override(self.data["parcel_id"], self.data["override_reasons"],
+                                estimate["market_value"] if estimate else None)
+
+    def action_remove_override(self) -> None:
+        if self.data is not None:
+            self.reval.remove_override(self.data["parcel_id"])
 
     def action_open_segment(self) -> None:
         if self.data is not None:

@@ -9,8 +9,9 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.widgets import DataTable, Header, Static, TabbedContent, TabPane
 
-from reval.service import views
+from reval.service import actions, views
 from reval.service.types import Curve, SalesPage, SegmentDetail, SegmentReview
+from reval.service.wording import flag_counts
 
 from .. import keys
 from ..format import (
@@ -28,6 +29,7 @@ from ..format import (
     stat_cell,
 )
 from ..jobs import Loaded, StatusBar
+from ..outcomes import SALE_DECISIONS, describe_sale_decision
 from ..plot import (
     Bars,
     BarsData,
@@ -40,6 +42,7 @@ from ..plot import (
 )
 from ..plain import Plain
 from .base import DataScreen, footer
+from .prompt import PromptScreen
 
 TABS = ("curves", "effects", "equity", "change", "sales", "reference")
 NO_RUN = "No model run yet — press f to fit."
@@ -110,6 +113,14 @@ def chasing_line(review: SegmentReview | None) -> str:
     return (f"Sales-chasing check (batch {review['batch_id']}, {review['state']}): "
             f"{verdicts.get(c['status'], c['status'])}{shown}.{why} {review['n_beyond_threshold']:,} "
             "parcels change beyond the review threshold.")
+
+
+def flags_line(review: SegmentReview | None) -> str:
+    """Parcels of the reviewed batch per kind of flag, and what blocks its approval."""
+    if review is None:
+        return ""
+    blocked = "".join(f"\n✗ Cannot be approved: {b}" for b in review["blockers"])
+    return f"Flagged parcels (batch {review['batch_id']}): {flag_counts(review['flags'])}.{blocked}"
 
 
 class SegmentScreen(DataScreen):
@@ -320,7 +331,7 @@ class SegmentScreen(DataScreen):
         medians = (f"New market value against prior value. Median change: sold {percent(v['median_sold'])} "
                    f"({v['n_sold']:,} parcels), unsold {percent(v['median_unsold'])} ({v['n_unsold']:,}); "
                    f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}.")
-        summary.update(medians + "\n" + chasing_line(d["review"]))
+        summary.update("\n".join(filter(None, (medians, chasing_line(d["review"]), flags_line(d["review"])))))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
                            v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
 
@@ -329,9 +340,9 @@ class SegmentScreen(DataScreen):
     def show_sales(self, s: SalesPage) -> None:
         self.sales_page = s["page"]
         self.query_one("#sales-title", Static).update(
-            f"{s['total']:,} sales, ratios of {s['values']}, farthest from 1 first · page {s['page'] + 1}/"
-            f"{s['pages']} (] [) · ✂ trimmed · {s['downweighted']:,} down-weighted by the fit (weight < 1, "
-            "why at the right) · Enter: parcel")
+            f"{s['total']:,} sales (excluded by you first), ratios of {s['values']}, farthest from 1 first · page "
+            f"{s['page'] + 1}/{s['pages']} (] [) · ✂ trimmed · {s['downweighted']:,} down-weighted by the fit "
+            "(weight < 1, why at the right) · Enter: parcel · e: exclude · i: reinstate")
         table = self.query_one("#sales-table", DataTable)
         table.clear(columns=True)
         table.add_columns("Sale", "Parcel", "Date", "Price", "Adjusted", "Value", "Ratio", "✂", "Weight", "Why")
@@ -341,6 +352,22 @@ class SegmentScreen(DataScreen):
                           money(r["adjusted_price"]), money(r["value"]), number(r["ratio"], ".3f"),
                           "✂" if r["trimmed"] else "", "" if weight is None or weight >= 1 else f"{weight:.2f}",
                           r["weight_reason"] or ""), key=f"{r['sale_id']}/{r['parcel_id']}")
+
+    def action_decide_sale(self, decision: str) -> None:
+        """Exclude or reinstate the highlighted sale with a reason (reval.service.actions.decide_sale, audited)."""
+        if self.sales is None or not self.sales["rows"] or self.query_one(TabbedContent).active != "sales":
+            return
+        sale_id = self.sales["rows"][self.query_one("#sales-table", DataTable).cursor_row]["sale_id"]
+        title, asked = SALE_DECISIONS[decision]
+
+        def answered(reason: str | None) -> None:
+            if reason is None:
+                self.reval.report(f"Sale {sale_id}: nothing changed.", "warning")
+                return
+            self.reval.start_job("sale", f"Sale {sale_id}: {decision}", actions.decide_sale, self.reval.folder,
+                                 sale_id, decision, reason, describe=describe_sale_decision)
+
+        self.reval.push_screen(PromptScreen(title.format(sale_id=sale_id), asked, required=True), answered)
 
     @on(DataTable.RowSelected, "#sales-table")
     def sale_chosen(self) -> None:
