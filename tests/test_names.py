@@ -64,7 +64,7 @@ async def _app_shows_names(folder: Path) -> None:
         rows = table_rows(app.screen.query_one("#segments", DataTable))
         names = {r[0] for r in rows}
         assert {"]0;pwnedTAML", BROKEN, SWALLOWED} == names
-        area = next(r[-1] for r in rows if r[0] == SWALLOWED)
+        area = next(r[1] for r in rows if r[0] == SWALLOWED)
         assert area == "W" * (NAME_WIDTH - 1) + ELLIPSIS
         assert not any("\x1b" in cell or "\x07" in cell for row in rows for cell in row)
         app.open_segment(BROKEN)

@@ -84,11 +84,11 @@ async def _overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) ->
         assert "out-of-fold" in header and PINNED_RUN in header
         # the marks are the core's verdicts: ✗ exactly where a statistic fails, never colour alone
         for g in oof_study(fitted_demo)["groups"]:
-            cells = dict(zip(("median_ratio", "cod", "prd", "prb"), rows[g["group"]][2:6]))
+            cells = dict(zip(("median_ratio", "cod", "prd", "prb"), rows[g["group"]][4:8]))
             for stat, verdict in g["verdicts"].items():
                 assert cells[stat].endswith({"pass": "✓", "fail": "✗", "too_few_sales": "~", "no_sales": "–"}[verdict["status"]])
         states_now = states(fitted_demo)
-        assert all(rows[s][7] == e["summary"] for s, e in states_now.items())   # certified and pending side by side
+        assert all(rows[s][8] == e["summary"] for s, e in states_now.items())   # certified and pending side by side
 
 
 def test_keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
@@ -111,8 +111,8 @@ async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
         assert table.cursor_row == n - 1
         await pilot.press("g")
         assert table.cursor_row == 0
-        # s steps the sort column: segment -> model -> median -> COD; r reverses it
-        await pilot.press("s", "s", "s")
+        # s steps the sort column: segment -> area -> parcels -> sales -> median -> COD; r reverses it
+        await pilot.press("s", "s", "s", "s", "s")
         assert screen.sort_key == "cod"
         cod = {g["group"]: g["cod"] for g in oof_study(fitted_demo)["groups"]}
         shown = [r[0] for r in table_rows(table) if r[0] in cod and cod[r[0]] is not None]
@@ -131,9 +131,9 @@ async def _keys_move_sort_filter_and_search(fitted_demo: Path) -> None:
         # m cycles market areas
         await pilot.press("m")
         area = screen.area
-        assert area is not None and all(r[-1] == area for r in table_rows(table))
+        assert area is not None and all(r[1] == area for r in table_rows(table))
         await pilot.press("c", "t")                 # t cycles batch states: every row shown is in that state
-        assert screen.state is not None and all(r[7].startswith(screen.state) for r in table_rows(table))
+        assert screen.state is not None and all(r[8].startswith(screen.state) for r in table_rows(table))
         await pilot.press("c")
         # incremental search narrows as each letter is typed; Esc clears it
         name = table_rows(table)[0][0]
@@ -215,7 +215,7 @@ async def _hold_with_a_reason_is_stored_with_its_event(demo_copy: Path) -> None:
         await pilot.press("enter")
         await settle(pilot)
         row = next(r for r in table_rows(app.screen.query_one("#segments", DataTable)) if r[0] == segment)
-        assert row[7] == "held, run 1"
+        assert row[8] == "held, run 1"
     held = states(demo_copy)[segment]["open"]
     assert held["state"] == "held" and held["note"] == "recheck lot sizes"
     events = actions.event_log(demo_copy, segment)["events"]
@@ -435,7 +435,7 @@ async def _fit_runs_in_a_worker_with_progress_while_keys_still_work(demo_copy: P
     async with app.run_test(size=SIZE, message_hook=hook) as pilot:
         await settle(pilot)
         table = app.screen.query_one("#segments", DataTable)
-        await pilot.press("f")
+        await pilot.press("f", "enter")
         assert app.job_running and app.status.running
         await pilot.press("j")                     # the interface answers while the fit runs
         assert table.cursor_row == 1
@@ -455,11 +455,8 @@ async def _a_cancelled_fit_stops_at_its_next_step_and_changes_nothing(demo_copy:
     app = RevalApp(demo_copy)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
-        await pilot.press("f", "ctrl+k")
-        await settle(pilot)
-        while app.db_lock.locked():            # the fit's thread ends at its next progress report
-            await pilot.pause()
-        await pilot.pause()
+        await pilot.press("f", "enter", "ctrl+k")
+        await settle(pilot)                    # the fit's thread ends at its next progress report
         assert app.messages[-1] == ("warning", "fit cancelled; the step was rolled back and nothing changed")
     assert query_frame(demo_copy, "SELECT count(*) AS n FROM runs")["n"].iloc[0] == 1
 
@@ -472,7 +469,7 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
     app = RevalApp(small_project)
     async with app.run_test(size=SIZE) as pilot:     # not imported yet: no database
         await settle(pilot)
-        assert app.messages and app.messages[-1][0] == "error" and "reval import" in app.messages[-1][1]
+        assert app.messages and app.messages[-1][0] == "error" and "press i" in app.messages[-1][1]
     actions.import_data(small_project)
     app = RevalApp(small_project)
     async with app.run_test(size=SIZE) as pilot:
@@ -482,9 +479,10 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
         await pilot.press("enter")
         await settle(pilot)
         assert str(app.screen.query_one("#curve-title", Static).render()) == "No model run yet — press f to fit."
-        await pilot.press("escape", "a", "enter")   # nothing staged: the core refuses, the app reports it
+        await pilot.press("escape", "a")   # nothing staged: refused before a note is asked, in the app's words
         await settle(pilot)
         assert app.messages[-1][0] == "error" and "no staged batch" in app.messages[-1][1]
+        assert "press v" in app.messages[-1][1] and "reval value" not in app.messages[-1][1]
         assert isinstance(app.screen, OverviewScreen)
 
 

@@ -11,15 +11,20 @@ from pathlib import Path
 from typing import Any
 
 import duckdb
+import pytest
 from helpers import settle, type_text
 from textual.pilot import Pilot
 from textual.widgets import DataTable
 
 from tui.app import RevalApp
 from tui.screens.help import HelpScreen
+from tui.screens.listing import ListScreen
 from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
 from tui.screens.segment import SegmentScreen
+from tui.screens.steps import StepsScreen
+
+THEMES = ("textual-dark", "textual-light")
 
 
 def first_parcel(folder: Path) -> str:
@@ -30,16 +35,24 @@ def first_parcel(folder: Path) -> str:
         con.close()
 
 
-def test_overview_at_80_by_24(snap_compare: Any, fitted_demo: Path) -> None:
+def themed(folder: Path, theme: str) -> RevalApp:
+    app = RevalApp(folder)
+    app.theme = theme
+    return app
+
+
+@pytest.mark.parametrize("theme", THEMES)
+def test_overview_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
     async def ready(pilot: Pilot[Any]) -> None:
         await settle(pilot)
         screen = pilot.app.screen
         assert isinstance(screen, OverviewScreen) and screen.query_one("#segments", DataTable).row_count > 0
 
-    assert snap_compare(RevalApp(fitted_demo), terminal_size=(80, 24), run_before=ready)
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)
 
 
-def test_segment_drill_in_curves(snap_compare: Any, fitted_demo: Path) -> None:
+@pytest.mark.parametrize("theme", THEMES)
+def test_segment_drill_in_curves(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
     async def ready(pilot: Pilot[Any]) -> None:
         await settle(pilot)
         await pilot.press("enter")
@@ -47,10 +60,11 @@ def test_segment_drill_in_curves(snap_compare: Any, fitted_demo: Path) -> None:
         screen = pilot.app.screen
         assert isinstance(screen, SegmentScreen) and screen.data is not None and screen.data["curves"]
 
-    assert snap_compare(RevalApp(fitted_demo), terminal_size=(100, 32), run_before=ready)
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)
 
 
-def test_parcel_view(snap_compare: Any, fitted_demo: Path) -> None:
+@pytest.mark.parametrize("theme", THEMES)
+def test_parcel_view(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
     parcel_id = first_parcel(fitted_demo)
 
     async def ready(pilot: Pilot[Any]) -> None:
@@ -62,13 +76,38 @@ def test_parcel_view(snap_compare: Any, fitted_demo: Path) -> None:
         screen = pilot.app.screen
         assert isinstance(screen, ParcelScreen) and screen.data is not None and screen.data["split"]
 
-    assert snap_compare(RevalApp(fitted_demo), terminal_size=(100, 32), run_before=ready)
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)
 
 
-def test_help_at_80_by_24(snap_compare: Any, fitted_demo: Path) -> None:
+@pytest.mark.parametrize("theme", THEMES)
+def test_help_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
     async def ready(pilot: Pilot[Any]) -> None:
         await settle(pilot)
         await pilot.press("question_mark")
         assert isinstance(pilot.app.screen, HelpScreen)
 
-    assert snap_compare(RevalApp(fitted_demo), terminal_size=(80, 24), run_before=ready)
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)
+
+
+@pytest.mark.parametrize("theme", THEMES)
+def test_work_list_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
+    async def ready(pilot: Pilot[Any]) -> None:
+        await settle(pilot)
+        await pilot.press("C")
+        await settle(pilot)
+        screen = pilot.app.screen
+        assert isinstance(screen, ListScreen) and screen.data is not None and screen.data["rows"]
+
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)
+
+
+@pytest.mark.parametrize("theme", THEMES)
+def test_steps_at_80_by_24(snap_compare: Any, fitted_demo: Path, theme: str) -> None:
+    async def ready(pilot: Pilot[Any]) -> None:
+        await settle(pilot)
+        await pilot.press("W")
+        await settle(pilot)
+        screen = pilot.app.screen
+        assert isinstance(screen, StepsScreen) and len(screen.steps) == 6
+
+    assert snap_compare(themed(fitted_demo, theme), terminal_size=(80, 24), run_before=ready)

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import logging
-import threading
 from collections.abc import Callable
 from functools import partial
 from pathlib import Path
@@ -19,20 +18,24 @@ from reval.service.types import Overview, StagePlan
 from reval.service.wording import shown
 
 from . import keys
-from .jobs import (CoreNotice, JobCancelled, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, NoticeRelay,
+from .jobs import (CoreNotice, JobCancelled, JobEnded, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, NoticeRelay,
                    Status)
 from .screens.base import DataScreen
 from .screens.help import HelpScreen
 from .screens.overview import OverviewScreen
 from .screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
-from .outcomes import (DECISIONS, REPORT_NAME, Describe, describe_decision, describe_export, describe_fit,
-                       describe_override, describe_report, describe_values, parse_override, staging_lines)
+from .outcomes import (DECISIONS, FIT_LINES, REPORT_NAME, Describe, app_wording, describe_decision, describe_export,
+                       describe_fit, describe_import, describe_override, describe_report, describe_sales,
+                       describe_study, describe_values, job_fraction, job_line, parse_override, staging_lines)
+
+BUSY = "Another job is running: wait for it to finish or cancel it (Ctrl+K)."
 
 
 def error_text(error: BaseException) -> str:
-    """A person-readable line for a failure: the core's own message, else the exception's type and text."""
+    """A person-readable line for a failure: the core's own message in the app's words (keys, not commands),
+    else the exception's type and text."""
     if isinstance(error, UserError):
-        return str(error)
+        return app_wording(str(error))
     return f"{type(error).__name__}: {error}"
 
 
@@ -44,11 +47,14 @@ class RevalApp(App[None]):
     BINDINGS = keys.bindings("app")
 
     status: reactive[Status] = reactive(Status())
+    poll_seconds = 5.0   # how often the newest event id is read, to show other processes' decisions
 
     def __init__(self, folder: Path) -> None:
         super().__init__()
         self.folder = Path(folder).resolve()
-        self.db_lock = threading.Lock()          # one DuckDB connection at a time in this process
+        self.job_label = ""
+        self.job_running = False   # from a job's start until its thread is done (a cancelled one runs on briefly)
+        self.seen_event: int | None = None   # the newest event id this app has shown
         self.messages: list[tuple[str, str]] = []  # (severity, text), oldest first
         self._reads: dict[Worker[Any], tuple[Screen[Any], str]] = {}
 
@@ -56,6 +62,39 @@ class RevalApp(App[None]):
         self._notices = NoticeRelay(self)
         logging.getLogger("reval").addHandler(self._notices)
         self.push_screen(OverviewScreen())
+        self.set_interval(self.poll_seconds, self._poll_events)
+        self._first_look()
+
+    @work(thread=True, group="plan", exit_on_error=False, name="first look")
+    def _first_look(self) -> None:
+        """A project without data opens on the steps screen, which says what to do next."""
+        if not views.job_steps(self.folder)[0]["done"]:
+            self.call_from_thread(self.action_steps)
+
+    # ---- other processes' changes ----------------------------------------------------------------------
+
+    def _poll_events(self) -> None:
+        if not self.job_running and not any(w.group == "poll" and w.is_running for w in self.workers):
+            self._read_latest_event()
+
+    @work(thread=True, group="poll", exit_on_error=False, name="latest event")
+    def _read_latest_event(self) -> None:
+        try:
+            latest = views.latest_event(self.folder)
+        except UserError:
+            return   # no database yet, or held by a writer for now: the next poll tries again
+        self.call_from_thread(self._compare_event, latest)
+
+    def _compare_event(self, latest: int) -> None:
+        """Reload the screens when the log has grown since the app last looked (another app or the CLI)."""
+        if self.seen_event is not None and latest > self.seen_event and not self.job_running:
+            self.reload_screens()
+        self.seen_event = latest
+
+    def reload_screens(self) -> None:
+        for screen in self.screen_stack:
+            if isinstance(screen, DataScreen):
+                screen.reload()
 
     def on_unmount(self) -> None:
         logging.getLogger("reval").removeHandler(self._notices)
@@ -72,8 +111,7 @@ class RevalApp(App[None]):
         self._reads[worker] = (screen, tag)
 
     def _read(self, screen: Screen[Any], tag: str, fn: Callable[..., Any], args: tuple[Any, ...]) -> None:
-        with self.db_lock:
-            data = fn(*args)
+        data = fn(*args)   # reads run beside a job: the store joins this process's writing connection
         if not get_current_worker().is_cancelled:
             screen.post_message(Loaded(tag, data))
 
@@ -82,18 +120,16 @@ class RevalApp(App[None]):
 
     # ---- long jobs and quick actions -------------------------------------------------------------------
 
-    @property
-    def job_running(self) -> bool:
-        return any(w.group == "job" and w.is_running for w in self.workers)
-
     def start_job(self, kind: str, label: str, fn: Callable[..., Any], *args: Any, describe: Describe,
                   progress: bool = False, **kwargs: Any) -> None:
         """Run a step that writes (fit, value, approve, ...) in the one job thread, with progress if asked."""
         if self.job_running:
-            self.report("Another job is running: wait for it to finish or cancel it (Ctrl+K).", "warning")
+            self.report(BUSY, "warning")
             return
-        self.status = Status(f"{label}…", running=True)
+        self.job_label, self.job_running = label, True
+        self.status = Status(job_line(label, kind, None), running=True)
         self._job(kind, fn, args, kwargs, describe, progress)
+        self.refresh_bindings()   # Ctrl+K shows in the footer only while a job runs
 
     @work(thread=True, exclusive=True, group="job", exit_on_error=False, name="job")
     def _job(self, kind: str, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
@@ -106,22 +142,29 @@ class RevalApp(App[None]):
             self.post_message(JobProgressed(kind, step, done, total))
 
         try:
-            with self.db_lock:
-                result = fn(*args, progress=progress, **kwargs) if with_progress else fn(*args, **kwargs)
+            result = fn(*args, progress=progress, **kwargs) if with_progress else fn(*args, **kwargs)
         except JobCancelled as stop:
             self.post_message(JobStopped(kind, str(stop)))
             return
+        finally:
+            self.post_message(JobEnded())
         self.post_message(JobFinished(kind, describe(result), result))
 
+    def on_job_ended(self, message: JobEnded) -> None:
+        self.job_running = False
+        if self.status.running:
+            self.status = Status()
+        self.refresh_bindings()
+
     def on_job_progressed(self, message: JobProgressed) -> None:
-        self.status = Status(f"{message.kind}: {message.step} {message.done}/{message.total}", running=True,
-                             done=message.done, total=message.total)
+        """One progress line for the whole job: its phase, and a bar over all its phases."""
+        fraction = job_fraction(message.kind, message.step, message.done, message.total)
+        self.status = Status(job_line(self.job_label, message.kind, message), running=True,
+                             done=round(1000 * fraction), total=1000)
 
     def on_job_finished(self, message: JobFinished) -> None:
         self.report(message.summary)
-        for screen in self.screen_stack:
-            if isinstance(screen, DataScreen):
-                screen.reload()
+        self.reload_screens()
 
     def on_job_stopped(self, message: JobStopped) -> None:
         self.report(message.summary, "warning")
@@ -139,11 +182,33 @@ class RevalApp(App[None]):
         else:
             self.report(text, "error")
 
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action == "cancel_job":
+            return self.job_running
+        return True
+
+    async def action_quit(self) -> None:
+        """Leave the app; while a job runs, ask first (quitting cancels it and keeps nothing it did)."""
+        if not self.job_running:
+            self.exit()
+            return
+
+        def answered(answer: str | None) -> None:
+            if answer == "yes":
+                self.action_cancel_job()
+                self.exit()
+
+        self.push_screen(ConfirmScreen("Quit while a job runs?", [
+            f"{self.job_label} is still running.",
+            "Quitting cancels it: the step is rolled back and nothing it did is kept."]), answered)
+
     def action_cancel_job(self) -> None:
         jobs = [w for w in self.workers if w.group == "job" and w.is_running]
         for worker in jobs:
             worker.cancel()
         self.report("Cancelling: the job stops at its next step." if jobs else "No job is running.", "warning")
+        if jobs:
+            self.status = Status(f"{self.job_label}: cancelling at its next step…", running=True)
 
     def report(self, text: str, severity: str = "information") -> None:
         """Show an outcome in the status bar (and as a notification), and keep it in the message log."""
@@ -166,22 +231,68 @@ class RevalApp(App[None]):
 
         self.push_screen(ParcelScreen(parcel_id))
 
+    def action_open_list(self, name: str) -> None:
+        """A work list: of the segment on screen in a drill-in, else of every segment."""
+        from .screens.listing import ListScreen
+        from .screens.segment import SegmentScreen
+
+        segment = self.screen.segment if isinstance(self.screen, SegmentScreen) else None
+        self.push_screen(ListScreen(name, segment))
+
+    def action_steps(self) -> None:
+        from .screens.steps import StepsScreen
+
+        if not isinstance(self.screen, StepsScreen):
+            self.push_screen(StepsScreen())
+
+    def action_import_data(self) -> None:
+        self.start_job("import", "Importing the input files", actions.import_data, self.folder, progress=True,
+                       describe=describe_import)
+
+    def action_prepare_sales(self) -> None:
+        self.start_job("sales", "Preparing the sales", actions.prepare_sales, self.folder, progress=True,
+                       describe=describe_sales)
+
+    def action_study(self) -> None:
+        """The ratio study the overview shows: of the latest run's out-of-fold values, else of prior values."""
+        from .screens.steps import StepsScreen
+
+        fitted = isinstance(self.screen, StepsScreen) and any(s["key"] == "f" and s["done"] for s in self.screen.steps)
+        values = "model" if fitted else "prior"
+        self.start_job("study", f"Ratio study of the {'model' if values == 'model' else 'prior'} values",
+                       actions.study, self.folder, values, "segment", describe=describe_study)
+
     def action_help(self) -> None:
         if not isinstance(self.screen, HelpScreen):
             self.push_screen(HelpScreen())
 
     def action_find_parcel(self) -> None:
+        self.ask_parcel("Open a parcel")
+
+    def ask_parcel(self, title: str, value: str = "", detail: str = "") -> None:
+        """Ask for a parcel id (offered `value`: Enter takes it) and open that parcel."""
         def chosen(parcel_id: str | None) -> None:
             if parcel_id:
                 self.open_parcel(parcel_id)
 
-        self.push_screen(PromptScreen("Open a parcel", "parcel id", required=True), chosen)
+        self.push_screen(PromptScreen(title, "parcel id", required=True, value=value, detail=detail), chosen)
 
     # ---- decisions and steps that write ------------------------------------------------------------------
 
     def decide(self, kind: str, segment: str, detail: str = "") -> None:
-        """Ask for the note or reason, then approve, hold or revoke the segment's batch (the core enforces
-        the approval gate and says why it refuses)."""
+        """Approve, hold or revoke the segment's batch: refused at once while a job runs or when the batch's
+        state does not allow it (already approved: revoke first), else ask for the note or reason. The core
+        enforces the approval gate and says why it refuses."""
+        if self.job_running:
+            self.report(f"{kind.capitalize()} of {segment} not started: {BUSY}", "warning")
+            return
+        try:   # a small read, done before the dialog opens so that no key typed ahead reaches the screen below
+            refused = actions.decision_refusal(self.folder, segment, kind)
+        except UserError as error:
+            refused = str(error)
+        if refused is not None:
+            self.report(app_wording(refused), "error")
+            return
         title, asked, required = DECISIONS[kind]
         fn = getattr(actions, kind)
 
@@ -229,8 +340,19 @@ class RevalApp(App[None]):
                                       required=True), answered)
 
     def action_fit(self) -> None:
-        self.start_job("fit", "Fitting every segment", actions.fit, self.folder, jobs=1, progress=True,
-                       describe=describe_fit)
+        """Fit a new run of every segment, after a confirmation saying what it does and does not touch."""
+        if self.job_running:
+            self.report(BUSY, "warning")
+            return
+
+        def answered(answer: str | None) -> None:
+            if answer == "yes":
+                self.start_job("fit", "Fitting every segment", actions.fit, self.folder, jobs=1, progress=True,
+                               describe=describe_fit)
+            else:
+                self.report("Fit cancelled; nothing changed.", "warning")
+
+        self.push_screen(ConfirmScreen("Fit a new run of every segment", FIT_LINES), answered)
 
     def action_value(self) -> None:
         """Stage the segments without a standing decision, after a confirmation that lists the decisions kept
@@ -240,14 +362,13 @@ class RevalApp(App[None]):
     def restage(self, segments: list[str] | None, replace: bool) -> None:
         """Read what staging would do, then ask before doing it (nothing is written until confirmed)."""
         if self.job_running:
-            self.report("Another job is running: wait for it to finish or cancel it (Ctrl+K).", "warning")
+            self.report(BUSY, "warning")
             return
         self._plan_staging(segments, replace)
 
     @work(thread=True, exclusive=True, group="plan", exit_on_error=False, name="staging plan")
     def _plan_staging(self, segments: list[str] | None, replace: bool) -> None:
-        with self.db_lock:
-            plan = actions.staging_plan(self.folder, None, segments, replace)
+        plan = actions.staging_plan(self.folder, None, segments, replace)
         self.call_from_thread(self._confirm_staging, plan, segments, replace)
 
     def _confirm_staging(self, plan: StagePlan, segments: list[str] | None, replace: bool) -> None:
@@ -271,12 +392,34 @@ class RevalApp(App[None]):
                        None, describe=describe_report)
 
     def action_export(self) -> None:
+        """Ask where to write the roll (and whether partly); ask again before replacing an existing file."""
+        if self.job_running:
+            self.report(BUSY, "warning")
+            return
+
+        def export(target: Path, partial: bool, overwrite: bool) -> None:
+            self.start_job("export", f"Exporting the value roll to {target}", actions.export_roll,
+                           self.folder, target, partial=partial, overwrite=overwrite, describe=describe_export)
+
         def chosen(answer: tuple[Path, bool] | None) -> None:
-            if answer is not None:
-                path, partial = answer
-                target = path if path.is_absolute() else self.folder / path
-                self.start_job("export", f"Exporting the value roll to {target}", actions.export_roll,
-                               self.folder, target, partial=partial, describe=describe_export)
+            if answer is None:
+                return
+            path, partial = answer
+            target = path if path.is_absolute() else self.folder / path
+            existing = actions.existing_export_files(target)
+            if not existing:
+                export(target, partial, False)
+                return
+
+            def replace(answer: str | None) -> None:
+                if answer == "yes":
+                    export(target, partial, True)
+                else:
+                    self.report("Export cancelled; nothing was written.", "warning")
+
+            self.push_screen(ConfirmScreen("Replace an existing roll?", [
+                *(f"{p} already exists." for p in existing),
+                "Enter replaces it with this export (its manifest too); Esc keeps it."]), replace)
 
         self.push_screen(ExportScreen(self.folder / "value_roll.csv"), chosen)
 

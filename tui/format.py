@@ -16,15 +16,17 @@ STAT_FORMATS = {"median_ratio": ".3f", "cod": ".1f", "prd": ".3f", "prb": "+.3f"
 STAT_NAMES = {"median_ratio": "Median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
 VERDICT_STYLES = {"pass": "$success", "fail": "$error", "inconclusive": "$warning", "too_few_sales": "$warning"}
 LEGEND = "✓ meets the standard · ✗ FAIL: does not · ? inconclusive · ~ too few sales to judge"
+SHORT_LEGEND = "✓ meets · ✗ fails · ? unsure · ~ few sales · – none"
+SHORT_CAUTION = "Estimates for review by a qualified assessor; local law applies (? for more)."
 
 
 def stat_cell(cell: StatCell, stat: str, short: bool = False) -> str:
-    """'0.982 ✓', '1.046 ✗ FAIL' (short: '1.046 ✗') or '–' when there is no value."""
+    """'0.982 ✓', '1.046 ✗ FAIL' (short: '1.046✗') or '–' when there is no value."""
     value = cell.get("value")
     if value is None:
         return "–"
     mark = (SHORT_MARKS if short else MARKS).get(cell.get("status") or "", "")
-    return f"{format(value, STAT_FORMATS[stat])} {mark}".rstrip()
+    return f"{format(value, STAT_FORMATS[stat])}{'' if short else ' '}{mark}".rstrip()
 
 
 def ci_text(cell: StatCell, stat: str) -> str:
@@ -35,14 +37,15 @@ def ci_text(cell: StatCell, stat: str) -> str:
 
 
 def model_cell(row: OverviewRow) -> str:
-    """How the segment's model was made: own, pooled (with the share borrowed from its parent), or parent."""
+    """How the segment's model was made: own or pooled, with the share borrowed from its parent (market area)
+    said as borrowed, or the parent's model alone."""
     kind = row.get("kind")
     if kind is None:
         return "–"
     if kind == "parent_only":
-        return "parent"
+        return "parent's model"
     share = row.get("borrowed_share")
-    return kind if share is None else f"{kind} ({share:.0%})"
+    return kind if share is None else f"{kind}, {share:.0%} borrowed"
 
 
 def short_money(value: float) -> str:

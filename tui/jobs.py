@@ -63,6 +63,11 @@ class JobStopped(Message):
 
 
 @dataclass
+class JobEnded(Message):
+    """The job's thread is done, whatever the outcome (a cancelled worker's thread runs to its next step)."""
+
+
+@dataclass
 class CoreNotice(Message):
     """Something the core logged while working (a stale lock removed, an interrupted export finished)."""
 

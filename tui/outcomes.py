@@ -5,9 +5,11 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from reval.service.types import (Decision, ExportResult, FitSummary, OverrideResult, ParcelReport, ReportResult,
-                                 SaleDecision, StagePlan, StageResult)
+from reval.service.types import (Decision, ExportResult, FitSummary, ImportSummary, OverrideResult, ParcelReport,
+                                 ReportResult, SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult)
 from reval.service.wording import money
+
+from .jobs import JobProgressed
 
 Describe = Callable[[Any], str]
 # decision -> (prompt title, what is asked for, required?); the action of the same name in reval.service.actions
@@ -74,6 +76,23 @@ def describe_export(result: ExportResult) -> str:
     return text + "."
 
 
+def describe_import(result: ImportSummary) -> str:
+    if not result["changed"]:
+        return "Import: the input files are unchanged since the last import; nothing changed."
+    return (f"Imported {result['parcels']:,} parcels, {result['sales']:,} sales, {result['segments']} segments, "
+            f"{result['market_areas']} market areas. Press u to prepare the sales.")
+
+
+def describe_sales(result: SalesCounts) -> str:
+    notes = "".join(f" Market trend: {note}." for note in result["trend_notes"])
+    return (f"Sales: {result['qualified']:,} qualified, {result['excluded']:,} excluded (E lists them with why).{notes}"
+            " Press t for a ratio study of the prior values, f to fit.")
+
+
+def describe_study(result: StudyResult) -> str:
+    failing = [g["group"] for g in result["groups"] if any(v["status"] == "fail" for v in g["verdicts"].values())]
+    return (f"Ratio study of {result['values']}: {len(result['groups'])} segments, {len(failing)} failing a "
+            "standard." + (f" {result['warning']}" if result.get("warning") else ""))
 REPORT_NAME = "ratio_study_report.html"   # where the app writes the report, in the project folder
 
 
@@ -113,3 +132,60 @@ def staging_lines(plan: StagePlan) -> list[str]:
     for d in plan["kept"]:
         lines.append(f"Kept: {d['segment']} {d['state']} (batch {d['batch_id']}, run {d['run_id']}).")
     return lines
+
+
+# the phases each job reports through its progress callback, in order: one bar runs over all of them
+JOB_PHASES: dict[str, tuple[str, ...]] = {
+    "fit": ("fitting segments", "out-of-fold folds", "reference models"),
+    "import": ("reading files",),
+    "sales": ("qualifying sales",),
+}
+
+FIT_LINES = [
+    "A new run: every segment's model is fitted, checked out of fold on its sales and compared with the "
+    "reference models (seconds on the demo, minutes on a large roll).",
+    "Staged, held and approved batches stay as they are; press v afterwards to stage the new run's values.",
+    "Ctrl+K cancels it; a cancelled fit keeps nothing.",
+]
+
+# the core's messages name command-line commands and options; the app says which key or box does it
+APP_WORDING: tuple[tuple[str, str], ...] = (
+    ("run `reval value` after a run", "press v to stage values after a fit (f)"),
+    ("a new run and `reval value` stage it again", "after a new run (f), V re-stages it"),
+    ("export the approved segments alone with --partial",
+     "tick 'Partial export' in the export dialog (x) to export the approved segments alone"),
+    ("Give --replace to stage them anyway", "Re-stage them with r in the staging confirmation, or V on one segment"),
+    ("run `reval fit` again", "press f to fit again"),
+    ("run `reval fit` first", "press f to fit first"),
+    ("run `reval value` first", "press v to stage values first"),
+    ("run `reval import` first", "press i on the steps screen (W) to import"),
+    ("run `reval sales` before `reval fit`", "press u on the steps screen (W) to prepare the sales before fitting"),
+    ("run `reval sales` first", "press u on the steps screen (W) to prepare the sales first"),
+    ("(run `reval sales` and `reval study`)", "(W: the steps screen)"),
+    ("choose another file name or give --overwrite to replace it", "choose another file name"),
+)
+
+
+def app_wording(text: str) -> str:
+    """A core message with its command-line hints replaced by the app's keys and checkboxes."""
+    for cli, app in APP_WORDING:
+        text = text.replace(cli, app)
+    return text
+
+
+def job_fraction(kind: str, step: str, done: int, total: int) -> float:
+    """How far the whole job is (0-1): its finished phases and the share done of the current one."""
+    phases = JOB_PHASES.get(kind, ())
+    index = phases.index(step) if step in phases else 0
+    count = max(len(phases), 1)
+    return min(1.0, (index + done / max(total, 1)) / count)
+
+
+def job_line(label: str, kind: str, progress: JobProgressed | None) -> str:
+    """The one status line of a running job: what runs, its phase of the whole, and how to cancel it."""
+    if progress is None:
+        return f"{label}… · Ctrl+K cancels"
+    phases = JOB_PHASES.get(kind, ())
+    where = (f"step {phases.index(progress.step) + 1} of {len(phases)}, " if progress.step in phases and len(phases) > 1
+             else "")
+    return f"{label} · {where}{progress.step} {progress.done}/{progress.total} · Ctrl+K cancels"

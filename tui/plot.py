@@ -18,6 +18,7 @@ from textual.widget import Widget
 # Braille dot bits by (pixel row within the cell 0..3, pixel column 0..1): Unicode U+2800 block layout.
 DOT_BITS = np.array([[0x01, 0x08], [0x02, 0x10], [0x04, 0x20], [0x40, 0x80]], dtype=np.int32)
 EIGHTHS = " ▁▂▃▄▅▆▇█"
+FULL_BLOCKS = {"alt": "▓"}   # a second group's full cells are shaded, so groups differ by shape, not colour alone
 Formatter = Callable[[float], str]
 
 
@@ -72,7 +73,9 @@ class ChartData:
     strip_label: str = ""
 
 
-LEGEND_MARKS = {"line": "━", "parent": "━", "band": "█", "points": "⠶", "reference": "┄", "alt": "━"}
+# each style differs by shape as well as colour: a solid line, a dashed parent line, dots, a dotted reference
+LEGEND_MARKS = {"line": "━", "parent": "╍", "band": "█", "points": "⠶", "reference": "┄", "alt": "▪"}
+LOADING = "reading…"   # what a plot shows before its data arrives (never "nothing to plot" while loading)
 
 
 class Chart(Widget):
@@ -95,9 +98,10 @@ class Chart(Widget):
     def __init__(self, data: ChartData | None = None, *, id: str | None = None, classes: str | None = None) -> None:
         super().__init__(id=id, classes=classes)
         self.data = data
+        self.loaded = data is not None
 
     def show(self, data: ChartData | None) -> None:
-        self.data = data
+        self.data, self.loaded = data, True
         self.refresh()
 
     def _style(self, name: str) -> Style:
@@ -116,6 +120,8 @@ class Chart(Widget):
 
     def render(self) -> Text:
         width, height = self.size
+        if not self.loaded:
+            return Text(LOADING, style=self._style("axis"))
         if self.data is None or not self.data.layers:
             return Text("nothing to plot", style=self._style("axis"))
         d = self.data
@@ -206,6 +212,10 @@ class Chart(Widget):
         else:
             nxt = np.append(y[1:], y[-1])
             lo, hi = np.minimum(y, nxt), np.maximum(y, nxt)
+        if layer.style == "parent":   # dashed: three cells drawn, one left out
+            inside = inside & ((np.arange(pw) // 2) % 4 != 3)
+        if layer.style == "reference":   # dotted, as the reference's horizontal lines
+            inside = inside & ((np.arange(pw) // 2) % 2 == 0)
         return (rows_axis >= lo[None, :]) & (rows_axis <= hi[None, :]) & inside[None, :]
 
     def _append_row(self, out: Text, glyphs: list[tuple[str, str | None]], band: np.ndarray) -> None:
@@ -270,13 +280,16 @@ class Bars(Widget):
     def __init__(self, data: BarsData | None = None, *, id: str | None = None) -> None:
         super().__init__(id=id)
         self.data = data
+        self.loaded = data is not None
 
     def show(self, data: BarsData | None) -> None:
-        self.data = data
+        self.data, self.loaded = data, True
         self.refresh()
 
     def render(self) -> Text:
         axis = self.get_component_rich_style("chart--axis")
+        if not self.loaded:
+            return Text(LOADING, style=axis)
         if self.data is None:
             return Text("nothing to plot", style=axis)
         d = self.data
@@ -292,7 +305,7 @@ class Bars(Widget):
         top = max(float(max(s.max() for s in shares)), 1e-12)
         out = Text(no_wrap=True, overflow="crop")
         for label, _, style in d.groups:
-            out.append("█ ", self.get_component_rich_style(f"chart--{style}"))
+            out.append(f"{FULL_BLOCKS.get(style, '█')} ", self.get_component_rich_style(f"chart--{style}"))
             out.append(f"{label}   ", axis)
         out.append("\n")
         eighths = [np.round(s / top * rows * 8).astype(int) for s in shares]
@@ -302,7 +315,8 @@ class Bars(Widget):
             for b in range(n_bins):
                 for g, (_, _, style) in enumerate(d.groups):
                     level = int(np.clip(eighths[g][b] - floor_, 0, 8))
-                    out.append(EIGHTHS[level], self.get_component_rich_style(f"chart--{style}"))
+                    glyph = FULL_BLOCKS.get(style, "█") if level == 8 else EIGHTHS[level]
+                    out.append(glyph, self.get_component_rich_style(f"chart--{style}"))
                 out.append(" " * (per_bin - n_groups), axis)
             out.append("\n")
         cols = per_bin * n_bins
@@ -338,9 +352,10 @@ class LevelBars(Widget):
         super().__init__(id=id)
         self.bars = list(bars)
         self.fmt = fmt
+        self.loaded = bool(bars)
 
     def show(self, bars: Sequence[LevelBar]) -> None:
-        self.bars = list(bars)
+        self.bars, self.loaded = list(bars), True
         self.refresh(layout=True)
 
     def get_content_height(self, container: object, viewport: object, width: int) -> int:
@@ -349,7 +364,7 @@ class LevelBars(Widget):
     def render(self) -> Text:
         axis = self.get_component_rich_style("chart--axis")
         if not self.bars:
-            return Text("nothing to plot", style=axis)
+            return Text("nothing to plot" if self.loaded else LOADING, style=axis)
         label_w = max(len(b.label) for b in self.bars) + 1
         texts = [self._numbers(b) for b in self.bars]
         text_w = max(len(t) for t in texts) + 1

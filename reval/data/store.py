@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import functools
 import re
+import threading
 import time
 from contextlib import contextmanager
 from pathlib import Path
@@ -73,12 +74,52 @@ def _connect(path: Path, read_only: bool, wait: float) -> duckdb.DuckDBPyConnect
             time.sleep(lock.POLL)
 
 
+class _InProcess:
+    """Which DuckDB configuration this process holds each database file open with. DuckDB refuses a read-only
+    connection to a file this process already holds read-write (and the reverse), so a reader that comes while
+    this process writes joins the writer's database (read-write configuration, no writer lock, reading only
+    committed data: DuckDB's MVCC), and a writer waits until this process's read-only connections close.
+    This is what lets the app read its screens while its own fit runs."""
+
+    def __init__(self) -> None:
+        self.changed = threading.Condition()
+        self.read_write: dict[Path, int] = {}
+        self.read_only: dict[Path, int] = {}
+
+    def reader(self, path: Path) -> bool:
+        """Reserve a reading connection; True when it must join a read-write one."""
+        with self.changed:
+            joined = self.read_write.get(path, 0) > 0
+            counts = self.read_write if joined else self.read_only
+            counts[path] = counts.get(path, 0) + 1
+            return joined
+
+    def writer(self, path: Path, wait: float) -> None:
+        """Reserve a writing connection, once this process's read-only ones are closed (they are short)."""
+        with self.changed:
+            if not self.changed.wait_for(lambda: self.read_only.get(path, 0) == 0, timeout=max(wait, 1.0)):
+                raise UserError(f"{path}: this process is still reading the database; try again.")
+            self.read_write[path] = self.read_write.get(path, 0) + 1
+
+    def release(self, path: Path, read_write: bool) -> None:
+        with self.changed:
+            counts = self.read_write if read_write else self.read_only
+            counts[path] -= 1
+            if not counts[path]:
+                del counts[path]
+            self.changed.notify_all()
+
+
+_IN_PROCESS = _InProcess()
+
+
 class Store:
     """An open project database. Use `transaction()` around every step that writes.
 
     A writing store holds the project's writer lock (reval.data.lock) until it is closed, brings the schema
     up to date and finishes or cleans an interrupted export (reval.data.publish); a reader opens DuckDB
-    read-only. Both wait up to `wait` seconds (default: lock.wait_seconds()) for another process."""
+    read-only (or joins this process's own writing connection, see _InProcess). Both wait up to `wait` seconds
+    (default: lock.wait_seconds()) for another process."""
 
     def __init__(self, path: Path | str, read_only: bool = False, wait: float | None = None,
                  memory_mb: int = DEFAULT_MEMORY_MB) -> None:
@@ -86,13 +127,23 @@ class Store:
         self.read_only = read_only
         wait = lock.wait_seconds() if wait is None else wait
         self._locked = False
+        self._key: Path | None = self.path.resolve()
         if not read_only:
             lock.acquire(self.path, wait)
             self._locked = True
+            try:
+                _IN_PROCESS.writer(self._key, wait)
+            except BaseException:
+                self._key = None
+                self._release()
+                raise
+            self._read_write = True
+        else:
+            self._read_write = _IN_PROCESS.reader(self._key)
         try:
-            self.con = _connect(self.path, read_only, wait)
+            self.con = _connect(self.path, read_only and not self._read_write, wait)
         except BaseException:
-            self._unlock()
+            self._release()
             raise
         self._depth = 0
         try:
@@ -108,9 +159,13 @@ class Store:
         try:
             self.con.close()
         finally:
-            self._unlock()
+            self._release()
 
-    def _unlock(self) -> None:
+    def _release(self) -> None:
+        """Give back this store's place among the process's connections, and the writer lock if held."""
+        if self._key is not None:
+            _IN_PROCESS.release(self._key, self._read_write)
+            self._key = None
         if self._locked:
             self._locked = False
             lock.release(self.path)

@@ -75,24 +75,50 @@ def _totals(store: Store, batch_ids: list[int]) -> dict[int, dict[str, Any]]:
     return {r.pop("batch_id"): r for r in store.records("batch_totals", [batch_ids])}
 
 
+def _staged_refusal(live: list[dict[str, Any]], segment: str, action: str) -> str | None:
+    """Why the segment has no staged batch to approve or hold (None when it has one)."""
+    batch = next((b for b in live if b["state"] in ("staged", "held")), None)
+    if batch is None:
+        done = next((b for b in live if b["state"] in ("approved", "exported")), None)
+        if done is not None and done["state"] == "approved":
+            return (f"Cannot {action} {segment}: batch {done['batch_id']} is already approved; revoke that "
+                    "approval first to decide again.")
+        if done is not None:
+            return (f"Cannot {action} {segment}: batch {done['batch_id']} is already exported; exported values "
+                    "are final (a new run makes a new batch).")
+        return f"Cannot {action} {segment}: it has no staged batch; run `reval value` after a run."
+    if batch["state"] == "held":
+        return (f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
+                "a new run and `reval value` stage it again.")
+    if outdated(batch):
+        return (f"Cannot {action} {segment}: batch {batch['batch_id']} is outdated by a data correction or an "
+                f"override made after it was staged; run `reval value {segment}` to stage its values again.")
+    return None
+
+
 def _open_batch(store: Store, segment: str, action: str) -> dict[str, Any]:
     """The segment's staged batch, read inside the caller's transaction; a plain refusal otherwise."""
     live = live_batches(store, segment)
-    batch = next((b for b in live if b["state"] in ("staged", "held")), None)
-    if batch is None:
-        raise UserError(f"Cannot {action} {segment}: it has no staged batch; run `reval value` after a run.")
-    if batch["state"] == "held":
-        raise UserError(f"Cannot {action} {segment}: batch {batch['batch_id']} is held ({batch['note']}); "
-                        "a new run and `reval value` stage it again.")
-    if outdated(batch):
-        raise UserError(f"Cannot {action} {segment}: {_outdated_reason(batch)}.")
-    return batch
+    reason = _staged_refusal(live, segment, action)
+    if reason is not None:
+        raise UserError(reason)
+    return next(b for b in live if b["state"] == "staged")
 
 
-def _outdated_reason(batch: dict[str, Any]) -> str:
-    """Why an outdated batch cannot be approved or held, and what stages it again."""
-    return (f"batch {batch['batch_id']} is outdated by a data correction or an override made after it was staged; "
-            f"run `reval value {batch['segment']}` to stage its values again")
+def refusal(store: Store, segment: str, action: str) -> str | None:
+    """Why approving, holding or revoking the segment's batch would be refused now for its state (before a
+    note is asked for), or None; the same rules the actions apply. The approval gate on statistics is not
+    judged here: a note can override it."""
+    if segment not in {r[0] for r in store.rows("roll_segments")}:
+        return f"No segment named '{segment}'."
+    live = live_batches(store, segment)
+    if action != "revoke":
+        return _staged_refusal(live, segment, action)
+    try:
+        _approved_batch(live, segment)
+    except UserError as refused:
+        return str(refused)
+    return None
 
 
 def _note(text: str | None) -> str | None:
@@ -183,34 +209,33 @@ def _open_batches(live: list[dict[str, Any]]) -> dict[str, dict[str, Any]]:
     return out
 
 
-def _not_staged(segment: str, live: list[dict[str, Any]], open_batch: dict[str, Any] | None) -> str:
-    """Why a segment without a staged batch is left: held, already decided, or never valued."""
-    if open_batch is not None:
-        return f"batch {open_batch['batch_id']} is held ({open_batch['note']})"
-    certified = next((b for b in live if b["segment"] == segment and b["state"] in ("approved", "exported")), None)
-    if certified is not None:
-        return f"nothing staged; batch {certified['batch_id']} is {certified['state']}"
-    return "nothing staged; run `reval value` after a run"
+def _why(refusal: str, segment: str) -> str:
+    """A single approval's refusal as the reason a segment was left (its "Cannot approve SEGMENT: " dropped)."""
+    return refusal.removeprefix(f"Cannot approve {segment}: ").removesuffix(".")
 
 
 def approve_all_passing(store: Store, config: Config) -> AllPassing:
     """Approve, in one transaction, every staged batch whose out-of-fold statistics pass the standards in force
-    (the rule of `failures`, as a single approval judges it); report every other segment and why it was left,
-    outdated batches and batches with rows `approval_blockers` names included (as a single approval refuses)."""
+    (the rule of `failures`, as a single approval judges it); every other segment is left with the reason a single
+    approval refuses it for (`_staged_refusal`: held, outdated, already decided, nothing staged; then
+    `approval_blockers`)."""
     live = live_batches(store)
     opened = _open_batches(live)
-    staged = {s: b for s, b in opened.items() if b["state"] == "staged"}
-    blocked = {s: _outdated_reason(b) for s, b in staged.items() if outdated(b)}
-    blockers = approval_blockers(store, [b["batch_id"] for s, b in staged.items() if s not in blocked])
-    blocked |= {s: "; ".join(blockers[b["batch_id"]]) for s, b in staged.items() if b["batch_id"] in blockers}
-    statistics = segments_statistics(store, config, {s: b["run_id"] for s, b in staged.items() if s not in blocked})
+    segments = sorted(r[0] for r in store.rows("roll_segments"))
+    by_segment: dict[str, list[dict[str, Any]]] = {}
+    for b in live:
+        by_segment.setdefault(b["segment"], []).append(b)
+    refused = {s: _why(r, s) for s in segments
+               if (r := _staged_refusal(by_segment.get(s, []), s, "approve")) is not None}
+    staged = {s: opened[s] for s in segments if s not in refused}
+    blockers = approval_blockers(store, [b["batch_id"] for b in staged.values()])
+    refused |= {s: "; ".join(blockers[b["batch_id"]]) for s, b in staged.items() if b["batch_id"] in blockers}
+    statistics = segments_statistics(store, config, {s: b["run_id"] for s, b in staged.items() if s not in refused})
     left: list[LeftSegment] = []
     passing = []
-    for segment in sorted(r[0] for r in store.rows("roll_segments")):
-        if segment not in staged:
-            left.append({"segment": segment, "reason": _not_staged(segment, live, opened.get(segment))})
-        elif segment in blocked:
-            left.append({"segment": segment, "reason": blocked[segment]})
+    for segment in segments:
+        if segment in refused:
+            left.append({"segment": segment, "reason": refused[segment]})
         elif reasons := failures(statistics[segment]):
             left.append({"segment": segment, "reason": "; ".join(reasons)})
         else:

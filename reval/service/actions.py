@@ -309,6 +309,15 @@ def correct_parcel(folder: Path, parcel_id: str, changes: list[str], note: str,
         return correct(store, config, parcel_id, changes, note, run_id)
 
 
+def decision_refusal(folder: Path, segment: str, action: str) -> str | None:
+    """Why `approve`, `hold` or `revoke` of the segment would be refused for its batch's state, or None (read-only:
+    the app asks before it asks for a note)."""
+    from reval.roll import batches
+
+    with open_project(folder) as (_, store):
+        return batches.refusal(store, segment, action)
+
+
 def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool = False) -> ExportResult:
     """Write the certified roll (and its manifest) to `path`; refuses while a segment is unapproved unless
     partial, refuses the project's own files, and an existing file unless overwrite."""
@@ -316,6 +325,13 @@ def export_roll(folder: Path, path: Path, partial: bool = False, overwrite: bool
 
     with open_project(folder, write=True) as (config, store):
         return export.export_roll(store, config, path, partial, overwrite)
+
+
+def existing_export_files(path: Path) -> list[Path]:
+    """The files an export to `path` would replace (the roll and its manifest), so a front-end can ask first."""
+    from reval.roll.export import manifest_path
+
+    return [p for p in (path, manifest_path(path)) if p.exists()]
 
 
 def event_log(folder: Path, segment: str | None = None) -> EventLog:

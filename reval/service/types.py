@@ -142,6 +142,8 @@ class ValueChange(TypedDict):
     median_unsold: float | None
     n_sold: int
     n_unsold: int
+    prior: list[float]      # prior and new value of a sample of the segment's parcels (the scatter)
+    new: list[float]
 
 
 class SegmentDetail(TypedDict):
@@ -201,6 +203,42 @@ class ParcelDetail(TypedDict):
     override_reasons: list[str]    # the reason codes the config accepts
 
 
+class ListColumn(TypedDict):
+    """One column of a work list: the row key it shows, its header, how its values read (text, money, change,
+    weight, date, time) and whether the list sorts by it."""
+
+    key: str
+    label: str
+    format: str
+    sortable: bool
+
+
+class ListPage(TypedDict):
+    """One page of a work list (reval.service.views.LISTS), filtered and sorted in SQL."""
+
+    name: str
+    title: str
+    columns: list[ListColumn]
+    rows: list[Record]
+    total: int
+    page: int
+    pages: int
+    page_size: int
+    sort: str
+    descending: bool
+    segment: str | None
+    text: str
+    opens: str          # what Enter opens from a row: "parcel" or "segment"
+
+
+class JobStep(TypedDict):
+    """One step of the job as the app's steps screen shows it: its key, what it does, where the project is."""
+
+    key: str
+    step: str
+    does: str
+    status: str
+    done: bool
 class SegmentStatistics(TypedDict):
     """A segment's group in the stored study the app shows, with its verdict per statistic."""
 

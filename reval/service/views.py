@@ -8,6 +8,7 @@ app opens fast.
 """
 from __future__ import annotations
 
+import json
 import math
 from pathlib import Path
 from typing import Any, TypedDict
@@ -21,9 +22,9 @@ from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
 from reval.roll.split import value_split
 from reval.service.project import open_project
-from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, Overview, OverviewRow, ParcelDetail,
-                                 Record, SalesPage, SegmentDetail, SegmentReview, SegmentStatistics, StatCell,
-                                 ValueChange)
+from reval.service.types import (CheckPage, ComparableGrid, Curve, Equity, JobStep, ListColumn, ListPage, Overview,
+                                 OverviewRow, ParcelDetail, Record, SalesPage, SegmentDetail, SegmentReview,
+                                 SegmentStatistics, StatCell, ValueChange)
 from reval.states import BatchState
 from reval.roll.flags import approval_blockers
 from reval.stats.judging import failures, judging_sha256
@@ -49,6 +50,49 @@ class ShownStudy(TypedDict):
 def latest_run(store: Store) -> str | None:
     rows = store.rows("app_latest_run")
     return str(rows[0][0]) if rows else None
+
+
+def job_steps(folder: Path) -> list[JobStep]:
+    """Each step of the job from data to roll, with where the project stands (a project without a database
+    yet: nothing done; the first step not done is what to do next)."""
+    from reval.data.config import load_config
+
+    config = load_config(folder)
+    n: dict[str, Any] = {}
+    if config.database.exists():
+        with open_project(folder) as (_, store):
+            n = store.records("app_job_steps")[0]
+
+    def count(key: str) -> int:
+        return int(n.get(key) or 0)
+
+    files = ", ".join(p.name for p in (config.parcels_file, config.sales_file) if p is not None)
+    return [
+        {"key": "i", "step": "Import", "does": f"check and load the input files ({files})", "done": count("parcels") > 0,
+         "status": f"{count('parcels'):,} parcels, {count('sales'):,} sales" if count("parcels") else "not yet"},
+        {"key": "u", "step": "Sales", "does": "qualify sales and time-adjust them to the valuation date",
+         "done": count("qualified") > 0,
+         "status": f"{count('qualified'):,} qualified, {count('excluded'):,} excluded" if count("qualified") or
+         count("excluded") else "not yet"},
+        {"key": "t", "step": "Ratio study", "does": "study the prior values (after a fit: the out-of-fold model values)",
+         "done": count("prior_studies") > 0,
+         "status": ("prior values" + (", out-of-fold values of the latest run" if count("model_studies") else ""))
+         if count("prior_studies") else "not yet"},
+        {"key": "f", "step": "Fit", "does": "fit every segment's model (a new run)", "done": count("runs") > 0,
+         "status": f"{count('runs')} run(s), latest {n.get('run_id')}" if count("runs") else "not yet"},
+        {"key": "v", "step": "Values", "does": "stage values for review (decisions kept)",
+         "done": count("staged") + count("held") + count("approved") + count("exported") > 0,
+         "status": f"{count('staged')} staged, {count('held')} held, {count('approved')} approved batch(es)"},
+        {"key": "x", "step": "Export", "does": "write the value roll of the approved segments",
+         "done": count("exported") > 0, "status": f"{count('exported')} batch(es) exported"},
+    ]
+
+
+def latest_event(folder: Path) -> int:
+    """The newest event's id: the app reads it every few seconds and reloads when another process (a second
+    app, the command line) decided or changed something."""
+    with open_project(folder) as (_, store):
+        return int(store.rows("app_latest_event")[0][0])
 
 
 def _study(store: Store, config: Config, run_id: str | None) -> tuple[ShownStudy | None, str]:
@@ -237,8 +281,17 @@ def _equity(store: Store, run_id: str | None, study: ShownStudy | None, segment:
             "price": [p["price"] for p in points], "ratio": [p["ratio"] for p in points]}
 
 
-def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> ValueChange:
+def _marginal_effects(store: Store, config: Config, run_id: str, segment: str) -> list[Record]:
+    """Value per unit of each feature, and its elasticity only where the feature is modelled in logs: an
+    elasticity needs a true zero (a ratio scale), which a year (built) does not have."""
+    logged = {f.name for f in config.features if f.log}
+    return [{**r, "elasticity": r["elasticity"] if r["feature"] in logged else None}
+            for r in store.records("app_marginal_effects", [run_id, segment])]
+
+
+def _value_change(store: Store, run_id: str, segment: str, n_bins: int, max_points: int) -> ValueChange:
     rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
+    pairs = store.rows("app_prior_new", [run_id, segment, max_points])
     medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
     sold, unsold = [0] * n_bins, [0] * n_bins
     for r in rows:
@@ -248,7 +301,8 @@ def _value_change(store: Store, run_id: str, segment: str, n_bins: int) -> Value
     return {"sold": sold, "unsold": unsold, "lo": lo, "hi": hi,
             "median_sold": medians.get(True, {}).get("median_change"),
             "median_unsold": medians.get(False, {}).get("median_change"),
-            "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0)}
+            "n_sold": medians.get(True, {}).get("n", 0), "n_unsold": medians.get(False, {}).get("n", 0),
+            "prior": [float(a) for a, _ in pairs], "new": [float(b) for _, b in pairs]}
 
 
 def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int = 2000) -> SegmentDetail:
@@ -269,9 +323,9 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "model": model[0] if model else None,
             "curves": _curves(store, run_id, segment, n_bins) if run_id else [],
             "interactions": _interactions(store, run_id, segment) if run_id else [],
-            "marginal_effects": store.records("app_marginal_effects", [run_id, segment]) if run_id else [],
+            "marginal_effects": _marginal_effects(store, config, run_id, segment) if run_id else [],
             "equity": _equity(store, run_id, study, segment, max_points),
-            "value_change": _value_change(store, run_id, segment, 24) if run_id else None,
+            "value_change": _value_change(store, run_id, segment, 24, max_points) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
             "state": state, "batches": entry["summary"] if entry else "no batch",
             "review": _review(store, config, segment) if state else None,
@@ -307,6 +361,97 @@ def segment_sales(folder: Path, segment: str, page: int = 0, page_size: int = 50
                 "values": "out-of-fold model values" if model else "prior roll values", "downweighted": light}
 
 
+# ---- work lists ----------------------------------------------------------------------------------------
+
+def _column(key: str, label: str, format: str = "text", sortable: bool = True) -> ListColumn:
+    return {"key": key, "label": label, "format": format, "sortable": sortable}
+
+
+class ListSpec(TypedDict):
+    """A work list: its query (sql/queries/app_list_NAME.sql), title, columns, default order and what a row opens."""
+
+    title: str
+    columns: list[ListColumn]
+    sort: str
+    descending: bool
+    opens: str
+
+
+LISTS: dict[str, ListSpec] = {
+    "changes": {"title": "Value changes beyond the review threshold", "sort": "change", "descending": True,
+                "opens": "parcel",
+                "columns": [_column("parcel_id", "Parcel"), _column("segment", "Segment"),
+                            _column("prior_value", "Prior", "money"), _column("market_value", "Value", "money"),
+                            _column("change", "Change", "change"), _column("state", "Batch", sortable=False)]},
+    "sales": {"title": "Excluded and down-weighted sales, with why", "sort": "sale_id", "descending": False,
+              "opens": "parcel",
+              "columns": [_column("sale_id", "Sale"), _column("parcel_id", "Parcel"),
+                          _column("status", "Status", sortable=False), _column("weight", "Weight", "weight"),
+                          _column("reason", "Why"), _column("segment", "Segment"),
+                          _column("sale_date", "Date", "date"), _column("sale_price", "Price", "money")]},
+    "log": {"title": "Audit log", "sort": "event_id", "descending": True, "opens": "segment",
+            "columns": [_column("event_id", "Event"), _column("event_time", "Time", "time", sortable=False),
+                        _column("who", "Who"), _column("kind", "Kind"), _column("segment", "Segment"),
+                        _column("detail", "Detail", sortable=False)]},
+}
+# the SQL's names for the sort keys of columns whose row key differs
+_SORT_NAMES = {"parcel_id": "parcel", "prior_value": "prior", "market_value": "value", "sale_id": "sale",
+               "sale_date": "date", "sale_price": "price", "event_id": "event"}
+
+
+def _event_detail(text: str | None) -> str:
+    """An event's detail in one line: its plain fields (notes, reasons, batch, states), not the stored snapshots."""
+    detail = json.loads(text or "{}")
+    first = [k for k in ("note", "reason") if k in detail]   # what a person wrote reads first
+    keep = [f"{k}: {detail[k]}" for k in [*first, *(k for k in detail if k not in first)]
+            if isinstance(detail[k], (str, int, float, bool)) and not k.endswith("sha256")]
+    return "; ".join(keep)
+
+
+def list_page(folder: Path, name: str, *, segment: str | None = None, text: str = "", sort: str | None = None,
+              descending: bool | None = None, page: int = 0, page_size: int = 50) -> ListPage:
+    """One page of a work list, filtered (segment, text) and sorted in SQL; a page past the end gives the last."""
+    if name not in LISTS:
+        raise UserError(f"No list named {name!r}: {', '.join(LISTS)}.")
+    spec = LISTS[name]
+    sort = sort or spec["sort"]
+    if sort not in {c["key"] for c in spec["columns"] if c["sortable"]}:
+        raise UserError(f"The {name} list cannot be sorted by {sort!r}.")
+    descending = spec["descending"] if descending is None else descending
+    with open_project(folder) as (config, store):
+        params: dict[str, Any] = {"segment": segment, "text": text.strip(), "sort": _SORT_NAMES.get(sort, sort),
+                                  "descending": descending, "limit": page_size}
+        if name == "changes":
+            params["threshold"] = config.assessment.review_change_threshold
+        if name == "sales":
+            params["run_id"] = latest_run(store)
+
+        def read(at: int) -> list[Record]:
+            return store.records(f"app_list_{name}", {**params, "offset": at * page_size})
+
+        rows = read(max(page, 0))
+        total = int(rows[0]["total_rows"]) if rows else 0
+        pages = max(1, math.ceil(total / page_size))
+        if not rows and page > 0:   # past the end: the last page (the count comes with any row)
+            total = int(next(iter(read(0)), {"total_rows": 0})["total_rows"])
+            pages = max(1, math.ceil(total / page_size))
+            page = pages - 1
+            rows = read(page)
+        page = min(max(page, 0), pages - 1)
+    for r in rows:
+        r.pop("total_rows", None)
+        for key in ("sale_date", "event_time"):
+            if r.get(key) is not None:
+                r[key] = r[key].isoformat(sep=" ", timespec="seconds") if key == "event_time" else r[key].isoformat()
+        if "detail" in r:
+            r["detail"] = _event_detail(r["detail"])
+    title = spec["title"]
+    if name == "changes":
+        limit = params["threshold"]
+        title += f" (±{limit:.0%}, the segment's open batch, else its certified one)"
+    return {"name": name, "title": title, "columns": spec["columns"], "rows": rows, "total": total, "page": page,
+            "pages": pages, "page_size": page_size, "sort": sort, "descending": descending, "segment": segment,
+            "text": text, "opens": spec["opens"]}
 # ---- the data-quality check -----------------------------------------------------------------------------
 
 def check_rows(folder: Path, page: int = 0, page_size: int = 50, segment: str | None = None,
@@ -348,6 +493,16 @@ def _parcel_flags(config: Config, parcel: Record, features: list[Record], estima
     return flags
 
 
+def _suggestions(store: Store, text: str) -> list[str]:
+    return [r[0] for r in store.rows("app_parcel_suggest", [text, 5])] if text else []
+
+
+def parcel_suggestions(folder: Path, text: str) -> list[str]:
+    """Parcel ids close to what was typed (starting with it first), for "did you mean"."""
+    with open_project(folder) as (_, store):
+        return _suggestions(store, text.strip())
+
+
 def parcel_detail(folder: Path, parcel_id: str) -> ParcelDetail:
     """One parcel: its features, value and contributions (currency parts summing to the value), prior
     value and change, its sales and flags. Raises UserError naming close ids when it is not found."""
@@ -360,7 +515,7 @@ def read_parcel(store: Store, config: Config, parcel_id: str) -> ParcelDetail:
     parcel_id = parcel_id.strip()
     found = store.records("app_parcel", [parcel_id])
     if not found:
-        near = [r[0] for r in store.rows("app_parcel_suggest", [parcel_id, 5])] if parcel_id else []
+        near = _suggestions(store, parcel_id)
         hint = f"; did you mean {', '.join(near)}?" if near else ""
         raise UserError(f"No parcel with id {parcel_id!r}{hint}")
     parcel = found[0]

@@ -35,8 +35,10 @@ class HelpScreen(Screen[None]):
         with VerticalScroll(id="help-body"):
             yield Static(keys_table(), id="help-keys")
             yield Static("Marks: " + LEGEND, id="help-legend")
-            yield Static("Plots: ━ the segment's curve on its 95% band, ━ its parent's (market area) curve, "
-                         "▁▃▅ where the segment's parcels lie; dashed lines are references (ratio 1.0, limits).",
+            yield Static("Plots: ━ the segment's curve on its 95% band, ╍ its parent's (market area) curve, "
+                         "▁▃▅ where the segment's parcels lie; ┄ the reference line (no effect, ratio 1.0); ⠶ sales. "
+                         "Value change bars: █ unsold, ▓ sold parcels. Axes: curves in % of value against the "
+                         "feature's own unit; ratios are value over time-adjusted price.",
                          id="help-plots")
             yield Static(CAUTION, id="help-caution")
         yield footer()

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from rich.cells import cell_len
 from rich.style import Style
 from rich.text import Text
 from textual import on
@@ -14,16 +15,20 @@ from reval.service import views
 from reval.service.types import Overview, OverviewRow
 
 from .. import keys
-from ..format import CAUTION, LEGEND, cells, gate_detail, model_cell, percent, shown, stat_cell
+from ..format import SHORT_CAUTION, SHORT_LEGEND, cells, gate_detail, model_cell, percent, shown, stat_cell
 from ..jobs import Loaded, StatusBar
 from ..plain import Plain
 from .base import DataScreen, footer
 
-# (sort key, header label); the table shows them in this order (the most used first, for 80 columns).
-COLUMNS = (("segment", "Segment"), ("model", "Model (borrowed)"), ("median_ratio", "Median"), ("cod", "COD"),
-           ("prd", "PRD"), ("prb", "PRB"), ("value_change", "Change"), ("state", "State"),
-           ("sales", "Sales"), ("parcels", "Parcels"), ("market_area", "Market area"))
-SORT_ORDER = tuple(key for key, _ in COLUMNS)
+# (sort key, header label, cells it may take at 80 columns): the key columns first, so that at 80x24 the
+# segment, its market area, counts, statistics and state fit; change and model follow to the right (and show
+# at 160 columns).
+COLUMNS = (("segment", "Name", 8), ("market_area", "Area", 8), ("parcels", "Parcels", 7), ("sales", "Sales", 5),
+           ("median_ratio", "Median", 6), ("cod", "COD", 5), ("prd", "PRD", 6), ("prb", "PRB", 7),
+           ("state", "State", 13), ("value_change", "Change", 7), ("model", "Model", 22))
+WIDE = 120   # from this many columns, names and states are not cut
+SORT_ORDER = tuple(key for key, _, _ in COLUMNS)
+LABELS = {key: label for key, label, _ in COLUMNS}
 VERDICT_COLOURS = {"pass": "success", "fail": "error", "inconclusive": "warning", "too_few_sales": "warning"}
 
 
@@ -49,17 +54,15 @@ class OverviewScreen(DataScreen):
         yield Header()
         yield Plain("Reading the project…", id="stats-header")
         yield Plain("", id="filters")
-        yield Static(LEGEND, id="legend")
+        yield Static(SHORT_LEGEND, id="legend")
         yield DataTable(id="segments", cursor_type="row", zebra_stripes=True)
         yield Input(placeholder="segment name (Enter keeps it, Esc clears it)", id="search")
-        yield Static(CAUTION, id="caution")
+        yield Static(SHORT_CAUTION, id="caution")
         yield StatusBar()
         yield footer()
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        for key, label in COLUMNS:
-            table.add_column(label, key=key)
         table.focus()
         self.app.theme_changed_signal.subscribe(self, lambda _: self.refresh_table())
         self.reload()
@@ -95,11 +98,16 @@ class OverviewScreen(DataScreen):
                                            market_area=self.area, state=self.state, text=self.search_text)
         self.shown = views.sort_segments(rows, self.sort_key, self.descending)
         table = self.query_one(DataTable)
-        table.clear()
         colours = self.app.theme_variables
-        for row in self.shown:
-            table.add_row(*cells(*self._cells(row, colours)), key=row["segment"])
-        self._label_columns(table)
+        body = [cells(*self._cells(row, colours)) for row in self.shown]
+        # fixed widths measured here: DataTable's own measuring can be lost when it is refilled twice in a tick
+        table.clear(columns=True)
+        for i, (key, label, _) in enumerate(COLUMNS):
+            # the sort shows on the line above the table (a mark in the header would widen a column at 80x24)
+            width = max([cell_len(label), *(cell_len(str(r[i])) for r in body)])
+            table.add_column(label, key=key, width=width)
+        for row, values in zip(self.shown, body):
+            table.add_row(*values, key=row["segment"])
         if keep is not None and any(r["segment"] == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self._show_filters()
@@ -110,22 +118,24 @@ class OverviewScreen(DataScreen):
             colour = colours.get(VERDICT_COLOURS.get(status or "", ""), None)
             return Text(stat_cell(row["stats"][stat], stat, short=True), style=Style(color=colour) if colour else "")
 
-        return [row["segment"], model_cell(row), verdict("median_ratio"), verdict("cod"), verdict("prd"),
-                verdict("prb"), percent(row["value_change"]), row["batches"], f"{row['sales']:,}",
-                f"{row['parcels']:,}", row["market_area"]]
+        wide = self.size.width >= WIDE
+        widths = {key: (None if wide else width) for key, _, width in COLUMNS}
+        return [shown(row["segment"], widths["segment"]), shown(row["market_area"], widths["market_area"]),
+                f"{row['parcels']:,}", f"{row['sales']:,}", verdict("median_ratio"), verdict("cod"), verdict("prd"),
+                verdict("prb"), shown(row["batches"], widths["state"]), percent(row["value_change"]),
+                model_cell(row)]
 
-    def _label_columns(self, table: DataTable[Any]) -> None:
-        labels = dict(COLUMNS)
-        arrow = " ▼" if self.descending else " ▲"
-        for key, column in table.columns.items():
-            name = str(key.value)
-            column.label = Text(labels[name] + (arrow if name == self.sort_key else ""))
-        table.refresh()
+    def on_resize(self) -> None:
+        """Names and states are cut below WIDE columns: redraw when the width crosses it."""
+        wide = self.size.width >= WIDE
+        if wide != getattr(self, "_wide", None):
+            self._wide = wide
+            self.refresh_table()
 
     def _show_filters(self) -> None:
         assert self.data is not None
         parts = [f"{len(self.shown)} of {len(self.data['segments'])} segments",
-                 f"sorted by {dict(COLUMNS)[self.sort_key]} {'descending' if self.descending else 'ascending'}"]
+                 f"by {LABELS[self.sort_key]} {'▼' if self.descending else '▲'}"]
         active = [name for name, on_ in (("cannot be approved", self.failing_only),
                                          (f"market area {self.area}", self.area is not None),
                                          (f"state {self.state}", self.state is not None),

@@ -14,7 +14,7 @@ from reval.service.types import ComparableGrid, ParcelDetail, Record
 from reval.service.wording import grid_table, indicated_range
 
 from .. import keys
-from ..format import CAUTION, cells, measured_from, money, number, percent, signed_money
+from ..format import SHORT_CAUTION, cells, measured_from, money, number, percent, shown, signed_money
 from ..jobs import Loaded, StatusBar
 from ..outcomes import describe_parcel_report
 from ..plain import Plain
@@ -46,7 +46,7 @@ class ParcelScreen(DataScreen):
             with Horizontal(id="parcel-top"):
                 yield DataTable(id="parcel-value", cursor_type="none", show_cursor=False)
                 yield DataTable(id="parcel-features", cursor_type="none", show_cursor=False)
-            yield Static("Contributions", classes="section")
+            yield Plain("Contributions", classes="section", id="parts-title")
             yield DataTable(id="parcel-parts", cursor_type="none", show_cursor=False)
             yield Plain("", id="parcel-parts-note")
             yield Static("Comparable sales adjusted by the model", classes="section")
@@ -56,7 +56,7 @@ class ParcelScreen(DataScreen):
             yield DataTable(id="parcel-sales", cursor_type="none", show_cursor=False)
             yield Static("Flags", classes="section")
             yield Plain("", id="parcel-flags")
-        yield Static(CAUTION, id="caution")
+        yield Static(SHORT_CAUTION, id="caution")
         yield StatusBar()
         yield footer()
 
@@ -72,9 +72,21 @@ class ParcelScreen(DataScreen):
         target = "#parcel-comparables-note" if message.tag == "comparables" else "#parcel-title"
         self.query_one(target, Static).update(f"✗ {message.error}")
         super().on_load_failed(message)
+        self.fetch("suggestions", views.parcel_suggestions, self.reval.folder, self.parcel_id)
+
+    def offer(self, near: list[str]) -> None:
+        """No such parcel: offer the closest id in the prompt, so Enter accepts "did you mean"."""
+        if near and self.is_current:
+            self.dismiss()   # the prompt is asked for once this screen is gone (its callback needs a live screen)
+            self.app.call_later(self.reval.ask_parcel, f"No parcel {self.parcel_id!r}: did you mean {near[0]}?",
+                                near[0], "Enter opens it; or type another id (others close: "
+                                + (", ".join(near[1:]) or "none") + ").")
 
     @on(Loaded)
     def show_parcel(self, message: Loaded) -> None:
+        if message.tag == "suggestions":
+            self.offer(message.data)
+            return
         if message.tag == "comparables":
             self._comparables(message.data)
             return
@@ -99,22 +111,21 @@ class ParcelScreen(DataScreen):
         table.clear(columns=True)
         table.add_columns("Value", "Amount")
         estimate = d["estimate"]
-        table.add_row(*cells("Market value (model)", money(estimate["market_value"]) if estimate else "– (no run yet: f)"))
+        table.add_row(*cells("Model value", money(estimate["market_value"]) if estimate else "– (no run: f)"))
         table.add_row(*cells("Prior market value", money(d["prior_value"])))
-        table.add_row(*cells("Prior assessed value", money(d["prior_assessed_value"])))
+        table.add_row(*cells("Prior assessed", money(d["prior_assessed_value"])))
         table.add_row(*cells("Change", percent(d["value_change"])))
         if estimate:
-            table.add_row(*cells("Model", f"{estimate['kind']}, run {d['run_id']}"))
+            table.add_row(*cells("Model", estimate["kind"].replace("_", " ")))
         override = d["override"]
         if override is not None:
             table.add_row(*cells("Override", f"{money(override['value'])} ({override['reason']})"))
         for r in d["roll"][:1]:
-            table.add_row(*cells(f"Roll: batch {r['batch_id']}", r["state"]))
+            table.add_row(*cells(f"Roll batch {r['batch_id']}", r["state"]))
             for name in ("market", "land", "improvement", "assessed", "assessed_land", "assessed_improvement"):
-                label = name.replace("_", " ").capitalize()
-                table.add_row(*cells(f"{label} value (roll)", money(r[f"{name}_value"])))
+                table.add_row(*cells(f"  {name.replace('_', ' ').capitalize()}", money(r[f"{name}_value"])))
             if r["override_reason"]:
-                table.add_row(*cells("Overridden (roll)", f"{r['override_reason']}; model {money(r['model_value'])}"))
+                table.add_row(*cells("  Overridden", f"{r['override_reason']}; model {money(r['model_value'])}"))
 
     def _parts(self, d: ParcelDetail) -> None:
         table = self.query_one("#parcel-parts", DataTable)
@@ -124,9 +135,9 @@ class ParcelScreen(DataScreen):
         if split is None or estimate is None:
             note.update("No contributions yet: they come with a model run (press f to fit).")
             return
+        self.query_one("#parts-title", Static).update(f"Contributions (model of run {shown(d['run_id'], 40)})")
         table.add_columns("Part", "Log value", "Value", "% of value")
-        table.add_row(*cells("base (the segment's reference parcel)", number(split["base_log"], ".4f"),
-                      money(split["base"]), ""))
+        table.add_row(*cells("base (reference parcel)", number(split["base_log"], ".4f"), money(split["base"]), ""))
         for p in split["parts"]:
             table.add_row(*cells(p["term"], number(p["log"], "+.4f"), signed_money(p["currency"]),
                           percent(p["currency"] / split["value"])))

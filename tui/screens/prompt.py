@@ -50,7 +50,9 @@ class ExportScreen(ModalScreen[tuple[Path, bool] | None]):
     """Ask where to write the value roll and whether a partial roll (approved segments only) is meant."""
 
     CSS_PATH = "prompt.tcss"
-    BINDINGS = [Binding("escape", "cancel", "Cancel", id="export.cancel")]
+    # Enter exports from the path and from the checkbox alike (a checkbox would otherwise toggle on Enter)
+    BINDINGS = [Binding("escape", "cancel", "Cancel", id="export.cancel"),
+                Binding("enter", "export", "Export", priority=True, id="export.confirm")]
 
     def __init__(self, default_path: Path) -> None:
         super().__init__()
@@ -63,12 +65,11 @@ class ExportScreen(ModalScreen[tuple[Path, bool] | None]):
                          "a partial one says so in its manifest.", id="prompt-detail")
             yield Input(str(self.default_path), placeholder="file path (.csv)", id="prompt-input")
             yield Checkbox("Partial export (only the approved segments)", id="partial")
-            yield Static("Enter to export · Tab to the checkbox, Space to tick it · Esc to cancel",
+            yield Static("Enter exports · Tab to the checkbox, Space ticks it · Esc cancels",
                          id="prompt-hint")
 
-    @on(Input.Submitted, "#prompt-input")
-    def submitted(self, event: Input.Submitted) -> None:
-        text = event.value.strip()
+    def action_export(self) -> None:
+        text = self.query_one("#prompt-input", Input).value.strip()
         if not text:
             self.query_one("#prompt-hint", Static).update("✗ A file path is required (Esc to cancel).")
             return

@@ -50,7 +50,10 @@ SALES_PAGE = 50
 
 
 def axis_number(v: float) -> str:
-    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
+    """An axis label: thousands separated only from 10,000, so years read 1913 … 2006."""
+    if abs(v) >= 10_000:
+        return f"{v:,.0f}"
+    return f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
 
 
 def model_line(d: SegmentDetail) -> str:
@@ -90,6 +93,18 @@ def level_bars(c: Curve) -> list[LevelBar]:
         n = counts[i] if i < len(counts) else 0
         out.append(LevelBar(f"{shown(name, NAME_WIDTH // 2)} (n={n:,})", pct(e) or 0.0, pct(lo), pct(hi), pct(p)))
     return out
+
+
+def prior_new_chart(prior: list[float], new: list[float]) -> ChartData | None:
+    """New against prior value on log scales (currency on both axes), with the line of no change."""
+    if not prior:
+        return None
+    px, ny = [math.log10(v) for v in prior], [math.log10(max(v, 1.0)) for v in new]
+    lo, hi = min(px + ny), max(px + ny)
+    return ChartData((Layer("line", (lo, hi), (lo, hi), style="reference", label="no change"),
+                      Layer("points", px, ny, style="points", label="parcel")),
+                     x_range=(lo, hi), y_range=(lo, hi), x_format=lambda v: "prior " + short_money(10 ** v),
+                     y_format=lambda v: short_money(10 ** v))
 
 
 def chasing_line(review: SegmentReview | None) -> str:
@@ -167,7 +182,13 @@ class SegmentScreen(DataScreen):
                             yield Chart(id="decile-chart")
             with TabPane("4 Value change", id="change"):
                 yield Plain("", id="change-summary")
-                yield Bars(id="change-bars")
+                with Horizontal(id="change-plots"):
+                    with Vertical():
+                        yield Static("Change, share of parcels", classes="plot-title")
+                        yield Bars(id="change-bars")
+                    with Vertical():
+                        yield Static("New value against prior value", classes="plot-title")
+                        yield Chart(id="prior-new")
             with TabPane("5 Sales", id="sales"):
                 yield Plain("", id="sales-title")
                 yield DataTable(id="sales-table", cursor_type="row", zebra_stripes=True)
@@ -271,7 +292,7 @@ class SegmentScreen(DataScreen):
         marginal = self.query_one("#marginal", DataTable)
         marginal.clear(columns=True)
         if d["marginal_effects"]:
-            marginal.add_columns("Feature", "Value per unit", "Elasticity")
+            marginal.add_columns("Feature", "Value per unit", "Elasticity (logged features)")
             for r in d["marginal_effects"]:
                 marginal.add_row(*cells(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f")))
 
@@ -325,6 +346,7 @@ class SegmentScreen(DataScreen):
         if v is None or v["lo"] is None or v["hi"] is None:
             summary.update(NO_RUN if d["run_id"] is None else "No values to compare with prior values.")
             bars.show(None)
+            self.query_one("#prior-new", Chart).show(None)
             return
         sold, unsold = v["median_sold"], v["median_unsold"]
         gap = sold - unsold if sold is not None and unsold is not None else None
@@ -334,6 +356,7 @@ class SegmentScreen(DataScreen):
         summary.update("\n".join(filter(None, (medians, chasing_line(d["review"]), flags_line(d["review"])))))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
                            v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
+        self.query_one("#prior-new", Chart).show(prior_new_chart(v["prior"], v["new"]))
 
     # ---- sales -------------------------------------------------------------------------------------------
 
