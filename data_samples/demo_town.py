@@ -13,7 +13,9 @@ second for a manual value. At the default
 20,000 parcels it has about 4,100 sales dated 2023-01-01 .. 2025-12-31 plus about 30 dated 2022
 (outside the 36-month window). Three neighbourhoods are thin on purpose: Torvel Hollow has no
 qualified sale (two non-arm's-length ones), Lyskeld Point 5 and Gaulden Terrace 15; the others
-have 60-400. Counts scale in proportion to `n_parcels`.
+have 60-400. Counts scale in proportion to `n_parcels`. Above about 73,000 parcels the geography grows
+too: one neighbourhood per about 3,300 parcels (about 300 in 25 market areas at a million), each new
+one a perturbed copy of one of the 22 recipes (thin ones included) with a generated fictional name.
 
 Market value follows a known TRUE function of the features in log space, so a fitted model can be
 scored on how well it recovers it:
@@ -61,7 +63,7 @@ from __future__ import annotations
 
 import argparse
 import shutil
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from pathlib import Path
 
@@ -192,17 +194,119 @@ del N
 NEIGHBOURHOOD_IDS = tuple(n.id for n in NEIGHBOURHOODS)
 MARKET_AREAS = tuple(MARKET_AREA_INTERCEPTS)
 
+# Above the default size the town grows more neighbourhoods (one per about PARCELS_PER_NEIGHBOURHOOD
+# parcels), NEIGHBOURHOODS_PER_AREA of them to each new market area. Neighbourhood i beyond the 22 is
+# a perturbed copy of recipe i mod 22 (so thin ones recur), drawn from its own seed: the recipes do not
+# depend on the town's size or seed, and the default town is unchanged.
+PARCELS_PER_NEIGHBOURHOOD = 3_300
+NEIGHBOURHOODS_PER_AREA = 14
+_NAME_HEADS = ("Ael", "Bram", "Cor", "Dun", "Esk", "Fal", "Gor", "Hal", "Isk", "Jor", "Kel", "Lor",
+               "Mar", "Nor", "Oss", "Pel", "Quen", "Ros", "Sel", "Tam", "Ulv", "Var", "Wen", "Yar")
+_NAME_TAILS = ("ow", "ey", "en", "ith", "ock", "ame", "ere", "isk")
+_NAME_KINDS = ("Rise", "Green", "Reach", "Fold", "Hollow", "Mews", "Heights", "Common", "Fields",
+               "Bank", "Shore", "Park", "Lanes", "Downs")
+_AREA_ENDINGS = ("mead", "water", "by", "holt", "wick", "dale", "ford", "stow")
 
-def _column(field: str) -> np.ndarray:
-    """One numeric field of the neighbourhood table, indexed by neighbourhood number."""
-    return np.array([getattr(n, field) for n in NEIGHBOURHOODS], dtype=float)
+
+@dataclass(frozen=True)
+class Geography:
+    """The neighbourhood recipes of one town and its market areas' intercepts, as arrays."""
+
+    neighbourhoods: tuple[Neighbourhood, ...]
+    intercepts: dict[str, float]
+
+    @property
+    def ids(self) -> tuple[str, ...]:
+        return tuple(n.id for n in self.neighbourhoods)
+
+    @property
+    def market_areas(self) -> tuple[str, ...]:
+        return tuple(self.intercepts)
+
+    def column(self, field: str) -> np.ndarray:
+        """One numeric field of the neighbourhood table, indexed by neighbourhood number."""
+        return np.array([getattr(n, field) for n in self.neighbourhoods], dtype=float)
+
+    def rows(self, field: str) -> np.ndarray:
+        """One tuple field of the neighbourhood table as a 2-D array."""
+        return np.array([getattr(n, field) for n in self.neighbourhoods], dtype=float)
+
+    @property
+    def market_area_of(self) -> np.ndarray:
+        return np.array([self.market_areas.index(n.market_area) for n in self.neighbourhoods])
+
+    @property
+    def base(self) -> np.ndarray:
+        return np.array([self.intercepts[n.market_area] + n.shift for n in self.neighbourhoods])
+
+    @property
+    def busy(self) -> np.ndarray:
+        """Neighbourhoods with enough sales to host multi-parcel sales, 2022 sales and planted errors."""
+        return self.column("valid_sales") >= 60
 
 
-_NB_MARKET_AREA = np.array([MARKET_AREAS.index(n.market_area) for n in NEIGHBOURHOODS])
-_NB_BASE = np.array([MARKET_AREA_INTERCEPTS[n.market_area] + n.shift for n in NEIGHBOURHOODS])
-_NB_SIZE_SLOPE = _column("size_slope")
-# Neighbourhoods with enough sales to host multi-parcel sales, 2022 sales and planted errors.
-_NB_BUSY = np.array([n.valid_sales >= 60 for n in NEIGHBOURHOODS])
+def neighbourhood_count(n_parcels: int) -> int:
+    """22 up to the default size and beyond, then one per about PARCELS_PER_NEIGHBOURHOOD parcels."""
+    return max(len(NEIGHBOURHOODS), round(n_parcels / PARCELS_PER_NEIGHBOURHOOD))
+
+
+def _generated_name(i: int) -> str:
+    """A fictional name for neighbourhood i (i >= 22), unique across every index below 2,688."""
+    combos = len(_NAME_HEADS) * len(_NAME_TAILS) * len(_NAME_KINDS)
+    k = int(np.random.default_rng(9_401).permutation(combos)[(i - len(NEIGHBOURHOODS)) % combos])
+    head, rest = divmod(k, len(_NAME_TAILS) * len(_NAME_KINDS))
+    tail, kind = divmod(rest, len(_NAME_KINDS))
+    return f"{_NAME_HEADS[head]}{_NAME_TAILS[tail]} {_NAME_KINDS[kind]}"
+
+
+def _generated_area(a: int) -> tuple[str, float, tuple[float, float]]:
+    """Name, log-value intercept and centre of market area a (a >= 4), from its own seed."""
+    rng = np.random.default_rng((7_103, a))
+    combos = len(_NAME_HEADS) * len(_AREA_ENDINGS)
+    head, ending = divmod(int(np.random.default_rng(3_301).permutation(combos)[a % combos]), len(_AREA_ENDINGS))
+    name = f"{_NAME_HEADS[head].lower()}{_AREA_ENDINGS[ending]}"
+    ring, step = divmod(a - len(MARKET_AREAS), 6)
+    angle = 2 * np.pi * step / 6 + 0.5 * ring
+    centre = (-41.2 + (0.2 + 0.12 * ring) * np.sin(angle), -137.45 + (0.25 + 0.15 * ring) * np.cos(angle))
+    return name, float(np.round(rng.uniform(12.35, 12.75), 3)), centre
+
+
+def _generated_neighbourhood(i: int) -> Neighbourhood:
+    """Neighbourhood i (i >= 22): a perturbed copy of recipe i mod 22 in market area 4 + (i-22) // 14."""
+    template = NEIGHBOURHOODS[i % len(NEIGHBOURHOODS)]
+    area = len(MARKET_AREAS) + (i - len(NEIGHBOURHOODS)) // NEIGHBOURHOODS_PER_AREA
+    area_name, _, (lat, lon) = _generated_area(area)
+    rng = np.random.default_rng((5_519, i))
+    level, slope, scatter = template.prior
+    name = _generated_name(i)
+    return replace(
+        template,
+        id=f"{name[:3].upper()}{i:03d}",
+        name=name,
+        market_area=area_name,
+        shift=float(np.round(template.shift + rng.normal(0.0, 0.05), 3)),
+        prior=(float(np.round(level * rng.uniform(0.95, 1.05), 3)), slope, scatter),
+        centre=(float(np.round(lat + rng.normal(0.0, 0.03), 3)), float(np.round(lon + rng.normal(0.0, 0.03), 3))),
+    )
+
+
+@lru_cache(maxsize=8)
+def geography(n_neighbourhoods: int = len(NEIGHBOURHOODS)) -> Geography:
+    """The first `n_neighbourhoods` recipes (the 22 of the default town, then generated ones)."""
+    extra = tuple(_generated_neighbourhood(i) for i in range(len(NEIGHBOURHOODS), n_neighbourhoods))
+    intercepts = dict(MARKET_AREA_INTERCEPTS)
+    for n in extra:
+        if n.market_area not in intercepts:
+            area = len(MARKET_AREAS) + (int(n.id[3:]) - len(NEIGHBOURHOODS)) // NEIGHBOURHOODS_PER_AREA
+            intercepts[n.market_area] = _generated_area(area)[1]
+    return Geography(NEIGHBOURHOODS + extra, intercepts)
+
+
+def _geography_of(ids: object) -> Geography:
+    """The geography that holds every neighbourhood id given (generated ids end in their index)."""
+    labels = pd.unique(pd.Series(np.asarray(ids, dtype=object)).astype(str))
+    index = [int(x[3:]) for x in labels if x not in NEIGHBOURHOOD_IDS and x[3:].isdigit()]
+    return geography(max([len(NEIGHBOURHOODS) - 1, *index]) + 1)
 
 
 @dataclass(frozen=True)
@@ -271,6 +375,7 @@ _MAIN_EFFECTS = {
 
 
 def _log_value(
+    geo: Geography,
     nb: np.ndarray,
     living_area: np.ndarray,
     lot_size: np.ndarray,
@@ -284,8 +389,8 @@ def _log_value(
 ) -> np.ndarray:
     """True log market value from neighbourhood index, numeric features and level codes."""
     return (
-        _NB_BASE[nb]
-        + _NB_SIZE_SLOPE[nb] * _area_curve(living_area)
+        geo.base[nb]
+        + geo.column("size_slope")[nb] * _area_curve(living_area)
         + _age_curve(year_built)
         + _lot_curve(lot_size)
         + QUALITY_EFFECTS[quality]
@@ -300,11 +405,15 @@ def _log_value(
     )
 
 
-def _vacant_log_value(nb: np.ndarray, lot_size: np.ndarray) -> np.ndarray:
-    """True log market value of vacant lots: the default town's land schedule (see the module docstring)."""
+def _vacant_log_value(geo: Geography, nb: np.ndarray, lot_size: np.ndarray) -> np.ndarray:
+    """True log market value of vacant lots: the default town's land schedule (see the module docstring); a
+    generated neighbourhood takes its recipe's row, moved by its difference in log-value level from the recipe."""
     sized = _vacant_schedule()
-    return (np.log(sized["base_land_value"].to_numpy(float)[nb])
-            + sized["size_exponent"].to_numpy(float)[nb] * np.log(lot_size / sized["base_lot_size"].to_numpy(float)[nb]))
+    recipe = nb % len(NEIGHBOURHOODS)
+    level = geo.base[nb] - geo.base[recipe]
+    return (level + np.log(sized["base_land_value"].to_numpy(float)[recipe])
+            + sized["size_exponent"].to_numpy(float)[recipe]
+            * np.log(lot_size / sized["base_lot_size"].to_numpy(float)[recipe]))
 
 
 @lru_cache(maxsize=1)
@@ -319,12 +428,14 @@ def _vacant_schedule() -> pd.DataFrame:
 def true_log_value(parcels: pd.DataFrame) -> np.ndarray:
     """True log market value at the valuation date of each parcel, from its recorded features (a vacant lot's from
     its neighbourhood and lot size)."""
-    nb = _codes(parcels["neighbourhood"], NEIGHBOURHOOD_IDS, "neighbourhood")
+    geo = _geography_of(parcels["neighbourhood"])
+    nb = _codes(parcels["neighbourhood"], geo.ids, "neighbourhood")
     vacant = (parcels["property_class"] == PROPERTY_CLASSES[VACANT]).to_numpy() if "property_class" in parcels \
         else np.zeros(len(parcels), dtype=bool)
     built = parcels[~vacant]
     out = np.empty(len(parcels))
     out[~vacant] = _log_value(
+        geo,
         nb[~vacant],
         built["living_area"].to_numpy(dtype=float),
         built["lot_size"].to_numpy(dtype=float),
@@ -336,7 +447,7 @@ def true_log_value(parcels: pd.DataFrame) -> np.ndarray:
         _codes(built["style"], STYLE_LEVELS, "style"),
         built["waterfront"].to_numpy(dtype=float),
     )
-    out[vacant] = _vacant_log_value(nb[vacant], parcels["lot_size"].to_numpy(dtype=float)[vacant])
+    out[vacant] = _vacant_log_value(geo, nb[vacant], parcels["lot_size"].to_numpy(dtype=float)[vacant])
     return out
 
 
@@ -388,28 +499,28 @@ def _parcel_ids(rng: np.random.Generator, n: int) -> np.ndarray:
     return np.char.zfill(ids.astype(f"U{width}"), width)
 
 
-def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]:
+def _features(rng: np.random.Generator, nb: np.ndarray, geo: Geography) -> dict[str, np.ndarray]:
     """Draw property class and features; level features come back as integer codes."""
     n = nb.size
-    mix = np.array([x.class_mix for x in NEIGHBOURHOODS])[nb]
+    mix = geo.rows("class_mix")[nb]
     u = rng.random(n)
     cls = (u >= mix[:, 0]).astype(np.intp) + (u >= mix[:, 0] + mix[:, 1])
     sf, th = cls == 0, cls == 1
     condo = ~(sf | th)
 
-    built = np.array([x.built for x in NEIGHBOURHOODS])[nb]
+    built = geo.rows("built")[nb]
     year = np.clip(np.rint(rng.normal(built[:, 0], built[:, 1])), 1850, 2025)
 
-    area_median = np.select([sf, th], [_column("area_median")[nb], 1450.0], 850.0)
+    area_median = np.select([sf, th], [geo.column("area_median")[nb], 1450.0], 850.0)
     area_sd = np.select([sf, th], [0.28, 0.18], 0.30)
     area = np.clip(np.rint(area_median * np.exp(area_sd * rng.standard_normal(n))), 350, 9000)
 
     lot_z = rng.standard_normal(n)
-    sf_lot = np.clip(_column("lot_median")[nb] * np.exp(0.35 * lot_z), 1500, 200_000)
+    sf_lot = np.clip(geo.column("lot_median")[nb] * np.exp(0.35 * lot_z), 1500, 200_000)
     lot = np.select([sf, th], [sf_lot, 2200.0 * np.exp(0.25 * lot_z)], 0.0)
     lot = np.rint(lot / 10.0) * 10.0
 
-    quality_latent = _column("quality")[nb] + np.log(area / area_median) + 0.75 * rng.standard_normal(n)
+    quality_latent = geo.column("quality")[nb] + np.log(area / area_median) + 0.75 * rng.standard_normal(n)
     quality = np.clip(np.rint(quality_latent), 0, 5).astype(np.intp)
     age = VALUATION_YEAR - year
     condition = np.clip(np.rint(3.2 - 0.012 * age + 0.7 * rng.standard_normal(n)), 0, 4).astype(np.intp)
@@ -427,10 +538,10 @@ def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]
     style_sf = np.where(r < split_share, 2, np.where(r < split_share + (1.0 - split_share) / 2.0, 0, 1))
     style = np.select([sf, th], [style_sf, np.where(r < 0.2, 2, 1)], 3).astype(np.intp)
 
-    waterfront_share = _column("waterfront")[nb] * np.where(th, 0.5, 1.0)
+    waterfront_share = geo.column("waterfront")[nb] * np.where(th, 0.5, 1.0)
     waterfront = (rng.random(n) < waterfront_share).astype(np.int64)
 
-    centre = np.array([x.centre for x in NEIGHBOURHOODS])[nb]
+    centre = geo.rows("centre")[nb]
     location = np.round(centre + 0.006 * rng.standard_normal((n, 2)), 6)
     return {
         "property_class": cls,
@@ -451,9 +562,9 @@ def _features(rng: np.random.Generator, nb: np.ndarray) -> dict[str, np.ndarray]
 PRIOR_LEVEL = 1  # the prior roll's assessment level (full value, no caps): prior assessed = prior market value
 
 
-def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray) -> np.ndarray:
+def _prior_values(rng: np.random.Generator, nb: np.ndarray, log_value: np.ndarray, geo: Geography) -> np.ndarray:
     """Older roll: a regressive, neighbourhood-drifted fraction of market value, to the 100."""
-    level, slope, scatter = np.array([x.prior for x in NEIGHBOURHOODS])[nb].T
+    level, slope, scatter = geo.rows("prior")[nb].T
     noise = scatter * rng.standard_normal(nb.size)
     log_prior = np.log(level) + PRIOR_PIVOT + slope * (log_value - PRIOR_PIVOT) + noise
     return (np.rint(np.exp(log_prior) / 100.0) * 100.0).astype(np.int64)
@@ -470,19 +581,25 @@ def _scaled(counts: np.ndarray, scale: float) -> np.ndarray:
 
 
 def _sale_quota(
-    rng: np.random.Generator, counts: np.ndarray, scale: float
+    rng: np.random.Generator, counts: np.ndarray, geo: Geography
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Sales per neighbourhood and kind, plus each multi-parcel sale's neighbourhood and size."""
-    k = len(NEIGHBOURHOODS)
-    busy = np.flatnonzero(_NB_BUSY)
+    """Sales per neighbourhood and kind, plus each multi-parcel sale's neighbourhood and size.
+
+    Each neighbourhood's quota scales with its recipe's share of parcels; the 2022 and multi-parcel
+    sales scale with the town (both scales are n / 20,000 in a town of the 22 recipes).
+    """
+    k = len(geo.neighbourhoods)
+    n = int(counts.sum())
+    scale, per_recipe = n / DEFAULT_PARCELS, n / geo.column("parcels").sum()
+    busy = np.flatnonzero(geo.busy)
     share = counts[busy] / counts[busy].sum()
     early_nb = rng.choice(busy, int(round(EARLY_SALES * scale)), p=share)
     group_nb = rng.choice(busy, max(1, int(round(MULTI_PARCEL_SALES * scale))), p=share)
     group_size = rng.integers(2, 4, group_nb.size)
     quota = np.stack(
         [
-            _scaled(_column("valid_sales"), scale),
-            _scaled(_column("invalid_sales"), scale),
+            _scaled(geo.column("valid_sales"), per_recipe),
+            _scaled(geo.column("invalid_sales"), per_recipe),
             np.bincount(early_nb, minlength=k),
             np.bincount(group_nb, weights=group_size, minlength=k).astype(np.int64),
         ],
@@ -499,11 +616,11 @@ def _sales(
     nb: np.ndarray,
     counts: np.ndarray,
     log_value: np.ndarray,
-    scale: float,
+    geo: Geography,
     noise_sd: float,
 ) -> dict[str, np.ndarray]:
     """Choose sold parcels, dates and prices; one row per (sale, parcel), ordered by sale id."""
-    quota, group_nb, group_size = _sale_quota(rng, counts, scale)
+    quota, group_nb, group_size = _sale_quota(rng, counts, geo)
     n = nb.size
     # Rank parcels at random within their neighbourhood (parcels are grouped by neighbourhood).
     order = np.lexsort((rng.random(n), nb))
@@ -563,7 +680,7 @@ def _swap_leading_digits(price: np.ndarray) -> np.ndarray:
 
 
 def _plant_errors(
-    rng: np.random.Generator, nb: np.ndarray, f: dict[str, np.ndarray], s: dict[str, np.ndarray]
+    rng: np.random.Generator, nb: np.ndarray, f: dict[str, np.ndarray], s: dict[str, np.ndarray], geo: Geography
 ) -> list[tuple[str, int, str, int, int]]:
     """Apply eight plausible keying errors in place.
 
@@ -589,7 +706,7 @@ def _plant_errors(
             _swap_leading_digits,
         ),
     )
-    eligible = (s["validity"] == 0) & ~s["multi"] & (s["date"] >= WINDOW_START) & _NB_BUSY[nb[p]]
+    eligible = (s["validity"] == 0) & ~s["multi"] & (s["date"] >= WINDOW_START) & geo.busy[nb[p]]
     order = rng.permutation(p.size)
     used = np.zeros(p.size, dtype=bool)
     planted: list[tuple[str, int, str, int, int]] = []
@@ -609,17 +726,19 @@ def _plant_errors(
 # ---- land schedule -------------------------------------------------------------------------
 
 
-def _land_schedule(nb: np.ndarray, f: dict[str, np.ndarray], log_value: np.ndarray) -> pd.DataFrame:
+def _land_schedule(
+    nb: np.ndarray, f: dict[str, np.ndarray], log_value: np.ndarray, geo: Geography
+) -> pd.DataFrame:
     """Per neighbourhood: a lot-size rule from typical lots and values, and a flat row for units."""
     frame = pd.DataFrame(
         {"nb": nb, "has_lot": f["lot_size"] > 0, "lot": f["lot_size"], "value": np.exp(log_value)}
     )
     typical = frame.groupby(["nb", "has_lot"]).median().reset_index()
     with_lot = typical["has_lot"].to_numpy()
-    exponent = _column("land_exponent")[typical["nb"].to_numpy()]
+    exponent = geo.column("land_exponent")[typical["nb"].to_numpy()]
     schedule = pd.DataFrame(
         {
-            "neighbourhood": np.asarray(NEIGHBOURHOOD_IDS)[typical["nb"].to_numpy()],
+            "neighbourhood": np.asarray(geo.ids)[typical["nb"].to_numpy()],
             "base_lot_size": np.where(with_lot, np.rint(typical["lot"] / 100.0) * 100.0, 0).astype(np.int64),
             "base_land_value": np.where(
                 with_lot,
@@ -635,28 +754,30 @@ def _land_schedule(nb: np.ndarray, f: dict[str, np.ndarray], log_value: np.ndarr
 # ---- appended parcels: vacant lots and institutional parcels ------------------------------
 
 
-def _appended(seed: int, scale: float, last_id: int, last_sale: int) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _appended(seed: int, scale: float, last_id: int, last_sale: int,
+              geo: Geography) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Vacant lots (a few sold) and institutional parcels, drawn from their own stream so the built parcels stay
     as they are; ids continue after `last_id`, sale numbers after `last_sale`. Returns parcels and sales."""
     rng = np.random.default_rng([seed, APPENDED_STREAM])
-    with_lots = np.array([n.class_mix[0] > 0 for n in NEIGHBOURHOODS])
-    weights = np.where(with_lots, _column("parcels"), 0.0)
+    with_lots = np.array([n.class_mix[0] > 0 for n in geo.neighbourhoods])
+    weights = np.where(with_lots, geo.column("parcels"), 0.0)
     n_vacant = max(1, int(round(VACANT_LOTS * scale)))
-    vacant_nb = np.sort(rng.choice(len(NEIGHBOURHOODS), n_vacant, p=weights / weights.sum()))
-    lot = np.rint(np.clip(_column("lot_median")[vacant_nb] * np.exp(0.45 * rng.standard_normal(n_vacant)),
+    vacant_nb = np.sort(rng.choice(len(geo.neighbourhoods), n_vacant, p=weights / weights.sum()))
+    lot = np.rint(np.clip(geo.column("lot_median")[vacant_nb] * np.exp(0.45 * rng.standard_normal(n_vacant)),
                           1500, 200_000) / 10.0) * 10.0
-    waterfront = (rng.random(n_vacant) < _column("waterfront")[vacant_nb]).astype(np.int64)
+    waterfront = (rng.random(n_vacant) < geo.column("waterfront")[vacant_nb]).astype(np.int64)
     n_inst = max(1, int(round(INSTITUTIONAL_PARCELS * scale)))
-    inst_nb = np.full(n_inst, NEIGHBOURHOOD_IDS.index(INSTITUTIONAL_NEIGHBOURHOOD))
-    inst = _features(rng, inst_nb)
+    inst_nb = np.full(n_inst, geo.ids.index(INSTITUTIONAL_NEIGHBOURHOOD))
+    inst = _features(rng, inst_nb, geo)
     nb = np.concatenate([vacant_nb, inst_nb])
     n = nb.size
     ids = last_id + np.cumsum(rng.integers(1, 9, n))
-    vacant_value = _vacant_log_value(vacant_nb, lot)
-    inst_value = _log_value(inst_nb, *(inst[c] for c in ("living_area", "lot_size", "year_built", "quality",
-                                                         "condition", "bathrooms", "garage_spaces", "style",
-                                                         "waterfront")))
-    centre = np.array([x.centre for x in NEIGHBOURHOODS])[vacant_nb]
+    width = max(7, len(str(ids[-1])))
+    vacant_value = _vacant_log_value(geo, vacant_nb, lot)
+    inst_value = _log_value(geo, inst_nb, *(inst[c] for c in ("living_area", "lot_size", "year_built", "quality",
+                                                              "condition", "bathrooms", "garage_spaces", "style",
+                                                              "waterfront")))
+    centre = geo.rows("centre")[vacant_nb]
     location = np.round(centre + 0.006 * rng.standard_normal((n_vacant, 2)), 6)
     log_prior = np.log(0.9) + np.concatenate([vacant_value, inst_value]) + 0.08 * rng.standard_normal(n)
     blank = np.full(n_vacant, np.nan)
@@ -666,9 +787,9 @@ def _appended(seed: int, scale: float, last_id: int, last_sale: int) -> tuple[pd
         return np.concatenate([vacant, built])
 
     parcels = pd.DataFrame({
-        "parcel_id": np.char.zfill(ids.astype("U7"), 7),
-        "neighbourhood": pd.Categorical.from_codes(nb, NEIGHBOURHOOD_IDS),
-        "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
+        "parcel_id": np.char.zfill(ids.astype(f"U{width}"), width),
+        "neighbourhood": pd.Categorical.from_codes(nb, geo.ids),
+        "market_area": pd.Categorical.from_codes(geo.market_area_of[nb], geo.market_areas),
         "property_class": pd.Categorical.from_codes(np.r_[np.full(n_vacant, VACANT), np.full(n_inst, INSTITUTIONAL)],
                                                     PROPERTY_CLASSES),
         "prior_market_value": prior,
@@ -715,7 +836,7 @@ def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_s
     town = _built(n_parcels, seed, noise_sd)
     last_sale = int(town.sales["sale_id"].str[1:].astype(int).max())
     extra_parcels, extra_sales = _appended(seed, n_parcels / DEFAULT_PARCELS, int(town.parcels["parcel_id"].iloc[-1]),
-                                           last_sale)
+                                           last_sale, geography(neighbourhood_count(n_parcels)))
     return DemoTown(parcels=pd.concat([town.parcels, extra_parcels], ignore_index=True),
                     sales=pd.concat([town.sales, extra_sales], ignore_index=True),
                     land_schedule=town.land_schedule, planted_errors=town.planted_errors)
@@ -724,26 +845,26 @@ def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_s
 def _built(n_parcels: int, seed: int, noise_sd: float) -> DemoTown:
     """The built parcels (houses, townhouses, condominiums), their sales and land schedule."""
     rng = np.random.default_rng(seed)
-    scale = n_parcels / DEFAULT_PARCELS
-    counts = _allocate(_column("parcels"), n_parcels)
-    nb = np.repeat(np.arange(len(NEIGHBOURHOODS)), counts)
+    geo = geography(neighbourhood_count(n_parcels))
+    counts = _allocate(geo.column("parcels"), n_parcels)
+    nb = np.repeat(np.arange(len(geo.neighbourhoods)), counts)
     parcel_ids = _parcel_ids(rng, n_parcels)
-    f = _features(rng, nb)
+    f = _features(rng, nb, geo)
     log_value = _log_value(
-        nb, *(f[c] for c in ("living_area", "lot_size", "year_built", "quality", "condition",
+        geo, nb, *(f[c] for c in ("living_area", "lot_size", "year_built", "quality", "condition",
                              "bathrooms", "garage_spaces", "style", "waterfront"))
     )
-    prior = _prior_values(rng, nb, log_value)
-    s = _sales(rng, nb, counts, log_value, scale, noise_sd)
-    land = _land_schedule(nb, f, log_value)
+    prior = _prior_values(rng, nb, log_value, geo)
+    s = _sales(rng, nb, counts, log_value, geo, noise_sd)
+    land = _land_schedule(nb, f, log_value, geo)
     sale_ids = np.char.add("S", np.char.zfill(s["sale_number"].astype("U7"), 7))
-    planted = _plant_errors(rng, nb, f, s)
+    planted = _plant_errors(rng, nb, f, s, geo)
 
     parcels = pd.DataFrame(
         {
             "parcel_id": parcel_ids,
-            "neighbourhood": pd.Categorical.from_codes(nb, NEIGHBOURHOOD_IDS),
-            "market_area": pd.Categorical.from_codes(_NB_MARKET_AREA[nb], MARKET_AREAS),
+            "neighbourhood": pd.Categorical.from_codes(nb, geo.ids),
+            "market_area": pd.Categorical.from_codes(geo.market_area_of[nb], geo.market_areas),
             "property_class": pd.Categorical.from_codes(f["property_class"], PROPERTY_CLASSES),
             "prior_market_value": prior,
             "prior_assessed_value": prior * PRIOR_LEVEL,

@@ -257,6 +257,20 @@ class Decision(TypedDict, total=False):
     superseded: list[int]
 
 
+class LeftSegment(TypedDict):
+    """A segment `approve --all-passing` left as it was, and why."""
+
+    segment: str
+    reason: str
+
+
+class AllPassing(TypedDict):
+    """The outcome of approving every passing segment at once: the approvals and the segments left."""
+
+    approved: list[Decision]
+    left: list[LeftSegment]
+
+
 class PendingBatch(TypedDict):
     """A newer open batch of a certified segment, left out of an export: its values are not the roll's."""
 

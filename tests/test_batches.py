@@ -286,3 +286,66 @@ def test_under_the_interval_rule_an_unsure_segment_needs_a_note(staged: Path) ->
     set_section(staged, "standards", 'verdict_rule = "interval"\nprb = [-0.01, 0.01]\n')
     with pytest.raises(UserError, match=rf"Cannot approve {PASSING}: .*prb .*\(inconclusive; standard -0.01 to 0.01\)"):
         approve(staged, PASSING)
+
+
+def test_approve_all_passing_approves_exactly_the_segments_the_single_gate_passes(staged: Path) -> None:
+    # Issue 16: one command approves every staged segment whose verdicts pass, in one transaction, and says
+    # why each other segment was left. The single-segment gate is the reference: each segment it refuses is
+    # left with the same reasons, and each it lets through is approved.
+    from reval.service.actions import approve_all_passing
+
+    hold(staged, PASSING, "waterfront lots look low")
+    segments = [s["segment"] for s in batch_states(staged)["segments"]]
+    expected: dict[str, str] = {}
+    for segment in segments:
+        if segment == PASSING:
+            continue
+        try:
+            approve(staged, segment)   # the single gate decides; an approval is revoked again below
+        except UserError as error:
+            expected[segment] = str(error)
+        else:
+            revoke(staged, segment, "undo: the test compares with --all-passing")
+    result = approve_all_passing(staged)
+    approved = {d["segment"] for d in result["approved"]}
+    left = {x["segment"]: x["reason"] for x in result["left"]}
+    assert approved == set(segments) - set(expected) - {PASSING} and len(approved) >= 5
+    assert FAILING in expected and FAILING in left and "median_ratio" in left[FAILING]
+    assert "held (waterfront lots look low)" in left[PASSING]
+    for segment, message in expected.items():
+        assert left[segment] in message   # the same reasons the single gate gives
+    for segment in approved:
+        assert _batch(staged, segment, "approved")["judged_sha256"]
+    events = [e for e in event_log(staged)["events"] if e["kind"] == "batch_approved"]
+    assert {e["segment"] for e in events[-len(approved):]} == approved
+    assert all(e["detail"]["totals"]["n_parcels"] > 0 for e in events[-len(approved):])
+    again = approve_all_passing(staged)
+    assert again["approved"] == [] and len(again["left"]) == len(segments)
+    for x in again["left"]:   # now already approved, held or failing: the single gate's words again
+        with pytest.raises(UserError) as refused:
+            approve(staged, x["segment"])
+        assert x["reason"] in str(refused.value)
+
+
+def test_the_gate_reads_a_stored_study_only_of_the_same_sales_under_the_same_basis(staged: Path) -> None:
+    # Issue 16: judging 300 segments afresh repeats 300+ bootstraps; a stored study of the run computed on the
+    # same sales under the same judging basis is that computation, so the gate reads it. The test marks a
+    # stored value, sees the gate read it, then changes the study settings and sees it judged afresh.
+    from reval.roll.batches import segment_statistics
+    from reval.service.project import open_project
+
+    def gate_median() -> float:
+        with open_project(staged) as (config, store):
+            return segment_statistics(store, config, "run-a", PASSING)["median_ratio"]
+
+    fresh = gate_median()
+    study(staged, values="model")
+    study(staged, values="model", by="segment_class")
+    assert gate_median() == fresh   # the stored study is the same computation
+    con = __import__("duckdb").connect(str(staged / "reval.duckdb"))
+    con.execute("UPDATE study_groups SET median_ratio = 0.5 WHERE group_name = ? AND study_id LIKE 'model_out_of_fold/%'",
+                [PASSING])
+    con.close()
+    assert gate_median() == 0.5     # read, not recomputed
+    set_section(staged, "study", "trim_iqr_k = 3.0\nbootstrap = 1001")
+    assert gate_median() == fresh   # another judging basis: judged afresh

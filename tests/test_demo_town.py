@@ -350,3 +350,27 @@ def test_command_line_writes_a_project(tmp_path: Path) -> None:
     assert len(parcels) == 2_500 + 15 + 1       # 120 and 6 appended parcels at an eighth of the size
     assert (tmp_path / "reval.toml").read_text() == (DEMO / "reval.toml").read_text()
     assert {"sales.csv", "land_schedule.csv"} <= {p.name for p in tmp_path.iterdir()}
+
+
+def test_geography_grows_with_the_parcel_count_above_the_default() -> None:
+    # Issue 16: a county-sized town has hundreds of neighbourhoods (one per 2,000-5,000 parcels), not 22
+    # of 45,000 each; the default town keeps its 22 (the shipped CSVs are compared above).
+    county = demo_town.geography(demo_town.neighbourhood_count(1_000_000))
+    assert 200 <= len(county.neighbourhoods) <= 500 and 20 <= len(county.market_areas) <= 30
+    assert len(set(county.ids)) == len(county.ids) and len({n.name for n in county.neighbourhoods}) == len(county.ids)
+    assert demo_town.neighbourhood_count(20_000) == 22
+
+    big = generate(100_000)
+    parcels, sold = big.parcels, big.sales.merge(big.parcels, on="parcel_id")
+    per_neighbourhood = parcels.groupby("neighbourhood", observed=True).size()
+    assert len(per_neighbourhood) == 30 and parcels["market_area"].nunique() == 5
+    assert 2_000 <= per_neighbourhood.median() <= 5_000
+    assert parcels.groupby("neighbourhood", observed=True)["market_area"].nunique().eq(1).all()
+    assert set(big.land_schedule["neighbourhood"]) == set(per_neighbourhood.index.astype(str))
+    valid = sold[sold["validity"] == "valid"].groupby("neighbourhood", observed=False).size()
+    assert (valid < 30).sum() >= 2  # thin neighbourhoods recur among the generated ones
+    # Valid single-parcel prices still follow the true value function of the generated neighbourhoods.
+    single = sold[(sold["validity"] == "valid") & ~sold["sale_id"].duplicated(keep=False)]
+    single = single[~single["sale_id"].isin(big.planted_errors["sale_id"])]
+    residual = np.log(single["sale_price"]) - true_log_value(single) - true_log_index(single["sale_date"])
+    assert abs(residual.mean()) < 0.01 and residual.std() == pytest.approx(NOISE_SD, rel=0.1)

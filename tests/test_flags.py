@@ -21,7 +21,8 @@ from reval.data.config import load_config
 from reval.data.fingerprint import record_fingerprints
 from reval.errors import ConfigError, UserError
 from reval.model.run import fit_run
-from reval.service.actions import (approve, export_roll, import_data, prepare_sales, review, stage_values)
+from reval.service.actions import (approve, approve_all_passing, export_roll, import_data, prepare_sales, review,
+                                   stage_values)
 from reval.service.project import open_project
 
 DEMO_CLASSES = 'land_schedule = ["vacant_land"]\nnot_valued = ["institutional"]\n'
@@ -129,6 +130,22 @@ def test_a_class_left_without_a_value_blocks_its_segment_until_valued(flagged: t
     set_section(other, "classes", 'land_schedule = ["vacant_land"]\n')
     stage_values(other, segments=[name], replace=True)
     assert approve(other, name, "institutional parcels valued by the model for the test")["state"] == "approved"
+
+
+def test_approve_all_passing_leaves_a_segment_with_rows_without_a_value(flagged: tuple[Path, dict[str, str]],
+                                                                          tmp_path: Path) -> None:
+    # `reval approve --all-passing` refuses what a single approval refuses: a batch with parcels left without a
+    # value (reval/roll/flags.py approval_blockers) is left, with the same words, whatever its statistics.
+    folder = Path(shutil.copytree(flagged[0], tmp_path / "copy"))
+    (name,) = query_frame(folder, "SELECT DISTINCT segment FROM parcels WHERE property_class = 'institutional'")["segment"]
+    with pytest.raises(UserError) as refused:
+        approve(folder, name)
+    result = approve_all_passing(folder)
+    left = {x["segment"]: x["reason"] for x in result["left"]}
+    assert name not in {d["segment"] for d in result["approved"]}
+    assert "have no value" in left[name] and left[name] in str(refused.value)
+    assert query_frame(folder, "SELECT state FROM batches WHERE segment = ? AND state IN ('staged', 'approved')",
+                       [name])["state"].tolist() == ["staged"]
 
 
 def test_every_flag_is_in_the_exported_csv(flagged: tuple[Path, dict[str, str]], tmp_path: Path) -> None:

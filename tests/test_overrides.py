@@ -14,8 +14,8 @@ import pytest
 
 from reval.data.store import open_store
 from reval.errors import UserError
-from reval.service.actions import (approve, batch_states, event_log, export_roll, fit, remove_override,
-                                   set_override, stage_values, study)
+from reval.service.actions import (approve, approve_all_passing, batch_states, event_log, export_roll, fit,
+                                   remove_override, set_override, stage_values, study)
 from reval.stats.study import sales_for_study
 from helpers import database_content, query_frame, run_reval
 
@@ -154,6 +154,21 @@ def test_the_cli_sets_and_removes_an_override(demo_copy: Path) -> None:
     done = run_reval("override", parcel, "--remove", "--note", "corrected at source", "--project", str(demo_copy))
     assert done.returncode == 0, done.stderr
     assert query_frame(demo_copy, "SELECT count(*) AS n FROM overrides")["n"][0] == 0
+
+
+def test_approve_all_passing_leaves_a_batch_outdated_by_an_override(demo_copy: Path) -> None:
+    # `reval approve --all-passing` refuses what a single approval refuses: a staged batch outdated by an
+    # override made after it was staged is left (same words), not approved, until `reval value` stages it again.
+    parcel, _, segment = _sold_parcel(demo_copy)
+    set_override(demo_copy, parcel, VALUE, "appeal_decision", "board decision 2026-14")
+    with pytest.raises(UserError) as refused:
+        approve(demo_copy, segment, "try")
+    result = approve_all_passing(demo_copy)
+    left = {x["segment"]: x["reason"] for x in result["left"]}
+    assert segment not in {d["segment"] for d in result["approved"]}
+    assert "outdated" in left[segment] and left[segment] in str(refused.value)
+    entry = next(s for s in batch_states(demo_copy)["segments"] if s["segment"] == segment)
+    assert entry["certified"] is None and entry["open"]["state"] == "staged"
 
 
 def test_an_override_in_an_approved_segment_waits_for_a_deliberate_restage(demo_copy: Path) -> None:

@@ -73,3 +73,23 @@ def test_importance_stored_before_version_6_is_kept_as_gradient_boostings(tmp_pa
         with pytest.raises(duckdb.ConstraintException):
             store.con.execute("INSERT INTO feature_importance (run_id, feature, importance_mean, importance_std) "
                               "VALUES ('run-new', 'lot_size', 0.1, 0.0)")
+
+
+def test_duckdb_holds_at_most_the_configured_memory(small_project: Path) -> None:
+    # Issue 16: DuckDB's own default is 80% of the machine's memory (DuckDB documentation, "memory_limit"),
+    # which let an import at a million parcels reach 7 GB; reval sets a limit, 1 GB unless [files] memory_mb
+    # says otherwise, and DuckDB spills beyond it to temporary files beside the database.
+    from reval.service.actions import import_data
+    from reval.service.project import open_project
+
+    def limit() -> float:
+        with open_project(small_project) as (_, store):
+            text = store.con.execute("SELECT current_setting('memory_limit')").fetchone()[0]
+        number, unit = text.split()
+        return float(number) * {"MiB": 1, "GiB": 1024}[unit]
+
+    import_data(small_project)
+    assert 900 <= limit() <= 1024
+    config = small_project / "reval.toml"
+    config.write_text(config.read_text().replace("[files]\n", "[files]\nmemory_mb = 300\n", 1))
+    assert 250 <= limit() <= 300

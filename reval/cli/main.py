@@ -23,6 +23,17 @@ def _folder(args: argparse.Namespace) -> Path:
     return Path(args.project)
 
 
+def _approve(args: argparse.Namespace) -> None:
+    if args.all_passing:
+        if args.segment or args.note:
+            raise UserError("`reval approve --all-passing` takes no segment and no note: it approves only what passes.")
+        render.emit(args, actions.approve_all_passing(_folder(args)), render.all_passing)
+    elif not args.segment:
+        raise UserError("Name a segment to approve, or use --all-passing.")
+    else:
+        render.emit(args, actions.approve(_folder(args), args.segment, args.note), render.decision)
+
+
 def cmd_init(args: argparse.Namespace) -> None:
     path = actions.init_project(Path(args.folder), args.name)
     print(f"Wrote {path}. Edit it to name your files and columns, then run `reval import` in {path.parent}.")
@@ -55,7 +66,13 @@ def cmd_sales(args: argparse.Namespace) -> None:
 
 
 def cmd_study(args: argparse.Namespace) -> None:
-    result = actions.study(_folder(args), args.values, args.by, args.run, args.in_sample)
+    if args.projects:
+        if args.by != "segment" or args.run:
+            raise UserError("`reval study --projects` studies each project whole and all together; "
+                            "it takes no --by or --run (each project's latest run is used).")
+        result = actions.combined_study([Path(p) for p in args.projects], args.values, args.in_sample)
+    else:
+        result = actions.study(_folder(args), args.values, args.by, args.run, args.in_sample)
     if args.segment:
         result["groups"] = [g for g in result["groups"] if g["group"] == args.segment]
         if not result["groups"]:
@@ -65,7 +82,7 @@ def cmd_study(args: argparse.Namespace) -> None:
 
 def cmd_fit(args: argparse.Namespace) -> None:
     with render.progress_bar(args) as progress:
-        result = actions.fit(_folder(args), progress, args.jobs)
+        result = actions.fit(_folder(args), progress, args.jobs, args.scheduler)
     render.emit(args, result, render.fit)
 
 
@@ -150,6 +167,8 @@ def build_parser() -> argparse.ArgumentParser:
                    "parcels left out), or the final roll values after overrides")
     p.add_argument("--in-sample", action="store_true", help="with --values model: in-sample values (flattering)")
     p.add_argument("--run", default=None, help="with --values model: run id (default: the latest)")
+    p.add_argument("--projects", nargs="+", metavar="FOLDER", help="a combined study across these projects (each "
+                   "read only; judged under the first one's standards)")
     p.set_defaults(func=cmd_study)
 
     p = sub.add_parser("report", parents=[common], help="write the ratio-study report (HTML or PDF) for a reviewer or "
@@ -162,6 +181,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("fit", parents=[common], help="fit every segment's model and store a run")
     p.add_argument("--jobs", type=int, default=None, help="worker processes for segment fits (default: config)")
+    p.add_argument("--scheduler", metavar="tcp://HOST:PORT", default=None,
+                   help="fit on this Dask cluster's workers (default: [model] scheduler; needs reval[cluster])")
     p.set_defaults(func=cmd_fit)
 
     p = sub.add_parser("compare", parents=[common], help="reference models' accuracy beside ours, on the same folds")
@@ -207,10 +228,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--report", metavar="FILE", help="also write a one-page report (FILE.html or FILE.pdf)")
     p.set_defaults(func=cmd_parcel)
 
-    p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch")
-    p.add_argument("segment")
+    p = sub.add_parser("approve", parents=[common], help="approve a segment's staged batch (or every passing one)")
+    p.add_argument("segment", nargs="?", help="the segment (omit with --all-passing)")
     p.add_argument("--note", help="why; required to approve over failing out-of-fold statistics")
-    p.set_defaults(func=lambda a: render.emit(a, actions.approve(_folder(a), a.segment, a.note), render.decision))
+    p.add_argument("--all-passing", action="store_true",
+                   help="approve every staged batch whose out-of-fold statistics pass, in one transaction")
+    p.set_defaults(func=_approve)
 
     p = sub.add_parser("hold", parents=[common], help="hold a segment's staged batch")
     p.add_argument("segment")

@@ -334,6 +334,14 @@ def decision(r: dict[str, Any], console: Console) -> None:
         console.print(f"Note stored: {shown(r['note'])}")
 
 
+def all_passing(r: dict[str, Any], console: Console) -> None:
+    approved = r["approved"]
+    console.print(f"Approved {len(approved)} segment{'s' if len(approved) != 1 else ''}: "
+                  f"{', '.join(name(d['segment']) for d in approved) or 'none'}.")
+    if r["left"]:
+        table("Left as they were", ["segment", "why"], [[x["segment"], x["reason"]] for x in r["left"]], console)
+
+
 def exported(r: dict[str, Any], console: Console) -> None:
     console.print(f"Wrote {r['rows']:,} parcels to {shown(r['path'])} (sha256 {r['sha256'][:16]}...); "
                   f"manifest {shown(r['manifest'])}.")

@@ -72,6 +72,8 @@ class Files(Declared):
     date_format: str | None = setting(None, "sale date format if not YYYY-MM-DD (strptime directives; it must "
                                       "name a year)", example="%d/%m/%Y", check=_date_format, type_text="text")
     max_amount: float = setting(1e10, "the largest sale price or prior value an import accepts", lo=0, lo_open=True)
+    memory_mb: int = setting(1024, "most memory (MB) the project's DuckDB database holds; beyond it, work spills to "
+                             "temporary files beside the database (reval's own arrays come on top)", lo=64, hi=1_048_576)
 
 
 PRIOR_VALUE_NOTE = ("one prior value used to serve both as the prior market value and as the base of caps; "
@@ -445,6 +447,7 @@ class Config:
     classes: ClassRules = field(default_factory=ClassRules)
     overrides: OverrideSettings = field(default_factory=OverrideSettings)
     max_amount: float = 1e10      # [files] max_amount
+    memory_mb: int = 1024         # [files] memory_mb
     sha256: str = ""
 
     @property
@@ -514,6 +517,7 @@ def load_config(path: Path | str) -> Config:
         classes=sections["classes"],
         overrides=sections["overrides"],
         max_amount=files.max_amount,
+        memory_mb=files.memory_mb,
         sha256=hashlib.sha256(raw_bytes).hexdigest(),
     )
 

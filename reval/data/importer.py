@@ -144,24 +144,30 @@ def _check_structure(store: Store, config: Config, allow_empty: bool, report: Pa
     return layouts
 
 
+def _file_keys(roles: pd.DataFrame) -> dict[str, str]:
+    """A short key for each input file ("f0", "f1"): the staged cells carry it, not the path, which held on
+    each of millions of cells costs more memory than the cell (DuckDB inlines strings of up to 12 bytes)."""
+    return {path: f"f{i}" for i, path in enumerate(dict.fromkeys(roles["file"]))}
+
+
 def _stage(store: Store, config: Config, roles: pd.DataFrame, layouts: dict[str, CsvLayout],
            progress: Progress | None) -> None:
+    keys = _file_keys(roles)
     store.run("import_temp_tables")
-    store.con.register("roles_frame", roles)
+    store.con.register("roles_frame", roles.assign(file=roles["file"].map(keys)))
     store.con.execute("INSERT INTO import_roles SELECT * FROM roles_frame")
     store.con.unregister("roles_frame")
-    paths = list(dict.fromkeys(roles["file"]))
-    for i, file in enumerate(paths, 1):
+    for i, (file, key) in enumerate(keys.items(), 1):
         columns = sorted(set(roles.loc[roles["file"] == file, "col"]))
-        store.run("import_stage_parquet" if _is_parquet(file) else "import_stage_csv", [file, file, columns])
+        store.run("import_stage_parquet" if _is_parquet(file) else "import_stage_csv", [key, file, columns])
         lines = layouts[file].lines if file in layouts else None
         if lines is not None:                     # rows after a quoted line break or a blank line
             store.con.register("import_line_map", pd.DataFrame({"row": range(1, len(lines) + 1), "line": lines}))
-            store.run("import_fix_lines", {"file": file})
+            store.run("import_fix_lines", {"file": key})
             store.con.unregister("import_line_map")
         if progress:
-            progress("reading files", i, len(paths))
-    store.run("import_cells", [str(config.parcels_file), str(config.sales_source), config.date_format])
+            progress("reading files", i, len(keys))
+    store.run("import_cells", [keys[str(config.parcels_file)], keys[str(config.sales_source)], config.date_format])
 
 
 def _write_report(problems: list[DataProblem], path: Path) -> None:
@@ -188,7 +194,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
     roles = _roles_frame(config)
     prints = _fingerprint(config)
     report = config.folder / ERROR_REPORT
-    with open_store(config.database) as store:
+    with open_store(config.database, memory_mb=config.memory_mb) as store:
         current = {role: sha for role, _, sha, _ in store.rows("dataset_files")}
         if current == prints:
             return _result(store, config, changed=False, prints=prints)
@@ -198,7 +204,9 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
         found = store.frame("import_problems", {"today": today, "date_format": config.date_format,
                                                 "latest_date": _latest_date(config), "max_amount": config.max_amount})
         if len(found):
-            problems = [DataProblem(r.file, int(r.line), r.column, r.value, r.reason) for r in found.itertuples()]
+            path_of = {key: path for path, key in _file_keys(roles).items()}
+            problems = [DataProblem(path_of[r.file], int(r.line), r.column, r.value, r.reason)
+                        for r in found.itertuples()]
             _write_report(problems, report)
             raise DataErrors(problems, report)
         store.run("import_build")

@@ -23,6 +23,7 @@ if TYPE_CHECKING:  # pandas loads with DuckDB's .df(); importing it here would s
     import pandas as pd
 
 SQL_DIR = Path(__file__).resolve().parents[2] / "sql"
+DEFAULT_MEMORY_MB = 1024   # [files] memory_mb's default (reval/data/config.py): DuckDB's own default is 80% of RAM
 _MIGRATION = re.compile(r"^(\d{3})_[a-z0-9_]+\.sql$")
 
 
@@ -120,7 +121,8 @@ class Store:
     read-only (or joins this process's own writing connection, see _InProcess). Both wait up to `wait` seconds
     (default: lock.wait_seconds()) for another process."""
 
-    def __init__(self, path: Path | str, read_only: bool = False, wait: float | None = None) -> None:
+    def __init__(self, path: Path | str, read_only: bool = False, wait: float | None = None,
+                 memory_mb: int = DEFAULT_MEMORY_MB) -> None:
         self.path = Path(path)
         self.read_only = read_only
         wait = lock.wait_seconds() if wait is None else wait
@@ -145,7 +147,7 @@ class Store:
             raise
         self._depth = 0
         try:
-            self.run("session_settings")
+            self.run("session_settings", {"memory_limit": f"{memory_mb}MB"})
             if not read_only:
                 self.upgrade()
                 publish.recover(self)
@@ -250,8 +252,8 @@ class Store:
         return [dict(zip(columns, (scalar(v) for v in row))) for row in cursor.fetchall()]
 
 
-def open_store(database: Path, read_only: bool = False) -> Store:
-    """Open (creating and upgrading if needed) the database at `database`."""
+def open_store(database: Path, read_only: bool = False, memory_mb: int = DEFAULT_MEMORY_MB) -> Store:
+    """Open (creating and upgrading if needed) the database at `database`, holding at most `memory_mb` MB."""
     if read_only and not database.exists():
         raise UserError(f"{database}: no database yet; run `reval import` first")
-    return Store(database, read_only=read_only)
+    return Store(database, read_only=read_only, memory_mb=memory_mb)

@@ -370,7 +370,7 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
                                    (top, areas[seg_area[name]]))
              for name, rows in groups.items())
     fitted: dict[str, SegmentFit] = {}
-    for i, result in enumerate(Parallel(n_jobs=settings.jobs, return_as="generator")(tasks)):
+    for i, result in enumerate(Parallel(n_jobs=-1 if settings.scheduler else settings.jobs, return_as="generator")(tasks)):
         fitted[result.name] = result
         if progress is not None:
             progress(i + 1, len(groups))

@@ -16,6 +16,7 @@ import pandas as pd
 from threadpoolctl import threadpool_limits
 
 from reval.data.config import Config, FeatureSpec
+from reval.model.workers import fit_workers
 from reval.data.dataset import SalesData, all_parcels, qualified_sales, with_shapes
 from reval.data.sales import trend_factors
 from reval.errors import UserError
@@ -55,9 +56,13 @@ def _step(progress: Progress | None, name: str) -> Callable[[int, int], None] | 
 
 
 def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs: int | None = None,
-            references: bool = True) -> FitSummary:
-    """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary."""
+            references: bool = True, scheduler: str | None = None) -> FitSummary:
+    """Fit, validate out of fold, compare, value every parcel and store the run; returns its summary. Segment
+    and fold fits run on `jobs` local processes, or on the Dask cluster at `scheduler` (reval/model/workers.py);
+    this process alone writes the store."""
     settings: ModelSettings = config.model if jobs is None else dataclasses.replace(config.model, jobs=jobs)
+    if scheduler is not None:
+        settings = dataclasses.replace(settings, scheduler=scheduler)
     qualified = qualified_sales(store)
     if len(qualified.frame) == 0 or qualified.frame["adjusted_price"].isna().any():
         raise UserError("No prepared sales: run `reval sales` before `reval fit`.")
@@ -79,14 +84,15 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
     targets = fold_targets(config, sales, folds)
     timings["fold_trends"] = time.perf_counter() - start
 
-    start = time.perf_counter()
-    model = fit_hierarchy(sales.X, y, segment, market_area, features, settings, segments=roll_segments,
-                          trusted=trusted, progress=_step(progress, "fitting segments"))
-    timings["fit"] = time.perf_counter() - start
-    start = time.perf_counter()
-    oof = out_of_fold(sales.X, y, segment, market_area, features, settings, trusted=trusted, fold_targets=targets,
-                      progress=_step(progress, "out-of-fold folds"))
-    timings["out_of_fold"] = time.perf_counter() - start
+    with fit_workers(settings.scheduler):
+        start = time.perf_counter()
+        model = fit_hierarchy(sales.X, y, segment, market_area, features, settings, segments=roll_segments,
+                              trusted=trusted, progress=_step(progress, "fitting segments"))
+        timings["fit"] = time.perf_counter() - start
+        start = time.perf_counter()
+        oof = out_of_fold(sales.X, y, segment, market_area, features, settings, trusted=trusted,
+                          fold_targets=targets, progress=_step(progress, "out-of-fold folds"))
+        timings["out_of_fold"] = time.perf_counter() - start
     with threadpool_limits(limits=1):  # OpenMP/BLAS threads thrash on small fits; measured 7x slower on 2 cores
         accuracy, importance = (_references(sales, features, y, trusted, settings, folds, oof, targets, timings,
                                             progress)

@@ -47,6 +47,10 @@ class ModelSettings(Declared):
     min_sales_own_deviation: int = setting(1, "fewer sales: the segment takes its market area's model unchanged",
                                            lo=1)
     jobs: int = setting(1, "worker processes for fitting segments in parallel (1 = in this process)", lo=1, hi=256)
+    scheduler: str | None = setting(None, "address of a Dask distributed scheduler: segment and fold fits run on its "
+                                    "workers, only this machine writes the project (pip install 'reval[cluster]')",
+                                    pattern=(r"^(tcp|tls)://\S+:\d+$", "an address like tcp://HOST:PORT"),
+                                    example="tcp://10.0.0.5:8786")
     loss: Loss = setting("huber", '"huber": sales far from what the other sales say they are worth weigh less '
                          '(reval/model/robust.py); "squared": every sale counts fully')
     huber_k: float = setting(1.345, "Huber's constant: residuals beyond this many robust standard deviations are "

@@ -19,10 +19,10 @@ from reval.states import Grouping, SaleChoice, ValuesSource
 
 if TYPE_CHECKING:  # the results' types only; their modules load when the action runs
     from reval.plain import Record
-    from reval.service.types import (BatchStates, CheckReport, CompareResult, CorrectionResult, Decision, DemoSummary,
-                                     Event, EventLog, Explanation, ExportResult, FitSummary, ImportSummary,
-                                     OverrideResult, ParcelReport, ReportResult, ReviewReport, SaleDecision,
-                                     SalesCounts, StagePlan, StageResult, StudyResult, ValueSplit)
+    from reval.service.types import (AllPassing, BatchStates, CheckReport, CompareResult, CorrectionResult, Decision,
+                                     DemoSummary, Event, EventLog, Explanation, ExportResult, FitSummary,
+                                     ImportSummary, OverrideResult, ParcelReport, ReportResult, ReviewReport,
+                                     SaleDecision, SalesCounts, StagePlan, StageResult, StudyResult, ValueSplit)
 
 Progress = Callable[[str, int, int], None]
 DEMO_SOURCE = Path(__file__).resolve().parents[2] / "data_samples" / "demo"
@@ -115,6 +115,25 @@ def study(folder: Path, values: str = "prior", by: Grouping = "segment", run_id:
         return run_study(store, config, source, by, run)
 
 
+def combined_study(folders: list[Path], values: str = "prior", in_sample: bool = False) -> StudyResult:
+    """A ratio study across projects, each read only (its latest run for model values), one group per project
+    and all together, judged under the first project's standards and study settings."""
+    from reval.roll.valuation import resolve_run
+    from reval.stats.study import combined_study as study_across, sales_for_study
+
+    source: ValuesSource = "prior" if values == "prior" else "model_in_sample" if in_sample else "model_out_of_fold"
+    names = [f.resolve().name for f in folders]
+    if len(set(names)) < len(names):
+        names = [str(f) for f in folders]
+    frames, configs = [], []
+    for name, folder in zip(names, folders, strict=True):
+        with open_project(folder) as (config, store):
+            run = None if source == "prior" else resolve_run(store, None)
+            frames.append((name, sales_for_study(store, source, run)))
+            configs.append(config)
+    return study_across(frames, configs[0], source)
+
+
 def report(folder: Path, out: Path, values: str | None = "prior", run_id: str | None = None) -> ReportResult:
     """Write the ratio-study report (HTML or PDF, by the suffix of `out`) for prior or model values (out-of-fold,
     the latest run unless named; values None: model values if there is a run, else prior); groupings not
@@ -130,12 +149,14 @@ def report(folder: Path, out: Path, values: str | None = "prior", run_id: str | 
         return write_report(store, config, out, source, run, model_run)
 
 
-def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None) -> FitSummary:
-    """Fit every segment's model, validate out of fold, compare with the reference models, store a run."""
+def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None,
+        scheduler: str | None = None) -> FitSummary:
+    """Fit every segment's model, validate out of fold, compare with the reference models, store a run; the fits
+    run on `jobs` local processes or on the Dask cluster at `scheduler` (default: the config's)."""
     from reval.model.run import fit_run
 
     with open_project(folder, write=True) as (config, store):
-        return fit_run(store, config, progress, jobs)
+        return fit_run(store, config, progress, jobs, scheduler=scheduler)
 
 
 def compare(folder: Path, run_id: str | None = None) -> CompareResult:
@@ -235,6 +256,14 @@ def approve(folder: Path, segment: str, note: str | None = None) -> Decision:
 
     with open_project(folder, write=True) as (config, store):
         return batches.approve(store, config, segment, note)
+
+
+def approve_all_passing(folder: Path) -> AllPassing:
+    """Approve every staged batch whose out-of-fold statistics pass, in one transaction; say why the rest were left."""
+    from reval.roll import batches
+
+    with open_project(folder, write=True) as (config, store):
+        return batches.approve_all_passing(store, config)
 
 
 def hold(folder: Path, segment: str, reason: str) -> Decision:

@@ -16,11 +16,11 @@ def open_project(folder: Path, *, write: bool = False) -> Iterator[tuple[Config,
     block ends and first finishes or cleans an interrupted export; a project another process holds is waited
     for (reval.data.lock), then a UserError naming that process, never a DuckDB traceback."""
     config = load_config(folder)
-    store = open_store(config.database, read_only=not write)
+    store = open_store(config.database, read_only=not write, memory_mb=config.memory_mb)
     if not write and store.version() < latest_version():
         store.close()
-        open_store(config.database).close()
-        store = open_store(config.database, read_only=True)
+        open_store(config.database, memory_mb=config.memory_mb).close()
+        store = open_store(config.database, read_only=True, memory_mb=config.memory_mb)
     try:
         yield config, store
     finally:

@@ -6,16 +6,16 @@ from __future__ import annotations
 from typing import Any, TypedDict
 
 from reval.plain import Record
-from reval.results import (CheckNotRun, CheckPage, CheckReport, CheckSegment, ComparableGrid, ComparableSale,
-                           CorrectionResult, Decision, ExportResult, FitSummary, GridRow, ImportSummary,
-                           OverrideResult, RepeatSale, ReportResult, ReviewReport, SaleDecision, SalesCounts,
-                           SegmentReview, StagePlan, StageResult, StandingDecision)
+from reval.results import (AllPassing, CheckNotRun, CheckPage, CheckReport, CheckSegment, ComparableGrid,
+                           ComparableSale, CorrectionResult, Decision, ExportResult, FitSummary, GridRow,
+                           ImportSummary, OverrideResult, RepeatSale, ReportResult, ReviewReport, SaleDecision,
+                           SalesCounts, SegmentReview, StagePlan, StageResult, StandingDecision)
 from reval.roll.batch_states import SegmentBatches
 from reval.roll.split import ValueSplit
 from reval.states import BatchState, ValuesSource
 from reval.stats.stored import StudyGroup, StudyResult
 
-__all__ = ["BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "ComparableGrid",
+__all__ = ["AllPassing", "BatchStates", "CheckNotRun", "CheckPage", "CheckReport", "CheckSegment", "ComparableGrid",
            "ComparableSale", "CompareResult", "CorrectionResult", "Curve", "Decision", "DemoSummary", "Equity",
            "Event", "EventLog", "Explanation", "ExplanationPart", "ExportResult", "FitSummary", "GridRow",
            "ImportSummary", "OverrideResult", "Overview", "OverviewRow", "ParcelDetail", "ParcelReport",

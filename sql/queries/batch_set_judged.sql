@@ -1,2 +1,2 @@
--- Record the judging basis (reval/stats/judging.py) an approval was decided under. $1 batch id, $2 sha256.
-UPDATE batches SET judged_sha256 = $2 WHERE batch_id = $1;
+-- Record the judging basis (reval/stats/judging.py) approvals were decided under. $batch_ids, $sha256.
+UPDATE batches SET judged_sha256 = $sha256 WHERE list_contains($batch_ids::BIGINT[], batch_id);
