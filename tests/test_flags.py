@@ -21,7 +21,7 @@ from reval.data.config import load_config
 from reval.data.fingerprint import record_fingerprints
 from reval.errors import ConfigError, UserError
 from reval.model.run import fit_run
-from reval.service.actions import (approve, approve_all_passing, export_roll, import_data, prepare_sales, review,
+from reval.service.actions import (approve, approve_all_passing, decision_refusal, export_roll, import_data, prepare_sales, review,
                                    stage_values)
 from reval.service.project import open_project
 
@@ -144,6 +144,8 @@ def test_approve_all_passing_leaves_a_segment_with_rows_without_a_value(flagged:
     left = {x["segment"]: x["reason"] for x in result["left"]}
     assert name not in {d["segment"] for d in result["approved"]}
     assert "have no value" in left[name] and left[name] in str(refused.value)
+    # The app asks this before it opens the note dialog: a note could not override it, so none is asked for.
+    assert decision_refusal(folder, name, "approve") == str(refused.value)
     assert query_frame(folder, "SELECT state FROM batches WHERE segment = ? AND state IN ('staged', 'approved')",
                        [name])["state"].tolist() == ["staged"]
 

@@ -113,12 +113,21 @@ def refusal(store: Store, segment: str, action: str) -> str | None:
         return f"No segment named '{segment}'."
     live = live_batches(store, segment)
     if action != "revoke":
-        return _staged_refusal(live, segment, action)
+        state = _staged_refusal(live, segment, action)
+        if state is None and action == "approve":
+            return _blocked(store, segment, next(b for b in live if b["state"] == "staged")["batch_id"])
+        return state
     try:
         _approved_batch(live, segment)
     except UserError as refused:
         return str(refused)
     return None
+
+
+def _blocked(store: Store, segment: str, batch_id: int) -> str | None:
+    """Why the batch cannot be approved whatever its statistics and any note (rows without a value), or None."""
+    blockers = approval_blockers(store, [batch_id]).get(batch_id)
+    return f"Cannot approve {segment}: {'; '.join(blockers)}. A note does not override this." if blockers else None
 
 
 def _note(text: str | None) -> str | None:
@@ -131,9 +140,9 @@ def approve(store: Store, config: Config, segment: str, note: str | None = None)
     note = _note(note)
     staged = _open_batch(store, segment, "approve")
     run_id = staged["run_id"]
-    blockers = approval_blockers(store, [staged["batch_id"]]).get(staged["batch_id"])
-    if blockers:
-        raise UserError(f"Cannot approve {segment}: {'; '.join(blockers)}. A note does not override this.")
+    blocked = _blocked(store, segment, staged["batch_id"])
+    if blocked:
+        raise UserError(blocked)
     statistics = segment_statistics(store, config, run_id, segment)
     reasons = failures(statistics)
     if reasons and note is None:
