@@ -181,7 +181,7 @@ def _plots(doc: Document, config: Config, store: Store, source: ValuesSource, ru
     if model_run is None:
         part.paragraph("No model run yet: the value-change histogram and the model's curves appear after `reval fit`.")
         return
-    bins = store.frame("report_value_change_bins", [model_run, CHANGE_BINS])
+    bins = store.frame("value_change_bins", [model_run, None, CHANGE_BINS, 0.01])
     if not bins.empty:
         part.figure(figures.change_histogram(bins, CHANGE_BINS),
                     f"Value change from the prior roll to run {model_run}'s market values, sold and unsold parcels "

@@ -290,7 +290,7 @@ def _marginal_effects(store: Store, config: Config, run_id: str, segment: str) -
 
 
 def _value_change(store: Store, run_id: str, segment: str, n_bins: int, max_points: int) -> ValueChange:
-    rows = store.records("app_value_change_bins", [run_id, segment, n_bins])
+    rows = store.records("value_change_bins", [run_id, segment, n_bins, 0.02])
     pairs = store.rows("app_prior_new", [run_id, segment, max_points])
     medians = {bool(r["sold"]): r for r in store.records("app_value_change_medians", [run_id, segment])}
     sold, unsold = [0] * n_bins, [0] * n_bins
