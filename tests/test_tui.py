@@ -34,7 +34,7 @@ from tui.plot import braille
 from tui.screens.help import HelpScreen, keys_table
 from tui.screens.overview import OverviewScreen
 from tui.screens.parcel import ParcelScreen
-from tui.screens.prompt import ConfirmScreen
+from tui.screens.prompt import ConfirmScreen, PromptScreen
 from tui.screens.segment import SegmentScreen
 
 SIZE = (100, 32)
@@ -483,6 +483,8 @@ async def _a_project_without_a_run_says_so_and_never_crashes(small_project: Path
         await settle(pilot)
         assert app.messages[-1][0] == "error" and "no staged batch" in app.messages[-1][1]
         assert "press v" in app.messages[-1][1] and "reval value" not in app.messages[-1][1]
+        assert isinstance(app.screen, PromptScreen) and app.screen.refused == app.messages[-1][1]
+        await pilot.press("escape")
         assert isinstance(app.screen, OverviewScreen)
 
 

@@ -7,16 +7,20 @@ from __future__ import annotations
 
 import asyncio
 import threading
+import time
 from pathlib import Path
 
-from helpers import query_frame, settle, table_rows, type_text
+import pytest
+from helpers import held_by_child, query_frame, settle, table_rows, type_text
 from test_tui import SIZE, _confirm_text, failing_and_passing, go_to, states
+from textual.widgets import Input
 
 from reval.service import actions
 from reval.service.project import open_project
 from tui.app import RevalApp
 from tui.jobs import JobProgressed
 from tui.outcomes import job_fraction
+from tui.screens.overview import OverviewScreen
 from tui.screens.prompt import ConfirmScreen, ExportScreen, PromptScreen
 from tui.screens.segment import SegmentScreen
 
@@ -84,9 +88,15 @@ async def _a_decision_on_an_approved_batch_says_revoke_first(demo_copy: Path) ->
         await go_to(pilot, passing)
         for key in ("h", "a"):
             await pilot.press(key)
-            assert not isinstance(app.screen, PromptScreen)
+            await settle(pilot)
+            prompt = app.screen                       # the refusal shows in the dialog before a note is typed
+            assert isinstance(prompt, PromptScreen) and prompt.refused is not None
+            assert "already approved" in prompt.refused and prompt.query_one("#prompt-input").disabled
             severity, text = app.messages[-1]
             assert severity == "error" and "already approved" in text and "revoke" in text
+            await pilot.press("o", "k", "enter")      # typed ahead: stays in the dialog, Enter closes it
+            await settle(pilot)
+            assert isinstance(app.screen, OverviewScreen) and app.messages[-1][1] == text
     assert states(demo_copy)[passing]["certified"]["state"] == "approved"
 
 
@@ -199,3 +209,29 @@ async def _a_segment_opens_while_a_job_holds_the_database(demo_copy: Path) -> No
         release.set()
         await settle(pilot)
     assert loaded and still_running
+
+
+def test_the_check_before_a_note_does_not_block_the_app(demo_copy: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("REVAL_WAIT", "4")
+    _, passing = failing_and_passing(demo_copy)
+    asyncio.run(_the_check_before_a_note_does_not_block_the_app(demo_copy, passing))
+
+
+async def _the_check_before_a_note_does_not_block_the_app(folder: Path, segment: str) -> None:
+    # Finding: the check before a decision's note read the database in the UI thread, so with another process
+    # writing the app froze for REVAL_WAIT seconds. Now it runs in a worker: keys are handled at once.
+    app = RevalApp(folder)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, segment)
+        with held_by_child(folder, write=True):       # another process writes: a read waits REVAL_WAIT for it
+            started = time.monotonic()
+            await pilot.press("a")
+            await type_text(pilot, "looks fine")
+            assert time.monotonic() - started < 2.0   # REVAL_WAIT is 4 s: nothing waited for it
+            prompt = app.screen
+            assert isinstance(prompt, PromptScreen)
+            assert prompt.query_one("#prompt-input", Input).value == "looks fine"
+            await settle(pilot)                       # the check gives up after REVAL_WAIT, naming the holder
+        assert prompt.refused is not None and "reval fit" in prompt.refused, prompt.refused
+        assert app.messages[-1][0] == "error"

@@ -280,31 +280,42 @@ class RevalApp(App[None]):
     # ---- decisions and steps that write ------------------------------------------------------------------
 
     def decide(self, kind: str, segment: str, detail: str = "") -> None:
-        """Approve, hold or revoke the segment's batch: refused at once while a job runs or when the batch's
-        state does not allow it (already approved: revoke first), else ask for the note or reason. The core
-        enforces the approval gate and says why it refuses."""
+        """Approve, hold or revoke the segment's batch: refused at once while a job runs, else ask for the note or
+        reason while a thread checks whether the batch's state allows it (already approved: revoke first); a
+        refusal shows in the dialog before a note is typed. The UI never waits on the database (another process
+        may hold it for REVAL_WAIT seconds). The core enforces the approval gate and says why it refuses."""
         if self.job_running:
             self.report(f"{kind.capitalize()} of {segment} not started: {BUSY}", "warning")
             return
-        try:   # a small read, done before the dialog opens so that no key typed ahead reaches the screen below
-            refused = actions.decision_refusal(self.folder, segment, kind)
-        except UserError as error:
-            refused = str(error)
-        if refused is not None:
-            self.report(app_wording(refused), "error")
-            return
         title, asked, required = DECISIONS[kind]
         fn = getattr(actions, kind)
+        prompt = PromptScreen(title.format(segment=segment), asked, required=required, detail=detail)
 
         def answered(text: str | None) -> None:
+            if prompt.refused is not None:
+                return   # the refusal has been reported
             if text is None:
                 self.report(f"{kind.capitalize()} of {segment} cancelled.", "warning")
                 return
             self.start_job(kind, f"{kind.capitalize()} {segment}", fn, self.folder, segment, text or None,
                            describe=describe_decision)
 
-        self.push_screen(PromptScreen(title.format(segment=segment), asked, required=required, detail=detail),
-                         answered)
+        self.push_screen(prompt, answered)
+        self._check_decision(kind, segment, prompt)
+
+    @work(thread=True, group="decision check", exit_on_error=False, name="decision check")
+    def _check_decision(self, kind: str, segment: str, prompt: PromptScreen) -> None:
+        try:
+            refused = actions.decision_refusal(self.folder, segment, kind)
+        except UserError as error:
+            refused = str(error)
+        if refused is not None:
+            self.call_from_thread(self._refuse_decision, prompt, app_wording(refused))
+
+    def _refuse_decision(self, prompt: PromptScreen, why: str) -> None:
+        if prompt.is_attached and prompt in self.screen_stack:
+            prompt.refuse(why)
+        self.report(why, "error")
 
     def override(self, parcel_id: str, reasons: list[str], model_value: float | None) -> None:
         """Ask for the value, reason code and note in one line, then set the parcel's override (the core checks

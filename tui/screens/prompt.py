@@ -17,13 +17,23 @@ class PromptScreen(ModalScreen[str | None]):
     """Ask for one line; Enter returns it (refused when empty and required), Esc returns None."""
 
     CSS_PATH = "prompt.tcss"
-    BINDINGS = [Binding("escape", "cancel", "Cancel", id="prompt.cancel")]
+    BINDINGS = [Binding("escape", "cancel", "Cancel", id="prompt.cancel"),
+                Binding("enter", "close_refused", "Close", show=False, id="prompt.close")]
 
     def __init__(self, title: str, placeholder: str, *, required: bool = False, detail: str = "",
                  value: str = "") -> None:
         super().__init__()
         self.title_text, self.placeholder, self.required = title, placeholder, required
         self.detail, self.value = detail, value
+        self.refused: str | None = None   # set when a check run beside the dialog refuses what it asks for
+
+    def refuse(self, why: str) -> None:
+        """Say in the dialog why its action is refused: the input closes, Enter or Esc closes the dialog (keys
+        typed ahead stay in the dialog instead of reaching the screen below)."""
+        self.refused = why
+        self.query_one("#prompt-input", Input).disabled = True
+        self.query_one("#prompt-hint", Static).update(f"✗ {why} (Enter or Esc closes)")
+        self.focus()
 
     def compose(self) -> ComposeResult:
         with Vertical(id="dialog"):
@@ -41,6 +51,10 @@ class PromptScreen(ModalScreen[str | None]):
             self.query_one("#prompt-hint", Static).update(f"✗ A {self.placeholder} is required (Esc to cancel).")
             return
         self.dismiss(text)
+
+    def action_close_refused(self) -> None:
+        if self.refused is not None:
+            self.dismiss(None)
 
     def action_cancel(self) -> None:
         self.dismiss(None)
