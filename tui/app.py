@@ -9,6 +9,7 @@ from typing import Any
 
 from textual import work
 from textual.app import App
+from textual.content import Content
 from textual.reactive import reactive
 from textual.screen import Screen
 from textual.worker import Worker, WorkerState, get_current_worker
@@ -18,6 +19,7 @@ from reval.service.types import Overview, StagePlan
 from reval.service.wording import shown
 
 from . import keys
+from .contrast import legible
 from .jobs import (CoreNotice, JobCancelled, JobEnded, JobFinished, JobProgressed, JobStopped, Loaded, LoadFailed, NoticeRelay,
                    Status)
 from .screens.base import DataScreen
@@ -57,6 +59,15 @@ class RevalApp(App[None]):
         self.seen_event: int | None = None   # the newest event id this app has shown
         self.messages: list[tuple[str, str]] = []  # (severity, text), oldest first
         self._reads: dict[Worker[Any], tuple[Screen[Any], str]] = {}
+
+    def get_css_variables(self) -> dict[str, str]:
+        """The theme's variables, its text and plot colours made legible on its backgrounds (tui/contrast.py)."""
+        self.theme_variables = legible(super().get_css_variables())
+        return self.theme_variables
+
+    def format_title(self, title: str, sub_title: str) -> Content:
+        """Title — sub-title in full text colour (Textual dims the sub-title below the 4.5:1 text contrast)."""
+        return Content.assemble(title, " — ", sub_title) if sub_title else Content(title)
 
     def on_mount(self) -> None:
         self._notices = NoticeRelay(self)

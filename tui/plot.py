@@ -74,7 +74,9 @@ class ChartData:
 
 
 # each style differs by shape as well as colour: a solid line, a dashed parent line, dots, a dotted reference
-LEGEND_MARKS = {"line": "━", "parent": "╍", "band": "█", "points": "⠶", "reference": "┄", "alt": "▪"}
+LEGEND_MARKS = {"line": "━", "parent": "╍", "band": "░", "points": "⠶", "reference": "┄", "alt": "▪"}
+BAND_FILL = "░"   # a band is shaded by a glyph in a legible colour, never by a background tint: a line crossing it
+#                   keeps the contrast it has on the plot's background
 LOADING = "reading…"   # what a plot shows before its data arrives (never "nothing to plot" while loading)
 
 
@@ -88,11 +90,11 @@ class Chart(Widget):
     Chart > .chart--axis { color: $text-muted; }
     Chart > .chart--line { color: $accent; text-style: bold; }
     Chart > .chart--parent { color: $secondary; }
-    Chart > .chart--band { background: $accent 25%; color: $accent 40%; }
+    Chart > .chart--band { color: $accent; }
     Chart > .chart--points { color: $primary; }
     Chart > .chart--reference { color: $text-muted; }
     Chart > .chart--alt { color: $warning; }
-    Chart > .chart--strip { color: $primary 70%; }
+    Chart > .chart--strip { color: $primary; }
     """
 
     def __init__(self, data: ChartData | None = None, *, id: str | None = None, classes: str | None = None) -> None:
@@ -113,8 +115,7 @@ class Chart(Widget):
         for layer in self.data.layers:
             if layer.label:
                 mark = LEGEND_MARKS.get(layer.style, "━")
-                text.append(mark, self._style(layer.style) if layer.style != "band" else Style(
-                    color=self._style("band").bgcolor))
+                text.append(mark, self._style(layer.style))
                 text.append(f" {layer.label}   ", self._style("axis"))
         return text
 
@@ -219,12 +220,11 @@ class Chart(Widget):
         return (rows_axis >= lo[None, :]) & (rows_axis <= hi[None, :]) & inside[None, :]
 
     def _append_row(self, out: Text, glyphs: list[tuple[str, str | None]], band: np.ndarray) -> None:
-        band_bg = self._style("band").bgcolor
         run, run_style = "", Style()
         for (glyph, owner), covered in zip(glyphs, band):
+            if covered and owner is None:
+                glyph, owner = BAND_FILL, "band"
             style = self._style(owner) if owner else Style()
-            if covered:
-                style = style + Style(bgcolor=band_bg)
             if style != run_style and run:
                 out.append(run, run_style)
                 run = ""

@@ -29,7 +29,8 @@ COLUMNS = (("segment", "Name", 8), ("market_area", "Area", 8), ("parcels", "Parc
 WIDE = 120   # from this many columns, names and states are not cut
 SORT_ORDER = tuple(key for key, _, _ in COLUMNS)
 LABELS = {key: label for key, label, _ in COLUMNS}
-VERDICT_COLOURS = {"pass": "success", "fail": "error", "inconclusive": "warning", "too_few_sales": "warning"}
+VERDICT_COLOURS = {"pass": "text-success", "fail": "text-error", "inconclusive": "text-warning",
+                   "too_few_sales": "text-warning"}
 
 
 class OverviewScreen(DataScreen):
