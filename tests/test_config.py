@@ -58,6 +58,8 @@ def test_shape_rules_and_the_loss_are_read(tmp_path: Path) -> None:
     ('type = "ordinal"', 'type = "ranked"', "features[1].type", "must be one of"),
     ('levels = ["low", "average", "good"]', "", "features[1].levels", "needs its levels"),
     ('name = "quality"', 'name = "Quality"', "features[1].name", "lower case"),
+    ('type = "ordinal"', 'type = "ordinal"\nunit = "grade"', "features[1].unit", "only continuous"),
+    ('range = [200, 8000]', 'range = [200, 8000]\nunit = "sq ft\\nx"', "features[0].unit", "no control characters"),
     ('name = "garage"', 'name = "quality"', "features", "declared twice"),
     ("valuation_date = 2025-01-01", 'valuation_date = "soon"', "jurisdiction.valuation_date", "expected a date"),
     ("valuation_date = 2025-01-01", "valuation_date = 0001-01-01", "jurisdiction.valuation_date", "between 1900"),

@@ -5,7 +5,7 @@ from __future__ import annotations
 import asyncio
 from pathlib import Path
 
-from helpers import settle
+from helpers import settle, table_rows
 from test_tui import SIZE
 from textual.app import App, ComposeResult
 from textual.widgets import Static
@@ -137,3 +137,47 @@ async def _prior_against_new_value_scatter_per_segment(fitted_demo: Path) -> Non
     shown = sorted(zip((round(10 ** x) for x in points.x), (round(10 ** y) for y in points.y)))
     assert shown == sorted(zip((round(v) for v in pairs["prior_value"]), (round(v) for v in pairs["market_value"])))
     assert not any(math.isnan(v) for v in points.y)
+
+
+def test_units_on_every_axis_at_80_by_24(fitted_demo: Path) -> None:
+    asyncio.run(_units_on_every_axis(fitted_demo))
+
+
+async def _units_on_every_axis(fitted_demo: Path) -> None:
+    # Finding: axes and marginal effects had no units. Features declare theirs in the config (`unit`); values
+    # read in currency, ratios say they have none, changes are in %, years carry no thousands separator.
+    units = {f.name: f.unit for f in load_config(fitted_demo).features}
+    assert units["living_area"] == "sq ft" and units["year_built"] == "year"
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot)
+        await pilot.press("enter")
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, SegmentScreen) and screen.data is not None
+        names = [c["feature"] for c in screen.data["curves"]]
+        chart = screen.query_one("#curve-chart", Chart)
+        text = str(chart.render())
+        assert "→ living area (sq ft)" in text and "↑ effect on value (%)" in text, text
+        assert str(screen.query_one("#curve-title", Static).render()).startswith("living area (sq ft) · 1 of")
+        await pilot.press(*["right_square_bracket"] * names.index("year_built"))
+        text = str(chart.render())
+        ticks = text.splitlines()[-2]
+        assert "→ year built (year)" in text and ticks.split() and all("," not in t for t in ticks.split()), ticks
+        await pilot.press("2")
+        await settle(pilot)
+        rows = {r[0]: r for r in table_rows(screen.query_one("#marginal"))}
+        assert rows["living area (sq ft)"][1].endswith(" per sq ft") and rows["living area (sq ft)"][2] != "–"
+        assert rows["year built (year)"][1].endswith(" per year") and rows["year built (year)"][2] == "–"
+        assert rows["waterfront"][1].endswith(" yes vs no")
+        await pilot.press("3")
+        await settle(pilot)
+        scatter = str(screen.query_one("#ratio-scatter", Chart).render())
+        assert "sale price (currency, log)" in scatter and "(no unit)" in scatter, scatter
+        assert "median ratio (no unit)" in str(screen.query_one("#decile-chart", Chart).render())
+        await pilot.press("4")
+        await settle(pilot)
+        bars = str(screen.query_one("#change-bars", Bars).render())
+        assert "change in value (%)" in bars and "share of parcels (%)" in bars, bars
+        prior_new = str(screen.query_one("#prior-new", Chart).render())
+        assert "prior value (currency, log)" in prior_new and "new value (currency, log)" in prior_new

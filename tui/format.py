@@ -14,10 +14,15 @@ MARKS = {"pass": "✓", "fail": "✗ FAIL", "inconclusive": "? unsure", "too_few
 SHORT_MARKS = {"pass": "✓", "fail": "✗", "inconclusive": "?", "too_few_sales": "~", "no_sales": "–"}
 STAT_FORMATS = {"median_ratio": ".3f", "cod": ".1f", "prd": ".3f", "prb": "+.3f"}
 STAT_NAMES = {"median_ratio": "Median ratio", "cod": "COD", "prd": "PRD", "prb": "PRB"}
-VERDICT_STYLES = {"pass": "$success", "fail": "$error", "inconclusive": "$warning", "too_few_sales": "$warning"}
 LEGEND = "✓ meets the standard · ✗ FAIL: does not · ? inconclusive · ~ too few sales to judge"
 SHORT_LEGEND = "✓ meets · ✗ fails · ? unsure · ~ few sales · – none"
 SHORT_CAUTION = "Estimates for review by a qualified assessor; local law applies (? for more)."
+
+
+def feature_label(name: str, unit: str = "") -> str:
+    """A feature as axes and tables name it, with its unit: "living area (sq ft)"."""
+    words = name.replace("_", " ")
+    return f"{words} ({unit})" if unit else words
 
 
 def stat_cell(cell: StatCell, stat: str, short: bool = False) -> str:

@@ -71,6 +71,8 @@ class ChartData:
     y_format: Formatter = field(default=lambda v: f"{v:.3g}")
     strip: tuple[int, ...] = ()     # counts in equal bins over the x range, drawn as a row of bars
     strip_label: str = ""
+    x_title: str = ""               # what each axis measures, in its unit: "living area (sq ft)"
+    y_title: str = ""
 
 
 # each style differs by shape as well as colour: a solid line, a dashed parent line, dots, a dotted reference
@@ -78,6 +80,13 @@ LEGEND_MARKS = {"line": "━", "parent": "╍", "band": "░", "points": "⠶", 
 BAND_FILL = "░"   # a band is shaded by a glyph in a legible colour, never by a background tint: a line crossing it
 #                   keeps the contrast it has on the plot's background
 LOADING = "reading…"   # what a plot shows before its data arrives (never "nothing to plot" while loading)
+
+
+def axis_titles(x_title: str, y_title: str, width: int) -> list[str]:
+    """What each axis measures and in which unit: one line, or one per axis when one line does not fit."""
+    titles = [t for t in (f"→ {x_title}" if x_title else "", f"↑ {y_title}" if y_title else "") if t]
+    one = " · ".join(titles)
+    return [one] if len(one) <= width else titles
 
 
 class Chart(Widget):
@@ -127,7 +136,8 @@ class Chart(Widget):
             return Text("nothing to plot", style=self._style("axis"))
         d = self.data
         legend = any(layer.label for layer in d.layers)
-        rows = height - 1 - int(legend) - int(bool(d.strip))
+        titles = axis_titles(d.x_title, d.y_title, width)
+        rows = height - 1 - int(legend) - int(bool(d.strip)) - len(titles)
         xs = [layer.x for layer in d.layers if layer.kind != "hline"]
         ys = [v for layer in d.layers for v in (layer.y, layer.y2)]
         x0, x1 = d.x_range or padded_range(*xs, pad=0.0)
@@ -154,6 +164,8 @@ class Chart(Widget):
             out.append("\n")
         out.append(" " * margin, axis)
         out.append(self._x_labels(d.x_format, x0, x1, cols), axis)
+        for line in titles:
+            out.append("\n" + line, axis)
         return out
 
     @staticmethod
@@ -264,6 +276,8 @@ class BarsData:
     hi: float
     x_format: Formatter = field(default=lambda v: f"{v:.3g}")
     open_ends: bool = False                                # the end bins also hold what lies beyond
+    x_title: str = ""
+    y_title: str = ""
 
 
 class Bars(Widget):
@@ -301,7 +315,8 @@ class Bars(Widget):
             shares = [s[: n_bins // 2 * 2].reshape(-1, 2).sum(axis=1) for s in shares]
             n_bins = len(shares[0])
         per_bin = (width - margin) // n_bins
-        rows = height - 2
+        titles = axis_titles(d.x_title, d.y_title, width)
+        rows = height - 2 - len(titles)
         top = max(float(max(s.max() for s in shares)), 1e-12)
         out = Text(no_wrap=True, overflow="crop")
         for label, _, style in d.groups:
@@ -324,6 +339,8 @@ class Bars(Widget):
         if d.open_ends:
             left, right = "≤" + left, "≥" + right
         out.append(" " * margin + left + " " * max(1, cols - len(left) - len(right)) + right, axis)
+        for line in titles:
+            out.append("\n" + line, axis)
         return out
 
 

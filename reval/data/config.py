@@ -138,6 +138,9 @@ class FeatureSpec(Declared):
     kind: FeatureKind = setting(REQUIRED, "ordinal and categorical need levels; binary reads 0/1, yes/no, "
                                 "true/false", toml="type")
     log: bool = setting(False, "model the logarithm (continuous only)")
+    unit: str = setting("", "the unit its values are in, shown on plot axes and with marginal effects "
+                        "(continuous only)", example="sq ft", pattern=(r"^[^\x00-\x1f]{0,20}$",
+                                                                      "at most 20 characters, no control characters"))
     levels: tuple[str, ...] = setting((), "the levels, lowest first (ordinal and categorical only)")
     range: tuple[float, float] | None = setting(None, "values outside [low, high] are errors (continuous only)")
     baseline: str | None = setting(None, "the level contributions are measured from (categorical: one of levels; "
@@ -160,8 +163,9 @@ class FeatureSpec(Declared):
             raise Invalid("levels", f"levels only apply to ordinal and categorical features, not {self.kind}")
         if len(set(self.levels)) != len(self.levels):
             raise Invalid("levels", "levels repeat")
-        if self.kind != "continuous" and (self.log or self.range):
-            raise Invalid("log" if self.log else "range", "only continuous features take log or range")
+        if self.kind != "continuous" and (self.log or self.range or self.unit):
+            key = "log" if self.log else "range" if self.range else "unit"
+            raise Invalid(key, "only continuous features take log, range or unit")
         if self.log and self.range and self.range[0] < 0:
             raise Invalid("range", "a log-transformed feature cannot have negative values")
         if self.baseline is not None and self.kind not in ("categorical", "binary"):

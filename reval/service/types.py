@@ -110,6 +110,7 @@ class Curve(TypedDict):
 
     feature: str
     kind: str
+    unit: str               # the config's unit of a continuous feature ("" when none)
     levels: list[str]
     x: list[float]
     effect: list[float]

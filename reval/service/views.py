@@ -234,12 +234,14 @@ def _histogram(rows: list[Record], feature: str, n_bins: int) -> list[int]:
     return counts
 
 
-def _curves(store: Store, run_id: str, segment: str, n_bins: int) -> list[Curve]:
+def _curves(store: Store, config: Config, run_id: str, segment: str, n_bins: int) -> list[Curve]:
+    units = {f.name: f.unit for f in config.features}
     rows = store.records("app_curves", [run_id, segment])
     bins = store.records("app_feature_bins", [run_id, segment, n_bins])
     curves: dict[str, Curve] = {}
     for r in rows:
         c = curves.setdefault(r["feature"], {"feature": r["feature"], "kind": r["kind"],
+                                             "unit": units.get(r["feature"], ""),
                                              "levels": list(r["levels"] or []), "x": [], "effect": [],
                                              "lo": [], "hi": [], "parent_effect": [], "data_bins": []})
         c["x"].append(r["x"])
@@ -282,10 +284,13 @@ def _equity(store: Store, run_id: str | None, study: ShownStudy | None, segment:
 
 
 def _marginal_effects(store: Store, config: Config, run_id: str, segment: str) -> list[Record]:
-    """Value per unit of each feature, and its elasticity only where the feature is modelled in logs: an
-    elasticity needs a true zero (a ratio scale), which a year (built) does not have."""
+    """Value per unit of each feature (with the config's unit), and its elasticity only where the feature is
+    modelled in logs: an elasticity needs a true zero (a ratio scale), which a year (built) does not have."""
     logged = {f.name for f in config.features if f.log}
-    return [{**r, "elasticity": r["elasticity"] if r["feature"] in logged else None}
+    spec = {f.name: f for f in config.features}
+    return [{**r, "unit": spec[r["feature"]].unit if r["feature"] in spec else "",
+             "kind": spec[r["feature"]].kind if r["feature"] in spec else "",
+             "elasticity": r["elasticity"] if r["feature"] in logged else None}
             for r in store.records("app_marginal_effects", [run_id, segment])]
 
 
@@ -321,7 +326,7 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "sales": info[0]["sales"], "run_id": run_id,
             "stats_header": _stats_header(study, run_id, note), "stats_short": _stats_short(study, run_id),
             "model": model[0] if model else None,
-            "curves": _curves(store, run_id, segment, n_bins) if run_id else [],
+            "curves": _curves(store, config, run_id, segment, n_bins) if run_id else [],
             "interactions": _interactions(store, run_id, segment) if run_id else [],
             "marginal_effects": _marginal_effects(store, config, run_id, segment) if run_id else [],
             "equity": _equity(store, run_id, study, segment, max_points),

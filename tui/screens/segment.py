@@ -19,6 +19,7 @@ from ..format import (
     STAT_NAMES,
     cells,
     ci_text,
+    feature_label,
     gate_detail,
     money,
     number,
@@ -46,6 +47,9 @@ from .prompt import PromptScreen
 
 TABS = ("curves", "effects", "equity", "change", "sales", "reference")
 NO_RUN = "No model run yet — press f to fit."
+EFFECT_TITLE = "effect on value (%)"
+PER_UNIT = {"continuous": " per unit", "ordinal": " per level", "binary": " yes vs no"}
+RATIO_TITLE = "ratio, value ÷ price (no unit)"
 SALES_PAGE = 50
 
 
@@ -77,7 +81,7 @@ def curve_chart(c: Curve) -> ChartData:
               Layer("line", x, c["effect"], style="line", label="segment"),
               Layer("hline", y=(0.0,), style="reference"))
     return ChartData(layers, x_format=axis_number, y_format=percent_axis, strip=tuple(c["data_bins"]),
-                     strip_label="data")
+                     strip_label="data", x_title=feature_label(c["feature"], c["unit"]), y_title=EFFECT_TITLE)
 
 
 def level_bars(c: Curve) -> list[LevelBar]:
@@ -103,8 +107,9 @@ def prior_new_chart(prior: list[float], new: list[float]) -> ChartData | None:
     lo, hi = min(px + ny), max(px + ny)
     return ChartData((Layer("line", (lo, hi), (lo, hi), style="reference", label="no change"),
                       Layer("points", px, ny, style="points", label="parcel")),
-                     x_range=(lo, hi), y_range=(lo, hi), x_format=lambda v: "prior " + short_money(10 ** v),
-                     y_format=lambda v: short_money(10 ** v))
+                     x_range=(lo, hi), y_range=(lo, hi), x_format=lambda v: short_money(10 ** v),
+                     y_format=lambda v: short_money(10 ** v), x_title="prior value (currency, log)",
+                     y_title="new value (currency, log)")
 
 
 def chasing_line(review: SegmentReview | None) -> str:
@@ -177,7 +182,7 @@ class SegmentScreen(DataScreen):
                             yield Static("Ratio by sale price", classes="plot-title")
                             yield Chart(id="ratio-scatter")
                         with Vertical():
-                            yield Static("Median ratio by decile of price and of value proxy",
+                            yield Static("Median ratio by price decile",
                                          classes="plot-title")
                             yield Chart(id="decile-chart")
             with TabPane("4 Value change", id="change"):
@@ -245,8 +250,8 @@ class SegmentScreen(DataScreen):
         self.curve_index %= len(curves)
         c = curves[self.curve_index]
         continuous = c["kind"] == "continuous"
-        title.update(f"{c['feature']} ({self.curve_index + 1} of {len(curves)}, ] next, [ previous) · "
-                     f"effect on value, % · {c['kind']}")
+        title.update(f"{feature_label(c['feature'], c['unit'])} · {self.curve_index + 1} of {len(curves)} (] next, "
+                     f"[ previous) · {EFFECT_TITLE}")
         chart.display, levels.display = continuous, not continuous
         if continuous:
             chart.show(curve_chart(c))
@@ -292,9 +297,11 @@ class SegmentScreen(DataScreen):
         marginal = self.query_one("#marginal", DataTable)
         marginal.clear(columns=True)
         if d["marginal_effects"]:
-            marginal.add_columns("Feature", "Value per unit", "Elasticity (logged features)")
+            marginal.add_columns("Feature", "Value per unit (currency)", "Elasticity (% per 1 %)")
             for r in d["marginal_effects"]:
-                marginal.add_row(*cells(r["feature"], signed_money(r["value_per_unit"]), number(r["elasticity"], "+.3f")))
+                per = PER_UNIT.get(r["kind"], "") if not r["unit"] else f" per {r['unit']}"
+                marginal.add_row(*cells(feature_label(r["feature"], r["unit"]), signed_money(r["value_per_unit"]) + per,
+                                        number(r["elasticity"], "+.3f")))
 
     # ---- equity ------------------------------------------------------------------------------------------
 
@@ -317,7 +324,8 @@ class SegmentScreen(DataScreen):
             scatter.show(ChartData((Layer("hline", y=(1.0,), style="reference", label="ratio 1.0"),
                                     Layer("points", logs, ratios, style="points", label="sale")),
                                    y_range=y_range, x_format=lambda v: short_money(10 ** v),
-                                   y_format=lambda v: f"{v:.2f}"))
+                                   y_format=lambda v: f"{v:.2f}", x_title="sale price (currency, log)",
+                                   y_title=RATIO_TITLE))
         else:
             scatter.show(None)
         deciles = [v for v in e["decile_median_ratios"] if v is not None]
@@ -334,7 +342,8 @@ class SegmentScreen(DataScreen):
                                         label="by value proxy")),
                                  x_range=(0.5, len(deciles) + 0.5),
                                  x_format=lambda v: "low" if v < 1 else "high" if v > 10 else "",
-                                 y_format=lambda v: f"{v:.2f}"))
+                                 y_format=lambda v: f"{v:.2f}", x_title="decile (tenths of the sales)",
+                                 y_title="median ratio (no unit)"))
         else:
             chart.show(None)
 
@@ -355,7 +364,8 @@ class SegmentScreen(DataScreen):
                    f"difference {'–' if gap is None else f'{100 * gap:+.1f} points'}.")
         summary.update("\n".join(filter(None, (medians, chasing_line(d["review"]), flags_line(d["review"])))))
         bars.show(BarsData((("unsold", tuple(v["unsold"]), "points"), ("sold", tuple(v["sold"]), "alt")),
-                           v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True))
+                           v["lo"], v["hi"], x_format=lambda x: f"{x:+.0%}", open_ends=True,
+                           x_title="change in value (%)", y_title="share of parcels (%)"))
         self.query_one("#prior-new", Chart).show(prior_new_chart(v["prior"], v["new"]))
 
     # ---- sales -------------------------------------------------------------------------------------------
