@@ -99,7 +99,7 @@ async def _audit_log_by_segment(demo_copy: Path) -> None:
         assert isinstance(screen, ListScreen) and screen.data is not None
         rows = table_rows(screen.query_one("#list-table"))
         assert [int(r[0]) for r in rows] == sorted((e["event_id"] for e in events), reverse=True)
-        assert rows[0][3] == "batch_held" and rows[0][5].startswith("note: check the lots")
+        assert rows[0][3] == "batch_held" and rows[0][6].startswith("note: check the lots")
         await pilot.press("e")                                        # every segment: the whole log
         await pilot.press(*["backspace"] * len(segment), "enter")
         await settle(pilot)

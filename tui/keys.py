@@ -123,7 +123,7 @@ REGISTRY: tuple[KeyAction, ...] = (
     KeyAction("parcel.segment", "s", "open_segment", "parcel", "Segment", "Open this parcel's segment"),
     # work lists
     KeyAction("list.back", "escape,backspace", "back", "list", "Back", "Back"),
-    KeyAction("list.open", "enter", "open_row", "list", "Open", "Open the row's parcel (the log: its segment)",
+    KeyAction("list.open", "enter", "open_row", "list", "Open", "Open the row's parcel (a log row without one: its segment)",
               key_display="⏎"),
     KeyAction("list.next", "right_square_bracket,n", "page(1)", "list", "Next", "Next page", key_display="]"),
     KeyAction("list.prev", "left_square_bracket,p", "page(-1)", "list", "Prev", "Previous page", key_display="["),

@@ -229,7 +229,7 @@ class ListPage(TypedDict):
     descending: bool
     segment: str | None
     text: str
-    opens: str          # what Enter opens from a row: "parcel" or "segment"
+    opens: str          # what Enter opens from a row: its parcel, else its segment (the log's rows without one)
 
 
 class JobStep(TypedDict):

@@ -394,10 +394,10 @@ LISTS: dict[str, ListSpec] = {
                           _column("status", "Status", sortable=False), _column("weight", "Weight", "weight"),
                           _column("reason", "Why"), _column("segment", "Segment"),
                           _column("sale_date", "Date", "date"), _column("sale_price", "Price", "money")]},
-    "log": {"title": "Audit log", "sort": "event_id", "descending": True, "opens": "segment",
+    "log": {"title": "Audit log", "sort": "event_id", "descending": True, "opens": "parcel, else the segment",
             "columns": [_column("event_id", "Event"), _column("event_time", "Time", "time", sortable=False),
                         _column("who", "Who"), _column("kind", "Kind"), _column("segment", "Segment"),
-                        _column("detail", "Detail", sortable=False)]},
+                        _column("parcel_id", "Parcel", sortable=False), _column("detail", "Detail", sortable=False)]},
 }
 # the SQL's names for the sort keys of columns whose row key differs
 _SORT_NAMES = {"parcel_id": "parcel", "prior_value": "prior", "market_value": "value", "sale_id": "sale",

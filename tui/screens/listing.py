@@ -153,7 +153,7 @@ class ListScreen(DataScreen):
         if self.data is None or not self.data["rows"]:
             return
         row = self.data["rows"][self.query_one(DataTable).cursor_row]
-        if self.data["opens"] == "parcel":
+        if row.get("parcel_id"):
             self.reval.open_parcel(row["parcel_id"])
         elif row.get("segment"):
             self.reval.open_segment(row["segment"])
