@@ -107,3 +107,70 @@ async def _audit_log_by_segment(demo_copy: Path) -> None:
         await pilot.press("enter")                                    # a row opens its segment
         await settle(pilot)
         assert isinstance(app.screen, SegmentScreen)
+
+
+def test_a_segments_parcels_and_every_sale_are_browsed_sorted_and_filtered(fitted_demo: Path) -> None:
+    asyncio.run(_parcels_and_every_sale(fitted_demo))
+
+
+async def _parcels_and_every_sale(fitted_demo: Path) -> None:
+    # Findings: browsing a segment's parcels, and sorting or filtering the sales table, were not in the app.
+    segment = views.overview(fitted_demo)["segments"][0]["segment"]
+    parcels = query_frame(fitted_demo, """SELECT p.parcel_id, v.market_value FROM parcels p
+                                          LEFT JOIN roll_values v ON v.parcel_id = p.parcel_id AND v.batch_id IN
+                                              (SELECT batch_id FROM batches WHERE state = 'staged')
+                                          WHERE p.segment = ? ORDER BY v.market_value DESC NULLS LAST, p.parcel_id""",
+                          [segment])
+    sales = query_frame(fitted_demo, """SELECT x.sale_id, x.sale_price, q.qualified FROM sales x
+                                        JOIN parcels p USING (parcel_id)
+                                        JOIN sale_qualification q ON q.sale_id = x.sale_id AND q.parcel_id = x.parcel_id
+                                        WHERE p.segment = ?""", [segment])
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot)
+        await go_to(pilot, segment)
+        await pilot.press("enter")
+        await settle(pilot)
+        await pilot.press("P")                                         # this segment's parcels
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, ListScreen) and screen.data is not None and screen.data["segment"] == segment
+        assert screen.data["total"] == len(parcels)
+        for _ in range(len(screen.data["columns"])):                  # s: next column, until the value
+            if screen.data["sort"] == "market_value":
+                break
+            await pilot.press("s")
+            await settle(pilot)
+        await pilot.press("r")                                        # largest first
+        await settle(pilot)
+        assert [r["parcel_id"] for r in screen.data["rows"]] == list(parcels["parcel_id"][:PAGE])
+        await pilot.press("enter")
+        await settle(pilot)
+        assert isinstance(app.screen, ParcelScreen) and app.screen.parcel_id == parcels["parcel_id"].iloc[0]
+        assert [type(s).__name__ for s in app.screen_stack][-3:] == ["SegmentScreen", "ListScreen", "ParcelScreen"]
+        await pilot.press("escape", "escape")
+        await settle(pilot)
+        assert isinstance(app.screen, SegmentScreen), app.screen_stack
+        await pilot.press("U")                                        # this segment's sales, every one
+        await settle(pilot)
+        screen = app.screen
+        assert isinstance(screen, ListScreen) and screen.data is not None and screen.data["total"] == len(sales)
+        await pilot.press("slash")
+        await type_text(pilot, "excluded")
+        await pilot.press("enter")
+        await settle(pilot)
+        assert screen.data["total"] == int((~sales["qualified"]).sum()) > 0
+        assert all(r["status"] == "excluded" and r["reason"] for r in screen.data["rows"])
+        await pilot.press("slash", "escape")                          # the filter goes, every sale is back
+        await settle(pilot)
+        assert app.screen is screen and screen.data["total"] == len(sales)
+        for _ in range(len(screen.data["columns"])):
+            if screen.data["sort"] == "sale_price":
+                break
+            await pilot.press("s")
+            await settle(pilot)
+        prices = [r["sale_price"] for r in screen.data["rows"]]
+        assert prices == sorted(sales["sale_price"])[:len(prices)]
+        await pilot.press("enter")
+        await settle(pilot)
+        assert isinstance(app.screen, ParcelScreen)

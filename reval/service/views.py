@@ -394,6 +394,17 @@ LISTS: dict[str, ListSpec] = {
                           _column("status", "Status", sortable=False), _column("weight", "Weight", "weight"),
                           _column("reason", "Why"), _column("segment", "Segment"),
                           _column("sale_date", "Date", "date"), _column("sale_price", "Price", "money")]},
+    "parcels": {"title": "Parcels, with the value of their segment's current batch", "sort": "parcel_id",
+                "descending": False, "opens": "parcel",
+                "columns": [_column("parcel_id", "Parcel"), _column("segment", "Segment"),
+                            _column("property_class", "Class"), _column("prior_value", "Prior", "money"),
+                            _column("market_value", "Value", "money"), _column("change", "Change", "change"),
+                            _column("state", "Batch", sortable=False)]},
+    "all_sales": {"title": "Every sale, qualified or not", "sort": "sale_id", "descending": False, "opens": "parcel",
+                  "columns": [_column("sale_id", "Sale"), _column("parcel_id", "Parcel"), _column("segment", "Segment"),
+                              _column("sale_date", "Date", "date"), _column("sale_price", "Price", "money"),
+                              _column("adjusted_price", "Adjusted", "money"), _column("status", "Status"),
+                              _column("reason", "Why", sortable=False)]},
     "log": {"title": "Audit log", "sort": "event_id", "descending": True, "opens": "parcel, else the segment",
             "columns": [_column("event_id", "Event"), _column("event_time", "Time", "time", sortable=False),
                         _column("who", "Who"), _column("kind", "Kind"), _column("segment", "Segment"),
@@ -401,7 +412,8 @@ LISTS: dict[str, ListSpec] = {
 }
 # the SQL's names for the sort keys of columns whose row key differs
 _SORT_NAMES = {"parcel_id": "parcel", "prior_value": "prior", "market_value": "value", "sale_id": "sale",
-               "sale_date": "date", "sale_price": "price", "event_id": "event"}
+               "sale_date": "date", "sale_price": "price", "event_id": "event", "property_class": "class",
+               "adjusted_price": "adjusted"}
 
 
 def _event_detail(text: str | None) -> str:

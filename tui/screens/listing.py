@@ -124,7 +124,9 @@ class ListScreen(DataScreen):
         self.query_one(DataTable).focus()
         self._again()
 
-    def key_escape(self) -> None:
+    def action_back(self) -> None:
+        """Esc: out of the filter field (clearing the filter), else back to the screen below (once: a key
+        handler beside this binding made one Esc leave two screens)."""
         search = self.query_one("#list-search", Input)
         if search.has_focus:
             search.value = ""
@@ -157,6 +159,3 @@ class ListScreen(DataScreen):
             self.reval.open_parcel(row["parcel_id"])
         elif row.get("segment"):
             self.reval.open_segment(row["segment"])
-
-    def action_back(self) -> None:
-        self.dismiss()
