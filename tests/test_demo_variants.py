@@ -31,7 +31,7 @@ from data_samples.demo_town import (
     write_project,
 )
 from reval.data.config import load_config
-from reval.data.dataset import qualified_sales
+from reval.data.dataset import SalesData, qualified_sales
 from reval.data.importer import run_import
 from reval.data.sales import prepare_sales
 from reval.data.store import open_store
@@ -165,7 +165,7 @@ def test_binary_interactions_enter_the_truth(towns: dict[str | None, DemoTown]) 
         assert coefficient != 0 and e[3] - e[2] - e[1] + e[0] == pytest.approx(coefficient), (a, b)
 
 
-def _imported(folder: Path, variant: str) -> tuple[DemoTown, object]:
+def _imported(folder: Path, variant: str) -> tuple[DemoTown, SalesData]:
     town = write_project(folder, n_parcels=N, seed=SEED, variant=variant)
     config = load_config(folder)
     run_import(config)
@@ -177,25 +177,29 @@ def _imported(folder: Path, variant: str) -> tuple[DemoTown, object]:
 
 @pytest.mark.parametrize("variant", VARIANTS)
 def test_a_variant_imports_with_its_config(variant: str, tmp_path: Path) -> None:
-    town, sales = _imported(tmp_path, variant)
-    names = [f.name for f in sales.features]          # type: ignore[attr-defined]
-    frame = sales.frame                                # type: ignore[attr-defined]
+    _, sales = _imported(tmp_path, variant)
+    names = [f.name for f in sales.features]
+    frame = sales.frame
     assert len(frame) > 500 and frame["adjusted_price"].notna().all()
     if variant == "missing":
-        X = sales.X                                    # type: ignore[attr-defined]
+        X = sales.X
         missing = {name for j, name in enumerate(names) if np.isnan(X[:, j]).any()}
         assert missing == set(MISSING_FEATURES)
     if variant == "binary_interactions":
         assert set(BINARY_FEATURES) <= set(names)
     if variant == "thin":
-        assert frame["segment"].str.startswith("THN").groupby(frame["segment"]).size().pipe(
-            lambda c: c[c.index.str.startswith("THN")]).between(1, 10).all()
+        counts = frame[frame["segment"].str.startswith("THN")].groupby("segment").size()
+        assert len(counts) == THIN_SEGMENTS and counts.between(1, 10).all()
+    if variant == "one_date":
+        assert frame["sale_date"].nunique() == 1
+    if variant == "turning_market":                   # the config's 120-month window keeps all ten years
+        assert (frame["sale_date"].max() - frame["sale_date"].min()).days > 9.5 * 365
 
 
 def test_the_oracle_is_scored_on_the_models_sales(tmp_path: Path) -> None:
     town, sales = _imported(tmp_path, "heavy_tails")
-    frame = sales.frame                                # type: ignore[attr-defined]
-    fit = frame[sales.in_fit(False)].reset_index(drop=True)   # type: ignore[attr-defined]
+    frame = sales.frame
+    fit = frame[sales.in_fit(False)].reset_index(drop=True)
     oracle = oracle_log_values(town, fit["parcel_id"])
     assert len(oracle) == len(fit)
     # Aligned sale by sale: reversing the sales reverses the oracle.
