@@ -847,7 +847,7 @@ THIN_SEGMENTS, THIN_SALES, THIN_UNSOLD = 40, (1, 10), (15, 60)
 THIN_SHIFT_SD = 0.10                       # thin: sd of each thin segment's own log-value shift
 ONE_DATE = np.datetime64("2025-10-01", "D")
 TURN_START = np.datetime64("2016-01-01", "D")   # turning_market: ten years of sales
-TURN_PEAK, TURN_CURVATURE = -3.0, 0.01     # log index = -c (t - peak)^2 + c peak^2: +49 % over 7 years, -9 % after
+TURN_PEAK, TURN_CURVATURE = -3.0, 0.01     # log index = -c (t - peak)^2 + c peak^2: +0.49 over 7 years, -0.09 after
 MISSING_SHARE = 0.20
 MISSING_FEATURES = ("year_built", "bathrooms")  # year_built left blank; bathrooms keyed 0 (declared missing = [0])
 BINARY_FEATURES = ("basement", "pool", "fireplace", "corner_lot")
