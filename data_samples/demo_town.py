@@ -993,9 +993,8 @@ def _variant(n_parcels: int, seed: int, variant: str) -> DemoTown:
         ids, first = np.unique(sales["sale_id"].to_numpy(), return_inverse=True)
         new_dates = (TURN_START + rng.integers(0, days, ids.size))[first]
     elif variant == "missing":
-        built = np.arange(len(parcels))
-        for name in MISSING_FEATURES:
-            gone = rng.choice(built, int(round(MISSING_SHARE * len(parcels))), replace=False)
+        for name in MISSING_FEATURES:          # each feature's own fifth of the parcels, drawn independently
+            gone = rng.choice(len(parcels), int(round(MISSING_SHARE * len(parcels))), replace=False)
             if name == "year_built":
                 column = pd.array(parcels[name].to_numpy(), dtype="Int64")
                 column[gone] = pd.NA
