@@ -29,6 +29,7 @@ from reval.stats import ratio_stats
 from reval.stats.stored import load_study
 from tui import keys
 from tui.app import RevalApp
+from tui.format import feature_label
 from tui.jobs import JobProgressed
 from tui.plot import braille
 from tui.screens.help import HelpScreen, keys_table
@@ -153,7 +154,7 @@ def test_drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path) -
 
 async def _drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path) -> None:
     config = load_config(fitted_demo)
-    names = [f.name for f in config.features]
+    names = [feature_label(f.name, f.unit) for f in config.features]   # "living area (sq ft)"
     app = RevalApp(fitted_demo)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
@@ -163,13 +164,13 @@ async def _drill_in_pages_through_the_curves_in_feature_order(fitted_demo: Path)
         screen = app.screen
         assert isinstance(screen, SegmentScreen) and screen.segment == segment
         title = screen.query_one("#curve-title", Static)
-        assert str(title.render()).startswith(f"{names[0]} (1 of {len(names)}")
+        assert str(title.render()).startswith(f"{names[0]} · 1 of {len(names)}")
         await pilot.press("right_square_bracket")
-        assert str(title.render()).startswith(f"{names[1]} (2 of")
+        assert str(title.render()).startswith(f"{names[1]} · 2 of")
         await pilot.press("n")
-        assert str(title.render()).startswith(f"{names[2]} (3 of")
+        assert str(title.render()).startswith(f"{names[2]} · 3 of")
         await pilot.press("left_square_bracket", "p", "p")
-        assert str(title.render()).startswith(f"{names[-1]} ({len(names)} of")
+        assert str(title.render()).startswith(f"{names[-1]} · {len(names)} of")
         # the sales tab: its page counter follows the core's sales count, and ] stays within the pages
         await pilot.press("5")
         await settle(pilot)
