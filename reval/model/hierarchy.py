@@ -44,6 +44,7 @@ from reval.model.structure import LOO, Choice, Smooth, candidate_smooths, choose
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
+INNER_FOLDS = 5  # inner cross-validation of the structure choice (common practice: 5 or 10 folds)
 Progress = Callable[[int, int], None]
 
 
@@ -357,8 +358,14 @@ def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray
     choices: list[Choice] = []
     if settings.max_smooths > 0:
         base = PenalisedLS(lambdas=main.lambdas_).fit(spec.blocks(Xi, pairs) + [location], y)
-        smooths, choices = choose_smooths(base, spec, Xi, candidate_smooths(spec, Xi, settings.n_basis_segment),
-                                          settings.max_smooths, GAMMA)
+        inner = fold_ids(len(y), segment, settings.seed + 1, INNER_FOLDS)
+        found = candidate_smooths(spec, Xi, settings.n_basis_segment, pairs, settings.location_surface)
+        smooths, choices = choose_smooths(base, spec, Xi, found, settings.max_smooths, GAMMA, inner)
+        # a smooth of a pair replaces its product (whose line it holds), and the reselection may not bring it back
+        covered = {frozenset((s.a, s.b)) for s, _ in smooths}
+        keep = [i for i, c in enumerate(candidates) if frozenset(c) not in covered]
+        candidates, products = [candidates[i] for i in keep], products[:, keep]
+        pairs = tuple(p for p in pairs if frozenset(p) not in covered)
 
     def full_fit(chosen: tuple[Pair, ...]) -> PenalisedLS:
         blocks = spec.blocks(Xi, chosen) + [location] + [s.block(spec, Xi) for s, _ in smooths]

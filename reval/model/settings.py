@@ -24,6 +24,14 @@ def _candidates(value: Any, key: str) -> str | Pairs:
     return tuple((a, b) for a, b in value)
 
 
+def _surface(value: Any, key: str) -> tuple[str, ...]:
+    """No features, or two different feature names."""
+    ok = isinstance(value, (list, tuple)) and len(value) in (0, 2) and all(isinstance(n, str) for n in value)
+    if not ok or (len(value) == 2 and value[0] == value[1]):
+        raise Invalid(key, f"expected two different feature names (or none), got {toml_value(value)}")
+    return tuple(value)
+
+
 @dataclass(frozen=True)
 class ModelSettings(Declared):
     """Modelling choices shared by every segment of a run."""
@@ -44,6 +52,10 @@ class ModelSettings(Declared):
     max_smooths: int = setting(4, "at most this many smooth interactions (a curve per level of a yes/no or "
                                "categorical feature, or a surface of two continuous features) enter the jurisdiction "
                                "model, each only when it lowers GCV (0 = none)", lo=0, hi=20)
+    location_surface: tuple[str, ...] = setting(
+        (), "two continuous features that place a parcel (e.g. latitude and longitude): a smooth surface of them is a "
+        "candidate term of the jurisdiction model, entering only when it pays", check=_surface,
+        type_text="[] or two feature names", example=("latitude", "longitude"))
     alpha: float = setting(0.05, "significance level of the interaction selection (familywise under lasso, "
                            "per test under significance)", lo=0, hi=1, lo_open=True, hi_open=True)
     min_sales_own_selection: int = setting(60, "fewer sales: the segment inherits its parent's interactions", lo=1)
