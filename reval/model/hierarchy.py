@@ -360,7 +360,8 @@ def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray
         base = PenalisedLS(lambdas=main.lambdas_).fit(spec.blocks(Xi, pairs) + [location], y)
         inner = fold_ids(len(y), segment, settings.seed + 1, INNER_FOLDS)
         found = candidate_smooths(spec, Xi, settings.n_basis_segment, pairs, settings.location_surface)
-        smooths, choices = choose_smooths(base, spec, Xi, found, settings.max_smooths, GAMMA, inner)
+        smooths, choices = choose_smooths(base, spec, Xi, found, settings.max_smooths, GAMMA, inner,
+                                          settings.alpha)
         # a smooth of a pair replaces its product (whose line it holds), and the reselection may not bring it back
         covered = {frozenset((s.a, s.b)) for s, _ in smooths}
         keep = [i for i, c in enumerate(candidates) if frozenset(c) not in covered]

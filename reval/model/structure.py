@@ -44,6 +44,7 @@ from typing import Literal, Sequence
 
 import numpy as np
 from scipy.linalg import cho_factor, cho_solve
+from scipy.stats import norm
 
 from reval.model.design import Block, DesignSpec, sum_to_zero_basis
 from reval.model.interactions import DF_PER_CANDIDATE
@@ -53,6 +54,7 @@ from reval.model.splines import bspline_basis, difference_matrix
 TENSOR_BASIS = 5  # basis functions per margin of a tensor smooth (mgcv's default for te/ti; Wood 2017, from memory)
 SmoothKind = Literal["by", "tensor"]
 GCV = "GCV"
+FoldPart = tuple[np.ndarray, np.ndarray, np.ndarray]  # an inner fold's rows, its X'WX and X'W target
 INNER_CV = "inner 5-fold mean |error|"
 LOO = "mean |leave-one-out residual|"
 
@@ -257,9 +259,9 @@ def _scales(ztz: np.ndarray, pens: Sequence[np.ndarray]) -> list[float]:
     return [size / max(float(np.linalg.norm(s)), 1e-300) for s in pens]
 
 
-def _fold_parts(X: np.ndarray, target: np.ndarray, w: np.ndarray, folds: np.ndarray) -> list[tuple[np.ndarray, ...]]:
+def _fold_parts(X: np.ndarray, target: np.ndarray, w: np.ndarray, folds: np.ndarray) -> list[FoldPart]:
     """Per inner fold: its rows, and their X'WX and X'W target (subtracted from the whole to leave the fold out)."""
-    out = []
+    out: list[FoldPart] = []
     for k in np.unique(folds):
         rows = np.flatnonzero(folds == k)
         xw = X[rows] * w[rows, None]
@@ -267,10 +269,10 @@ def _fold_parts(X: np.ndarray, target: np.ndarray, w: np.ndarray, folds: np.ndar
     return out
 
 
-def _augmented(parts: list[tuple[np.ndarray, ...]], X: np.ndarray, Z: np.ndarray, target: np.ndarray,
-               w: np.ndarray) -> list[tuple[np.ndarray, ...]]:
+def _augmented(parts: list[FoldPart], X: np.ndarray, Z: np.ndarray, target: np.ndarray,
+               w: np.ndarray) -> list[FoldPart]:
     """The fold parts of the design [X, Z] from those of X."""
-    out = []
+    out: list[FoldPart] = []
     for rows, gram, xty in parts:
         zw = Z[rows] * w[rows, None]
         cross = X[rows].T @ zw
@@ -278,7 +280,7 @@ def _augmented(parts: list[tuple[np.ndarray, ...]], X: np.ndarray, Z: np.ndarray
     return out
 
 
-def _held_out(cur: _Current, parts: list[tuple[np.ndarray, ...]]) -> np.ndarray:
+def _held_out(cur: _Current, parts: list[FoldPart]) -> np.ndarray:
     """Each row's residual when its inner fold is left out of the fit, at the current penalties."""
     out = np.empty(len(cur.target))
     p = cur.gram.shape[0]
@@ -291,8 +293,8 @@ def _held_out(cur: _Current, parts: list[tuple[np.ndarray, ...]]) -> np.ndarray:
 
 
 def choose_smooths(base: PenalisedLS, spec: DesignSpec, X: np.ndarray, candidates: Sequence[Smooth],
-                   max_terms: int, gamma: float,
-                   folds: np.ndarray) -> tuple[list[tuple[Smooth, tuple[float, ...]]], list[Choice]]:
+                   max_terms: int, gamma: float, folds: np.ndarray,
+                   alpha: float = 0.05) -> tuple[list[tuple[Smooth, tuple[float, ...]]], list[Choice]]:
     """Forward selection of smooth terms on top of a fitted smoother (its design, weights and penalties held): the
     terms chosen with the penalties (lambdas) they entered at, and every candidate's figures per round.
 
@@ -312,8 +314,8 @@ def choose_smooths(base: PenalisedLS, spec: DesignSpec, X: np.ndarray, candidate
     Z_all = np.hstack([b.columns for b in blocks]) if blocks else np.zeros((len(w), 0))
     xtz_all = design.T @ (Z_all * w[:, None])
     cur = _Current(design, penalty, base.gram_, base.xty_, base.target_, w, gamma)
-    parts = _fold_parts(design, base.target_, w, folds)
-    error = np.abs(_held_out(cur, parts))
+    parts: list[FoldPart] = []  # computed when a candidate first passes GCV
+    error = np.zeros(0)
     log: list[Choice] = []
     chosen: list[tuple[Smooth, tuple[float, ...]]] = []
     left = list(range(len(blocks)))
@@ -337,10 +339,14 @@ def choose_smooths(base: PenalisedLS, spec: DesignSpec, X: np.ndarray, candidate
             xtz = xtz_all[:, widths[best]:widths[best + 1]]
             new = _Current(np.hstack([cur.X, Z]), new_penalty, np.block([[cur.gram, xtz], [xtz.T, ztz]]),
                            np.concatenate([cur.xtr, wz.T @ cur.target]), cur.target, w, gamma)
+            if not parts:
+                parts = _fold_parts(cur.X, cur.target, w, folds)
+                error = np.abs(_held_out(cur, parts))
             new_parts = _augmented(parts, cur.X, Z, cur.target, w)
             new_error = np.abs(_held_out(new, new_parts))
             gain = error - new_error
-            enters = bool(gain.mean() > gain.std(ddof=1) / np.sqrt(len(gain)))
+            z = gain.mean() / max(gain.std(ddof=1) / np.sqrt(len(gain)), 1e-300)
+            enters = bool(z > norm.ppf(1 - alpha))
             log += [Choice(step, "smooth interactions", "(none further)", INNER_CV, float(error.mean()), not enters),
                     Choice(step, "smooth interactions", candidates[best].term, INNER_CV, float(new_error.mean()),
                            enters)]
