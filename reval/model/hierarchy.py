@@ -20,6 +20,10 @@ each segment, on its own deviation's leave-one-out residuals, was measured sligh
 (docs/model.md, section 7). A sale of weight below RANGE_WEIGHT spans no layer's curves (`_counted`). Shape rules
 (reval/model/shape.py) act on each layer with its parents' curves held fixed, so the total curve obeys them. All
 of it is redone inside every fold.
+
+Structure (reval/model/structure.py): on top of the pairs, smooth interactions (curves per level of a factor, surfaces)
+enter the jurisdiction layer when GCV and an inner cross-validation on the training sales say they pay, and
+`loss = "auto"` picks Huber's loss or least squares by the leave-one-out error; the deviations keep product pairs only.
 """
 
 from __future__ import annotations

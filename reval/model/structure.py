@@ -170,7 +170,7 @@ def candidate_smooths(spec: DesignSpec, X: np.ndarray, n_basis: int, pairs: Sequ
     the product), and the location surface (the two features of `surface`).
 
     Tensor smooths of every continuous pair were measured and rejected: on Ames they stood in for the segments'
-    own curves and raised the out-of-fold COD from 7.64 to 7.78 (docs/model.md, section 8); refitting selected
+    own curves and raised the out-of-fold COD from 7.64 to 7.78 (docs/model.md, section 11); refitting selected
     pairs as 2-D smooths and a location surface were the measured gains (docs/model.md, section 1)."""
     for name in surface:
         if name not in spec.names:

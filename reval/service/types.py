@@ -165,6 +165,7 @@ class SegmentDetail(TypedDict):
     equity: Equity
     value_change: ValueChange | None
     reference_accuracy: list[Record]
+    structure: str  # what the run's model chose by evidence, in words ("" before the first run)
     state: BatchState | None
     batches: str
     review: SegmentReview | None
