@@ -43,7 +43,7 @@ from dataclasses import dataclass
 from typing import Literal, Sequence
 
 import numpy as np
-from scipy.linalg import cho_factor, cho_solve
+from scipy.linalg import block_diag, cho_factor, cho_solve
 from scipy.stats import norm
 
 from reval.model.design import Block, DesignSpec, sum_to_zero_basis
@@ -126,22 +126,18 @@ class Smooth:
         return (ma[:, :, None] * mb[:, None, :]).reshape(len(T), -1)
 
     def penalties(self) -> tuple[tuple[np.ndarray, np.ndarray], ...]:
-        """(matrix, root) of every penalty, each placed in the term's columns."""
+        """(matrix, root) of every penalty over the term's columns. A by term has two, shared by its levels: the
+        wiggle of every level's curve and the straight line each leaves free (one smoothing multiplier each, as
+        mgcv's factor-smooth interaction "fs" shares them; Wood 2017, section 5.8, from memory): fewer penalties
+        for GCV to search, and a thin level borrows its smoothness from the others."""
         d = difference_matrix(self.n_basis, 2)
         if self.kind == "by":
-            width = sum(z.shape[1] for z in self.bases)
-            out, start = [], 0
-            for z in self.bases:
-                cols = slice(start, start + z.shape[1])
-                root = z.T @ d.T
+            roots = [z.T @ d.T for z in self.bases]
+            lines = []
+            for root in roots:
                 vals, vecs = np.linalg.eigh(root @ root.T)
-                line = vecs[:, vals < 1e-9 * max(float(vals.max()), 1.0)]  # the straight line the wiggle leaves free
-                for r in (root, line):
-                    placed = np.zeros((width, r.shape[1]))
-                    placed[cols] = r
-                    out.append((placed @ placed.T, placed))
-                start += z.shape[1]
-            return tuple(out)
+                lines.append(vecs[:, vals < 1e-9 * max(float(vals.max()), 1.0)])  # the line the wiggle leaves free
+            return tuple((r @ r.T, r) for r in (block_diag(*roots), block_diag(*lines)))
         ra, rb = (z.T @ d.T for z in self.bases)
         ia, ib = np.eye(ra.shape[0]), np.eye(rb.shape[0])
         return tuple((root @ root.T, root) for root in (np.kron(ra, ib), np.kron(ia, rb)))
