@@ -55,7 +55,7 @@ class ModelSettings(Declared):
     location_surface: tuple[str, ...] = setting(
         (), "two continuous features that place a parcel (e.g. latitude and longitude): a smooth surface of them is a "
         "candidate term of the jurisdiction model, entering only when it pays", check=_surface,
-        type_text="[] or two feature names", example=("latitude", "longitude"))
+        type_text="[] or two feature names")
     alpha: float = setting(0.05, "significance level of the interaction selection (familywise under lasso, "
                            "per test under significance)", lo=0, hi=1, lo_open=True, hi_open=True)
     min_sales_own_selection: int = setting(60, "fewer sales: the segment inherits its parent's interactions", lo=1)
