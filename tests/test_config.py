@@ -47,7 +47,7 @@ def test_shape_rules_and_the_loss_are_read(tmp_path: Path) -> None:
     loaded = load_config(write_project(tmp_path / "p", config=config + '\n[model]\nloss = "squared"\nhuber_k = 2\n'))
     assert [f.shape for f in loaded.features] == ["increasing", "decreasing", "free"]
     assert loaded.model.loss == "squared" and loaded.model.huber_k == 2.0
-    assert load_config(write_project(tmp_path / "q")).model.loss == "huber"  # the default
+    assert load_config(write_project(tmp_path / "q")).model.loss == "auto"  # the default: chosen by evidence
 
 
 @pytest.mark.parametrize("old,new,key,fragment", [
@@ -116,7 +116,9 @@ BOUNDS = [
     ('[model]\ninteraction_rule = "ridge"', "model.interaction_rule", 'one of "lasso"'),
     ('[model]\ninteraction_candidates = [["a", "a"]]', "model.interaction_candidates", "pairs"),
     ("[model]\ncolour = 1", "model.colour", "unknown key"),
-    ('[model]\nloss = "absolute"', "model.loss", 'one of "huber"'),
+    ('[model]\nloss = "absolute"', "model.loss", 'one of "auto", "huber"'),
+    ('[model]\nlocation_surface = ["latitude"]', "model.location_surface", "two different feature names"),
+    ('[model]\nlocation_surface = ["x", "x"]', "model.location_surface", "two different feature names"),
     ("[model]\nhuber_k = 0", "model.huber_k", "greater than 0"),
     ("[standards]\ncod_limit = 3", "standards.cod_limit", "unknown key"),
     ("[standards]\nprd = [1.03, 0.98]", "standards.prd", "low <= high"),
@@ -342,3 +344,8 @@ def test_init_refuses_a_name_that_is_not_text(tmp_path: Path) -> None:
     done = run_reval("init", str(tmp_path / "p"), "--name", b"caf\xe9")
     assert done.returncode == 1 and "jurisdiction name" in done.stderr and "Traceback" not in done.stderr
     assert not (tmp_path / "p" / "reval.toml").exists()
+
+
+def test_the_location_surface_must_name_two_declared_continuous_features(tmp_path: Path) -> None:
+    error = _refused(write_project(tmp_path / "p", config=SMALL_CONFIG + '\n[model]\nlocation_surface = ["living_area", "garage"]\n'))
+    assert error.key == "model.location_surface" and "'garage' is not a declared continuous feature" in error.problem

@@ -602,6 +602,27 @@ def test_reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_dem
     asyncio.run(_reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_demo))
 
 
+async def _reference_tab_says_what_the_fit_chose_by_evidence(fitted_demo: Path) -> None:
+    stored = query_frame(fitted_demo, "SELECT candidate FROM run_structure WHERE run_id = ? AND choice = 'loss' AND chosen",
+                         [PINNED_RUN])
+    assert len(stored) == 1
+    name = oof_study(fitted_demo)["groups"][0]["group"]
+    app = RevalApp(fitted_demo)
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot)
+        await go_to(pilot, name)
+        await pilot.press("enter")
+        await settle(pilot)
+        await pilot.press("6")
+        shown = str(app.screen.query_one("#reference-title", Static).render())
+    assert "Chosen on the training sales by evidence" in shown
+    assert f"loss {stored['candidate'][0]}" in shown
+
+
+def test_reference_tab_says_what_the_fit_chose_by_evidence(fitted_demo: Path) -> None:
+    asyncio.run(_reference_tab_says_what_the_fit_chose_by_evidence(fitted_demo))
+
+
 async def _reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_demo: Path) -> None:
     # The finding: the tab said "on the same folds" but scored reval on the ratio study's trimmed sales and
     # the references on all of them (10.4 vs 13.0 COD on identical RMSE and median). Take the segment whose

@@ -262,6 +262,10 @@ def compare(result: dict[str, Any], console: Console) -> None:
         if importance:
             records_table(f"What the {model_name} reference relies on (permutation importance: rise in RMSE of "
                           "log price when the feature is shuffled)", importance, console)
+    structure = [{**r, "chosen": "chosen" if r["chosen"] else ""} for r in result["structure"]]
+    records_table("Structure our model chose on the training sales (smooth interactions: lowest GCV, confirmed by "
+                  "inner cross-validation; loss: lowest mean absolute leave-one-out residual; lower is better)",
+                  structure, console)
 
 
 # ---- the value roll --------------------------------------------------------------------------------------------

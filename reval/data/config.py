@@ -527,12 +527,18 @@ def load_config(path: Path | str) -> Config:
 
 
 def _check_across(sections: dict[str, Any]) -> None:
-    """Checks between sections: required features must be declared; land-valued classes need a land schedule."""
+    """Checks between sections: required features and the location surface's must be declared; land-valued classes
+    need a land schedule."""
     names = {f.name for f in sections["features"]}
     unknown = [n for n in sections["sales"].require_features if n not in names]
     if unknown:
         raise Invalid("sales.require_features", f"'{unknown[0]}' is not a declared feature "
                       f"(features: {', '.join(sorted(names)) or 'none'})")
+    kinds = {f.name: f.kind for f in sections["features"]}
+    for n in sections["model"].location_surface:
+        if kinds.get(n) != "continuous":
+            raise Invalid("model.location_surface", f"'{n}' is not a declared continuous feature "
+                          f"(continuous features: {', '.join(sorted(k for k, v in kinds.items() if v == 'continuous')) or 'none'})")
     if sections["classes"].land_schedule and sections["assessment"].land_schedule is None:
         raise Invalid("classes.land_schedule", "classes valued by the land schedule need assessment.land_schedule")
 

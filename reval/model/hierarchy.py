@@ -20,6 +20,10 @@ each segment, on its own deviation's leave-one-out residuals, was measured sligh
 (docs/model.md, section 7). A sale of weight below RANGE_WEIGHT spans no layer's curves (`_counted`). Shape rules
 (reval/model/shape.py) act on each layer with its parents' curves held fixed, so the total curve obeys them. All
 of it is redone inside every fold.
+
+Structure (reval/model/structure.py): on top of the pairs, smooth interactions (curves per level of a factor, surfaces)
+enter the jurisdiction layer when GCV and an inner cross-validation on the training sales say they pay, and
+`loss = "auto"` picks Huber's loss or least squares by the leave-one-out error; the deviations keep product pairs only.
 """
 
 from __future__ import annotations
@@ -40,9 +44,11 @@ from reval.model.settings import ModelSettings
 from reval.model.penalised import PenalisedLS, column_slices, stack
 from reval.model.robust import Huber, Refined, refine
 from reval.model.shape import Layer, shape_constraint
+from reval.model.structure import LOO, Choice, Smooth, candidate_smooths, choose_smooths, loo_criterion
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
+INNER_FOLDS = 5  # inner cross-validation of the structure choice (common practice: 5 or 10 folds)
 Progress = Callable[[int, int], None]
 
 
@@ -59,39 +65,59 @@ class LevelFit:
     penalty_terms: tuple[str, ...]
     edf: float
     n: int
+    smooths: tuple[Smooth, ...] = ()  # two-feature smooth terms (reval.model.structure), jurisdiction only
 
     @classmethod
     def fit(cls, spec: DesignSpec, pairs: Sequence[Pair], X: np.ndarray, y: np.ndarray, offset: np.ndarray | None,
-            weights: np.ndarray, parents: Sequence[Layer] = ()) -> tuple[LevelFit, PenalisedLS]:
+            weights: np.ndarray, parents: Sequence[Layer] = (),
+            smooths: Sequence[Smooth] = ()) -> tuple[LevelFit, PenalisedLS]:
         """Fit at the given row weights with GCV-chosen penalties, the total curve over `parents` + this layer held
         to the shape rules; also return the smoother (its factorisation serves selection)."""
-        blocks = spec.blocks(X, pairs)
+        blocks = spec.blocks(X, pairs) + [s.block(spec, X) for s in smooths]
         constraint = shape_constraint(spec, *column_slices(blocks), parents)
         smoother = PenalisedLS(gamma=GAMMA).fit(blocks, y, offset, weights, constraint)
         level = cls(spec, tuple(pairs), smoother.coef_, smoother.cov_, smoother.slices_, smoother.lambdas_,
-                    tuple(smoother.penalty_terms_), smoother.edf_, smoother.n_)
+                    tuple(smoother.penalty_terms_), smoother.edf_, smoother.n_, tuple(smooths))
         return level, smoother
 
     @property
     def n_columns(self) -> int:
         return int(self.coef.shape[0])
 
+    def blocks(self, X: np.ndarray) -> list[Block]:
+        return self.spec.blocks(X, self.pairs) + [s.block(self.spec, X) for s in self.smooths]
+
     def predict(self, X: np.ndarray) -> np.ndarray:
-        design, _, _ = stack(self.spec.blocks(X, self.pairs))
+        design, _, _ = stack(self.blocks(X))
         return design @ self.coef
 
     def contributions(self, X: np.ndarray) -> dict[str, np.ndarray]:
-        return {b.term: b.columns @ self.coef[self.slices[b.term]] for b in self.spec.blocks(X, self.pairs)}
+        return {b.term: b.columns @ self.coef[self.slices[b.term]] for b in self.blocks(X)}
+
+    def _smooth_values(self, smooth: Smooth, X: np.ndarray) -> np.ndarray:
+        return smooth.columns(self.spec, X) @ self.coef[self.slices[smooth.term]]
 
     def contributions_from(self, X: np.ndarray, R: np.ndarray) -> dict[str, np.ndarray]:
         """Each term's part of rows X measured from reference rows R (imputed, same shape); they add up to
         predict(X) - predict(R). A main term: its part at X minus at R. A product c za zb of standardised
         features splits around the reference (za0, zb0): the pair keeps c (za - za0)(zb - zb0) and a and b
         get c zb0 (za - za0) and c za0 (zb - zb0), so a feature at its reference value contributes nothing,
-        to its own term or to a pair (the functional ANOVA split at a point; docs/model.md)."""
+        to its own term or to a pair (the functional ANOVA split at a point; docs/model.md). A smooth term h(a, b)
+        splits the same way: the pair keeps h(a, b) - h(a0, b) - h(a, b0) + h(a0, b0), a gets h(a, b0) - h(a0, b0)
+        and b gets h(a0, b) - h(a0, b0)."""
         at_x, at_r = self.contributions(X), self.contributions(R)
-        pairs = {f"{a}:{b}" for a, b in self.pairs}
+        pairs = {f"{a}:{b}" for a, b in self.pairs} | {s.term for s in self.smooths}
         out = {t: at_x[t] - at_r[t] for t in at_x if t != INTERCEPT and t not in pairs}
+        for smooth in self.smooths:
+            ia, ib = self.spec.index(smooth.a), self.spec.index(smooth.b)
+            a_at_ref, b_at_ref = X.copy(), X.copy()
+            a_at_ref[:, ia], b_at_ref[:, ib] = R[:, ia], R[:, ib]
+            h_x, h_r = at_x[smooth.term], at_r[smooth.term]
+            h_a0 = self._smooth_values(smooth, a_at_ref)
+            h_b0 = self._smooth_values(smooth, b_at_ref)
+            out[smooth.term] = h_x - h_a0 - h_b0 + h_r
+            out[smooth.a] = out.get(smooth.a, 0.0) + h_b0 - h_r
+            out[smooth.b] = out.get(smooth.b, 0.0) + h_a0 - h_r
         if self.pairs:
             zx, zr = self.spec.standardised(X), self.spec.standardised(R)
             for a, b in self.pairs:
@@ -300,14 +326,28 @@ def _rows_by(labels: np.ndarray) -> dict[str, np.ndarray]:
     return dict(zip(names.tolist(), np.split(order, np.cumsum(np.bincount(codes, minlength=len(names)))[:-1])))
 
 
+@dataclass(frozen=True)
+class Screened:
+    """What the screening model decided: the product pairs, the smooth terms (with the penalties they entered at),
+    the sales' weights and the figures of every choice made by evidence (reval.model.structure)."""
+
+    pairs: tuple[Pair, ...]
+    smooths: tuple[tuple[Smooth, tuple[float, ...]], ...]
+    screen: Refined
+    choices: tuple[Choice, ...]
+
+
 def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray, candidates: Sequence[Pair],
-            settings: ModelSettings, huber: Huber | None, fixed: np.ndarray) -> tuple[tuple[Pair, ...], Refined]:
-    """The jurisdiction's interactions and every sale's starting weight, from the main effects + segment levels.
+            settings: ModelSettings, fixed: np.ndarray) -> Screened:
+    """The jurisdiction's interactions, its loss and every sale's starting weight, from the main effects + segment
+    levels.
 
     Weights judged on a model without a true interaction would down-weight exactly the sales that show it
-    (on the demo, the large waterfront lots), so pairs are selected first, the weights come from main effects +
-    segment levels + those pairs (at the main effects' penalties), and the selection is repeated with the weights
-    until the pairs settle (twice at most).
+    (on the demo, the large waterfront lots), so pairs and smooth terms are selected first (reval.model.structure,
+    by GCV on top of the main effects + segment levels + pairs), the weights come from all of them (at the
+    main effects' penalties), and the pair selection is repeated with the weights until the pairs settle (twice at
+    most). Under loss "auto" the robust and the squared fit of that model are compared by their mean absolute
+    leave-one-out residual.
     """
     products = spec.products(Xi, candidates)
     location = _location_block(segment)
@@ -318,17 +358,46 @@ def _screen(spec: DesignSpec, Xi: np.ndarray, y: np.ndarray, segment: np.ndarray
                                          max_interactions=settings.max_interactions, alpha=settings.alpha))
 
     pairs = select(main)
-    if huber is None:
-        return pairs, Refined(main, np.ones(len(y)), main.resid_, float("nan"), 0)
+    smooths: list[tuple[Smooth, tuple[float, ...]]] = []
+    choices: list[Choice] = []
+    if settings.max_smooths > 0:
+        base = PenalisedLS(lambdas=main.lambdas_).fit(spec.blocks(Xi, pairs) + [location], y)
+        inner = fold_ids(len(y), segment, settings.seed + 1, INNER_FOLDS)
+        found = candidate_smooths(spec, Xi, settings.n_basis_segment, pairs, settings.location_surface)
+        smooths, choices = choose_smooths(base, spec, Xi, found, settings.max_smooths, GAMMA, inner,
+                                          settings.alpha)
+        # a smooth of a pair replaces its product (whose line it holds), and the reselection may not bring it back
+        covered = {frozenset((s.a, s.b)) for s, _ in smooths}
+        keep = [i for i, c in enumerate(candidates) if frozenset(c) not in covered]
+        candidates, products = [candidates[i] for i in keep], products[:, keep]
+        pairs = tuple(p for p in pairs if frozenset(p) not in covered)
+
+    def full_fit(chosen: tuple[Pair, ...]) -> PenalisedLS:
+        blocks = spec.blocks(Xi, chosen) + [location] + [s.block(spec, Xi) for s, _ in smooths]
+        lambdas = np.concatenate([main.lambdas_, *[np.asarray(lam) for _, lam in smooths]])
+        return PenalisedLS(lambdas=lambdas).fit(blocks, y, constraint=shape_constraint(spec, *column_slices(blocks)))
+
+    unweighted = Refined(main, np.ones(len(y)), main.resid_, float("nan"), 0)
+    if settings.loss == "squared":
+        return Screened(pairs, tuple(smooths), unweighted, tuple(choices))
+    huber = Huber(settings.huber_k)
+    squared_pairs, squared = pairs, full_fit(pairs)
     for attempt in range(2):
-        blocks = spec.blocks(Xi, pairs) + [location]
-        full = PenalisedLS(lambdas=main.lambdas_).fit(blocks, y, constraint=shape_constraint(spec, *column_slices(blocks)))
+        full = squared if attempt == 0 else full_fit(pairs)
         screen = refine(full, huber, fixed=fixed)
         again = select(main.refit(screen.weights)) if attempt == 0 else pairs
         if again == pairs:
             break
         pairs = again
-    return pairs, screen
+    if settings.loss == "auto":
+        robust_value, squared_value = loo_criterion(screen.smoother, screen.residual), loo_criterion(squared)
+        robust_wins = robust_value <= squared_value
+        step = 1 + max((c.step for c in choices), default=0)
+        choices += [Choice(step, "loss", "huber", LOO, robust_value, robust_wins),
+                    Choice(step, "loss", "squared", LOO, squared_value, not robust_wins)]
+        if not robust_wins:
+            return Screened(squared_pairs, tuple(smooths), unweighted, tuple(choices))
+    return Screened(pairs, tuple(smooths), screen, tuple(choices))
 
 
 def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray, features: Sequence[Feature],
@@ -336,19 +405,22 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
          progress: Progress | None) -> FittedHierarchy:
     first = DesignSpec.learn(X, features, settings.n_basis_parent)
     candidates = candidate_pairs(features, settings.interaction_candidates)
-    huber = Huber(settings.huber_k) if settings.loss == "huber" else None
-    pairs, screen = _screen(first, first.impute(X), y, segment, candidates, settings, huber, fixed)
+    screened = _screen(first, first.impute(X), y, segment, candidates, settings, fixed)
+    pairs, screen = screened.pairs, screened.screen
     weights = screen.weights
-    spec = DesignSpec.learn(X[_counted(weights)], features, settings.n_basis_parent) if huber else first
+    spec = DesignSpec.learn(X[_counted(weights)], features, settings.n_basis_parent) if np.any(weights < 1) else first
     Xi = spec.impute(X)
-    top, _ = LevelFit.fit(spec, pairs, Xi, y, None, weights)
+    counted = Xi[_counted(weights)]
+    smooths = [found for s, _ in screened.smooths
+               if (found := Smooth.learn(s.kind, s.a, s.b, spec, counted, s.n_basis)) is not None]
+    top, _ = LevelFit.fit(spec, pairs, Xi, y, None, weights, smooths=smooths)
     inner = fold_ids(len(y), segment, settings.seed + 1, offset_folds) if offset_folds else None
 
     def offset_of(level: LevelFit, rows: np.ndarray, base: np.ndarray | None) -> np.ndarray:
         """The level's predictions on its own rows: in-sample, or cross-fitted over the inner folds."""
         if inner is None:
             return level.predict(Xi[rows])
-        blocks = level.spec.blocks(Xi[rows], level.pairs)
+        blocks = level.blocks(Xi[rows])
         return _crossfit(blocks, y[rows], None if base is None else base[rows], level.lambdas, inner[rows],
                          weights[rows])
 
@@ -378,7 +450,7 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
         if name not in fitted:
             fitted[name] = SegmentFit(name, area, 0, "parent_only", NO_SALES, None)
     return FittedHierarchy(tuple(features), spec, top, areas, fitted,
-                           SaleWeights(weights, screen.residual, screen.scale))
+                           SaleWeights(weights, screen.residual, screen.scale), screened.choices)
 
 
 def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
@@ -417,6 +489,7 @@ class FittedHierarchy:
     market_areas: dict[str, LevelFit]
     segments: dict[str, SegmentFit]
     sale_weights: SaleWeights | None = None  # the training sales' weights (None for a model built by hand)
+    choices: tuple[Choice, ...] = ()  # the structure chosen by evidence and every candidate's figure
 
     # ---------------------------------------------------------------- routing
     def _chain(self, segment: str, market_area: str) -> tuple[list[LevelFit], str]:

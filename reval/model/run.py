@@ -129,6 +129,7 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
         store.insert("insert_reference_accuracy", accuracy.assign(run_id=run_id))
         store.insert("insert_feature_importance", importance.assign(run_id=run_id))
         store.insert("insert_run_features", fills.assign(run_id=run_id))
+        store.insert("insert_run_structure", structure_frame(model, run_id))
         downweighted = int((weights["weight"] < 1).sum())
         record_event(con, "fit", {"sales": len(y), "parcels": len(parcels), "timings": timings,
                                   "downweighted_sales": downweighted, "config_sha256": config.sha256}, run_id=run_id)
@@ -143,6 +144,15 @@ def fit_run(store: Store, config: Config, progress: Progress | None = None, jobs
             "filled_in": {str(r.feature): {"parcels": int(r.n_filled), "value": fill_text(features[int(r.position)],
                                                                                           float(r.fill_value))}
                           for r in fills.itertuples()}}
+
+
+def structure_frame(model: FittedHierarchy, run_id: str) -> pd.DataFrame:
+    """The structure the model chose by evidence, one row per candidate and criterion (run_structure); a criterion
+    that cannot be computed (no residual degrees of freedom) is stored as missing."""
+    rows = [dataclasses.asdict(c) for c in model.choices]
+    frame = pd.DataFrame(rows, columns=["step", "choice", "candidate", "criterion", "value", "chosen"])
+    frame["value"] = frame["value"].astype(float).where(np.isfinite(frame["value"].astype(float)))
+    return frame.assign(run_id=run_id)
 
 
 def fill_text(feature: FeatureSpec, value: float) -> str:

@@ -24,6 +24,14 @@ def _candidates(value: Any, key: str) -> str | Pairs:
     return tuple((a, b) for a, b in value)
 
 
+def _surface(value: Any, key: str) -> tuple[str, ...]:
+    """No features, or two different feature names."""
+    ok = isinstance(value, (list, tuple)) and len(value) in (0, 2) and all(isinstance(n, str) for n in value)
+    if not ok or (len(value) == 2 and value[0] == value[1]):
+        raise Invalid(key, f"expected two different feature names (or none), got {toml_value(value)}")
+    return tuple(value)
+
+
 @dataclass(frozen=True)
 class ModelSettings(Declared):
     """Modelling choices shared by every segment of a run."""
@@ -41,6 +49,13 @@ class ModelSettings(Declared):
         "all", '"all" pairs of non-categorical features, or a list of pairs, e.g. [["living_area", "quality"]]',
         check=_candidates, type_text='"all" or a list of [a, b] pairs')
     max_interactions: int = setting(4, "at most this many interactions per model", lo=0)
+    max_smooths: int = setting(4, "at most this many smooth interactions (a curve per level of a yes/no or "
+                               "categorical feature, or a surface of two continuous features) enter the jurisdiction "
+                               "model, each only when it lowers GCV (0 = none)", lo=0, hi=20)
+    location_surface: tuple[str, ...] = setting(
+        (), "two continuous features that place a parcel (e.g. latitude and longitude): a smooth surface of them is a "
+        "candidate term of the jurisdiction model, entering only when it pays", check=_surface,
+        type_text="[] or two feature names")
     alpha: float = setting(0.05, "significance level of the interaction selection (familywise under lasso, "
                            "per test under significance)", lo=0, hi=1, lo_open=True, hi_open=True)
     min_sales_own_selection: int = setting(60, "fewer sales: the segment inherits its parent's interactions", lo=1)
@@ -51,7 +66,8 @@ class ModelSettings(Declared):
                                     "workers, only this machine writes the project (pip install 'reval[cluster]')",
                                     pattern=(r"^(tcp|tls)://\S+:\d+$", "an address like tcp://HOST:PORT"),
                                     example="tcp://10.0.0.5:8786")
-    loss: Loss = setting("huber", '"huber": sales far from what the other sales say they are worth weigh less '
-                         '(reval/model/robust.py); "squared": every sale counts fully')
+    loss: Loss = setting("auto", '"huber": sales far from what the other sales say they are worth weigh less '
+                         '(reval/model/robust.py); "squared": every sale counts fully; "auto": whichever predicts '
+                         'the training sales left out one at a time better (reval/model/structure.py)')
     huber_k: float = setting(1.345, "Huber's constant: residuals beyond this many robust standard deviations are "
                              "down-weighted", lo=0, lo_open=True)

@@ -161,7 +161,8 @@ def fit(folder: Path, progress: Progress | None = None, jobs: int | None = None,
 
 def compare(folder: Path, run_id: str | None = None) -> CompareResult:
     """Every model's out-of-fold accuracy on the same sales and folds, per segment and overall, with display
-    names, and the permutation importance of the references that store it, for a run."""
+    names, the permutation importance of the references that store it, and the structure our model chose by
+    evidence (each candidate's criterion value), for a run."""
     from reval.model.names import named
     from reval.roll.valuation import resolve_run
 
@@ -169,8 +170,10 @@ def compare(folder: Path, run_id: str | None = None) -> CompareResult:
         run = resolve_run(store, run_id)
         rows = named(store.records("reference_accuracy_rows", [run]), group="segment")
         importance = named(store.records("feature_importance_rows", [run]))
+        structure = store.records("run_structure_rows", [run])
     return {"run_id": run, "models": list(dict.fromkeys(r["model"] for r in rows)),
-            "model_names": {r["model"]: r["model_name"] for r in rows}, "rows": rows, "importance": importance}
+            "model_names": {r["model"]: r["model_name"] for r in rows}, "rows": rows, "importance": importance,
+            "structure": structure}
 
 
 # ---- the value roll --------------------------------------------------------------------------------------------

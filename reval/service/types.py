@@ -36,13 +36,15 @@ class DemoSummary(TypedDict):
 
 class CompareResult(TypedDict):
     """Every model's out-of-fold accuracy on the same sales and folds, per segment and overall (rows carry the
-    model id and its display name), and each tree reference's permutation importance (rows per model)."""
+    model id and its display name), each tree reference's permutation importance (rows per model), and the structure
+    our model chose by evidence (step, choice, criterion, candidate, value, chosen; reval/model/structure.py)."""
 
     run_id: str
     models: list[str]
     model_names: dict[str, str]
     rows: list[Record]
     importance: list[Record]
+    structure: list[Record]
 
 
 class Event(TypedDict):
@@ -164,6 +166,7 @@ class SegmentDetail(TypedDict):
     equity: Equity
     value_change: ValueChange | None
     reference_accuracy: list[Record]
+    structure: str  # what the run's model chose by evidence, in words ("" before the first run)
     state: BatchState | None
     batches: str
     review: SegmentReview | None

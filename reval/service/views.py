@@ -332,9 +332,22 @@ def segment_detail(folder: Path, segment: str, n_bins: int = 48, max_points: int
             "equity": _equity(store, run_id, study, segment, max_points),
             "value_change": _value_change(store, run_id, segment, 24, max_points) if run_id else None,
             "reference_accuracy": named(store.records("app_reference_accuracy", [run_id, segment]), group="segment") if run_id else [],
+            "structure": structure_words(store.records("run_structure_rows", [run_id])) if run_id else "",
             "state": state, "batches": entry["summary"] if entry else "no batch",
             "review": _review(store, config, segment) if state else None,
         }
+
+
+def structure_words(rows: list[Record]) -> str:
+    """The structure a run's model chose by evidence (rows of run_structure_rows), in one sentence."""
+    terms = [r["candidate"] for r in rows if r["chosen"] and r["choice"] == "smooth interactions"
+             and r["criterion"] == "GCV" and r["candidate"] != "(none further)"]
+    loss = next((r["candidate"] for r in rows if r["chosen"] and r["choice"] == "loss"), None)
+    if not rows:
+        return ""
+    said = f"smooth interactions {', '.join(terms)}" if terms else "no smooth interaction"
+    return (f"Chosen on the training sales by evidence: {said}"
+            + (f"; loss {loss}" if loss else "") + " (`reval compare` lists every candidate's figures).")
 
 
 def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:

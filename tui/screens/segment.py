@@ -422,7 +422,8 @@ class SegmentScreen(DataScreen):
             return
         n = d["reference_accuracy"][0]["n"]
         title.update(f"Every model out of fold on the same sales ({n:,} here) and folds, none trimmed; the ratio "
-                     "study trims outliers, so its COD differs. RMSE is of log value: lower is better.")
+                     "study trims outliers, so its COD differs. RMSE is of log value: lower is better. "
+                     + d["structure"])
         table.add_columns("Model", "Scope", "n", "RMSE log", "Median", "COD", "PRD", "PRB")
         for r in d["reference_accuracy"]:
             table.add_row(*cells(r["model_name"], r["segment"], f"{r['n']:,}", number(r["rmse_log"], ".3f"),
