@@ -8,7 +8,8 @@ a repeated column name), so the rules are checked here, vectorised over the byte
 a value only at its start and closes it only at its end, every row has as many values as the header,
 column names are unique. Line numbers are physical lines of the file: a row after a quoted line break, or
 after a blank line (DuckDB skips blank lines), starts further down than its row number says, and
-`CsvLayout.lines` maps each data row to its line.
+`CsvLayout.lines` maps each data row to its line. The scan also says whether any value may have white space at
+an edge (`CsvLayout.spaced`): only then does the import pay for trimming every cell.
 """
 from __future__ import annotations
 
@@ -26,16 +27,24 @@ BLOCK = 1 << 23
 QUOTE, COMMA, NEWLINE, RETURN = 0x22, 0x2C, 0x0A, 0x0D
 UTF8_BOM = b"\xef\xbb\xbf"
 SHOWN_PER_KIND = 100        # problems of one kind listed per file (the count of the rest is reported)
+# Bytes that may be (part of) white space the import trims (reval/sql/queries/import_temp_tables.sql import_trim):
+# space, tab, line tabulation, form feed, carriage return, and the first and last bytes of a no-break space (C2 A0)
+# and of a byte-order mark (EF BB BF). A byte like these beside a separator marks the file as `spaced`; other
+# characters that share those bytes make it so too, which costs only time.
+EDGE_SPACE = np.zeros(256, dtype=bool)
+EDGE_SPACE[[0x20, 0x09, 0x0B, 0x0C, 0x0D, 0xC2, 0xA0, 0xEF, 0xBF]] = True
 
 
 @dataclass
 class CsvLayout:
     """What the scan found: the header, the number of data rows, the physical line of each data row when
-    it is not simply row number + 1 (else None), and the problems."""
+    it is not simply row number + 1 (else None), whether any value may start or end with white space, and the
+    problems."""
 
     header: list[str] = field(default_factory=list)
     rows: int = 0
     lines: np.ndarray | None = None
+    spaced: bool = True
     problems: list[DataProblem] = field(default_factory=list)
 
 
@@ -59,6 +68,7 @@ class _Scan:
         self.layout = CsvLayout()
         self.newlines = np.empty(0, np.int64)
         self.nuls: tuple[np.ndarray, int] = (self.newlines, 0)
+        self.spaced = False
 
     def problem(self, line: int, column: str, value: str | None, reason: str) -> None:
         self.layout.problems.append(DataProblem(str(self.path), line, column, value, reason))
@@ -67,6 +77,7 @@ class _Scan:
         if not self._utf8():
             return self.layout
         ends, values, quotes, odd = self._blocks()
+        self.layout.spaced = self.spaced
         starts = np.concatenate([[self.start], ends + 1])
         stops = np.concatenate([ends, [len(self.buf)]])
         if stops[-1] <= starts[-1]:                     # the file ends with a line break
@@ -138,6 +149,8 @@ class _Scan:
             quotes.append(quote + at)
             newlines.append(newline + at)
             odd, commas_before = (odd + len(quote)) % 2, commas_before + len(comma)
+            if not self.spaced:
+                self.spaced = self._spaced_beside(np.concatenate([quote, newline, comma]) + at)
             nul = np.flatnonzero(block == 0)
             nul_count += len(nul)
             if len(nul) and nul_kept < SHOWN_PER_KIND:
@@ -148,6 +161,17 @@ class _Scan:
         at_end = np.concatenate([*values, [commas_before]])
         per_row = np.diff(np.concatenate([[0], at_end])) + 1
         return (np.concatenate(ends) if ends else empty), per_row, (np.concatenate(quotes) if quotes else empty), bool(odd)
+
+    def _spaced_beside(self, separators: np.ndarray) -> bool:
+        """Whether a byte of EDGE_SPACE is next to a separator (quote, line break or comma: any cell's edge is next to
+        one, or is the file's first or last byte); before a line break, a carriage return of CRLF is looked past."""
+        buf, n = self.buf, len(self.buf)
+        before = buf[np.maximum(separators - 1, 0)]
+        past_cr = (before == RETURN) & (buf[separators] == NEWLINE)
+        before = np.where(past_cr, buf[np.maximum(separators - 2, 0)], before)
+        after = buf[np.minimum(separators + 1, n - 1)]
+        ends = buf[[self.start, n - 1]] if n > self.start else np.empty(0, np.uint8)
+        return bool(EDGE_SPACE[before].any() or EDGE_SPACE[after].any() or EDGE_SPACE[ends].any())
 
     def _header(self, starts: np.ndarray, stops: np.ndarray) -> None:
         text = bytes(self.buf[starts[0]:stops[0]]).decode("utf-8").rstrip("\r")
