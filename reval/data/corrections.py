@@ -60,17 +60,16 @@ def _checked(store: Store, config: Config, parcel_id: str, parsed: dict[str, str
     roles += [Role(SOURCE, name, "feature", name, f["kind"], f["position"], f["levels"], f["range_lo"], f["range_hi"],
                    f["log"], missing.get(name), cell) for cell, (name, f) in enumerate(
                        ((n, f) for n, f in features.items() if n in parsed), 2)]
-    stage_roles(store, roles, {})
+    stage_roles(store, roles, {}, parcels=SOURCE, sales="")
     cells = [parcel_id, *(parsed[r.name] for r in roles[1:])]
     store.run("correct_stage_cells", {"file": SOURCE, "cells": cells})
-    store.run("import_cells", [SOURCE, f"{SOURCE} (no sales)", None])
     problems = store.records("import_problems", {"today": dt.date.today(), "date_format": None,
                                                  "latest_date": config.valuation_date,
                                                  "max_amount": config.max_amount})
     if problems:
         listed = "; ".join(f"{p['column']} = {p['value']!r}: {p['reason']}" for p in problems)
         raise UserError(f"Correction of parcel {parcel_id} refused: {listed}. Nothing was changed.")
-    store.run("import_build")
+    store.run("import_build", {"date_format": None})
     return store.frame("import_new_feature_values")
 
 

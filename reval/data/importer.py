@@ -114,12 +114,16 @@ def _columns(roles: list[Role], file: str) -> list[str]:
     return [col for col, _ in sorted({(r.col, r.cell) for r in roles if r.file == file}, key=lambda pair: pair[1])]
 
 
-def stage_roles(store: Store, roles: list[Role], keys: dict[str, str]) -> None:
-    """Create the import's temporary tables and fill import_roles (each file named by its key)."""
+def stage_roles(store: Store, roles: list[Role], keys: dict[str, str], parcels: str, sales: str) -> None:
+    """Create the import's temporary tables and describe what is staged: each file (by its key) and its roles.
+    `parcels` and `sales` are the files holding them (the same one for a combined file)."""
     store.run("import_temp_tables")
+    for file in dict.fromkeys(r.file for r in roles):
+        store.run("import_insert_file", [keys.get(file, file), file == parcels, file == sales])
     for r in roles:
         store.run("import_insert_role", [keys.get(r.file, r.file), r.col, r.role, r.name, r.kind, r.position, r.levels,
                                          r.lo, r.hi, r.log, r.missing, r.cell])
+    store.run("import_cells")
 
 
 def _header(store: Store, path: Path) -> list[str]:
@@ -188,9 +192,9 @@ def _file_keys(roles: list[Role]) -> dict[str, str]:
 
 def _stage(store: Store, config: Config, roles: list[Role], layouts: dict[str, CsvLayout],
            progress: Progress | None) -> None:
-    """Read each file once into import_raw (its mapped columns only), then type the rows (import_cells)."""
+    """Read each file once into import_raw (its mapped columns only)."""
     keys = _file_keys(roles)
-    stage_roles(store, roles, keys)
+    stage_roles(store, roles, keys, str(config.parcels_file), str(config.sales_source))
     for i, (file, key) in enumerate(keys.items(), 1):
         if _is_parquet(file):
             store.run("import_stage_parquet", [key, file, _columns(roles, file)])
@@ -203,7 +207,6 @@ def _stage(store: Store, config: Config, roles: list[Role], layouts: dict[str, C
             store.con.unregister("import_line_map")
         if progress:
             progress("reading files", i, len(keys))
-    store.run("import_cells", [keys[str(config.parcels_file)], keys[str(config.sales_source)], config.date_format])
 
 
 def _write_report(problems: list[DataProblem], path: Path) -> None:
@@ -245,7 +248,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
                         for file, line, column, value, reason in found]
             _write_report(problems, report)
             raise DataErrors(problems, report)
-        store.run("import_build")
+        store.run("import_build", {"date_format": config.date_format})
         with store.transaction() as con:
             store.run("import_replace")
             counts = _counts(store)

@@ -1,5 +1,6 @@
--- The new data set, read from the checked rows (import_cells.sql) by import_replace: views, so the rows stream
--- into the tables once instead of being copied first.
+-- The new data set, read from the checked rows (import_cells.sql) by import_replace: parcels and their feature values
+-- as views, so a million rows stream into the tables once instead of being copied first; the sales as a table (their
+-- dates are read with the configured format, a bound parameter, which a view cannot hold). $date_format.
 CREATE OR REPLACE TEMP VIEW new_parcels AS
 SELECT parcel_id, segment, coalesce(market_area, 'all') AS market_area,
        coalesce(property_class, 'unclassified') AS property_class, prior_value, prior_assessed_value,
@@ -15,6 +16,6 @@ SELECT row_parcel_id AS parcel_id, position,
        END AS value
 FROM import_cells WHERE is_parcel_cell AND role = 'feature';
 
-CREATE OR REPLACE TEMP VIEW new_sales AS
-SELECT sale_id, parcel_id, sale_date, sale_price, validity, line AS source_line
+CREATE OR REPLACE TEMP TABLE new_sales AS
+SELECT sale_id, parcel_id, import_day(sale_date, $date_format) AS sale_date, sale_price, validity, line AS source_line
 FROM import_rows WHERE is_sale_row;

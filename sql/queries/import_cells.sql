@@ -1,11 +1,10 @@
--- The staged rows typed, once (import_rows: a table), and their cells one by one (import_cells: a view, streamed by
--- each query that reads it), for the checks and the build.
+-- The staged rows typed (import_rows) and their cells one by one with their roles (import_cells): views, so each
+-- query that reads them streams the staged rows once instead of copying them first.
 -- A "sale row" is a row of the sales file that carries a sale; in a combined file (parcels and sales in one file, as
 -- in research data) a row without sale date and price is an unsold parcel.
--- $1: parcels file key, $2: sales file key (equals $1 when one file holds both), $3: date format (NULL = ISO dates).
-CREATE OR REPLACE TEMP TABLE import_rows AS
+CREATE OR REPLACE TEMP VIEW import_rows AS
 WITH layout AS (    -- where each role's cell is in each file's list (NULL: the role is not mapped there)
-    SELECT file,
+    SELECT file, any_value(f.parcels) AS parcels, any_value(f.sales) AS sales,
            max(cell) FILTER (WHERE role = 'parcel_id') AS parcel_id,
            max(cell) FILTER (WHERE role = 'segment') AS segment,
            max(cell) FILTER (WHERE role = 'market_area') AS market_area,
@@ -19,11 +18,11 @@ WITH layout AS (    -- where each role's cell is in each file's list (NULL: the 
            max(cell) FILTER (WHERE role = 'sale_date') AS sale_date,
            max(cell) FILTER (WHERE role = 'sale_price') AS sale_price,
            max(cell) FILTER (WHERE role = 'sale_validity') AS sale_validity
-    FROM import_roles GROUP BY file
+    FROM import_roles JOIN import_files f USING (file) GROUP BY file
 )
 SELECT r.file, r.line, r.cells,
-       r.file = $1 AS is_parcel_row,
-       r.file = $2 AND (r.cells[l.sale_date] IS NOT NULL OR r.cells[l.sale_price] IS NOT NULL OR $2 <> $1) AS is_sale_row,
+       l.parcels AS is_parcel_row,
+       l.sales AND (r.cells[l.sale_date] IS NOT NULL OR r.cells[l.sale_price] IS NOT NULL OR NOT l.parcels) AS is_sale_row,
        r.cells[l.parcel_id] AS parcel_id,
        r.cells[l.segment] AS segment,
        r.cells[l.market_area] AS market_area,
@@ -34,15 +33,30 @@ SELECT r.file, r.line, r.cells,
        import_num(r.cells[l.latitude]) AS latitude,
        import_num(r.cells[l.longitude]) AS longitude,
        coalesce(r.cells[l.sale_id], 'line ' || r.line) AS sale_id,
-       import_day(r.cells[l.sale_date], $3) AS sale_date,
+       r.cells[l.sale_date] AS sale_date,   -- text: read by import_day with the configured format
        import_num(r.cells[l.sale_price]) AS sale_price,
        r.cells[l.sale_validity] AS validity
 FROM import_raw r JOIN layout l USING (file);
-DROP TABLE import_raw;
 
+-- Each mapped cell with its role; what depends on the role alone is worked out once per role (checked_roles), not
+-- once per cell.
 CREATE OR REPLACE TEMP VIEW import_cells AS
+WITH checked_roles AS (
+    SELECT o.*,
+           role NOT IN ('sale_id', 'sale_date', 'sale_price', 'sale_validity') AS parcel_role,
+           role IN ('parcel_id', 'sale_id', 'sale_date', 'sale_price', 'sale_validity') AS sale_role,
+           role IN ('parcel_id', 'segment', 'market_area', 'property_class') AS required_for_parcel,
+           role IN ('parcel_id', 'sale_date', 'sale_price', 'sale_id') AS required_for_sale,
+           kind IN ('amount', 'latitude', 'longitude', 'continuous') AS parcel_number,
+           kind = 'price' AS sale_number
+    FROM import_roles o JOIN import_files f USING (file)
+)
 SELECT r.file, r.line, r.parcel_id AS row_parcel_id, o.col, o.role, o.name, o.kind, o.position, o.levels, o.lo, o.hi,
        o.log, import_known(r.cells[o.cell], o.missing) AS val,
-       r.is_parcel_row AND o.role NOT IN ('sale_id', 'sale_date', 'sale_price', 'sale_validity') AS is_parcel_cell,
-       r.is_sale_row AND o.role IN ('parcel_id', 'sale_id', 'sale_date', 'sale_price', 'sale_validity') AS is_sale_cell
-FROM import_rows r JOIN import_roles o USING (file);
+       r.is_parcel_row AND o.parcel_role AS is_parcel_cell,
+       r.is_sale_row AND o.sale_role AS is_sale_cell,
+       (r.is_parcel_row AND o.parcel_role AND o.required_for_parcel)
+           OR (r.is_sale_row AND o.sale_role AND o.required_for_sale) AS required,
+       (r.is_parcel_row AND o.parcel_role AND o.parcel_number) OR (r.is_sale_row AND o.sale_role AND o.sale_number)
+           AS numeric
+FROM import_rows r JOIN checked_roles o USING (file);

@@ -1,57 +1,50 @@
--- Every problem in the staged input, one row each. $today, $date_format (NULL = ISO dates), $latest_date (the
--- valuation date plus a year), $max_amount (the largest price or prior value, [files] max_amount).
+-- Every problem in the staged input, one row each. $today, $date_format (NULL = ISO dates), $latest_date (the valuation date plus a year),
+-- $max_amount (the largest price or prior value, [files] max_amount).
 -- Each cell's own checks are one pass over import_cells (a list of the reasons that apply, empty for a good cell);
--- the checks across rows read the typed rows (import_rows).
+-- num is set only on cells that must be numbers (so checks on num apply only to them) and day only on sale dates.
+-- The checks across rows read the typed rows (import_rows).
 WITH typed AS (
-    SELECT file, line, col, role, kind, levels, lo, hi, log, val, is_parcel_cell, is_sale_cell,
-           CASE WHEN kind IN ('amount', 'latitude', 'longitude', 'continuous', 'price') THEN import_num(val) END AS num,
-           CASE WHEN kind = 'date' THEN import_day(val, $date_format) END AS day,
-           (is_parcel_cell AND kind IN ('amount', 'latitude', 'longitude', 'continuous'))
-               OR (is_sale_cell AND kind = 'price') AS numeric
+    SELECT file, line, col, role, kind, levels, lo, hi, log, val, is_parcel_cell, is_sale_cell, required, numeric,
+           CASE WHEN numeric THEN import_num(val) END AS num,
+           CASE WHEN is_sale_cell AND kind = 'date' THEN import_day(val, $date_format) END AS day
     FROM import_cells
     WHERE is_parcel_cell OR is_sale_cell
 ),
 cell_reasons AS (
     SELECT file, line, col, val, list_filter([
         -- required values
-        CASE WHEN val IS NULL AND ((is_parcel_cell AND role IN ('parcel_id', 'segment', 'market_area', 'property_class'))
-                                   OR (is_sale_cell AND role IN ('parcel_id', 'sale_date', 'sale_price', 'sale_id')))
-             THEN 'missing ' || replace(role, '_', ' ') END,
+        CASE WHEN required AND val IS NULL THEN 'missing ' || replace(role, '_', ' ') END,
         -- numbers
         CASE WHEN numeric AND val IS NOT NULL AND num IS NULL THEN 'not a number' END,
         CASE WHEN numeric AND NOT isfinite(num) THEN 'not a finite number (NaN and infinity are not values)' END,
-        CASE WHEN isfinite(num) AND abs(num) > $max_amount
-                  AND ((is_parcel_cell AND kind = 'amount') OR (is_sale_cell AND kind = 'price'))
+        CASE WHEN isfinite(num) AND abs(num) > $max_amount AND kind IN ('amount', 'price')
              THEN 'beyond the largest amount accepted, ' || $max_amount::VARCHAR || ' ([files] max_amount in reval.toml)' END,
-        CASE WHEN is_sale_cell AND kind = 'price' AND num <= 0 THEN 'sale price must be positive' END,
-        CASE WHEN is_parcel_cell AND kind = 'amount' AND num < 0 THEN 'prior value cannot be negative' END,
-        CASE WHEN is_parcel_cell AND kind = 'latitude' AND isfinite(num) AND abs(num) > 90
-             THEN 'latitude must be between -90 and 90' END,
-        CASE WHEN is_parcel_cell AND kind = 'longitude' AND isfinite(num) AND abs(num) > 180
-             THEN 'longitude must be between -180 and 180' END,
-        CASE WHEN is_parcel_cell AND kind = 'continuous' AND isfinite(num) AND (num < lo OR num > hi)
+        CASE WHEN kind = 'price' AND num <= 0 THEN 'sale price must be positive' END,
+        CASE WHEN kind = 'amount' AND num < 0 THEN 'prior value cannot be negative' END,
+        CASE WHEN kind = 'latitude' AND isfinite(num) AND abs(num) > 90 THEN 'latitude must be between -90 and 90' END,
+        CASE WHEN kind = 'longitude' AND isfinite(num) AND abs(num) > 180 THEN 'longitude must be between -180 and 180' END,
+        CASE WHEN kind = 'continuous' AND isfinite(num) AND (num < lo OR num > hi)
              THEN 'outside the declared range ' || lo::VARCHAR || ' to ' || hi::VARCHAR END,
-        CASE WHEN is_parcel_cell AND kind = 'continuous' AND log AND isfinite(num) AND num <= 0
+        CASE WHEN kind = 'continuous' AND log AND isfinite(num) AND num <= 0
              THEN 'a log-transformed feature needs a positive value' END,
-        CASE WHEN is_parcel_cell AND kind IN ('ordinal', 'categorical') AND val IS NOT NULL
+        CASE WHEN is_parcel_cell AND (kind = 'ordinal' OR kind = 'categorical') AND val IS NOT NULL
                   AND list_position(levels, val) IS NULL
              THEN 'unknown level (expected one of: ' || array_to_string(levels, ', ') || ')' END,
         CASE WHEN is_parcel_cell AND kind = 'binary' AND val IS NOT NULL
                   AND lower(val) NOT IN ('0', '1', 'true', 'false', 'yes', 'no', 'y', 'n', 't', 'f')
              THEN 'not a yes/no value (expected 0/1, true/false or yes/no)' END,
         -- dates
-        CASE WHEN is_sale_cell AND kind = 'date' AND val IS NOT NULL AND day IS NULL
+        CASE WHEN kind = 'date' AND val IS NOT NULL AND day IS NULL AND is_sale_cell
              THEN 'not a date' || CASE WHEN $date_format IS NULL THEN ' (expected YYYY-MM-DD)'
                                        ELSE ' (expected ' || $date_format || ')' END END,
-        CASE WHEN is_sale_cell AND kind = 'date' AND (day < DATE '1800-01-01' OR day > $latest_date::DATE)
+        CASE WHEN day < DATE '1800-01-01' OR day > $latest_date::DATE
              THEN 'sale date outside 1800-01-01 to ' || $latest_date::DATE::VARCHAR || ' (the valuation date plus a year)' END,
-        CASE WHEN is_sale_cell AND kind = 'date' AND day > $today::DATE AND day <= $latest_date::DATE
-             THEN 'sale date is in the future' END
+        CASE WHEN day > $today::DATE AND day <= $latest_date::DATE THEN 'sale date is in the future' END
     ], lambda reason: reason IS NOT NULL) AS reasons
     FROM typed
 ),
 parcel_rows AS (SELECT * FROM import_rows WHERE is_parcel_row),
-sale_rows AS (SELECT * FROM import_rows WHERE is_sale_row),
+sale_rows AS (SELECT * REPLACE (import_day(sale_date, $date_format) AS sale_date) FROM import_rows WHERE is_sale_row),
 problems AS (
     SELECT file, line, col, val, unnest(reasons) AS reason FROM cell_reasons WHERE len(reasons) > 0
     UNION ALL

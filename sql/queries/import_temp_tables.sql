@@ -1,7 +1,9 @@
 -- Staging for one import: temporary tables, never persisted, dropped with the connection.
 -- import_raw: each data row of a file once, as the list of its mapped columns' cells (trimmed, empty = missing);
+-- import_files: what each file holds (parcels, sales or both);
 -- import_roles: each mapped column's role, how it is checked, and `cell`, its place in that file's list.
 CREATE OR REPLACE TEMP TABLE import_raw (file VARCHAR, line BIGINT, cells VARCHAR[]);
+CREATE OR REPLACE TEMP TABLE import_files (file VARCHAR, parcels BOOLEAN, sales BOOLEAN);
 CREATE OR REPLACE TEMP TABLE import_roles (
     file VARCHAR, col VARCHAR, role VARCHAR, name VARCHAR, kind VARCHAR, position SMALLINT,
     levels VARCHAR[], lo DOUBLE, hi DOUBLE, log BOOLEAN, missing VARCHAR[], cell SMALLINT
