@@ -72,7 +72,8 @@ def test_a_value_with_white_space_at_an_edge_marks_the_file_spaced(rows: list[li
     out = io.StringIO()
     csv.writer(out, lineterminator=ending).writerows([header, *rows])
     layout = _scan(out.getvalue(), block)
-    if any(v != v.strip(EDGE_SPACE) for row in rows for v in row):
+    read_as_written = layout.rows == len(rows)   # csv.writer leaves a lone "\r" unquoted: a blank line to any reader
+    if read_as_written and any(v != v.strip(EDGE_SPACE) for row in rows for v in row):
         assert layout.spaced
 
 

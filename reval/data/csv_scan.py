@@ -33,6 +33,7 @@ SHOWN_PER_KIND = 100        # problems of one kind listed per file (the count of
 # characters that share those bytes make it so too, which costs only time.
 EDGE_SPACE = np.zeros(256, dtype=bool)
 EDGE_SPACE[[0x20, 0x09, 0x0B, 0x0C, 0x0D, 0xC2, 0xA0, 0xEF, 0xBF]] = True
+SEPARATORS = np.array([QUOTE, COMMA, NEWLINE], dtype=np.uint8)
 
 
 @dataclass
@@ -77,7 +78,7 @@ class _Scan:
         if not self._utf8():
             return self.layout
         ends, values, quotes, odd = self._blocks()
-        self.layout.spaced = self.spaced
+        self.layout.spaced = self.spaced or bool(EDGE_SPACE[self.buf[[self.start, -1]]].any())
         starts = np.concatenate([[self.start], ends + 1])
         stops = np.concatenate([ends, [len(self.buf)]])
         if stops[-1] <= starts[-1]:                     # the file ends with a line break
@@ -150,7 +151,7 @@ class _Scan:
             newlines.append(newline + at)
             odd, commas_before = (odd + len(quote)) % 2, commas_before + len(comma)
             if not self.spaced:
-                self.spaced = self._spaced_beside(np.concatenate([quote, newline, comma]) + at)
+                self.spaced = self._spaced_beside(at, at + len(block))
             nul = np.flatnonzero(block == 0)
             nul_count += len(nul)
             if len(nul) and nul_kept < SHOWN_PER_KIND:
@@ -162,16 +163,21 @@ class _Scan:
         per_row = np.diff(np.concatenate([[0], at_end])) + 1
         return (np.concatenate(ends) if ends else empty), per_row, (np.concatenate(quotes) if quotes else empty), bool(odd)
 
-    def _spaced_beside(self, separators: np.ndarray) -> bool:
-        """Whether a byte of EDGE_SPACE is next to a separator (quote, line break or comma: any cell's edge is next to
-        one, or is the file's first or last byte); before a line break, a carriage return of CRLF is looked past."""
-        buf, n = self.buf, len(self.buf)
-        before = buf[np.maximum(separators - 1, 0)]
-        past_cr = (before == RETURN) & (buf[separators] == NEWLINE)
-        before = np.where(past_cr, buf[np.maximum(separators - 2, 0)], before)
-        after = buf[np.minimum(separators + 1, n - 1)]
-        ends = buf[[self.start, n - 1]] if n > self.start else np.empty(0, np.uint8)
-        return bool(EDGE_SPACE[before].any() or EDGE_SPACE[after].any() or EDGE_SPACE[ends].any())
+    def _spaced_beside(self, at: int, stop: int) -> bool:
+        """Whether a byte of EDGE_SPACE in buf[at:stop] is next to a separator (quote, line break or comma: a cell's
+        edge is next to one unless it is the file's first or last byte, checked in run); the carriage return of a
+        CRLF is no value's. Only the (usually few) white-space bytes are looked at."""
+        buf, n, block = self.buf, len(self.buf), self.buf[at:stop]
+        low = block <= 0x20                           # two comparisons cost less than a table look-up per byte
+        spaces = np.flatnonzero(low if block.max() < 0xA0 else low | (block >= 0xA0)) + at
+        spaces = spaces[EDGE_SPACE[buf[spaces]]]
+        if not len(spaces):
+            return False
+        after = buf[np.minimum(spaces + 1, n - 1)]
+        spaces = spaces[(buf[spaces] != RETURN) | (after != NEWLINE)]          # the CR of a CRLF is no value's
+        before, after = buf[np.maximum(spaces - 1, 0)], buf[np.minimum(spaces + 1, n - 1)]
+        after_crlf = (after == RETURN) & (buf[np.minimum(spaces + 2, n - 1)] == NEWLINE)
+        return bool(np.isin(before, SEPARATORS).any() or np.isin(after, SEPARATORS).any() or after_crlf.any())
 
     def _header(self, starts: np.ndarray, stops: np.ndarray) -> None:
         text = bytes(self.buf[starts[0]:stops[0]]).decode("utf-8").rstrip("\r")
