@@ -57,6 +57,11 @@ lot_size > 0, land value = base_land_value * (lot_size / base_lot_size) ** size_
 neighbourhood's row with base_lot_size > 0 (size_exponent 0.3-0.6). The row with base_lot_size 0
 (size_exponent 0) gives every parcel with lot_size 0 (condominium units) the flat
 base_land_value.
+
+Stress variants (`generate(..., variant=NAME)`, `--variant NAME`; VARIANTS): the built town with one stress
+planted from a random stream of its own, for benchmarks on data reval was not tuned on: Student-t sale noise,
+2 % keyed prices, 40 thin segments, one sale date, a turning ten-year market, 20 % missing in two features,
+interacting yes/no features. Each carries its truth (`true_log_values`); see "stress variants" below.
 """
 
 from __future__ import annotations
@@ -317,6 +322,8 @@ class DemoTown:
     sales: pd.DataFrame
     land_schedule: pd.DataFrame
     planted_errors: pd.DataFrame
+    variant: str | None = None         # the stress variant (None: the default town)
+    truth: pd.Series | None = None     # a variant's true log value at the valuation date, by parcel id
 
 
 # ---- the true value function ---------------------------------------------------------------
@@ -469,8 +476,8 @@ def true_curve(feature: str, x: np.ndarray) -> np.ndarray:
     return _MAIN_EFFECTS[feature](x) - _curve_offsets()[feature]
 
 
-def true_log_index(dates: object) -> np.ndarray:
-    """Log market level at each date relative to the valuation date (0 on 2026-01-01)."""
+def _default_log_index(dates: object) -> np.ndarray:
+    """Log market level at each date relative to the valuation date (0 on 2026-01-01), default town."""
     days = np.asarray(dates, dtype="datetime64[D]") - VALUATION_DATE
     t = days.astype(np.float64) / 365.25
 
@@ -825,14 +832,206 @@ def _appended(seed: int, scale: float, last_id: int, last_sale: int,
     return parcels, sales
 
 
+# ---- stress variants -----------------------------------------------------------------------
+#
+# Each variant is the built town (no vacant lots or institutional parcels, no land schedule) with one stress
+# planted from a random stream of its own (default_rng([seed, VARIANT_STREAM + k])), so a seed fixes it and the
+# default town is untouched. Sale prices keep their drawn noise: a variant moves each sale's price by the change
+# in its true value and market level (`_repriced`). `DemoTown.truth` is then every parcel's true log value at the
+# valuation date (from its correct features) and `true_log_index(dates, variant)` the market level.
+
+VARIANTS = ("heavy_tails", "keying_errors", "thin", "one_date", "turning_market", "missing", "binary_interactions")
+VARIANT_STREAM = 100
+KEYED_SHARE = 0.02                         # keying_errors: share of valid in-window single-parcel sales
+THIN_SEGMENTS, THIN_SALES, THIN_UNSOLD = 40, (1, 10), (15, 60)
+THIN_SHIFT_SD = 0.10                       # thin: sd of each thin segment's own log-value shift
+ONE_DATE = np.datetime64("2025-10-01", "D")
+TURN_START = np.datetime64("2016-01-01", "D")   # turning_market: ten years of sales
+TURN_PEAK, TURN_CURVATURE = -3.0, 0.01     # log index = -c (t - peak)^2 + c peak^2: +0.49 over 7 years, -0.09 after
+MISSING_SHARE = 0.20
+MISSING_FEATURES = ("year_built", "bathrooms")  # year_built left blank; bathrooms keyed 0 (declared missing = [0])
+BINARY_FEATURES = ("basement", "pool", "fireplace", "corner_lot")
+BINARY_SHARES = (0.45, 0.15, 0.35, 0.12)   # of houses; condominiums have no basement or pool
+BINARY_EFFECTS = (0.06, 0.04, 0.03, -0.02)
+# (feature, partner, coefficient): binary x binary is the product; with a continuous partner its transform below.
+BINARY_INTERACTIONS: tuple[tuple[str, str, float], ...] = (
+    ("basement", "fireplace", 0.05),
+    ("pool", "waterfront", 0.06),
+    ("basement", "living_area", 0.12),     # x ln(living_area / 1600)
+    ("pool", "lot_size", 0.04),            # x ln(1 + lot_size / 3000)
+)
+
+
+def true_log_index(dates: object, variant: str | None = None) -> np.ndarray:
+    """Log market level at each date relative to the valuation date (0 on 2026-01-01) for the default town or a
+    variant (only turning_market has a market of its own)."""
+    if variant != "turning_market":
+        return _default_log_index(dates)
+    t = (np.asarray(dates, dtype="datetime64[D]") - VALUATION_DATE).astype(np.float64) / 365.25
+    return -TURN_CURVATURE * (t - TURN_PEAK) ** 2 + TURN_CURVATURE * TURN_PEAK ** 2
+
+
+def binary_effects(frame: pd.DataFrame) -> np.ndarray:
+    """The binary_interactions variant's addition to the true log value: main effects and interactions."""
+    def term(name: str) -> np.ndarray:
+        if name == "living_area":
+            return _log_area(frame[name].to_numpy(float))
+        if name == "lot_size":
+            return _log_lot(frame[name].to_numpy(float))
+        return frame[name].to_numpy(float)
+
+    out = sum(effect * term(name) for name, effect in zip(BINARY_FEATURES, BINARY_EFFECTS))
+    for a, b, coefficient in BINARY_INTERACTIONS:
+        out = out + coefficient * term(a) * term(b)
+    return np.asarray(out, dtype=float)
+
+
+def _correct_parcels(town: DemoTown) -> pd.DataFrame:
+    """The parcels with each planted feature error put right (the truth is computed from these)."""
+    parcels = town.parcels.copy()
+    at = pd.Series(np.arange(len(parcels)), index=parcels["parcel_id"])
+    for row in town.planted_errors.itertuples():
+        if row.column != "sale_price":
+            parcels.loc[at[row.parcel_id], row.column] = row.correct
+    return parcels
+
+
+def true_log_values(town: DemoTown) -> pd.Series:
+    """Each parcel's true log value at the valuation date by parcel id (a variant's own truth, else computed from
+    the correct features)."""
+    if town.truth is not None:
+        return town.truth
+    return pd.Series(true_log_value(_correct_parcels(town)), index=town.parcels["parcel_id"].to_numpy())
+
+
+def oracle_log_values(town: DemoTown, parcel_ids: object) -> np.ndarray:
+    """The oracle's log value for each listed parcel (e.g. the sold parcels of the sales the models are scored on,
+    in their order): the generator's truth. A parcel the town does not have is an error, never a gap."""
+    truth = true_log_values(town).reindex(np.asarray(parcel_ids, dtype=object))
+    if truth.isna().any():
+        raise ValueError(f"no true value for parcel {truth.index[truth.isna()][0]!r}")
+    return truth.to_numpy(float)
+
+
+def _repriced(sales: pd.DataFrame, old_log: np.ndarray, new_log: np.ndarray) -> np.ndarray:
+    """Each sale's price times the change in its parcels' summed value (per sale row: the parcel's log value at
+    the sale date, old and new): the drawn noise, discounts and keyed errors stay as they were."""
+    key = sales["sale_id"].to_numpy()
+    ratio = (pd.Series(np.exp(new_log), index=key).groupby(level=0).transform("sum")
+             / pd.Series(np.exp(old_log), index=key).groupby(level=0).transform("sum")).to_numpy()
+    return (np.rint(sales["sale_price"].to_numpy(float) * ratio / 100.0) * 100.0).astype(np.int64)
+
+
+def _variant(n_parcels: int, seed: int, variant: str) -> DemoTown:
+    """The built town with one stress planted (see VARIANTS); prices follow the new truth."""
+    if variant not in VARIANTS:
+        raise ValueError(f"unknown variant {variant!r}; expected one of {', '.join(VARIANTS)}")
+    base = _built(n_parcels, seed, NOISE_SD)
+    rng = np.random.default_rng([seed, VARIANT_STREAM + VARIANTS.index(variant)])
+    parcels, sales = base.parcels.copy(), base.sales.copy()
+    planted = base.planted_errors
+    correct = _correct_parcels(base)
+    old_truth = true_log_value(correct)
+    truth = old_truth.copy()
+    at = pd.Series(np.arange(len(parcels)), index=parcels["parcel_id"]).loc[sales["parcel_id"]].to_numpy()
+    dates = sales["sale_date"].to_numpy("datetime64[D]")
+    new_dates = dates.copy()
+    multi = sales["sale_id"].duplicated(keep=False).to_numpy()
+    clean = ((sales["validity"] == "valid").to_numpy() & ~multi & ~sales["sale_id"].isin(planted["sale_id"]).to_numpy()
+             & (dates >= WINDOW_START))
+
+    if variant == "heavy_tails":
+        t = rng.standard_t(3, clean.sum()) * NOISE_SD / np.sqrt(3.0)   # t(3) has variance 3
+        price = np.exp(truth[at[clean]] + _default_log_index(dates[clean]) + t)
+        sales.loc[clean, "sale_price"] = (np.rint(price / 100.0) * 100.0).astype(np.int64)
+    elif variant == "keying_errors":
+        rows = np.sort(rng.choice(np.flatnonzero(clean), int(round(KEYED_SHARE * clean.sum())), replace=False))
+        price = sales["sale_price"].to_numpy().copy()
+        first, second = price // 100_000, (price // 10_000) % 10
+        swappable = (price >= 100_000) & (price < 1_000_000) & (np.abs(first - second) >= 2) & (second > 0)
+        kind = rng.integers(0, 3, rows.size)            # 0 extra digit, 1 missing digit, 2 swapped leading digits
+        kind = np.where((kind == 2) & ~swappable[rows], 0, kind)
+        keyed = np.select([kind == 0, kind == 1], [price[rows] * 10, np.rint(price[rows] / 1000.0) * 100],
+                          _swap_leading_digits(price[rows]))
+        names = np.array(["price_keyed_extra_digit", "price_keyed_missing_digit", "price_keyed_swapped_digits"])
+        planted = pd.concat([planted, pd.DataFrame({
+            "kind": names[kind], "sale_id": sales["sale_id"].to_numpy()[rows],
+            "parcel_id": sales["parcel_id"].to_numpy()[rows], "column": "sale_price",
+            "recorded": keyed.astype(np.int64), "correct": price[rows]})], ignore_index=True)
+        price[rows] = keyed
+        sales["sale_price"] = price
+    elif variant == "thin":
+        nb = parcels["neighbourhood"].to_numpy(str)
+        sold = np.zeros(len(parcels), dtype=bool)
+        sold[at] = True
+        sold_clean = np.zeros(len(parcels), dtype=bool)
+        sold_clean[at[clean]] = True
+        geo = geography(neighbourhood_count(n_parcels))
+        taken = np.zeros(len(parcels), dtype=bool)
+        new_nb = nb.astype(object)
+        shift = np.zeros(len(parcels))
+        for j in range(THIN_SEGMENTS):
+            k = int(rng.integers(THIN_SALES[0], THIN_SALES[1] + 1))
+            m = int(rng.integers(THIN_UNSOLD[0], THIN_UNSOLD[1] + 1))
+            free = ~taken & geo.busy[_codes(nb, geo.ids, "neighbourhood")]
+            able = [i for i in geo.ids if ((nb == i) & free & sold_clean).sum() >= k and ((nb == i) & free & ~sold).sum() >= m]
+            if not able:
+                raise ValueError("too few sales for 40 thin segments; generate more parcels")
+            home = (nb == able[rng.integers(len(able))]) & free
+            members = np.r_[rng.choice(np.flatnonzero(home & sold_clean), k, replace=False),
+                            rng.choice(np.flatnonzero(home & ~sold), m, replace=False)]
+            taken[members] = True
+            new_nb[members] = f"THN{j + 1:02d}"
+            shift[members] = THIN_SHIFT_SD * rng.standard_normal()
+        parcels["neighbourhood"] = pd.Categorical(new_nb, categories=[*geo.ids, *(f"THN{j + 1:02d}" for j in
+                                                                                   range(THIN_SEGMENTS))])
+        truth = truth + shift
+    elif variant == "one_date":
+        new_dates = np.full(dates.size, ONE_DATE)
+    elif variant == "turning_market":
+        days = int((VALUATION_DATE - TURN_START).astype(np.int64))
+        ids, first = np.unique(sales["sale_id"].to_numpy(), return_inverse=True)
+        new_dates = (TURN_START + rng.integers(0, days, ids.size))[first]
+    elif variant == "missing":
+        for name in MISSING_FEATURES:          # each feature's own fifth of the parcels, drawn independently
+            gone = rng.choice(len(parcels), int(round(MISSING_SHARE * len(parcels))), replace=False)
+            if name == "year_built":
+                column = pd.array(parcels[name].to_numpy(), dtype="Int64")
+                column[gone] = pd.NA
+                parcels[name] = column
+            else:
+                parcels.loc[gone, name] = 0.0
+    elif variant == "binary_interactions":
+        house = (parcels["property_class"] != "condominium").to_numpy()
+        for name, share in zip(BINARY_FEATURES, BINARY_SHARES):
+            has = rng.random(len(parcels)) < share
+            if name in ("basement", "pool"):
+                has &= house
+            parcels[name] = has.astype(np.int64)
+            correct[name] = parcels[name]
+        truth = truth + binary_effects(correct)
+
+    if variant in ("thin", "one_date", "turning_market", "binary_interactions"):
+        sales["sale_price"] = _repriced(sales, old_truth[at] + _default_log_index(dates),
+                                        truth[at] + true_log_index(new_dates, variant))
+        sales["sale_date"] = new_dates.astype("datetime64[s]")
+    return DemoTown(parcels=parcels, sales=sales, land_schedule=base.land_schedule.iloc[:0], planted_errors=planted,
+                    variant=variant, truth=pd.Series(truth, index=parcels["parcel_id"].to_numpy()))
+
+
 # ---- public API ----------------------------------------------------------------------------
 
 
-def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_sd: float = NOISE_SD) -> DemoTown:
+def generate(n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED, noise_sd: float = NOISE_SD,
+             variant: str | None = None) -> DemoTown:
     """Generate Vellmarsh with `n_parcels` built parcels, then its vacant lots and institutional parcels; the same
-    arguments give the same town."""
+    arguments give the same town. A `variant` (one of VARIANTS) is the built town with that stress planted."""
     if n_parcels < MIN_PARCELS:
         raise ValueError(f"n_parcels must be at least {MIN_PARCELS}")
+    if variant is not None:
+        if noise_sd != NOISE_SD:
+            raise ValueError("a variant keeps the demo's noise sd")
+        return _variant(n_parcels, seed, variant)
     town = _built(n_parcels, seed, noise_sd)
     last_sale = int(town.sales["sale_id"].str[1:].astype(int).max())
     extra_parcels, extra_sales = _appended(seed, n_parcels / DEFAULT_PARCELS, int(town.parcels["parcel_id"].iloc[-1]),
@@ -908,28 +1107,61 @@ def _built(n_parcels: int, seed: int, noise_sd: float) -> DemoTown:
     return DemoTown(parcels=parcels, sales=sales, land_schedule=land, planted_errors=planted_errors)
 
 
-def write_project(folder: Path, n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED) -> None:
-    """Write parcels.csv, sales.csv and land_schedule.csv of a generated town, plus reval.toml."""
+def variant_config(variant: str) -> str:
+    """reval.toml for a variant: the demo's, without the land schedule and the classes it values (a variant has
+    built parcels only), plus what the variant's data needs."""
+    text = CONFIG_PATH.read_text()
+    head, classes = text.split("\n# How each property class is valued", 1)
+    text = head.replace('land_schedule = "land_schedule.csv"\n', "").replace(
+        "# land from the neighbourhood schedule (base_lot_size names the lot_size feature).", "# no land schedule.")
+    text = text.replace("# reval project: the demo municipality of Vellmarsh (fictional; invented data).",
+                        f"# reval project: the demo municipality of Vellmarsh, stress variant {variant} (fictional).")
+    if variant == "turning_market":
+        text = _replaced(text, "sale_window_months = 36 ", "sale_window_months = 120")
+    elif variant == "missing":
+        text = _replaced(text, 'name = "bathrooms"\ntype = "continuous"\n',
+                         'name = "bathrooms"\ntype = "continuous"\nmissing = [0]                    # 0 = not known\n')
+    elif variant == "binary_interactions":
+        extra = "".join(f'\n[[features]]\nname = "{name}"\ntype = "binary"\nbaseline = "no"\n' for name in BINARY_FEATURES)
+        text = _replaced(text, "\n[sales]", extra + "\n[sales]")
+    return text
+
+
+def _replaced(text: str, old: str, new: str) -> str:
+    if old not in text:
+        raise ValueError(f"the demo config has no {old!r}")
+    return text.replace(old, new, 1)
+
+
+def write_project(folder: Path, n_parcels: int = DEFAULT_PARCELS, seed: int = DEFAULT_SEED,
+                  variant: str | None = None) -> DemoTown:
+    """Write parcels.csv, sales.csv and (the default town) land_schedule.csv of a generated town, plus reval.toml;
+    returns the town (its truth for a benchmark)."""
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    town = generate(n_parcels=n_parcels, seed=seed)
+    town = generate(n_parcels=n_parcels, seed=seed, variant=variant)
     town.parcels.to_csv(folder / "parcels.csv", index=False)
     town.sales.to_csv(folder / "sales.csv", index=False, date_format="%Y-%m-%d")
-    town.land_schedule.to_csv(folder / "land_schedule.csv", index=False)
     config = folder / CONFIG_PATH.name
+    if variant is not None:
+        config.write_text(variant_config(variant))
+        return town
+    town.land_schedule.to_csv(folder / "land_schedule.csv", index=False)
     if not (config.exists() and config.samefile(CONFIG_PATH)):
         shutil.copyfile(CONFIG_PATH, config)
+    return town
 
 
 def main(argv: list[str] | None = None) -> None:
-    """Command line: write a Vellmarsh project folder of any size."""
+    """Command line: write a Vellmarsh project folder of any size, or a stress variant of it."""
     parser = argparse.ArgumentParser(prog="python -m data_samples.demo_town", description=main.__doc__)
     parser.add_argument("--parcels", type=int, default=DEFAULT_PARCELS, help="number of parcels")
     parser.add_argument("--out", type=Path, required=True, help="project folder to write")
     parser.add_argument("--seed", type=int, default=DEFAULT_SEED, help="random seed")
+    parser.add_argument("--variant", choices=VARIANTS, help="a stress variant (built parcels only)")
     args = parser.parse_args(argv)
     try:
-        write_project(args.out, n_parcels=args.parcels, seed=args.seed)
+        write_project(args.out, n_parcels=args.parcels, seed=args.seed, variant=args.variant)
     except ValueError as error:
         parser.error(str(error))
 
