@@ -24,6 +24,7 @@ from reval.data.store import Store
 from reval.errors import UserError
 from reval.model import stored
 from reval.data.fingerprint import record_fingerprints
+from reval.data.importer import Role, stage_roles
 from reval.model.run import value_parcels
 from reval.results import CorrectionResult
 from reval.roll.batch_states import mark_outdated
@@ -55,29 +56,20 @@ def _checked(store: Store, config: Config, parcel_id: str, parsed: dict[str, str
     """The corrected values as stored codes (position, value), checked by the import's checks (a value the
     config declares to mean "missing" is stored as missing, as on import)."""
     missing = {f.name: list(f.missing) or None for f in config.features}
-    roles: list[dict[str, Any]] = [{"file": SOURCE, "col": "(parcel)", "role": "parcel_id", "name": "parcel_id", "kind": "id",
-              "position": None, "levels": None, "lo": None, "hi": None, "log": False, "missing": None}]
-    roles += [{"file": SOURCE, "col": name, "role": "feature", "name": name, "kind": f["kind"],
-               "position": f["position"], "levels": f["levels"], "lo": f["range_lo"], "hi": f["range_hi"],
-               "log": f["log"], "missing": missing.get(name)} for name, f in features.items() if name in parsed]
-    cells = pd.DataFrame({"col": ["(parcel)", *parsed], "val": [parcel_id, *parsed.values()]})
-    frames = {"correct_roles": pd.DataFrame(roles).astype({"position": "Int16"}), "correct_cells": cells}
-    store.run("import_temp_tables")
-    for name, frame in frames.items():
-        store.con.register(name, frame)
-    try:
-        store.run("correct_stage_cells", {"file": SOURCE})
-    finally:
-        for name in frames:
-            store.con.unregister(name)
-    store.run("import_cells", [SOURCE, f"{SOURCE} (no sales)", None])
+    roles = [Role(SOURCE, "(parcel)", "parcel_id", "parcel_id", "id", cell=1)]
+    roles += [Role(SOURCE, name, "feature", name, f["kind"], f["position"], f["levels"], f["range_lo"], f["range_hi"],
+                   f["log"], missing.get(name), cell) for cell, (name, f) in enumerate(
+                       ((n, f) for n, f in features.items() if n in parsed), 2)]
+    stage_roles(store, roles, {}, parcels=SOURCE, sales="")
+    cells = [parcel_id, *(parsed[r.name] for r in roles[1:])]
+    store.run("correct_stage_cells", {"file": SOURCE, "cells": cells})
     problems = store.records("import_problems", {"today": dt.date.today(), "date_format": None,
                                                  "latest_date": config.valuation_date,
                                                  "max_amount": config.max_amount})
     if problems:
         listed = "; ".join(f"{p['column']} = {p['value']!r}: {p['reason']}" for p in problems)
         raise UserError(f"Correction of parcel {parcel_id} refused: {listed}. Nothing was changed.")
-    store.run("import_build")
+    store.run("import_build", {"date_format": None})
     return store.frame("import_new_feature_values")
 
 

@@ -8,7 +8,8 @@ a repeated column name), so the rules are checked here, vectorised over the byte
 a value only at its start and closes it only at its end, every row has as many values as the header,
 column names are unique. Line numbers are physical lines of the file: a row after a quoted line break, or
 after a blank line (DuckDB skips blank lines), starts further down than its row number says, and
-`CsvLayout.lines` maps each data row to its line.
+`CsvLayout.lines` maps each data row to its line. The scan also says whether any value may have white space at
+an edge (`CsvLayout.spaced`): only then does the import pay for trimming every cell.
 """
 from __future__ import annotations
 
@@ -26,16 +27,25 @@ BLOCK = 1 << 23
 QUOTE, COMMA, NEWLINE, RETURN = 0x22, 0x2C, 0x0A, 0x0D
 UTF8_BOM = b"\xef\xbb\xbf"
 SHOWN_PER_KIND = 100        # problems of one kind listed per file (the count of the rest is reported)
+# Bytes that may be (part of) white space the import trims (reval/sql/queries/import_temp_tables.sql import_trim):
+# space, tab, line tabulation, form feed, carriage return, and the first and last bytes of a no-break space (C2 A0)
+# and of a byte-order mark (EF BB BF). A byte like these beside a separator marks the file as `spaced`; other
+# characters that share those bytes make it so too, which costs only time.
+EDGE_SPACE = np.zeros(256, dtype=bool)
+EDGE_SPACE[[0x20, 0x09, 0x0B, 0x0C, 0x0D, 0xC2, 0xA0, 0xEF, 0xBF]] = True
+SEPARATORS = np.array([QUOTE, COMMA, NEWLINE], dtype=np.uint8)
 
 
 @dataclass
 class CsvLayout:
     """What the scan found: the header, the number of data rows, the physical line of each data row when
-    it is not simply row number + 1 (else None), and the problems."""
+    it is not simply row number + 1 (else None), whether any value may start or end with white space, and the
+    problems."""
 
     header: list[str] = field(default_factory=list)
     rows: int = 0
     lines: np.ndarray | None = None
+    spaced: bool = True
     problems: list[DataProblem] = field(default_factory=list)
 
 
@@ -59,6 +69,7 @@ class _Scan:
         self.layout = CsvLayout()
         self.newlines = np.empty(0, np.int64)
         self.nuls: tuple[np.ndarray, int] = (self.newlines, 0)
+        self.spaced = False
 
     def problem(self, line: int, column: str, value: str | None, reason: str) -> None:
         self.layout.problems.append(DataProblem(str(self.path), line, column, value, reason))
@@ -67,6 +78,7 @@ class _Scan:
         if not self._utf8():
             return self.layout
         ends, values, quotes, odd = self._blocks()
+        self.layout.spaced = self.spaced or bool(EDGE_SPACE[self.buf[[self.start, -1]]].any())
         starts = np.concatenate([[self.start], ends + 1])
         stops = np.concatenate([ends, [len(self.buf)]])
         if stops[-1] <= starts[-1]:                     # the file ends with a line break
@@ -138,6 +150,8 @@ class _Scan:
             quotes.append(quote + at)
             newlines.append(newline + at)
             odd, commas_before = (odd + len(quote)) % 2, commas_before + len(comma)
+            if not self.spaced:
+                self.spaced = self._spaced_beside(at, at + len(block))
             nul = np.flatnonzero(block == 0)
             nul_count += len(nul)
             if len(nul) and nul_kept < SHOWN_PER_KIND:
@@ -148,6 +162,22 @@ class _Scan:
         at_end = np.concatenate([*values, [commas_before]])
         per_row = np.diff(np.concatenate([[0], at_end])) + 1
         return (np.concatenate(ends) if ends else empty), per_row, (np.concatenate(quotes) if quotes else empty), bool(odd)
+
+    def _spaced_beside(self, at: int, stop: int) -> bool:
+        """Whether a byte of EDGE_SPACE in buf[at:stop] is next to a separator (quote, line break or comma: a cell's
+        edge is next to one unless it is the file's first or last byte, checked in run); the carriage return of a
+        CRLF is no value's. Only the (usually few) white-space bytes are looked at."""
+        buf, n, block = self.buf, len(self.buf), self.buf[at:stop]
+        low = block <= 0x20                           # two comparisons cost less than a table look-up per byte
+        spaces = np.flatnonzero(low if block.max() < 0xA0 else low | (block >= 0xA0)) + at
+        spaces = spaces[EDGE_SPACE[buf[spaces]]]
+        if not len(spaces):
+            return False
+        after = buf[np.minimum(spaces + 1, n - 1)]
+        spaces = spaces[(buf[spaces] != RETURN) | (after != NEWLINE)]          # the CR of a CRLF is no value's
+        before, after = buf[np.maximum(spaces - 1, 0)], buf[np.minimum(spaces + 1, n - 1)]
+        after_crlf = (after == RETURN) & (buf[np.minimum(spaces + 2, n - 1)] == NEWLINE)
+        return bool(np.isin(before, SEPARATORS).any() or np.isin(after, SEPARATORS).any() or after_crlf.any())
 
     def _header(self, starts: np.ndarray, stops: np.ndarray) -> None:
         text = bytes(self.buf[starts[0]:stops[0]]).decode("utf-8").rstrip("\r")

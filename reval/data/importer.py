@@ -16,11 +16,11 @@ import datetime as dt
 import hashlib
 import json
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Callable
 
-import pandas as pd
+import numpy as np
 
 from reval.data.config import PARCEL_ROLES, SALE_ROLES, Config
 from reval.data.csv_scan import CsvLayout, scan_csv
@@ -67,24 +67,63 @@ def sha256_file(path: Path) -> str:
     return digest.hexdigest()
 
 
-def _roles_frame(config: Config) -> pd.DataFrame:
-    """One row per (file, mapped column): the role it plays and how to check it."""
-    rows: list[dict[str, object]] = []
+@dataclass(frozen=True)
+class Role:
+    """One mapped column of one file: the role it plays, how its cells are checked (sql/queries/import_problems.sql)
+    and `cell`, its place (1-based) in the list of the file's mapped columns that the staging reads."""
+
+    file: str
+    col: str
+    role: str
+    name: str
+    kind: str
+    position: int | None = None
+    levels: list[str] | None = None
+    lo: float | None = None
+    hi: float | None = None
+    log: bool = False
+    missing: list[str] | None = None
+    cell: int = 0
+
+
+def _roles(config: Config) -> list[Role]:
+    """Every (file, mapped column) with its role (`cell` is set by _numbered, from the files' headers)."""
+    roles: list[Role] = []
     files = [(str(config.parcels_file), PARCEL_ROLES), (str(config.sales_source), SALE_ROLES | {"parcel_id": True})]
-    for file, roles in files:
-        for role in roles:
-            if role in config.columns and not any(r["file"] == file and r["role"] == role for r in rows):
-                rows.append({"file": file, "col": config.columns[role], "role": role, "name": role,
-                             "kind": ROLE_KINDS[role], "position": None, "levels": None,
-                             "lo": None, "hi": None, "log": False, "missing": None})
+    for file, names in files:
+        for role in names:
+            if role in config.columns and not any(r.file == file and r.role == role for r in roles):
+                roles.append(Role(file, config.columns[role], role, role, ROLE_KINDS[role]))
     for position, f in enumerate(config.features):
         lo, hi = f.range if f.range else (None, None)
-        rows.append({"file": str(config.parcels_file), "col": f.column, "role": "feature", "name": f.name,
-                     "kind": f.kind, "position": position, "levels": list(f.levels) or None,
-                     "lo": lo, "hi": hi, "log": f.log, "missing": list(f.missing) or None})
-    frame = pd.DataFrame(rows)
-    frame["position"] = frame["position"].astype("Int16")
-    return frame
+        roles.append(Role(str(config.parcels_file), f.column, "feature", f.name, f.kind, position,
+                          list(f.levels) or None, lo, hi, f.log, list(f.missing) or None))
+    return roles
+
+
+def _numbered(roles: list[Role], headers: dict[str, list[str]]) -> list[Role]:
+    """Each role with its column's place among its file's mapped columns in file order (DuckDB's COLUMNS(list)
+    keeps the file's order)."""
+    places = {file: {c: i for i, c in enumerate((c for c in header if any(r.file == file and r.col == c for r in roles)), 1)}
+              for file, header in headers.items()}
+    return [replace(r, cell=places[r.file][r.col]) for r in roles]
+
+
+def _columns(roles: list[Role], file: str) -> list[str]:
+    """The file's distinct mapped columns in the order of Role.cell."""
+    return [col for col, _ in sorted({(r.col, r.cell) for r in roles if r.file == file}, key=lambda pair: pair[1])]
+
+
+def stage_roles(store: Store, roles: list[Role], keys: dict[str, str], parcels: str, sales: str) -> None:
+    """Create the import's temporary tables and describe what is staged: each file (by its key) and its roles.
+    `parcels` and `sales` are the files holding them (the same one for a combined file)."""
+    store.run("import_temp_tables")
+    for file in dict.fromkeys(r.file for r in roles):
+        store.run("import_insert_file", [keys.get(file, file), file == parcels, file == sales])
+    for r in roles:
+        store.run("import_insert_role", [keys.get(r.file, r.file), r.col, r.role, r.name, r.kind, r.position, r.levels,
+                                         r.lo, r.hi, r.log, r.missing, r.cell])
+    store.run("import_cells")
 
 
 def _header(store: Store, path: Path) -> list[str]:
@@ -95,15 +134,17 @@ def _header(store: Store, path: Path) -> list[str]:
         raise ConfigError(path, "files", f"cannot read the file: {exc}") from None
 
 
-def _check_columns(config: Config, roles: pd.DataFrame, store: Store) -> None:
-    """Every mapped column must be in its file; the error names file, key and column."""
-    for file, group in roles.groupby("file", sort=False):
-        present = set(_header(store, Path(file)))
-        for row in group.itertuples():
-            if row.col not in present:
-                key = f"columns.{row.role}" if row.role != "feature" else f"features ({row.name}).column"
+def _check_columns(config: Config, roles: list[Role], store: Store) -> dict[str, list[str]]:
+    """Every mapped column must be in its file (the error names file, key and column); each file's header."""
+    headers = {}
+    for file in dict.fromkeys(r.file for r in roles):
+        header = headers[file] = _header(store, Path(file))
+        for r in roles:
+            if r.file == file and r.col not in header:
+                key = f"columns.{r.role}" if r.role != "feature" else f"features ({r.name}).column"
                 raise ConfigError(config.path, key,
-                                  f"column '{row.col}' is not in {file} (its columns: {', '.join(sorted(present))})")
+                                  f"column '{r.col}' is not in {file} (its columns: {', '.join(sorted(header))})")
+    return headers
 
 
 def _mapping_hash(config: Config) -> str:
@@ -144,30 +185,28 @@ def _check_structure(store: Store, config: Config, allow_empty: bool, report: Pa
     return layouts
 
 
-def _file_keys(roles: pd.DataFrame) -> dict[str, str]:
-    """A short key for each input file ("f0", "f1"): the staged cells carry it, not the path, which held on
-    each of millions of cells costs more memory than the cell (DuckDB inlines strings of up to 12 bytes)."""
-    return {path: f"f{i}" for i, path in enumerate(dict.fromkeys(roles["file"]))}
+def _file_keys(roles: list[Role]) -> dict[str, str]:
+    """A short key for each input file ("f0", "f1"): the staged rows carry it, not the path."""
+    return {path: f"f{i}" for i, path in enumerate(dict.fromkeys(r.file for r in roles))}
 
 
-def _stage(store: Store, config: Config, roles: pd.DataFrame, layouts: dict[str, CsvLayout],
+def _stage(store: Store, config: Config, roles: list[Role], layouts: dict[str, CsvLayout],
            progress: Progress | None) -> None:
+    """Read each file once into import_raw (its mapped columns only)."""
     keys = _file_keys(roles)
-    store.run("import_temp_tables")
-    store.con.register("roles_frame", roles.assign(file=roles["file"].map(keys)))
-    store.con.execute("INSERT INTO import_roles SELECT * FROM roles_frame")
-    store.con.unregister("roles_frame")
+    stage_roles(store, roles, keys, str(config.parcels_file), str(config.sales_source))
     for i, (file, key) in enumerate(keys.items(), 1):
-        columns = sorted(set(roles.loc[roles["file"] == file, "col"]))
-        store.run("import_stage_parquet" if _is_parquet(file) else "import_stage_csv", [key, file, columns])
+        if _is_parquet(file):
+            store.run("import_stage_parquet", [key, file, _columns(roles, file)])
+        else:
+            store.run("import_stage_csv", [key, file, _columns(roles, file), layouts[file].spaced])
         lines = layouts[file].lines if file in layouts else None
         if lines is not None:                     # rows after a quoted line break or a blank line
-            store.con.register("import_line_map", pd.DataFrame({"row": range(1, len(lines) + 1), "line": lines}))
+            store.con.register("import_line_map", {"row": np.arange(1, len(lines) + 1), "line": lines})
             store.run("import_fix_lines", {"file": key})
             store.con.unregister("import_line_map")
         if progress:
             progress("reading files", i, len(keys))
-    store.run("import_cells", [keys[str(config.parcels_file)], keys[str(config.sales_source)], config.date_format])
 
 
 def _write_report(problems: list[DataProblem], path: Path) -> None:
@@ -191,7 +230,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
     """Check and load the configured files; all or nothing. Raises DataErrors listing every problem; a file
     without data rows is a problem unless `allow_empty`. Holds the project's writer lock (reval.data.store)."""
     today = today or dt.date.today()
-    roles = _roles_frame(config)
+    roles = _roles(config)
     prints = _fingerprint(config)
     report = config.folder / ERROR_REPORT
     with open_store(config.database, memory_mb=config.memory_mb) as store:
@@ -199,17 +238,17 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
         if current == prints:
             return _result(store, config, changed=False, prints=prints)
         layouts = _check_structure(store, config, allow_empty, report)
-        _check_columns(config, roles, store)
+        roles = _numbered(roles, _check_columns(config, roles, store))
         _stage(store, config, roles, layouts, progress)
-        found = store.frame("import_problems", {"today": today, "date_format": config.date_format,
-                                                "latest_date": _latest_date(config), "max_amount": config.max_amount})
-        if len(found):
+        found = store.rows("import_problems", {"today": today, "date_format": config.date_format,
+                                               "latest_date": _latest_date(config), "max_amount": config.max_amount})
+        if found:
             path_of = {key: path for path, key in _file_keys(roles).items()}
-            problems = [DataProblem(path_of[r.file], int(r.line), r.column, r.value, r.reason)
-                        for r in found.itertuples()]
+            problems = [DataProblem(path_of[file], int(line), column, value, reason)
+                        for file, line, column, value, reason in found]
             _write_report(problems, report)
             raise DataErrors(problems, report)
-        store.run("import_build")
+        store.run("import_build", {"date_format": config.date_format})
         with store.transaction() as con:
             store.run("import_replace")
             counts = _counts(store)
@@ -225,8 +264,7 @@ def run_import(config: Config, progress: Progress | None = None, today: dt.date 
 
 
 def _counts(store: Store) -> dict[str, int]:
-    frame = store.frame("dataset_counts")
-    return {k: int(v) for k, v in frame.iloc[0].items()}
+    return {k: int(v) for k, v in store.records("dataset_counts")[0].items()}
 
 
 def _result(store: Store, config: Config, changed: bool, prints: dict[str, str]) -> ImportResult:
