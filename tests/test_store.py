@@ -98,8 +98,8 @@ def test_duckdb_holds_at_most_the_configured_memory(small_project: Path) -> None
 BULK_TABLES = ("parcels", "sales", "sale_qualification", "adjusted_sales")
 
 
-def test_version_14_keeps_the_bulk_tables_rows_and_drops_their_keys(small_project: Path) -> None:
-    """Tables a step replaces as a whole carry no primary key from version 14 (DuckDB removes each deleted row from
+def test_version_15_keeps_the_bulk_tables_rows_and_drops_their_keys(small_project: Path) -> None:
+    """Tables a step replaces as a whole carry no primary key from version 15 (DuckDB removes each deleted row from
     a key's index one by one at commit: replacing a million parcels took 44 s to commit); a project made before keeps
     every row and column."""
     from reval.data.store import sql_text
@@ -110,11 +110,11 @@ def test_version_14_keeps_the_bulk_tables_rows_and_drops_their_keys(small_projec
     path = small_project / "reval.duckdb"
     con = duckdb.connect(str(path))
     before = {t: con.execute(f"SELECT * FROM {t} ORDER BY ALL").fetchall() for t in BULK_TABLES}
-    # The same rows in the tables as version 13 declared them (with their keys).
+    # The same rows in the tables as version 14 declared them (with their keys).
     old = duckdb.connect()
     old.execute(sql_text("schema"))
     for version, migration in migrations():
-        if version <= 13:
+        if version <= 14:
             old.execute(migration.read_text(encoding="utf-8"))
     for table in BULK_TABLES:
         con.execute(f"DROP TABLE {table}")
@@ -124,10 +124,10 @@ def test_version_14_keeps_the_bulk_tables_rows_and_drops_their_keys(small_projec
         one_row = "(" + ", ".join(["?"] * len(before[table][0])) + ")"
         con.execute(f"INSERT INTO {table} VALUES " + ", ".join([one_row] * len(before[table])),
                     [v for row in before[table] for v in row])
-    con.execute("DELETE FROM schema_version WHERE version >= 14")
+    con.execute("DELETE FROM schema_version WHERE version >= 15")
     con.close()
     with Store(path) as store:
-        assert store.version() == latest_version() >= 14
+        assert store.version() == latest_version() >= 15
         for table in BULK_TABLES:
             assert store.con.execute(f"SELECT * FROM {table} ORDER BY ALL").fetchall() == before[table]
         keys = store.con.execute("SELECT table_name FROM duckdb_constraints() WHERE constraint_type = 'PRIMARY KEY' "
