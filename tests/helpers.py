@@ -351,8 +351,10 @@ def pin_run_id(database: Path, run_id: str) -> None:
     con = duckdb.connect(str(database))
     try:
         (old,), = con.execute("SELECT run_id FROM runs").fetchall()
-        columns = con.execute("SELECT table_name, column_name FROM information_schema.columns "
-                              "WHERE column_name IN ('run_id', 'study_id') AND table_schema = 'main'").fetchall()
+        columns = con.execute("SELECT c.table_name, c.column_name FROM information_schema.columns c "
+                              "JOIN information_schema.tables t USING (table_schema, table_name) "
+                              "WHERE c.column_name IN ('run_id', 'study_id') AND c.table_schema = 'main' "
+                              "AND t.table_type = 'BASE TABLE'").fetchall()
         con.begin()
         for table, column in columns:
             con.execute(f'UPDATE "{table}" SET "{column}" = replace("{column}", ?, ?)', [old, run_id])

@@ -2,14 +2,10 @@
 -- beyond +/- $threshold against the prior value: one page, filtered and sorted, with the count of all.
 -- $segment (NULL = all), $text (part of the parcel id, '' = all), $threshold, $sort (parcel | segment | prior |
 -- value | change: by size), $descending, $limit, $offset.
-WITH current_batch AS (
-    SELECT batch_id, segment, state FROM batches
-    WHERE state IN ('staged', 'held', 'approved', 'exported')
-    QUALIFY row_number() OVER (PARTITION BY segment ORDER BY state IN ('staged', 'held') DESC, batch_id DESC) = 1
-), listed AS (
+WITH listed AS (
     SELECT v.parcel_id, b.segment, b.batch_id, b.state, v.prior_value, v.market_value,
            v.market_value / v.prior_value - 1 AS change
-    FROM roll_values v JOIN current_batch b USING (batch_id)
+    FROM roll_values v JOIN current_batches b USING (batch_id)
     WHERE v.prior_value > 0 AND abs(v.market_value / v.prior_value - 1) > $threshold
       AND ($segment::VARCHAR IS NULL OR b.segment = $segment::VARCHAR)
       AND contains(lower(v.parcel_id), lower($text::VARCHAR))

@@ -2,15 +2,11 @@
 -- certified one; none before values are staged) and the change against its prior value: one page, filtered and
 -- sorted, with the count of all. $segment (NULL = all), $text (part of the parcel id or class, '' = all),
 -- $sort (parcel | segment | class | prior | value | change), $descending, $limit, $offset.
-WITH current_batch AS (
-    SELECT batch_id, segment, state FROM batches
-    WHERE state IN ('staged', 'held', 'approved', 'exported')
-    QUALIFY row_number() OVER (PARTITION BY segment ORDER BY state IN ('staged', 'held') DESC, batch_id DESC) = 1
-), listed AS (
+WITH listed AS (
     SELECT p.parcel_id, p.segment, p.property_class, p.prior_value, v.market_value,
            CASE WHEN p.prior_value > 0 THEN v.market_value / p.prior_value - 1 END AS change, b.state
     FROM parcels p
-    LEFT JOIN current_batch b ON b.segment = p.segment
+    LEFT JOIN current_batches b ON b.segment = p.segment
     LEFT JOIN roll_values v ON v.batch_id = b.batch_id AND v.parcel_id = p.parcel_id
     WHERE ($segment::VARCHAR IS NULL OR p.segment = $segment::VARCHAR)
       AND contains(lower(p.parcel_id || ' ' || p.property_class), lower($text::VARCHAR))
