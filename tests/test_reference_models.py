@@ -377,3 +377,21 @@ def test_new_references_never_see_the_fold_they_predict(model: str):
     after = cross_validated_predictions(factory, X, changed, segment, folds)
     np.testing.assert_array_equal(after[folds == 2], before[folds == 2])
     assert np.mean(np.abs(after[folds != 2] - before[folds != 2]) > 1e-9) > 0.9
+
+
+def test_plain_gam_on_many_sales_searches_its_smoothing_on_a_subsample_and_fits_every_sale():
+    # pygam (reference library): the grid search on the fixed random subsample chooses lam; the model then
+    # fitted at that lam on every sale equals a direct pygam fit at that lam on all the rows (1e-8).
+    rng = np.random.default_rng(16)
+    X, y, segment, _ = additive_sales(rng, 1500)
+    model = PlainGAM(SPECS, search_rows=400).fit(X, y, segment)
+    rows = np.sort(np.random.default_rng(0).choice(len(y), 400, replace=False))
+    searched = LinearGAM(s(0) + s(1) + f(2) + f(3) + f(4) + f(5)).gridsearch(
+        direct_pygam_columns(X, segment)[rows], y[rows], progress=False)
+    direct = LinearGAM(s(0) + s(1) + f(2) + f(3) + f(4) + f(5), lam=searched.lam).fit(direct_pygam_columns(X, segment), y)
+    assert model.gam_.statistics_["n_samples"] == len(y)
+    assert model.gam_.lam == searched.lam
+    np.testing.assert_allclose(model.predict(X, segment), direct.predict(direct_pygam_columns(X, segment)), atol=1e-8)
+    # Below the limit nothing changes: the search runs on every sale.
+    assert PlainGAM(SPECS, search_rows=1500).fit(X, y, segment).gam_.statistics_["GCV"] == pytest.approx(
+        PlainGAM(SPECS).fit(X, y, segment).gam_.statistics_["GCV"], rel=1e-12)
