@@ -30,7 +30,15 @@ async def _shown(folder: Path, keys: tuple[str, ...]) -> str:
         for key in keys:
             await pilot.press(key)
             await settle(pilot)
-        return "\n".join(line.rstrip() for line in screen_text(app))
+        # A table's scroll bars come and go while its columns are measured: wait until two captures agree.
+        shown, previous = "", None
+        for _ in range(50):
+            await pilot.pause(0.1)
+            shown = "\n".join(line.rstrip() for line in screen_text(app))
+            if shown == previous:
+                break
+            previous = shown
+        return shown
 
 
 @pytest.mark.parametrize("name", SCREENS)
