@@ -67,6 +67,13 @@ async def go_to(pilot: Pilot[Any], segment: str) -> None:
     assert isinstance(screen, OverviewScreen) and screen.current_segment() == segment
 
 
+async def open_segment(pilot: Pilot[Any], segment: str) -> None:
+    """Find a segment as a person would and open its drill-in."""
+    await go_to(pilot, segment)
+    await pilot.press("enter")
+    await settle(pilot)
+
+
 # ---- the overview ----------------------------------------------------------------------------------------------
 
 def test_overview_rows_and_marks_follow_the_stored_study(fitted_demo: Path) -> None:
@@ -610,9 +617,7 @@ async def _reference_tab_says_what_the_fit_chose_by_evidence(fitted_demo: Path) 
     app = RevalApp(fitted_demo)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
-        await go_to(pilot, name)
-        await pilot.press("enter")
-        await settle(pilot)
+        await open_segment(pilot, name)
         await pilot.press("6")
         shown = str(app.screen.query_one("#reference-title", Static).render())
     assert "Chosen on the training sales by evidence" in shown
@@ -643,9 +648,7 @@ async def _reference_tab_scores_every_model_on_the_same_sales_untrimmed(fitted_d
     app = RevalApp(fitted_demo)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
-        await go_to(pilot, name)
-        await pilot.press("enter")
-        await settle(pilot)
+        await open_segment(pilot, name)
         await pilot.press("6")
         rows = [r for r in table_rows(app.screen.query_one("#reference-table", DataTable)) if r[1] == name]
     # Every row: the same sales (n) and the COD its model earns on all of them.

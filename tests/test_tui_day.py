@@ -42,6 +42,17 @@ def test_an_analysts_day_from_input_files_to_an_exported_roll(tmp_path: Path) ->
     asyncio.run(_day(folder))
 
 
+
+async def _decide(pilot: Pilot[Any], segment: str, key: str, note: str, state: str) -> None:
+    """Find a segment, press the decision's key, type its note and see the batch take the state."""
+    app = pilot.app
+    await go_to(pilot, segment)
+    await pilot.press(key)
+    await type_text(pilot, note)
+    await _press(pilot, "enter")
+    await _last(app, f"{segment}: batch")
+    assert app.messages[-1][1].split(" is now ")[1].startswith(state)
+
 async def _press(pilot: Pilot[Any], *keys: str) -> None:
     await pilot.press(*keys)
     await settle(pilot)
@@ -116,20 +127,10 @@ async def _day(folder: Path) -> None:
         # hold the segment whose institutional parcels have no value; approve every segment that passes
         rows = views.overview(folder)["segments"]
         assert next(r for r in rows if r["segment"] == HELD)["failing"]
-        await go_to(pilot, HELD)
-        await pilot.press("h")
-        await type_text(pilot, "institutional parcels need the land schedule")
-        await _press(pilot, "enter")
-        await _last(app, f"{HELD}: batch")
-        assert app.messages[-1][1].split(" is now ")[1].startswith("held")
+        await _decide(pilot, HELD, "h", "institutional parcels need the land schedule", "held")
         approved = [r["segment"] for r in rows if not r["failing"]]
         for name in approved:
-            await go_to(pilot, name)
-            await pilot.press("a")
-            await type_text(pilot, "checked")
-            await _press(pilot, "enter")
-            await _last(app, f"{name}: batch")
-            assert app.messages[-1][1].split(" is now ")[1].startswith("approved")
+            await _decide(pilot, name, "a", "checked", "approved")
         await _press(pilot, "c")
 
         # every list the issue names, reachable from here, each row opening its parcel

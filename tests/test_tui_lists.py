@@ -7,7 +7,7 @@ import asyncio
 from pathlib import Path
 
 from helpers import query_frame, settle, table_rows, type_text
-from test_tui import SIZE, go_to
+from test_tui import SIZE, open_segment
 
 from reval.data.config import load_config
 from reval.service import actions, views
@@ -90,9 +90,7 @@ async def _audit_log_by_segment(demo_copy: Path) -> None:
     app = RevalApp(demo_copy)
     async with app.run_test(size=SIZE) as pilot:
         await settle(pilot)
-        await go_to(pilot, segment)
-        await pilot.press("enter")
-        await settle(pilot)
+        await open_segment(pilot, segment)
         await pilot.press("L")
         await settle(pilot)
         screen = app.screen
@@ -128,9 +126,7 @@ async def _parcels_and_every_sale(fitted_demo: Path) -> None:
     app = RevalApp(fitted_demo)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot)
-        await go_to(pilot, segment)
-        await pilot.press("enter")
-        await settle(pilot)
+        await open_segment(pilot, segment)
         await pilot.press("P")                                         # this segment's parcels
         await settle(pilot)
         screen = app.screen
