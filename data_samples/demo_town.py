@@ -104,6 +104,7 @@ QUALITY_EFFECTS = np.array([-0.30, -0.15, 0.0, 0.12, 0.25, 0.40])
 CONDITION_EFFECTS = np.array([-0.20, -0.09, 0.0, 0.05, 0.10])
 STYLE_EFFECTS = np.array([0.0, 0.03, -0.04, -0.10])
 WATERFRONT_PREMIUM = 0.22
+INTERACTION_EFFECTS = (0.05, 0.0008, 0.10)   # of the TRUE_INTERACTIONS products (`_interaction_terms`)
 PRIOR_PIVOT = np.log(350_000.0)
 
 # Market trend: steady growth with a dip centred on mid-2024 (years relative to the valuation date).
@@ -406,10 +407,19 @@ def _log_value(
         + _garage_curve(garage_spaces)
         + STYLE_EFFECTS[style]
         + WATERFRONT_PREMIUM * waterfront
-        + 0.05 * _log_area(living_area) * (quality - 2)
-        + 0.0008 * (VALUATION_YEAR - year_built - 50.0) * (condition - 2)
-        + 0.10 * waterfront * _log_lot(lot_size)
+        + sum(effect * term for effect, term in zip(INTERACTION_EFFECTS, _interaction_terms(
+            living_area, lot_size, year_built, quality, condition, waterfront)))
     )
+
+
+def _interaction_terms(living_area: np.ndarray, lot_size: np.ndarray, year_built: np.ndarray, quality: np.ndarray,
+                       condition: np.ndarray, waterfront: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The products of the TRUE_INTERACTIONS pairs, in that order (their coefficients: INTERACTION_EFFECTS); each
+    vanishes at its pair's reference point (1,600 sq ft or quality "average", age 50 or condition "average", no
+    waterfront or no lot)."""
+    return (_log_area(living_area) * (quality - 2),
+            (VALUATION_YEAR - np.asarray(year_built, dtype=float) - 50.0) * (condition - 2),
+            np.asarray(waterfront, dtype=float) * _log_lot(lot_size))
 
 
 def _vacant_log_value(geo: Geography, nb: np.ndarray, lot_size: np.ndarray) -> np.ndarray:
@@ -871,8 +881,9 @@ def true_log_index(dates: object, variant: str | None = None) -> np.ndarray:
     return -TURN_CURVATURE * (t - TURN_PEAK) ** 2 + TURN_CURVATURE * TURN_PEAK ** 2
 
 
-def binary_effects(frame: pd.DataFrame) -> np.ndarray:
-    """The binary_interactions variant's addition to the true log value: main effects and interactions."""
+def _binary_terms(frame: pd.DataFrame) -> list[np.ndarray]:
+    """The binary_interactions variant's terms: each yes/no feature, then each BINARY_INTERACTIONS product (their
+    coefficients: BINARY_EFFECTS, then the products')."""
     def term(name: str) -> np.ndarray:
         if name == "living_area":
             return _log_area(frame[name].to_numpy(float))
@@ -880,10 +891,13 @@ def binary_effects(frame: pd.DataFrame) -> np.ndarray:
             return _log_lot(frame[name].to_numpy(float))
         return frame[name].to_numpy(float)
 
-    out = sum(effect * term(name) for name, effect in zip(BINARY_FEATURES, BINARY_EFFECTS))
-    for a, b, coefficient in BINARY_INTERACTIONS:
-        out = out + coefficient * term(a) * term(b)
-    return np.asarray(out, dtype=float)
+    return [*(term(name) for name in BINARY_FEATURES), *(term(a) * term(b) for a, b, _ in BINARY_INTERACTIONS)]
+
+
+def binary_effects(frame: pd.DataFrame) -> np.ndarray:
+    """The binary_interactions variant's addition to the true log value: main effects and interactions."""
+    coefficients = (*BINARY_EFFECTS, *(c for _, _, c in BINARY_INTERACTIONS))
+    return np.asarray(sum(c * t for c, t in zip(coefficients, _binary_terms(frame))), dtype=float)
 
 
 def _correct_parcels(town: DemoTown) -> pd.DataFrame:
@@ -904,10 +918,12 @@ def true_log_values(town: DemoTown) -> pd.Series:
     return pd.Series(true_log_value(_correct_parcels(town)), index=town.parcels["parcel_id"].to_numpy())
 
 
-def oracle_log_values(town: DemoTown, parcel_ids: object) -> np.ndarray:
+def oracle_log_values(town: DemoTown, parcel_ids: object, recorded: bool = False) -> np.ndarray:
     """The oracle's log value for each listed parcel (e.g. the sold parcels of the sales the models are scored on,
-    in their order): the generator's truth. A parcel the town does not have is an error, never a gap."""
-    truth = true_log_values(town).reindex(np.asarray(parcel_ids, dtype=object))
+    in their order): the generator's truth (`recorded`: at the features as recorded, `recorded_log_values`). A
+    parcel the town does not have is an error, never a gap."""
+    values = recorded_log_values(town) if recorded else true_log_values(town)
+    truth = values.reindex(np.asarray(parcel_ids, dtype=object))
     if truth.isna().any():
         raise ValueError(f"no true value for parcel {truth.index[truth.isna()][0]!r}")
     return truth.to_numpy(float)
@@ -1168,3 +1184,80 @@ def main(argv: list[str] | None = None) -> None:
 
 if __name__ == "__main__":
     main()
+
+
+# ---- the truth's form with unknown coefficients ----------------------------------------------
+#
+# A benchmark floor (bench/accuracy.py): a fit TOLD the truth's functional form, estimating only its coefficients
+# from the sales, shows how close any estimator could come to the oracle on the same sales.
+
+# `missing` has no known form: a fifth of its parcels lack year_built or bathrooms, which the truth needs, so no
+# regressors of the recorded features span it (a floor there would need each missing value's conditional mean).
+KNOWN_FORM_VARIANTS = (None, "heavy_tails", "keying_errors", "thin", "one_date", "turning_market",
+                       "binary_interactions")
+# The variants whose truth is the default town's function of the features (thin adds a level per thin segment,
+# binary_interactions terms of its own, missing's recorded features lack values the truth needs).
+DEFAULT_TRUTH_VARIANTS = (None, "heavy_tails", "keying_errors", "one_date", "turning_market")
+FREE, LEVEL, SLOPE = 0, 1, 2              # KnownForm.group: free, neighbourhood level, neighbourhood slope
+
+
+@dataclass(frozen=True)
+class KnownForm:
+    """Regressors whose span holds the true log value of built parcels, and each column's group: FREE, a
+    neighbourhood's level (LEVEL, beside its market area's) or its living-area slope (SLOPE, beside the common
+    one); a fit may shrink the last two groups toward the market area and the common slope."""
+
+    columns: np.ndarray
+    group: np.ndarray
+
+
+def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
+    return (np.asarray(codes)[:, None] == np.arange(n_levels)[None, :]).astype(float)
+
+
+def known_form(parcels: pd.DataFrame, variant: str | None = None) -> KnownForm:
+    """The truth's functional form with its coefficients unknown, from the parcels' features as given: a level per
+    market area and per neighbourhood, the living-area curve with a common slope and one per neighbourhood, the
+    age, lot, bathroom and garage curves, a level per quality, condition and style (first level the baseline),
+    waterfront, the TRUE_INTERACTIONS products and (binary_interactions) that variant's terms. Built by the same
+    functions as `_log_value`, so the truth lies in the span (tests/test_demo_variants.py checks it)."""
+    if variant not in KNOWN_FORM_VARIANTS:
+        raise ValueError(f"no known form for variant {variant!r}; expected one of {KNOWN_FORM_VARIANTS}")
+    if (parcels["property_class"] == PROPERTY_CLASSES[VACANT]).any():
+        raise ValueError("the known form is of built parcels; vacant lots follow the land schedule")
+    numeric = {c: parcels[c].to_numpy(dtype=float, na_value=np.nan) for c in
+               ("living_area", "lot_size", "year_built", "bathrooms", "garage_spaces", "waterfront")}
+    if any(np.isnan(v).any() for v in numeric.values()):
+        raise ValueError("the known form needs every feature of every parcel")
+    quality = _codes(parcels["quality"], QUALITY_LEVELS, "quality")
+    condition = _codes(parcels["condition"], CONDITION_LEVELS, "condition")
+    style = _codes(parcels["style"], STYLE_LEVELS, "style")
+    area_ids, area = np.unique(parcels["market_area"].astype(str), return_inverse=True)
+    nb_ids, nb = np.unique(parcels["neighbourhood"].astype(str), return_inverse=True)
+    area_curve = _area_curve(numeric["living_area"])
+    neighbourhood = _indicators(nb, nb_ids.size)
+    free = [
+        _indicators(area, area_ids.size),
+        area_curve[:, None],
+        *(f(numeric[c])[:, None] for f, c in ((_age_curve, "year_built"), (_lot_curve, "lot_size"),
+                                              (_bathroom_curve, "bathrooms"), (_garage_curve, "garage_spaces"))),
+        _indicators(quality, len(QUALITY_LEVELS))[:, 1:],
+        _indicators(condition, len(CONDITION_LEVELS))[:, 1:],
+        _indicators(style, len(STYLE_LEVELS))[:, 1:],
+        numeric["waterfront"][:, None],
+        *(t[:, None] for t in _interaction_terms(numeric["living_area"], numeric["lot_size"], numeric["year_built"],
+                                                 quality, condition, numeric["waterfront"])),
+        *((t[:, None] for t in _binary_terms(parcels)) if variant == "binary_interactions" else ()),
+    ]
+    free_columns = np.column_stack(free)
+    columns = np.column_stack([free_columns, neighbourhood, neighbourhood * area_curve[:, None]])
+    group = np.repeat([FREE, LEVEL, SLOPE], [free_columns.shape[1], nb_ids.size, nb_ids.size])
+    return KnownForm(columns=columns, group=group)
+
+
+def recorded_log_values(town: DemoTown) -> pd.Series:
+    """The truth at each parcel's features as recorded, planted feature errors left in (the oracle sees the correct
+    ones), by parcel id; for the default town and the variants whose truth is the default function."""
+    if town.variant not in DEFAULT_TRUTH_VARIANTS:
+        raise ValueError(f"variant {town.variant!r} has a truth of its own; expected one of {DEFAULT_TRUTH_VARIANTS}")
+    return pd.Series(true_log_value(town.parcels), index=town.parcels["parcel_id"].to_numpy())
