@@ -26,10 +26,15 @@ from pathlib import Path
 import lightgbm
 import numpy as np
 import pandas as pd
+from scipy.linalg import cho_factor, cho_solve
+from statsmodels.robust.norms import HuberT
+from statsmodels.robust.scale import mad
 from threadpoolctl import threadpool_limits
 
 from data_samples.ames_data import write_ames_csv
-from data_samples.demo_town import VARIANTS, DemoTown, generate, oracle_log_values, write_project
+from data_samples.demo_town import (DEFAULT_TRUTH_VARIANTS, KNOWN_FORM_VARIANTS, LEVEL, SLOPE, VARIANTS, DemoTown,
+                                    KnownForm,
+                                    generate, known_form, oracle_log_values, write_project)
 from reval.service.actions import DEMO_FILES, DEMO_SOURCE
 from reval.data.config import load_config
 from reval.data.dataset import qualified_sales, with_shapes
@@ -73,11 +78,80 @@ class LightGBMModel:
         return np.asarray(self.model_.predict(self._frame(X, segment)), dtype=float)
 
 
+class KnownFormModel:
+    """The truth's functional form (data_samples.demo_town.known_form) with its coefficients estimated: a floor for
+    what an estimator could reach on the same sales (benchmark-only reference, the demo and its variants).
+
+    Huber's M-estimate (Huber 1964; statsmodels.robust.norms.HuberT, t = 1.345, the scale re-estimated each step as
+    the MAD of the residuals, statsmodels.robust.scale.mad, as statsmodels RLM does by default), so the gross keying
+    errors and heavy tails of some variants do not pull it, computed by iteratively reweighted least squares
+    (Holland & Welsch 1977) with ridge penalties on the neighbourhood levels (beside the market areas') and on the
+    neighbourhood living-area slopes (beside the common one): a neighbourhood absent from the training rows gets
+    its market area's level and the common slope. Both strengths are chosen on the training rows alone by
+    generalized cross-validation (Golub, Heath & Wahba 1979) of the weighted fit over STRENGTHS, re-chosen with the
+    converged weights until the choice holds."""
+
+    STRENGTHS = np.logspace(-3, 5, 17)
+    MAX_STEPS, MAX_ROUNDS, TOLERANCE = 100, 5, 1e-8
+
+    def __init__(self, group: np.ndarray) -> None:
+        self.group = group
+        self.specs: Sequence[Feature] = ()   # its columns are the known form's (ReferenceModel asks for features)
+
+    def _solve(self, G: np.ndarray, b: np.ndarray, strengths: tuple[float, float]) -> tuple[np.ndarray, float]:
+        """Penalised weighted least squares from the cross-products: coefficients and the trace of the hat matrix."""
+        penalty = np.select([self.group == LEVEL, self.group == SLOPE], strengths, 0.0)
+        M = G + np.diag(penalty + 1e-10 * np.mean(np.diag(G)))   # the last term a numerical safeguard only
+        factor = cho_factor(M)
+        return cho_solve(factor, b), float(np.trace(cho_solve(factor, G)))
+
+    def _gcv(self, A: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[float, float]:
+        """The strengths minimising n RSS_w / (n - tr H)^2 (GCV, Golub, Heath & Wahba 1979) at weights w."""
+        G, b = A.T @ (w[:, None] * A), A.T @ (w * y)
+        best, chosen = np.inf, (0.0, 0.0)
+        for level in self.STRENGTHS:
+            for slope in self.STRENGTHS:
+                coef, edf = self._solve(G, b, (level, slope))
+                score = len(y) * float(np.sum(w * (y - A @ coef) ** 2)) / (len(y) - edf) ** 2
+                if score < best:
+                    best, chosen = score, (float(level), float(slope))
+        return chosen
+
+    def _huber(self, A: np.ndarray, y: np.ndarray, strengths: tuple[float, float]) -> tuple[np.ndarray, np.ndarray]:
+        """IRLS at fixed strengths: coefficients and the final Huber weights."""
+        w, coef = np.ones(len(y)), np.zeros(A.shape[1])
+        for _ in range(self.MAX_STEPS):
+            new, _ = self._solve(A.T @ (w[:, None] * A), A.T @ (w * y), strengths)
+            residual = y - A @ new
+            w = HuberT().weights(residual / mad(residual))
+            if np.max(np.abs(new - coef)) < self.TOLERANCE:
+                break
+            coef = new
+        return new, w
+
+    def fit(self, A: np.ndarray, y: np.ndarray, segment: np.ndarray) -> "KnownFormModel":
+        w = np.ones(len(y))
+        strengths = self._gcv(A, y, w)
+        for _ in range(self.MAX_ROUNDS):
+            self.coef_, w = self._huber(A, y, strengths)
+            again = self._gcv(A, y, w)
+            if again == strengths:
+                break
+            strengths = again
+        self.strengths_ = strengths
+        return self
+
+    def predict(self, A: np.ndarray, segment: np.ndarray) -> np.ndarray:
+        return np.asarray(A @ self.coef_, dtype=float)
+
+
 DATA = ("ames", "demo", *VARIANTS)
 VARIANT_PARCELS = 20_000             # the demo's size
 REFERENCES = ("hedonic_ols", "plain_gam", "gradient_boosting")   # of reval.model.comparison.reference_factories
 TARGET_REFERENCES = ("hedonic_ols", "plain_gam", "lightgbm")     # the COD target: at or below the best of these
 ORACLE = "oracle"
+ORACLE_RECORDED = "oracle_recorded"  # the truth at the features as recorded (planted feature errors left in)
+KNOWN_FORM = "known_form"
 ORACLE_TARGET = 3.0                  # per cent above the oracle's COD, demo variants
 
 
@@ -92,6 +166,14 @@ def _project(name: str, folder: Path) -> DemoTown | None:
             shutil.copyfile(DEMO_SOURCE / file, folder / file)
         return generate()               # the shipped demo is generate()'s default town (tests/test_demo_town.py)
     return write_project(folder, n_parcels=VARIANT_PARCELS, variant=name)
+
+
+def _known_form(town: DemoTown, frame: pd.DataFrame) -> KnownForm:
+    """The known-form regressors of the sales' parcels, from their features as recorded (what the models see)."""
+    parcels = town.parcels.set_index("parcel_id").loc[frame["parcel_id"].to_numpy()].reset_index()
+    if not (parcels["neighbourhood"].astype(str).to_numpy() == frame["segment"].to_numpy(str)).all():
+        raise ValueError("the known form's neighbourhoods must be the sales' segments")
+    return known_form(parcels, town.variant)
 
 
 def run(name: str) -> pd.DataFrame:
@@ -121,12 +203,20 @@ def run(name: str) -> pd.DataFrame:
                      if k in REFERENCES}
         factories["lightgbm"] = lambda: LightGBMModel(sales.features, settings.seed)
         predictions, seconds = compare_models(factories, X, y, segment, folds, targets)
+        if town is not None and town.variant in KNOWN_FORM_VARIANTS:
+            form = _known_form(town, frame)
+            more, more_seconds = compare_models({KNOWN_FORM: lambda: KnownFormModel(form.group)}, form.columns, y,
+                                                segment, folds, targets)
+            predictions, seconds = {**predictions, **more}, {**seconds, **more_seconds}
     predictions = {OURS: ours, **predictions}
     seconds = {OURS: ours_seconds, **seconds}
     if town is not None:   # the truth of the very sales the models are scored on, against the same adjusted prices
         predictions[ORACLE] = oracle_log_values(town, frame["parcel_id"])
+        if town.variant in DEFAULT_TRUTH_VARIANTS:
+            predictions[ORACLE_RECORDED] = oracle_log_values(town, frame["parcel_id"], recorded=True)
     table = accuracy_table(y, predictions, segment, seconds, seed=settings.seed)
-    names = {"lightgbm": "LightGBM", ORACLE: "oracle (true values)"}
+    names = {"lightgbm": "LightGBM", ORACLE: "oracle (true values)", ORACLE_RECORDED: "oracle at recorded features",
+             KNOWN_FORM: "known form (true form, fitted coefficients)"}
     table["model_name"] = table["model"].map(lambda m: names.get(m) or model_name(m))
     return table[table["segment"] == "(all)"].drop(columns=["segment"]).assign(data=name)
 

@@ -11,10 +11,14 @@ import numpy as np
 import pandas as pd
 import pytest
 from scipy import stats
+from threadpoolctl import threadpool_limits
 
 from data_samples.demo_town import (
     BINARY_FEATURES,
     BINARY_INTERACTIONS,
+    DEFAULT_TRUTH_VARIANTS,
+    FREE,
+    KNOWN_FORM_VARIANTS,
     KEYED_SHARE,
     MISSING_FEATURES,
     NOISE_SD,
@@ -24,7 +28,9 @@ from data_samples.demo_town import (
     DemoTown,
     binary_effects,
     generate,
+    known_form,
     oracle_log_values,
+    recorded_log_values,
     true_log_index,
     true_log_values,
     variant_config,
@@ -113,6 +119,60 @@ def test_thin_has_forty_segments_of_one_to_ten_sales(towns: dict[str | None, Dem
     assert (sold["validity"] == "valid").all() and (sold["sale_date"] >= pd.Timestamp(str(WINDOW_START))).all()
     shift = (true_log_values(town) - true_log_values(towns[None]).loc[town.parcels["parcel_id"]]).loc[thin["parcel_id"]]
     assert shift.groupby(thin["neighbourhood"].to_numpy()).nunique().eq(1).all() and shift.std() > 0.03
+
+
+def _unplanted_built(town: DemoTown) -> pd.DataFrame:
+    """The built parcels with no planted feature error (their recorded features are the correct ones)."""
+    wrong = town.planted_errors.loc[town.planted_errors["column"] != "sale_price", "parcel_id"]
+    parcels = town.parcels
+    return parcels[(parcels["property_class"] != "vacant_land") & ~parcels["parcel_id"].isin(wrong)]
+
+
+@pytest.mark.parametrize("variant", KNOWN_FORM_VARIANTS)
+def test_the_known_form_spans_the_truth(variant: str | None, towns: dict[str | None, DemoTown]) -> None:
+    # The benchmark's known-form floor is a fit of the truth's form; least squares of the true log values on its
+    # regressors leaves no residual, so the form cannot drift from _log_value (or a variant's additions) unnoticed.
+    town = towns[variant]
+    parcels = _unplanted_built(town)
+    truth = true_log_values(town).loc[parcels["parcel_id"]].to_numpy()
+    form = known_form(parcels, variant)
+    assert form.columns.shape == (len(parcels), len(form.group))
+
+    def residual(columns: np.ndarray, target: np.ndarray = truth) -> float:
+        with threadpool_limits(limits=1):   # threads on a busy machine make these small solves many times slower
+            coef, *_ = np.linalg.lstsq(columns, target, rcond=None)
+        return float(np.max(np.abs(target - columns @ coef)))
+
+    assert residual(form.columns) < 1e-9
+    # Each feature term is needed: without any one the truth leaves the span, so the check can fail. (The market
+    # areas' levels and the common slope are also spanned by the neighbourhoods' and may go.)
+    neighbourhood = form.columns[:, form.group != FREE]
+    terms = [j for j in np.flatnonzero(form.group == FREE) if residual(neighbourhood, form.columns[:, j]) > 1e-6]
+    assert len(terms) >= 20
+    for j in terms:
+        assert residual(np.delete(form.columns, j, axis=1)) > 1e-4, j
+
+
+def test_missing_has_no_known_form(towns: dict[str | None, DemoTown]) -> None:
+    assert "missing" not in KNOWN_FORM_VARIANTS
+    with pytest.raises(ValueError, match="no known form"):
+        known_form(_unplanted_built(towns["missing"]), "missing")
+    with pytest.raises(ValueError, match="vacant lots"):
+        known_form(towns[None].parcels, None)
+
+
+@pytest.mark.parametrize("variant", DEFAULT_TRUTH_VARIANTS)
+def test_the_truth_at_recorded_features_differs_only_where_a_feature_error_was_planted(
+        variant: str | None, towns: dict[str | None, DemoTown]) -> None:
+    town = towns[variant]
+    truth, recorded = true_log_values(town), recorded_log_values(town)
+    wrong = town.planted_errors.loc[town.planted_errors["column"] != "sale_price", "parcel_id"]
+    moved = truth.index[np.abs(truth.to_numpy() - recorded.to_numpy()) > 1e-12]
+    assert sorted(moved) == sorted(wrong) and len(wrong) == 5
+    sold = town.sales["parcel_id"]
+    np.testing.assert_array_equal(oracle_log_values(town, sold, recorded=True), recorded.loc[sold].to_numpy())
+    with pytest.raises(ValueError, match="truth of its own"):
+        recorded_log_values(towns["thin"])
 
 
 def test_one_date_puts_every_sale_on_one_day(towns: dict[str | None, DemoTown]) -> None:
