@@ -38,8 +38,7 @@ from threadpoolctl import threadpool_limits
 
 from data_samples.ames_data import write_ames_csv
 from data_samples.demo_town import (DEFAULT_TRUTH_VARIANTS, KNOWN_FORM_VARIANTS, LEVEL, SLOPE, VARIANTS, DemoTown,
-                                    KnownForm,
-                                    generate, known_form, oracle_log_values, write_project)
+                                    KnownForm, generate, known_form, oracle_log_values, write_project)
 from reval.service.actions import DEMO_FILES, DEMO_SOURCE
 from reval.data.config import load_config
 from reval.data.dataset import qualified_sales, with_shapes
@@ -87,14 +86,16 @@ class KnownFormModel:
     """The truth's functional form (data_samples.demo_town.known_form) with its coefficients estimated: a floor for
     what an estimator could reach on the same sales (benchmark-only reference, the demo and its variants).
 
-    Huber's M-estimate (Huber 1964; statsmodels.robust.norms.HuberT, t = 1.345, the scale re-estimated each step as
-    the MAD of the residuals, statsmodels.robust.scale.mad, as statsmodels RLM does by default), so the gross keying
-    errors and heavy tails of some variants do not pull it, computed by iteratively reweighted least squares
-    (Holland & Welsch 1977) with ridge penalties on the neighbourhood levels (beside the market areas') and on the
-    neighbourhood living-area slopes (beside the common one): a neighbourhood absent from the training rows gets
-    its market area's level and the common slope. Both strengths are chosen on the training rows alone by
-    generalized cross-validation (Golub, Heath & Wahba 1979) of the weighted fit over STRENGTHS, re-chosen with the
-    converged weights until the choice holds."""
+    Huber's M-estimate (Huber 1964, Ann. Math. Statist. 35:73-101; statsmodels.robust.norms.HuberT, t = 1.345, the
+    scale re-estimated each step as the MAD of the residuals, statsmodels.robust.scale.mad, as statsmodels RLM does
+    by default), so the gross keying errors and heavy tails of some variants do not pull it, computed by
+    iteratively reweighted least squares (Holland & Welsch 1977, Comm. Statist. A6:813-827) with ridge penalties on
+    the neighbourhood levels (beside the market areas') and on the neighbourhood living-area slopes (beside the
+    common one): a neighbourhood absent from the training rows gets its market area's level and the common slope.
+    Both strengths are chosen on the training rows alone by generalized cross-validation (Golub, Heath & Wahba
+    1979, Technometrics 21:215-223) of the weighted fit at the current Huber weights (GCV of the working weighted
+    problem: common practice for penalised IRLS) over STRENGTHS, re-chosen with the converged weights until the
+    choice holds; no strength is set from test figures. (References from memory.)"""
 
     STRENGTHS = np.logspace(-3, 5, 17)
     MAX_STEPS, MAX_ROUNDS, TOLERANCE = 100, 5, 1e-8
