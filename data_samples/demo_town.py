@@ -62,6 +62,10 @@ Stress variants (`generate(..., variant=NAME)`, `--variant NAME`; VARIANTS): the
 planted from a random stream of its own, for benchmarks on data reval was not tuned on: Student-t sale noise,
 2 % keyed prices, 40 thin segments, one sale date, a turning ten-year market, 20 % missing in two features,
 interacting yes/no features. Each carries its truth (`true_log_values`); see "stress variants" below.
+
+For benchmarks: `known_form` gives regressors whose span holds the truth (its form with the coefficients unknown, for
+a fit on the sales: how close any estimator could come to the oracle), `recorded_log_values` the truth at the
+features as recorded (planted feature errors left in).
 """
 
 from __future__ import annotations
