@@ -724,11 +724,17 @@ class FittedHierarchy:
 
     def summary(self, segment: str) -> dict[str, object]:
         """How the segment was modelled: sales, kind, reason, deviation edf and columns, the share borrowed
-        (1 - edf / columns), the pairs in its own deviation (own or inherited) and its penalties."""
-        _, fit = self._segment_chain(segment)
+        (1 - edf / columns), the pairs in its own deviation (own or inherited) and its penalties. The share is of
+        the columns a deviation of its market area's basis would have, so a thin segment's coarser curves
+        (THIN_BASIS) count as borrowed."""
+        chain, fit = self._segment_chain(segment)
         level = fit.level
         edf = level.edf if level is not None else 0.0
-        share = edf / level.n_columns if level is not None else 0.0
+        share = 0.0
+        if level is not None:
+            curves = sum(t.kind == "continuous" and not t.constant for t in level.spec.transforms)
+            full = level.n_columns + curves * max(chain[-2].spec.n_basis - level.spec.n_basis, 0)
+            share = edf / full
         return {
             "segment": fit.name,
             "market_area": fit.market_area,
