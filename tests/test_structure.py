@@ -12,7 +12,8 @@ import numpy as np
 
 from reval.data.store import open_store
 from reval.model.design import DesignSpec
-from reval.model.hierarchy import fit_hierarchy
+from reval.model import POOLING_AREAS, POOLING_SEGMENTS, THIN_CURVES
+from reval.model.hierarchy import THIN_BASIS, Deleted, _choose_pooling, fit_hierarchy
 from reval.model.penalised import PenalisedLS
 from reval.model.settings import ModelSettings
 from reval.model.structure import GCV, INNER_CV, LOO, Smooth, candidate_smooths, choose_smooths
@@ -166,8 +167,66 @@ def test_the_run_stores_its_structure_and_compare_shows_it(demo_project: Path) -
     with open_store(demo_project / "reval.duckdb", read_only=True) as store:
         stored = store.records("run_structure_rows", [data["run_id"]])
     assert len(rows) == len(stored) > 0
-    assert {r["choice"] for r in rows} == {"smooth interactions", "loss"}
+    assert {r["choice"] for r in rows} == {"smooth interactions", "loss", POOLING_AREAS, THIN_CURVES, POOLING_SEGMENTS}
     for key in {(r["step"], r["choice"], r["criterion"]) for r in rows}:  # exactly one candidate chosen per step
         assert sum(r["chosen"] for r in rows if (r["step"], r["choice"], r["criterion"]) == key) == 1
     shown = reval("compare", "--project", str(demo_project), columns=200).stdout
     assert "Structure our model chose" in shown and "leave-one-out" in shown
+
+
+def test_the_deleted_residuals_are_those_of_refits_without_each_sale() -> None:
+    """The leave-one-out identity of a linear smoother at fixed penalties and weights (Wood 2017, Generalized
+    Additive Models, section 6.2.2, from memory), checked against one refit per sale, for the full deviation and for
+    a share of it."""
+    X, y, _, seg, _ = town(60, 11)
+    spec = DesignSpec.learn(X, FEATURES, 8, deviation=True)
+    offset = 12.0 + 0.5 * X[:, 0]
+    weights = np.random.default_rng(3).uniform(0.3, 1.0, len(y))
+    first = PenalisedLS().fit(spec.blocks(X), y, offset, weights)
+    deleted = Deleted.of(first)
+    without = np.empty(len(y))
+    for i in range(len(y)):
+        rest = np.arange(len(y)) != i
+        refit = PenalisedLS(lambdas=first.lambdas_).fit(spec.blocks(X[rest]), y[rest], offset[rest], weights[rest])
+        without[i] = refit.predict(spec.blocks(X[i:i + 1]))[0]
+    target = y - offset
+    for keep in (1.0, 0.6):
+        assert np.isclose(deleted.criterion(keep), np.mean(np.abs(target - keep * without)), rtol=1e-8)
+
+
+def test_pooling_keeps_the_share_of_the_deviations_that_predicts_left_out_sales_best() -> None:
+    rng = np.random.default_rng(12)
+    true = rng.normal(0.0, 0.1, 500)
+    target = true + rng.normal(0.0, 0.01, 500)
+    keep, choices = _choose_pooling(Deleted(target, 1.6 * true, np.zeros(500)), POOLING_SEGMENTS, 1)
+    assert 0.6 <= keep <= 0.7   # the deviations overshoot 1.6 times: about 1 / 1.6 of them is right
+    assert [c.candidate for c in choices if c.chosen] == [f"keep {keep:.0%} of each deviation"]
+    assert _choose_pooling(Deleted(target, target, np.zeros(500)), POOLING_SEGMENTS, 1)[0] == 1.0
+    assert _choose_pooling(Deleted(target, np.zeros(500), np.zeros(500)), POOLING_SEGMENTS, 1)[0] == 1.0  # a tie
+
+
+def thin_town(wiggle: float) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Eight segments of 50 sales (under min_sales_own_selection), each bending the area curve its own way by
+    `wiggle` x sin(4 pi area), which no single cubic can follow."""
+    rng = np.random.default_rng(21)
+    segment = np.repeat([f"S{i}" for i in range(8)], 50)
+    market_area = np.where(np.isin(segment, ["S0", "S1", "S2", "S3"]), "MA", "MB")  # both bends in each area
+    area, east, north = rng.uniform(0.0, 1.0, (3, len(segment)))
+    corner = (rng.random(len(segment)) < 0.3).astype(float)
+    sign = np.where(np.isin(segment, ["S0", "S2", "S4", "S6"]), 1.0, -1.0)
+    y = 12.0 + 0.8 * area + wiggle * sign * np.sin(4 * np.pi * area) + 0.1 * east + rng.normal(0.0, 0.05, len(segment))
+    return np.column_stack([area, east, north, corner]), y, segment, market_area
+
+
+def test_thin_segments_keep_their_finer_curves_where_their_sales_bend_and_the_choice_is_applied() -> None:
+    X, y, seg, ma = thin_town(0.2)
+    model = fit_hierarchy(X, y, seg, ma, FEATURES, dataclasses.replace(SETTINGS, location_surface=()))
+    thin = {c.candidate: c for c in model.choices if c.choice == THIN_CURVES}
+    assert set(thin) == {"8 basis functions", f"{THIN_BASIS} basis functions"}
+    assert thin["8 basis functions"].chosen and thin["8 basis functions"].value < thin["4 basis functions"].value
+    assert {f.level.spec.n_basis for f in model.segments.values() if f.level is not None} == {8}
+    flat = fit_hierarchy(*thin_town(0.0)[:2], seg, ma, FEATURES, dataclasses.replace(SETTINGS, location_surface=()))
+    chosen = next(c.candidate for c in flat.choices if c.choice == THIN_CURVES and c.chosen)
+    assert {f.level.spec.n_basis for f in flat.segments.values() if f.level is not None} == {int(chosen.split()[0])}
+    for choice in (POOLING_AREAS, POOLING_SEGMENTS):
+        assert sum(c.chosen for c in model.choices if c.choice == choice) == 1

@@ -264,7 +264,8 @@ def compare(result: dict[str, Any], console: Console) -> None:
                           "log price when the feature is shuffled)", importance, console)
     structure = [{**r, "chosen": "chosen" if r["chosen"] else ""} for r in result["structure"]]
     records_table("Structure our model chose on the training sales (smooth interactions: lowest GCV, confirmed by "
-                  "inner cross-validation; loss: lowest mean absolute leave-one-out residual; lower is better)",
+                  "inner cross-validation; loss, thin segments' curves and pooling: lowest mean absolute leave-one-out "
+                  "residual; lower is better)",
                   structure, console)
 
 

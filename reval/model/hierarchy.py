@@ -21,6 +21,12 @@ each segment, on its own deviation's leave-one-out residuals, was measured sligh
 (reval/model/shape.py) act on each layer with its parents' curves held fixed, so the total curve obeys them. All
 of it is redone inside every fold.
 
+Pooling and thin segments, chosen by evidence per fit (the leave-one-out residuals of each deviation layer, exact for
+a linear smoother: `Deleted`): each layer may keep only a share of its deviations (POOLING_GRID; a share below 1 pulls
+every segment further toward its parent than its own GCV did), and the segments under `min_sales_own_selection`
+sales get curves of THIN_BASIS basis functions instead of `n_basis_segment` when that predicts their sales left out
+better. Both are stored with the run and shown by `reval compare`.
+
 Structure (reval/model/structure.py): on top of the pairs, smooth interactions (curves per level of a factor, surfaces)
 enter the jurisdiction layer when GCV and an inner cross-validation on the training sales say they pay, and
 `loss = "auto"` picks Huber's loss or least squares by the leave-one-out error; the deviations keep product pairs only.
@@ -28,7 +34,7 @@ enter the jurisdiction layer when GCV and an inner cross-validation on the train
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable, Iterable, Mapping, Sequence
 
 import numpy as np
@@ -37,11 +43,11 @@ from joblib import Parallel, delayed
 from scipy.stats import norm
 from threadpoolctl import threadpool_limits
 
-from reval.model import RANGE_WEIGHT
+from reval.model import POOLING_AREAS, POOLING_SEGMENTS, RANGE_WEIGHT, THIN_CURVES
 from reval.model.design import INTERCEPT, Block, DesignSpec, Feature, Pair, sum_to_zero_basis, typical_value
 from reval.model.interactions import candidate_pairs, select_interactions
 from reval.model.settings import ModelSettings
-from reval.model.penalised import PenalisedLS, column_slices, stack
+from reval.model.penalised import TIE, PenalisedLS, column_slices, stack
 from reval.model.robust import Huber, Refined, refine
 from reval.model.shape import Layer, shape_constraint
 from reval.model.structure import LOO, Choice, Smooth, candidate_smooths, choose_smooths, loo_criterion
@@ -49,6 +55,8 @@ from reval.model.structure import LOO, Choice, Smooth, candidate_smooths, choose
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
 INNER_FOLDS = 5  # inner cross-validation of the structure choice (common practice: 5 or 10 folds)
+POOLING_GRID = np.linspace(1.0, 0.0, 11)  # shares of a layer's deviations compared by leave-one-out error (ties: 1)
+THIN_BASIS = 4  # the fewest cubic B-splines: one cubic per curve, the thin segments' alternative curves
 Progress = Callable[[int, int], None]
 
 
@@ -79,6 +87,12 @@ class LevelFit:
         level = cls(spec, tuple(pairs), smoother.coef_, smoother.cov_, smoother.slices_, smoother.lambdas_,
                     tuple(smoother.penalty_terms_), smoother.edf_, smoother.n_, tuple(smooths))
         return level, smoother
+
+    def shrunk(self, keep: float) -> LevelFit:
+        """The layer with its coefficients times `keep` (a deviation pulled further toward its parent; its edf and
+        posterior scale alike). For keep in [0, 1] the total curve parent + keep x deviation lies between two curves
+        that obey the shape rules, so it obeys them too."""
+        return replace(self, coef=self.coef * keep, cov=self.cov * keep**2, edf=self.edf * keep)
 
     @property
     def n_columns(self) -> int:
@@ -178,6 +192,47 @@ class SaleWeights:
     scale: float
 
 
+@dataclass(frozen=True)
+class Deleted:
+    """A deviation layer's leave-one-out view of its sales: the target it fitted (y - parent offset), its fitted
+    deviation and each sale's leverage (at its weight), from which the deletion residual of any share `keep` of
+    the deviation follows without a refit."""
+
+    target: np.ndarray
+    fitted: np.ndarray
+    leverage: np.ndarray
+
+    @classmethod
+    def of(cls, smoother: PenalisedLS) -> Deleted:
+        return cls(smoother.target_, smoother.target_ - smoother.resid_, smoother.leverage())
+
+    @classmethod
+    def join(cls, parts: Sequence[Deleted]) -> Deleted:
+        return cls(*(np.concatenate([getattr(p, f) for p in parts]) if parts else np.zeros(0)
+                     for f in ("target", "fitted", "leverage")))
+
+    def criterion(self, keep: float = 1.0) -> float:
+        """Mean absolute leave-one-out residual with the deviation scaled by `keep` (structure.loo_criterion's
+        figure): the sale's own deviation prediction without it is (f - h t) / (1 - h), exact for a linear smoother
+        at fixed penalties and weights (Wood 2017, section 6.2.2, from memory)."""
+        if not len(self.target):
+            return float("nan")
+        h = np.minimum(self.leverage, 1.0 - 1e-3)
+        without = (self.fitted - h * self.target) / (1.0 - h)
+        return float(np.mean(np.abs(self.target - keep * without)))
+
+
+def _choose_pooling(deleted: Deleted, choice: str, step: int) -> tuple[float, list[Choice]]:
+    """The share of a layer's deviations kept (POOLING_GRID) with the least leave-one-out error, and every
+    candidate's figure; 1 (each penalty as GCV chose it) when the layer fitted no sale."""
+    if not len(deleted.target):
+        return 1.0, []
+    values = [deleted.criterion(keep) for keep in POOLING_GRID]
+    best = next(i for i, v in enumerate(values) if v <= min(values) * (1 + TIE))  # ties: the most kept
+    return float(POOLING_GRID[best]), [Choice(step, choice, f"keep {keep:.0%} of each deviation", LOO, value, i == best)
+                                       for i, (keep, value) in enumerate(zip(POOLING_GRID, values))]
+
+
 def fold_ids(n: int, segment: np.ndarray, seed: int, k: int) -> np.ndarray:
     """Fold id 0..k-1 per row: a seeded permutation dealt round-robin within each segment from a random start.
 
@@ -218,17 +273,20 @@ def _crossfit(blocks: list[Block], y: np.ndarray, offset: np.ndarray | None, lam
 def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offset: np.ndarray,
                  parent: DesignSpec, features: Sequence[Feature], candidates: Sequence[Pair],
                  inherited: tuple[Pair, ...], settings: ModelSettings, segment_alpha: float,
-                 weights: np.ndarray, parents: tuple[LevelFit, ...]) -> SegmentFit:
-    """One segment's deviation on top of its market-area offset; a pure function, so segments can be mapped.
+                 weights: np.ndarray, parents: tuple[LevelFit, ...],
+                 n_basis: int | None = None) -> tuple[SegmentFit, Deleted | None]:
+    """One segment's deviation on top of its market-area offset, and its leave-one-out view; a pure function, so
+    segments can be mapped.
 
     `segment_alpha` is the level of its own selection: settings.alpha shared (Bonferroni) among the segments
     that select their own, so all segments together add a false pair with probability at most alpha. The
-    sales keep their weights from `_screen`; `parents` hold the curves its shape rules add to."""
+    sales keep their weights from `_screen`; `parents` hold the curves its shape rules add to. `n_basis`: basis
+    functions per curve (default settings.n_basis_segment)."""
     n = len(y)
     if n < settings.min_sales_own_deviation:
         reason = NO_SALES if n == 0 else f"only {n} qualified sale(s) (< {settings.min_sales_own_deviation})"
-        return SegmentFit(name, market_area, n, "parent_only", reason, None)
-    spec = DesignSpec.learn(X[_counted(weights)], features, settings.n_basis_segment, deviation=True,
+        return SegmentFit(name, market_area, n, "parent_only", reason, None), None
+    spec = DesignSpec.learn(X[_counted(weights)], features, n_basis or settings.n_basis_segment, deviation=True,
                             scale_from=parent)
     own = n >= settings.min_sales_own_selection and settings.interaction_rule != "none"
     if own:
@@ -245,8 +303,9 @@ def _fit_segment(name: str, market_area: str, X: np.ndarray, y: np.ndarray, offs
         reason = (f"{sales}: interaction rule 'none'" if settings.interaction_rule == "none"
                   else f"{sales} < {settings.min_sales_own_selection}: interactions inherited")
     if pairs or not own:  # an own selection of no pairs leaves the deviation already fitted
-        level, _ = LevelFit.fit(spec, pairs, X, y, offset, weights, parents)
-    return SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
+        level, smoother = LevelFit.fit(spec, pairs, X, y, offset, weights, parents)
+    fit = SegmentFit(name, market_area, n, "own" if own else "pooled", reason, level)
+    return fit, Deleted.of(smoother)
 
 
 def _counted(weights: np.ndarray) -> np.ndarray:
@@ -425,32 +484,67 @@ def _fit(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndar
                          weights[rows])
 
     top_offset = offset_of(top, np.arange(len(y)), None)
-    area_offset = np.empty(len(y))
     areas: dict[str, LevelFit] = {}
-    for name, rows in _rows_by(market_area).items():
+    area_rows = _rows_by(market_area)
+    area_deleted = []
+    for name, rows in area_rows.items():
         dev_spec = DesignSpec.learn(Xi[rows][_counted(weights[rows])], features, settings.n_basis_segment,
                                     deviation=True, scale_from=spec)
-        areas[name], _ = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows], weights[rows], (top,))
-        area_offset[rows] = top_offset[rows] + offset_of(areas[name], rows, top_offset)
+        areas[name], smoother = LevelFit.fit(dev_spec, pairs, Xi[rows], y[rows], top_offset[rows], weights[rows],
+                                             (top,))
+        area_deleted.append(Deleted.of(smoother))
+    choices = list(screened.choices)
+    step = 1 + max((c.step for c in choices), default=0)
+    keep, chosen = _choose_pooling(Deleted.join(area_deleted), POOLING_AREAS, step)
+    choices += chosen
+    area_offset = np.empty(len(y))
+    for name, rows in area_rows.items():
+        area_offset[rows] = top_offset[rows] + keep * offset_of(areas[name], rows, top_offset)
+        areas[name] = areas[name].shrunk(keep)
 
     seg_area = _segment_market_areas(segment, market_area)
     groups = _rows_by(segment)
     selecting = sum(len(rows) >= settings.min_sales_own_selection for rows in groups.values())
     segment_alpha = settings.alpha / max(selecting, 1)
-    tasks = (delayed(_fit_segment)(name, seg_area[name], Xi[rows], y[rows], area_offset[rows], spec, features,
-                                   candidates, pairs, settings, segment_alpha, weights[rows],
-                                   (top, areas[seg_area[name]]))
-             for name, rows in groups.items())
-    fitted: dict[str, SegmentFit] = {}
-    for i, result in enumerate(Parallel(n_jobs=-1 if settings.scheduler else settings.jobs, return_as="generator")(tasks)):
-        fitted[result.name] = result
-        if progress is not None:
-            progress(i + 1, len(groups))
+
+    def run(names: Iterable[str], n_basis: int | None = None) -> dict[str, tuple[SegmentFit, Deleted | None]]:
+        """Fit the named segments (on `jobs` workers); progress is reported for the first pass over all of them."""
+        tasks = (delayed(_fit_segment)(name, seg_area[name], Xi[groups[name]], y[groups[name]],
+                                       area_offset[groups[name]], spec, features, candidates, pairs, settings,
+                                       segment_alpha, weights[groups[name]], (top, areas[seg_area[name]]), n_basis)
+                 for name in names)
+        done: dict[str, tuple[SegmentFit, Deleted | None]] = {}
+        jobs = -1 if settings.scheduler else settings.jobs
+        for result in Parallel(n_jobs=jobs, return_as="generator")(tasks):
+            done[result[0].name] = result
+            if progress is not None and n_basis is None:
+                progress(len(done), len(groups))
+        return done
+
+    results = run(groups)
+    thin = [name for name, (fit, _) in results.items()
+            if fit.level is not None and fit.n_sales < settings.min_sales_own_selection]
+    if thin and settings.n_basis_segment > THIN_BASIS:
+        step += 1
+        fewer = run(thin, THIN_BASIS)
+        figures = [Deleted.join([d for _, d in (found[name] for name in thin) if d is not None]).criterion()
+                   for found in (results, fewer)]
+        use_fewer = figures[1] < figures[0]
+        choices += [Choice(step, THIN_CURVES, f"{basis} basis functions", LOO, value, chosen)
+                    for basis, value, chosen in ((settings.n_basis_segment, figures[0], not use_fewer),
+                                                 (THIN_BASIS, figures[1], use_fewer))]
+        if use_fewer:
+            results |= fewer
+    keep, chosen = _choose_pooling(Deleted.join([d for _, d in results.values() if d is not None]),
+                                   POOLING_SEGMENTS, step + 1)
+    choices += chosen
+    fitted = {name: replace(fit, level=fit.level.shrunk(keep)) if fit.level is not None else fit
+              for name, (fit, _) in results.items()}
     for name, area in (segments or {}).items():
         if name not in fitted:
             fitted[name] = SegmentFit(name, area, 0, "parent_only", NO_SALES, None)
     return FittedHierarchy(tuple(features), spec, top, areas, fitted,
-                           SaleWeights(weights, screen.residual, screen.scale), screened.choices)
+                           SaleWeights(weights, screen.residual, screen.scale), tuple(choices))
 
 
 def out_of_fold(X: np.ndarray, y: np.ndarray, segment: np.ndarray, market_area: np.ndarray,
@@ -630,11 +724,17 @@ class FittedHierarchy:
 
     def summary(self, segment: str) -> dict[str, object]:
         """How the segment was modelled: sales, kind, reason, deviation edf and columns, the share borrowed
-        (1 - edf / columns), the pairs in its own deviation (own or inherited) and its penalties."""
-        _, fit = self._segment_chain(segment)
+        (1 - edf / columns), the pairs in its own deviation (own or inherited) and its penalties. The share is of
+        the columns a deviation of its market area's basis would have, so a thin segment's coarser curves
+        (THIN_BASIS) count as borrowed."""
+        chain, fit = self._segment_chain(segment)
         level = fit.level
         edf = level.edf if level is not None else 0.0
-        share = edf / level.n_columns if level is not None else 0.0
+        share = 0.0
+        if level is not None:
+            curves = sum(t.kind == "continuous" and not t.constant for t in level.spec.transforms)
+            full = level.n_columns + curves * max(chain[-2].spec.n_basis - level.spec.n_basis, 0)
+            share = edf / full
         return {
             "segment": fit.name,
             "market_area": fit.market_area,

@@ -16,7 +16,7 @@ from typing import Any, TypedDict
 from reval.data.config import Config
 from reval.data.store import Store
 from reval.errors import UserError
-from reval.model import BASE_TERM
+from reval.model import BASE_TERM, POOLING_SEGMENTS, THIN_CURVES
 from reval.model.names import named
 from reval.roll import batch_states
 from reval.roll.batch_states import SegmentBatches, state_of
@@ -342,12 +342,12 @@ def structure_words(rows: list[Record]) -> str:
     """The structure a run's model chose by evidence (rows of run_structure_rows), in one sentence."""
     terms = [r["candidate"] for r in rows if r["chosen"] and r["choice"] == "smooth interactions"
              and r["criterion"] == "GCV" and r["candidate"] != "(none further)"]
-    loss = next((r["candidate"] for r in rows if r["chosen"] and r["choice"] == "loss"), None)
     if not rows:
         return ""
-    said = f"smooth interactions {', '.join(terms)}" if terms else "no smooth interaction"
-    return (f"Chosen on the training sales by evidence: {said}"
-            + (f"; loss {loss}" if loss else "") + " (`reval compare` lists every candidate's figures).")
+    said = [f"smooth interactions {', '.join(terms)}" if terms else "no smooth interaction"]
+    for choice, words in (("loss", "loss {}"), (POOLING_SEGMENTS, "segments {}"), (THIN_CURVES, "thin segments' curves of {}")):
+        said += [words.format(r["candidate"]) for r in rows if r["chosen"] and r["choice"] == choice]
+    return f"Chosen on the training sales by evidence: {'; '.join(said)} (`reval compare` lists every candidate's figures)."
 
 
 def _review(store: Store, config: Config, segment: str) -> SegmentReview | None:
