@@ -348,7 +348,7 @@ def _typical_values(X: np.ndarray, missing: np.ndarray, kinds: Sequence[str]) ->
     """`typical_value` of every column of X; the complete continuous and the complete ordinal columns each in one
     call (a median along an axis is the median of each column alone)."""
     out = np.empty(X.shape[1])
-    complete = ~missing.any(axis=0)
+    complete = np.logical_not(missing.any(axis=0)).tolist()
     batched = {"continuous": lambda A: np.median(A, axis=0),
                "ordinal": lambda A: np.quantile(A, 0.5, axis=0, method="lower")}
     for kind, typical in batched.items():
