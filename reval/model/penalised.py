@@ -300,11 +300,16 @@ class _Problem:
         self.gram, self.xty, self.yty, self.n, self.gamma = gram, xty, yty, n, gamma
         self.base = gram + jitter
         p = gram.shape[0]
-        slabs = np.zeros((len(penalties), p, p))
-        for i, pen in enumerate(penalties):
-            slabs[i, pen.cols, pen.cols] = pen.matrix
-        self.support = np.flatnonzero(np.any(slabs != 0, axis=0))  # the penalised entries of the p x p system
-        self.values = slabs.reshape(len(penalties), p * p)[:, self.support]
+        entries = []  # each penalty's non-zero entries: positions in the flattened p x p system, and values
+        for pen in penalties:
+            block = np.arange(p)[pen.cols]
+            where = (block[:, None] * p + block).ravel()
+            values = np.asarray(pen.matrix, dtype=float).ravel()
+            entries.append((where[values != 0], values[values != 0]))
+        self.support = np.unique(np.concatenate([w for w, _ in entries] + [np.zeros(0, dtype=np.intp)]))  # penalised
+        self.values = np.zeros((len(penalties), len(self.support)))
+        for i, (where, values) in enumerate(entries):
+            self.values[i, np.searchsorted(self.support, where)] = values
         roots = [_embedded_root(pen, p) for pen in penalties]
         self.bounds = np.cumsum([0] + [r.shape[1] for r in roots])  # columns of each E_j among the roots
         self.owner = np.repeat(np.arange(len(roots)), np.diff(self.bounds))  # penalty of each column
