@@ -161,7 +161,7 @@ class DesignSpec:
         missing = np.isnan(filled)
         impute = _typical_values(filled, missing, kinds)
         np.copyto(filled, impute, where=missing)
-        logs = np.array([bool(f.log) and f.kind == "continuous" for f in features])
+        logs = np.array([bool(f.log) and f.kind == "continuous" for f in features], dtype=bool)
         if like is not None:
             floors = np.array([t.log_floor for t in like])
         else:
