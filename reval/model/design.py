@@ -24,7 +24,7 @@ from typing import Protocol, Sequence
 
 import numpy as np
 
-from reval.model.splines import bspline_basis, difference_matrix
+from reval.model.splines import bspline_basis, cubic_pieces, difference_matrix
 from reval.states import FEATURE_SHAPES
 
 INTERCEPT = "(intercept)"
@@ -105,10 +105,14 @@ def sum_to_zero_basis(column_means: np.ndarray) -> np.ndarray:
     return np.eye(len(c))[:, 1:] - np.outer(v, v[1:]) * (2.0 / (v @ v))
 
 
-def _indicators(codes: np.ndarray, n_levels: int) -> np.ndarray:
-    idx = np.clip(np.rint(codes), 0, n_levels - 1).astype(np.intp)
-    out = np.zeros((codes.shape[0], n_levels))
-    out[np.arange(codes.shape[0]), idx] = 1.0
+def _codes(values: np.ndarray, n_levels: int) -> np.ndarray:
+    """Level numbers 0..n_levels-1 of a level feature's values (rounded, clamped)."""
+    return np.clip(np.rint(values), 0, n_levels - 1).astype(np.intp)
+
+
+def _indicators(values: np.ndarray, n_levels: int) -> np.ndarray:
+    out = np.zeros((values.shape[0], n_levels))
+    out[np.arange(values.shape[0]), _codes(values, n_levels)] = 1.0
     return out
 
 
@@ -149,16 +153,48 @@ class DesignSpec:
             raise ValueError(f"X must have one column per feature ({len(features)}), got shape {X.shape}")
         if X.shape[0] == 0:
             raise ValueError("cannot learn a design from zero rows")
-        like = scale_from.transforms if scale_from is not None else (None,) * len(features)
-        learned = [_learn_one(X[:, j], f, n_basis, like[j]) for j, f in enumerate(features)]
-        varying = [j for j, (_, scale) in enumerate(learned) if scale is not None]
-        columns = [values for _, values in learned if values is not None]
-        T = np.column_stack(columns) if columns else np.zeros((X.shape[0], 0))
-        raw = _raw_columns([learned[j][0] for j in varying], T, n_basis)
-        constraint = {j: sum_to_zero_basis(cols.mean(axis=0)) for j, cols in zip(varying, raw)}
-        transforms = tuple(replace(t, constraint=constraint[j]) if j in constraint else t
-                           for j, (t, _) in enumerate(learned))
-        return cls(transforms, n_basis, deviation)
+        like = scale_from.transforms if scale_from is not None else None
+        kinds = [f.kind for f in features]
+        # Fortran order keeps every column contiguous, so each per-column reduction below (median, min, max, mean,
+        # sd) equals the one on that column alone, bit for bit, at one call for all features
+        filled = np.array(X, order="F")
+        missing = np.isnan(filled)
+        impute = _typical_values(filled, missing, kinds)
+        np.copyto(filled, impute, where=missing)
+        logs = np.array([bool(f.log) and f.kind == "continuous" for f in features], dtype=bool)
+        if like is not None:
+            floors = np.array([t.log_floor for t in like])
+        else:
+            smallest = np.where(filled > 0, filled, np.inf).min(axis=0)
+            floors = np.where(np.isfinite(smallest), smallest, 1.0)
+        T = filled.copy(order="F")
+        T[:, logs] = np.log(np.maximum(filled[:, logs], floors[logs]))
+        sds, means = T.std(axis=0), T.mean(axis=0)
+        raw_lo, raw_hi, lo, hi = filled.min(axis=0), filled.max(axis=0), T.min(axis=0), T.max(axis=0)
+        learned: list[FeatureTransform] = []
+        varying: list[int] = []  # the features that vary over the rows, which get a sum-to-zero constraint
+        for j, f in enumerate(features):
+            if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
+                raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
+            n_levels = len(f.levels) if f.kind in ("ordinal", "categorical") else (2 if f.kind == "binary" else 0)
+            sd = float(sds[j])
+            mean, scale = (like[j].mean, like[j].sd) if like is not None else (float(means[j]), sd if sd > 0 else 1.0)
+            t = FeatureTransform(
+                f.name, f.kind, bool(logs[j]), n_levels, float(impute[j]), float(floors[j]), float(raw_lo[j]),
+                float(raw_hi[j]), float(lo[j]), float(hi[j]), mean, scale, np.zeros((0, 0)), shape_of(f),
+            )
+            if sd == 0:
+                width = n_basis if f.kind == "continuous" else max(n_levels, 1)
+                t = replace(t, constraint=np.zeros((width, 0)))
+            elif f.kind in ("ordinal", "categorical") and n_levels < 2:
+                raise ValueError(f"feature {f.name!r}: a {f.kind} feature needs its levels listed")
+            else:
+                varying.append(j)
+            learned.append(t)
+        column_means = _column_means([learned[j] for j in varying], T[:, varying], n_basis)
+        for j, c in zip(varying, column_means):
+            learned[j] = replace(learned[j], constraint=sum_to_zero_basis(c))
+        return cls(tuple(learned), n_basis, deviation)
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -174,20 +210,23 @@ class DesignSpec:
         except KeyError:
             raise ValueError(f"unknown feature {feature!r}") from None
 
+    @cached_property
+    def _scaling(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Imputation values, which features are logged, and their log floors, one entry per feature."""
+        return (np.array([t.impute for t in self.transforms]), np.array([t.log for t in self.transforms], dtype=bool),
+                np.array([t.log_floor for t in self.transforms]))
+
     def impute(self, X: np.ndarray) -> np.ndarray:
         """Copy of X with missing values replaced by the training imputation values."""
         X = np.array(X, dtype=float, copy=True)
-        for j, t in enumerate(self.transforms):
-            col = X[:, j]
-            col[np.isnan(col)] = t.impute
+        np.copyto(X, self._scaling[0], where=np.isnan(X))
         return X
 
     def transformed(self, X: np.ndarray) -> np.ndarray:
         """Imputed features on the modelling scale (log where requested, with the log floor)."""
         T = self.impute(X)
-        for j, t in enumerate(self.transforms):
-            if t.log:
-                T[:, j] = np.log(np.maximum(T[:, j], t.log_floor))
+        _, logs, floors = self._scaling
+        T[:, logs] = np.log(np.maximum(T[:, logs], floors[logs]))
         return T
 
     def term_columns(self, feature: str, x: np.ndarray) -> np.ndarray:
@@ -305,33 +344,44 @@ def typical_value(x: np.ndarray, kind: str) -> float:
     return float(vals[np.argmax(counts)])
 
 
-def _learn_one(x: np.ndarray, f: Feature, n_basis: int,
-               like: FeatureTransform | None) -> tuple[FeatureTransform, np.ndarray | None]:
-    """A feature's transform and its training values on the modelling scale; a varying feature's transform
-    still lacks its constraint (learned from all features' columns at once), a constant one has none (None)."""
-    if f.kind not in ("continuous", "ordinal", "categorical", "binary"):
-        raise ValueError(f"feature {f.name!r}: unknown kind {f.kind!r}")
-    impute = typical_value(x, f.kind)
-    filled = np.where(np.isnan(x), impute, x)
-    positive = filled[filled > 0]
-    log = bool(f.log) and f.kind == "continuous"
-    log_floor = float(positive.min()) if positive.size else 1.0
-    if like is not None:
-        log_floor = like.log_floor
-    t = np.log(np.maximum(filled, log_floor)) if log else filled
-    n_levels = len(f.levels) if f.kind in ("ordinal", "categorical") else (2 if f.kind == "binary" else 0)
-    sd = float(t.std())
-    mean, scale = (like.mean, like.sd) if like is not None else (float(t.mean()), sd if sd > 0 else 1.0)
-    partial = FeatureTransform(
-        f.name, f.kind, log, n_levels, impute, log_floor, float(filled.min()), float(filled.max()),
-        float(t.min()), float(t.max()), mean, scale, np.zeros((0, 0)), shape_of(f),
-    )
-    if sd == 0:
-        width = n_basis if f.kind == "continuous" else max(n_levels, 1)
-        return replace(partial, constraint=np.zeros((width, 0))), None
-    if f.kind in ("ordinal", "categorical") and n_levels < 2:
-        raise ValueError(f"feature {f.name!r}: a {f.kind} feature needs its levels listed")
-    return partial, t
+def _typical_values(X: np.ndarray, missing: np.ndarray, kinds: Sequence[str]) -> np.ndarray:
+    """`typical_value` of every column of X; the complete continuous and the complete ordinal columns each in one
+    call (a median along an axis is the median of each column alone)."""
+    out = np.empty(X.shape[1])
+    complete = np.logical_not(missing.any(axis=0)).tolist()
+    batched = {"continuous": lambda A: np.median(A, axis=0),
+               "ordinal": lambda A: np.quantile(A, 0.5, axis=0, method="lower")}
+    for kind, typical in batched.items():
+        cols = [j for j, k in enumerate(kinds) if k == kind and complete[j]]
+        if cols:
+            out[cols] = typical(X[:, cols])
+    for j, kind in enumerate(kinds):
+        if kind not in batched or not complete[j]:
+            out[j] = typical_value(X[:, j], kind)
+    return out
+
+
+def _column_means(ts: Sequence[FeatureTransform], T: np.ndarray, n_basis: int) -> list[np.ndarray]:
+    """Means over the rows of each feature's unconstrained columns (those of `_raw_columns`) without building them:
+    a B-spline column's sum accumulates its row's non-zero values in row order (np.bincount), as the sum down the
+    dense column does, and an indicator's is its level's count."""
+    n = T.shape[0]
+    curves = [i for i, t in enumerate(ts) if t.kind == "continuous"]
+    means: dict[int, np.ndarray] = {}
+    if curves:
+        first, values = cubic_pieces(_unit(ts, curves, T).ravel(order="F"), n_basis)
+        bins = (np.repeat(np.arange(len(curves)) * n_basis, n) + first)[:, None] + np.arange(4)
+        sums = np.bincount(bins.ravel(), values.ravel(), minlength=len(curves) * n_basis)
+        means = {i: sums[k * n_basis:(k + 1) * n_basis] / n for k, i in enumerate(curves)}
+    return [means[i] if i in means else np.bincount(_codes(T[:, i], t.n_levels), minlength=t.n_levels) / n
+            for i, t in enumerate(ts)]
+
+
+def _unit(ts: Sequence[FeatureTransform], curves: Sequence[int], T: np.ndarray) -> np.ndarray:
+    """The curves' columns of T clamped to their training ranges and mapped onto [0, 1]."""
+    lo = np.array([ts[i].lo for i in curves])
+    hi = np.array([ts[i].hi for i in curves])
+    return (np.clip(T[:, curves], lo, hi) - lo) / np.where(hi > lo, hi - lo, 1.0)
 
 
 def _raw_columns(ts: Sequence[FeatureTransform], T: np.ndarray, n_basis: int) -> list[np.ndarray]:
@@ -342,9 +392,6 @@ def _raw_columns(ts: Sequence[FeatureTransform], T: np.ndarray, n_basis: int) ->
     curves = [i for i, t in enumerate(ts) if t.kind == "continuous"]
     splines: dict[int, np.ndarray] = {}
     if curves:
-        lo = np.array([ts[i].lo for i in curves])
-        hi = np.array([ts[i].hi for i in curves])
-        unit = (np.clip(T[:, curves], lo, hi) - lo) / np.where(hi > lo, hi - lo, 1.0)
-        basis = bspline_basis(unit.ravel(order="F"), 0.0, 1.0, n_basis)
+        basis = bspline_basis(_unit(ts, curves, T).ravel(order="F"), 0.0, 1.0, n_basis)
         splines = {i: basis[k * n : (k + 1) * n] for k, i in enumerate(curves)}
     return [splines[i] if i in splines else _indicators(T[:, i], t.n_levels) for i, t in enumerate(ts)]

@@ -300,19 +300,31 @@ class _Problem:
         self.gram, self.xty, self.yty, self.n, self.gamma = gram, xty, yty, n, gamma
         self.base = gram + jitter
         p = gram.shape[0]
-        slabs = np.zeros((len(penalties), p, p))
-        for i, pen in enumerate(penalties):
-            slabs[i, pen.cols, pen.cols] = pen.matrix
-        self.support = np.flatnonzero(np.any(slabs != 0, axis=0))  # the penalised entries of the p x p system
-        self.values = slabs.reshape(len(penalties), p * p)[:, self.support]
+        entries = []  # each penalty's non-zero entries: positions in the flattened p x p system, and values
+        for pen in penalties:
+            block = np.arange(p)[pen.cols]
+            where = (block[:, None] * p + block).ravel()
+            values = np.asarray(pen.matrix, dtype=float).ravel()
+            entries.append((where[values != 0], values[values != 0]))
+        self.support = np.unique(np.concatenate([w for w, _ in entries] + [np.zeros(0, dtype=np.intp)]))  # penalised
+        self.values = np.zeros((len(penalties), len(self.support)))
+        for i, (where, values) in enumerate(entries):
+            self.values[i, np.searchsorted(self.support, where)] = values
         roots = [_embedded_root(pen, p) for pen in penalties]
-        self.roots = np.hstack(roots) if roots else np.zeros((p, 0))  # E_j side by side, E_j E_j' = S_j
-        self.owner = np.repeat(np.arange(len(roots)), [r.shape[1] for r in roots])  # penalty of each column
-        self.data = np.column_stack([_gram_root(gram), xty])  # [R' | X'y], solved with L in the same call
+        self.bounds = np.cumsum([0] + [r.shape[1] for r in roots])  # columns of each E_j among the roots
+        self.owner = np.repeat(np.arange(len(roots)), np.diff(self.bounds))  # penalty of each column
+        width = int(self.bounds[-1])
+        # [E_1 ... E_k | R' | X'y], Fortran-ordered for LAPACK: a line writes its scaled roots just before R'
+        # (the last columns of the roots' slot) and solves them and [R' | X'y] with L in one call
+        self.roots = np.hstack(roots) if roots else np.zeros((p, 0))
+        data = np.column_stack([_gram_root(gram), xty])
+        self.work = np.empty((p, width + data.shape[1]), order="F")
+        self.work[:, width:] = data
+        self.width = width
 
     def system(self, lambdas: np.ndarray) -> np.ndarray:
         out = self.base.copy()
-        out.flat[self.support] += lambdas @ self.values
+        out.reshape(-1)[self.support] += lambdas @ self.values  # a view: faster than .flat
         return out
 
     def line(self, fixed: np.ndarray, direction: np.ndarray, rho: np.ndarray) -> np.ndarray:
@@ -320,13 +332,20 @@ class _Problem:
         chol, info = dpotrf(self.system(fixed), lower=1, clean=0, overwrite_a=1)
         if info != 0:
             return np.full(len(rho), np.inf)
-        cols = np.flatnonzero(direction[self.owner] > 0)
-        moving = self.roots[:, cols] * np.sqrt(direction[self.owner[cols]])
-        solved, _ = dtrtrs(chol, np.hstack([moving, self.data]), lower=1)
-        half, z = solved[:, len(cols):-1], solved[:, -1]  # L^-1 R' (so L^-1 X'X L^-T = half half') and L^-1 X'y
+        moving = np.flatnonzero(direction > 0)
+        if len(moving) == 1:  # one penalty: its roots are a slice
+            j = moving[0]
+            roots, root_scale = self.roots[:, self.bounds[j]:self.bounds[j + 1]], np.sqrt(direction[j])
+        else:
+            cols = np.flatnonzero(direction[self.owner] > 0)
+            roots, root_scale = self.roots[:, cols], np.sqrt(direction[self.owner[cols]])
+        r = roots.shape[1]
+        np.multiply(roots, root_scale, out=self.work[:, self.width - r:self.width])
+        solved, _ = dtrtrs(chol, self.work[:, self.width - r:], lower=1)  # [L^-1 E | L^-1 R' | L^-1 X'y]
+        half, z = solved[:, r:-1], solved[:, -1]  # L^-1 R' (so L^-1 X'X L^-T = half half') and L^-1 X'y
         q, sv = np.zeros((len(z), 0)), np.zeros(0)
-        if len(cols):
-            q, sv, _, _ = dgesdd(solved[:, : len(cols)], compute_uv=1, full_matrices=0)
+        if r:
+            q, sv, _, _ = dgesdd(solved[:, :r], compute_uv=1, full_matrices=0, overwrite_a=1)
         proj = q.T @ half
         a = q.T @ z
         t = 10.0 ** np.asarray(rho, dtype=float)
