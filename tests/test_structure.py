@@ -13,10 +13,10 @@ import numpy as np
 from reval.data.store import open_store
 from reval.model.design import DesignSpec
 from reval.model import POOLING_AREAS, POOLING_SEGMENTS, THIN_CURVES
-from reval.model.hierarchy import THIN_BASIS, Deleted, _choose_pooling, fit_hierarchy
+from reval.model.hierarchy import THIN_BASIS, _choose_pooling, fit_hierarchy
 from reval.model.penalised import PenalisedLS
 from reval.model.settings import ModelSettings
-from reval.model.structure import GCV, INNER_CV, LOO, Smooth, candidate_smooths, choose_smooths
+from reval.model.structure import GCV, INNER_CV, LOO, Deleted, Smooth, candidate_smooths, choose_smooths
 from helpers import run_reval as reval
 
 FEATURES = [

@@ -22,7 +22,7 @@ each segment, on its own deviation's leave-one-out residuals, was measured sligh
 of it is redone inside every fold.
 
 Pooling and thin segments, chosen by evidence per fit (the leave-one-out residuals of each deviation layer, exact for
-a linear smoother: `Deleted`): each layer may keep only a share of its deviations (POOLING_GRID; a share below 1 pulls
+a linear smoother: structure.Deleted): each layer may keep only a share of its deviations (POOLING_GRID; a share below 1 pulls
 every segment further toward its parent than its own GCV did), and the segments under `min_sales_own_selection`
 sales get curves of THIN_BASIS basis functions instead of `n_basis_segment` when that predicts their sales left out
 better. Both are stored with the run and shown by `reval compare`.
@@ -50,7 +50,7 @@ from reval.model.settings import ModelSettings
 from reval.model.penalised import TIE, PenalisedLS, column_slices, stack
 from reval.model.robust import Huber, Refined, refine
 from reval.model.shape import Layer, shape_constraint
-from reval.model.structure import LOO, Choice, Smooth, candidate_smooths, choose_smooths, loo_criterion
+from reval.model.structure import LOO, Choice, Deleted, Smooth, candidate_smooths, choose_smooths, loo_criterion
 
 NO_SALES = "no qualified sales"
 GAMMA = 1.4  # GCV inflation of edf (Kim & Gu 2004), see the module docstring
@@ -190,36 +190,6 @@ class SaleWeights:
     weight: np.ndarray
     residual: np.ndarray
     scale: float
-
-
-@dataclass(frozen=True)
-class Deleted:
-    """A deviation layer's leave-one-out view of its sales: the target it fitted (y - parent offset), its fitted
-    deviation and each sale's leverage (at its weight), from which the deletion residual of any share `keep` of
-    the deviation follows without a refit."""
-
-    target: np.ndarray
-    fitted: np.ndarray
-    leverage: np.ndarray
-
-    @classmethod
-    def of(cls, smoother: PenalisedLS) -> Deleted:
-        return cls(smoother.target_, smoother.target_ - smoother.resid_, smoother.leverage())
-
-    @classmethod
-    def join(cls, parts: Sequence[Deleted]) -> Deleted:
-        return cls(*(np.concatenate([getattr(p, f) for p in parts]) if parts else np.zeros(0)
-                     for f in ("target", "fitted", "leverage")))
-
-    def criterion(self, keep: float = 1.0) -> float:
-        """Mean absolute leave-one-out residual with the deviation scaled by `keep` (structure.loo_criterion's
-        figure): the sale's own deviation prediction without it is (f - h t) / (1 - h), exact for a linear smoother
-        at fixed penalties and weights (Wood 2017, section 6.2.2, from memory)."""
-        if not len(self.target):
-            return float("nan")
-        h = np.minimum(self.leverage, 1.0 - 1e-3)
-        without = (self.fitted - h * self.target) / (1.0 - h)
-        return float(np.mean(np.abs(self.target - keep * without)))
 
 
 def _choose_pooling(deleted: Deleted, choice: str, step: int) -> tuple[float, list[Choice]]:

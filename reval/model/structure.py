@@ -57,6 +57,7 @@ GCV = "GCV"
 FoldPart = tuple[np.ndarray, np.ndarray, np.ndarray]  # an inner fold's rows, its X'WX and X'W target
 INNER_CV = "inner 5-fold mean |error|"
 LOO = "mean |leave-one-out residual|"
+MIN_SLACK = 1e-3  # 1 - leverage is held at least this far from 0 in a deleted residual (a sale that alone fits a term)
 
 
 @dataclass(frozen=True)
@@ -363,6 +364,35 @@ def loo_criterion(smoother: PenalisedLS, residual: np.ndarray | None = None) -> 
     """Mean absolute leave-one-out residual of a fitted smoother's rows (r / (1 - h) at its weights), or of the
     given deleted residuals."""
     if residual is None:
-        residual = smoother.resid_ / np.maximum(1.0 - smoother.leverage(), 1e-3)
+        residual = smoother.resid_ / np.maximum(1.0 - smoother.leverage(), MIN_SLACK)
     return float(np.mean(np.abs(residual)))
 
+
+@dataclass(frozen=True)
+class Deleted:
+    """A deviation layer's leave-one-out view of its sales: the target it fitted (y - parent offset), its fitted
+    deviation and each sale's leverage (at its weight), from which the deletion residual of any share `keep` of
+    the deviation follows without a refit."""
+
+    target: np.ndarray
+    fitted: np.ndarray
+    leverage: np.ndarray
+
+    @classmethod
+    def of(cls, smoother: PenalisedLS) -> Deleted:
+        return cls(smoother.target_, smoother.target_ - smoother.resid_, smoother.leverage())
+
+    @classmethod
+    def join(cls, parts: Sequence[Deleted]) -> Deleted:
+        return cls(*(np.concatenate([getattr(p, f) for p in parts]) if parts else np.zeros(0)
+                     for f in ("target", "fitted", "leverage")))
+
+    def criterion(self, keep: float = 1.0) -> float:
+        """Mean absolute leave-one-out residual with the deviation scaled by `keep` (`loo_criterion`'s
+        figure): the sale's own deviation prediction without it is (f - h t) / (1 - h), exact for a linear smoother
+        at fixed penalties and weights (Wood 2017, section 6.2.2, from memory)."""
+        if not len(self.target):
+            return float("nan")
+        h = np.minimum(self.leverage, 1.0 - MIN_SLACK)
+        without = (self.fitted - h * self.target) / (1.0 - h)
+        return float(np.mean(np.abs(self.target - keep * without)))
